@@ -1,0 +1,406 @@
+//! Calculus on normal forms: partial derivatives, substitution, and the
+//! time calculus (antiderivatives in `t`, definite integrals, periods and
+//! means, separation into time coefficients × autonomous parts).
+//!
+//! Pure functions of expressions; no I/O, no session.
+
+use std::collections::HashMap;
+
+use super::error::{CoreError, CoreResult};
+use super::expr::{Beat, Expr, Key, Lin, Mono, Wave};
+use super::num::Q;
+use super::symbol::Sym;
+
+impl Expr {
+    /// Partial derivative with respect to `s` (a state, a parameter or `t`).
+    pub fn pd(&self, s: Sym) -> Expr {
+        let mut out: Vec<(Key, Q)> = Vec::new();
+        for (k, c) in self.terms() {
+            // Monomial factor.
+            let e = k.mono.exp_of(s);
+            if e != 0 {
+                let mut key = k.clone();
+                for (x, ex) in key.mono.0.iter_mut() {
+                    if *x == s {
+                        *ex -= 1;
+                    }
+                }
+                key.mono.0.retain(|(_, ex)| *ex != 0);
+                out.push((key, c.mul(&Q::int(e as i64))));
+            }
+            // Exponential factor.
+            let m = k.exp.coeff(s);
+            if !m.is_zero() {
+                out.push((k.clone(), c.mul(&m)));
+            }
+            // Trigonometric factor in the state.
+            match &k.wave {
+                Wave::One => {}
+                Wave::Cos(l) => {
+                    let a = l.coeff(s);
+                    if !a.is_zero() {
+                        let key = Key { wave: Wave::Sin(l.clone()), ..k.clone() };
+                        out.push((key, c.mul(&a).neg()));
+                    }
+                }
+                Wave::Sin(l) => {
+                    let a = l.coeff(s);
+                    if !a.is_zero() {
+                        let key = Key { wave: Wave::Cos(l.clone()), ..k.clone() };
+                        out.push((key, c.mul(&a)));
+                    }
+                }
+            }
+            // Trigonometric factor in time.
+            if s == Sym::T {
+                match &k.beat {
+                    Beat::One => {}
+                    Beat::Cos(w) => {
+                        out.push((Key { beat: Beat::Sin(w.clone()), ..k.clone() }, c.mul(w).neg()))
+                    }
+                    Beat::Sin(w) => {
+                        out.push((Key { beat: Beat::Cos(w.clone()), ..k.clone() }, c.mul(w)))
+                    }
+                }
+            }
+        }
+        Expr::from_terms(out)
+    }
+
+    /// Simultaneous substitution of symbols by expressions. `states` lists
+    /// the state coordinates, which alone may stand inside `sin`, `cos` and
+    /// `exp`; a substitution that would put anything else there, or a sum
+    /// under a negative power, is an error.
+    pub fn subst(&self, map: &HashMap<Sym, Expr>, states: &[Sym]) -> CoreResult<Expr> {
+        if map.is_empty() {
+            return Ok(self.clone());
+        }
+        let mut pow_cache: HashMap<(Sym, i32), Expr> = HashMap::new();
+        let mut out = Expr::zero();
+        for (k, c) in self.terms() {
+            super::limits::poll()?;
+            // Unaffected part of the key.
+            let mut rest = Key::one();
+            let mut factor = Expr::int(1);
+            for (s, e) in &k.mono.0 {
+                match map.get(s) {
+                    None => rest.mono.0.push((*s, *e)),
+                    Some(v) => {
+                        let p = match pow_cache.get(&(*s, *e)) {
+                            Some(p) => p.clone(),
+                            None => {
+                                let p = v.pow(*e as i64).map_err(|err| match err {
+                                    CoreError::DivisionBySum { .. } => CoreError::OutsideAlgebra {
+                                        what: format!(
+                                            "`{}^{}` with {} = {}",
+                                            s.name(),
+                                            e,
+                                            s.name(),
+                                            v
+                                        ),
+                                    },
+                                    other => other,
+                                })?;
+                                pow_cache.insert((*s, *e), p.clone());
+                                p
+                            }
+                        };
+                        factor = factor.mul(&p)?;
+                    }
+                }
+            }
+            let lin_touched = |l: &Lin| l.0.iter().any(|(s, _)| map.contains_key(s));
+            if lin_touched(&k.exp) {
+                factor = factor.mul(&Expr::exp_of(&lin_value(&k.exp, map), states)?)?;
+            } else {
+                rest.exp = k.exp.clone();
+            }
+            match &k.wave {
+                Wave::One => {}
+                Wave::Cos(l) | Wave::Sin(l) if lin_touched(l) => {
+                    let arg = lin_value(l, map);
+                    let w = if matches!(k.wave, Wave::Cos(_)) {
+                        Expr::cos_of(&arg, states)?
+                    } else {
+                        Expr::sin_of(&arg, states)?
+                    };
+                    factor = factor.mul(&w)?;
+                }
+                w => rest.wave = w.clone(),
+            }
+            match (&k.beat, map.get(&Sym::T)) {
+                (Beat::One, _) => {}
+                (b, None) => rest.beat = b.clone(),
+                (Beat::Cos(w), Some(v)) => {
+                    factor = factor.mul(&Expr::cos_of(&v.scale(w), states)?)?;
+                }
+                (Beat::Sin(w), Some(v)) => {
+                    factor = factor.mul(&Expr::sin_of(&v.scale(w), states)?)?;
+                }
+            }
+            let term = Expr::term(rest, c.clone()).mul(&factor)?;
+            out = out.add(&term);
+            super::limits::check_terms(out.len())?;
+        }
+        Ok(out)
+    }
+
+    /// Renames symbols (a substitution by symbols, which never fails for
+    /// state-to-state renaming).
+    pub fn rename(&self, map: &HashMap<Sym, Sym>, states: &[Sym]) -> CoreResult<Expr> {
+        let m: HashMap<Sym, Expr> = map.iter().map(|(a, b)| (*a, Expr::sym(*b))).collect();
+        self.subst(&m, states)
+    }
+}
+
+fn lin_value(l: &Lin, map: &HashMap<Sym, Expr>) -> Expr {
+    let mut acc = Expr::zero();
+    for (s, c) in &l.0 {
+        let v = map.get(s).cloned().unwrap_or_else(|| Expr::sym(*s));
+        acc = acc.add_scaled(&v, c);
+    }
+    acc
+}
+
+// ---------------------------------------------------------------------------
+// Time calculus.
+
+/// The time part of a term: `t^n · beat`.
+#[derive(Clone, PartialEq, Eq, Hash, PartialOrd, Ord, Debug)]
+pub struct TimeKey {
+    /// Power of `t`.
+    pub tpow: i32,
+    /// Oscillating factor.
+    pub beat: Beat,
+}
+
+impl TimeKey {
+    /// The time function as an expression.
+    pub fn to_expr(&self) -> Expr {
+        let mut key = Key::one();
+        if self.tpow != 0 {
+            key.mono.0.push((Sym::T, self.tpow));
+        }
+        key.beat = self.beat.clone();
+        Expr::term(key, Q::ONE)
+    }
+}
+
+/// A period written as a rational multiple of pi.
+#[derive(Clone, PartialEq, Eq, Debug)]
+pub struct Period(pub Q);
+
+impl Period {
+    /// The period as an exact expression `c*pi`.
+    pub fn to_expr(&self) -> Expr {
+        Expr::sym(Sym::PI).scale(&self.0)
+    }
+}
+
+impl std::fmt::Display for Period {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "{}", self.to_expr())
+    }
+}
+
+impl Expr {
+    /// Splits into `Σ c_k(t) g_k`: pairs (time part, autonomous expression),
+    /// sorted by time part.
+    pub fn split_time(&self) -> Vec<(TimeKey, Expr)> {
+        let mut groups: HashMap<TimeKey, Vec<(Key, Q)>> = HashMap::new();
+        for (k, c) in self.terms() {
+            let tk = TimeKey { tpow: k.mono.exp_of(Sym::T), beat: k.beat.clone() };
+            let mut rest = k.clone();
+            rest.mono.0.retain(|(s, _)| *s != Sym::T);
+            rest.beat = Beat::One;
+            groups.entry(tk).or_default().push((rest, c.clone()));
+        }
+        let mut out: Vec<(TimeKey, Expr)> =
+            groups.into_iter().map(|(tk, terms)| (tk, Expr::from_terms(terms))).collect();
+        out.sort_by(|a, b| a.0.cmp(&b.0));
+        out
+    }
+
+    /// The frequencies `k` of the `cos(k t)`/`sin(k t)` factors present.
+    pub fn frequencies(&self) -> Vec<Q> {
+        let mut out: Vec<Q> = self
+            .terms()
+            .iter()
+            .filter_map(|(k, _)| match &k.beat {
+                Beat::One => None,
+                Beat::Cos(w) | Beat::Sin(w) => Some(w.clone()),
+            })
+            .collect();
+        out.sort();
+        out.dedup();
+        out
+    }
+
+    /// Fails with `NotPeriodic` naming the first term with a power of `t`.
+    pub fn check_periodic(&self) -> CoreResult<()> {
+        for (k, c) in self.terms() {
+            if k.mono.exp_of(Sym::T) != 0 {
+                return Err(CoreError::NotPeriodic { term: Expr::term(k.clone(), c.clone()).to_string() });
+            }
+        }
+        Ok(())
+    }
+
+    /// Antiderivative in `t` (the one without constant term in the
+    /// polynomial-times-oscillation basis).
+    pub fn antiderivative_t(&self) -> CoreResult<Expr> {
+        let mut out: Vec<(Key, Q)> = Vec::new();
+        for (k, c) in self.terms() {
+            let n = k.mono.exp_of(Sym::T);
+            if n < 0 {
+                return Err(CoreError::Refused {
+                    reason: "cannot integrate a negative power of t".to_string(),
+                });
+            }
+            let mut base = k.clone();
+            base.mono.0.retain(|(s, _)| *s != Sym::T);
+            base.beat = Beat::One;
+            for (p, beat, q) in integrate_time_monomial(n, &k.beat) {
+                let mut key = base.clone();
+                if p != 0 {
+                    key.mono = key.mono.mul(&Mono(smallvec::smallvec![(Sym::T, p)]))?;
+                }
+                key.beat = beat;
+                out.push((key, c.mul(&q)));
+            }
+        }
+        Ok(Expr::from_terms(out))
+    }
+
+    /// `∫_0^t self dτ` (as a function of `t`).
+    pub fn integral_from_zero(&self) -> CoreResult<Expr> {
+        let f = self.antiderivative_t()?;
+        let f0 = f.at_time_zero();
+        Ok(f.sub(&f0))
+    }
+
+    /// The value at `t = 0`.
+    pub fn at_time_zero(&self) -> Expr {
+        self.map_terms(|k, c| {
+            if k.mono.exp_of(Sym::T) > 0 {
+                return None;
+            }
+            match &k.beat {
+                Beat::Sin(_) => None,
+                _ => {
+                    let mut key = k.clone();
+                    key.beat = Beat::One;
+                    Some((key, c.clone()))
+                }
+            }
+        })
+    }
+
+    /// The value at `t = c·pi` (exact when every `cos`/`sin` of time lands on a
+    /// multiple of pi/6 with a rational value).
+    pub fn at_time_pi_multiple(&self, c: &Q) -> CoreResult<Expr> {
+        let mut out: Vec<(Key, Q)> = Vec::new();
+        for (k, coeff) in self.terms() {
+            let n = k.mono.exp_of(Sym::T);
+            let mut key = k.clone();
+            key.mono.0.retain(|(s, _)| *s != Sym::T);
+            let mut q = coeff.clone();
+            if n != 0 {
+                q = q.mul(&c.pow(n as i64).ok_or(CoreError::DivisionByZero)?);
+                key.mono = key.mono.mul(&Mono(smallvec::smallvec![(Sym::PI, n)]))?;
+            }
+            match &k.beat {
+                Beat::One => {}
+                Beat::Cos(w) | Beat::Sin(w) => {
+                    let is_sin = matches!(k.beat, Beat::Sin(_));
+                    let arg = w.mul(c);
+                    let v = trig_value(is_sin, &arg).ok_or_else(|| CoreError::Irrational {
+                        what: format!("{}({}*pi)", if is_sin { "sin" } else { "cos" }, arg),
+                    })?;
+                    q = q.mul(&v);
+                    key.beat = Beat::One;
+                }
+            }
+            out.push((key, q));
+        }
+        Ok(Expr::from_terms(out))
+    }
+
+    /// `∫_0^T self dt` for `T = c·pi`.
+    pub fn integral_over(&self, period: &Period) -> CoreResult<Expr> {
+        let f = self.antiderivative_t()?;
+        Ok(f.at_time_pi_multiple(&period.0)?.sub(&f.at_time_zero()))
+    }
+
+    /// Mean over the period: `(1/T) ∫_0^T self dt`.
+    pub fn mean_over(&self, period: &Period) -> CoreResult<Expr> {
+        let integral = self.integral_over(period)?;
+        integral.div(&period.to_expr())
+    }
+
+    /// The zero-mean antiderivative in `t` of a periodic expression whose
+    /// mean is zero (the oscillating part of `∫ self dt`).
+    pub fn zero_mean_antiderivative(&self, period: &Period) -> CoreResult<Expr> {
+        let f = self.antiderivative_t()?;
+        let m = f.mean_over(period)?;
+        Ok(f.sub(&m))
+    }
+}
+
+/// Exact cos/sin at `c·pi` when rational.
+fn trig_value(is_sin: bool, c: &Q) -> Option<Q> {
+    let six = c.mul(&Q::int(6));
+    let n = six.to_i64()?.rem_euclid(12);
+    const COS2: [i64; 12] = [2, 99, 1, 0, -1, 99, -2, 99, -1, 0, 1, 99];
+    let idx = if is_sin { (n + 9) % 12 } else { n };
+    let v = COS2[idx as usize];
+    if v == 99 {
+        None
+    } else {
+        Q::ratio(v, 2)
+    }
+}
+
+/// `∫ t^n · beat dt` as a list of `(power, beat, coefficient)`.
+fn integrate_time_monomial(n: i32, beat: &Beat) -> Vec<(i32, Beat, Q)> {
+    match beat {
+        Beat::One => vec![(n + 1, Beat::One, Q::ratio(1, n as i64 + 1).unwrap_or(Q::ZERO))],
+        Beat::Cos(k) | Beat::Sin(k) => {
+            // I_c(n) = t^n sin/k - (n/k) I_s(n-1); I_s(n) = -t^n cos/k + (n/k) I_c(n-1).
+            let mut out = Vec::new();
+            let mut is_sin = matches!(beat, Beat::Sin(_));
+            let mut factor = Q::ONE;
+            let mut p = n;
+            let inv_k = k.recip().unwrap_or(Q::ZERO);
+            loop {
+                if is_sin {
+                    out.push((p, Beat::Cos(k.clone()), factor.mul(&inv_k).neg()));
+                    factor = factor.mul(&Q::int(p as i64)).mul(&inv_k);
+                } else {
+                    out.push((p, Beat::Sin(k.clone()), factor.mul(&inv_k)));
+                    factor = factor.mul(&Q::int(p as i64)).mul(&inv_k).neg();
+                }
+                if p == 0 {
+                    break;
+                }
+                p -= 1;
+                is_sin = !is_sin;
+            }
+            out
+        }
+    }
+}
+
+/// The common period of the given frequencies, as a multiple of pi:
+/// `T = 2·pi / gcd(k)`. `None` when there are no frequencies.
+pub fn common_period(freqs: &[Q]) -> Option<Period> {
+    let mut g: Option<Q> = None;
+    for k in freqs {
+        g = Some(match g {
+            None => k.abs(),
+            Some(g) => g.gcd(k),
+        });
+    }
+    let g = g?;
+    Some(Period(Q::int(2).div(&g)?))
+}

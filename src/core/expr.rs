@@ -1,0 +1,917 @@
+//! Expressions in the canonical normal form.
+//!
+//! An expression is a finite sum of terms
+//! `coeff · monomial · exp(M) · {1 | cos(L) | sin(L)} · {1 | cos(k t) | sin(k t)}`
+//! where the monomial has integer exponents over parameters, state
+//! coordinates, `t` (non-negative powers) and `pi`; `L`, `M` are linear forms
+//! with rational coefficients in the state coordinates; `k > 0` is rational.
+//! Products of trigonometric factors are reduced with the product-to-sum
+//! identities and the argument of every `cos`/`sin` has a positive leading
+//! coefficient, so two expressions are equal if and only if their term lists
+//! are identical. Time is kept in its own factor (`t^n`, `cos(k t)`,
+//! `sin(k t)`), which makes a time-varying expression separate as
+//! `Σ c_k(t) g_k(x)`.
+//!
+//! This module knows nothing of parsing, sessions or printing styles beyond
+//! the plain input syntax used by `Display`.
+
+use smallvec::SmallVec;
+use std::collections::HashMap;
+use std::fmt;
+
+use super::error::{CoreError, CoreResult, LimitKind};
+use super::limits;
+use super::num::Q;
+use super::symbol::Sym;
+
+/// A monomial: sorted `(symbol, exponent)` pairs with nonzero exponents.
+#[derive(Clone, PartialEq, Eq, Hash, PartialOrd, Ord, Debug, Default)]
+pub struct Mono(pub SmallVec<[(Sym, i32); 4]>);
+
+/// A linear form without constant: sorted `(symbol, coefficient)` pairs with
+/// nonzero coefficients.
+#[derive(Clone, PartialEq, Eq, Hash, PartialOrd, Ord, Debug, Default)]
+pub struct Lin(pub SmallVec<[(Sym, Q); 2]>);
+
+/// The trigonometric factor in the state variables.
+#[derive(Clone, PartialEq, Eq, Hash, PartialOrd, Ord, Debug)]
+pub enum Wave {
+    /// No trigonometric factor.
+    One,
+    /// `cos(L)`, `L` with positive leading coefficient.
+    Cos(Lin),
+    /// `sin(L)`, `L` with positive leading coefficient.
+    Sin(Lin),
+}
+
+/// The trigonometric factor in time: `cos(k t)` or `sin(k t)` with `k > 0`.
+#[derive(Clone, PartialEq, Eq, Hash, PartialOrd, Ord, Debug)]
+pub enum Beat {
+    /// No time oscillation.
+    One,
+    /// `cos(k t)`.
+    Cos(Q),
+    /// `sin(k t)`.
+    Sin(Q),
+}
+
+/// Everything of a term but its coefficient.
+#[derive(Clone, PartialEq, Eq, Hash, PartialOrd, Ord, Debug)]
+pub struct Key {
+    /// Powers of symbols (parameters, states, `t`, `pi`).
+    pub mono: Mono,
+    /// The exponential factor's argument (empty: no factor).
+    pub exp: Lin,
+    /// The trigonometric factor in the state.
+    pub wave: Wave,
+    /// The trigonometric factor in time.
+    pub beat: Beat,
+}
+
+/// An expression in normal form: terms sorted by key, no zero coefficients.
+#[derive(Clone, PartialEq, Eq, Hash, Default)]
+pub struct Expr {
+    terms: Vec<(Key, Q)>,
+}
+
+impl Mono {
+    /// The constant monomial 1.
+    pub fn one() -> Mono {
+        Mono(SmallVec::new())
+    }
+
+    /// Exponent of `s`.
+    pub fn exp_of(&self, s: Sym) -> i32 {
+        self.0.iter().find(|(x, _)| *x == s).map_or(0, |(_, e)| *e)
+    }
+
+    /// Product (exponents add); fails on exponent overflow.
+    pub fn mul(&self, other: &Mono) -> CoreResult<Mono> {
+        let mut out: SmallVec<[(Sym, i32); 4]> = SmallVec::new();
+        let (a, b) = (&self.0, &other.0);
+        let (mut i, mut j) = (0, 0);
+        while i < a.len() && j < b.len() {
+            let (sa, ea) = a[i];
+            let (sb, eb) = b[j];
+            if sa < sb {
+                out.push((sa, ea));
+                i += 1;
+            } else if sb < sa {
+                out.push((sb, eb));
+                j += 1;
+            } else {
+                let e = ea.checked_add(eb).ok_or(exp_overflow())?;
+                if e != 0 {
+                    out.push((sa, e));
+                }
+                i += 1;
+                j += 1;
+            }
+        }
+        out.extend_from_slice(&a[i..]);
+        out.extend_from_slice(&b[j..]);
+        Ok(Mono(out))
+    }
+
+    /// Total degree in the given symbols.
+    pub fn degree_in(&self, syms: &[Sym]) -> i64 {
+        self.0.iter().filter(|(s, _)| syms.contains(s)).map(|(_, e)| *e as i64).sum()
+    }
+}
+
+fn exp_overflow() -> CoreError {
+    CoreError::Limit { kind: LimitKind::Exponent, limit: i32::MAX as u64 }
+}
+
+impl Lin {
+    /// Coefficient of `s`.
+    pub fn coeff(&self, s: Sym) -> Q {
+        self.0.iter().find(|(x, _)| *x == s).map_or(Q::ZERO, |(_, c)| c.clone())
+    }
+
+    /// True if and only if the form is zero.
+    pub fn is_zero(&self) -> bool {
+        self.0.is_empty()
+    }
+
+    /// `self + sign·other`.
+    pub fn add_signed(&self, other: &Lin, negate: bool) -> Lin {
+        let mut out: SmallVec<[(Sym, Q); 2]> = SmallVec::new();
+        let (a, b) = (&self.0, &other.0);
+        let (mut i, mut j) = (0, 0);
+        let sgn = |q: &Q| if negate { q.neg() } else { q.clone() };
+        while i < a.len() && j < b.len() {
+            if a[i].0 < b[j].0 {
+                out.push(a[i].clone());
+                i += 1;
+            } else if b[j].0 < a[i].0 {
+                out.push((b[j].0, sgn(&b[j].1)));
+                j += 1;
+            } else {
+                let c = if negate { a[i].1.sub(&b[j].1) } else { a[i].1.add(&b[j].1) };
+                if !c.is_zero() {
+                    out.push((a[i].0, c));
+                }
+                i += 1;
+                j += 1;
+            }
+        }
+        out.extend(a[i..].iter().cloned());
+        out.extend(b[j..].iter().map(|(s, q)| (*s, sgn(q))));
+        Lin(out)
+    }
+
+    /// Negation.
+    pub fn neg(&self) -> Lin {
+        Lin(self.0.iter().map(|(s, q)| (*s, q.neg())).collect())
+    }
+
+    /// Multiplies every coefficient by `q`.
+    pub fn scale(&self, q: &Q) -> Lin {
+        if q.is_zero() {
+            return Lin::default();
+        }
+        Lin(self.0.iter().map(|(s, c)| (*s, c.mul(q))).collect())
+    }
+
+    /// True if and only if the leading coefficient is negative.
+    pub fn is_negative(&self) -> bool {
+        self.0.first().is_some_and(|(_, q)| q.is_negative())
+    }
+}
+
+/// `cos(L)` as (sign, wave) in canonical form; `None` when `L = 0` means 1.
+fn cos_wave(l: Lin) -> Wave {
+    if l.is_zero() {
+        Wave::One
+    } else if l.is_negative() {
+        Wave::Cos(l.neg())
+    } else {
+        Wave::Cos(l)
+    }
+}
+
+/// `sin(L)` in canonical form: (negated?, wave); `None` when `L = 0` (zero).
+fn sin_wave(l: Lin) -> Option<(bool, Wave)> {
+    if l.is_zero() {
+        None
+    } else if l.is_negative() {
+        Some((true, Wave::Sin(l.neg())))
+    } else {
+        Some((false, Wave::Sin(l)))
+    }
+}
+
+fn cos_beat(k: Q) -> Beat {
+    if k.is_zero() {
+        Beat::One
+    } else {
+        Beat::Cos(k.abs())
+    }
+}
+
+fn sin_beat(k: Q) -> Option<(bool, Beat)> {
+    if k.is_zero() {
+        None
+    } else if k.is_negative() {
+        Some((true, Beat::Sin(k.neg())))
+    } else {
+        Some((false, Beat::Sin(k)))
+    }
+}
+
+/// Product of two waves as at most two (coefficient factor, wave) pairs.
+fn wave_mul(a: &Wave, b: &Wave) -> SmallVec<[(Q, Wave); 2]> {
+    let half = Q::Small(1, 2);
+    let mut out = SmallVec::new();
+    match (a, b) {
+        (Wave::One, w) | (w, Wave::One) => out.push((Q::ONE, w.clone())),
+        (Wave::Cos(x), Wave::Cos(y)) => {
+            // cos x cos y = (cos(x-y) + cos(x+y))/2
+            out.push((half.clone(), cos_wave(x.add_signed(y, true))));
+            out.push((half, cos_wave(x.add_signed(y, false))));
+        }
+        (Wave::Sin(x), Wave::Sin(y)) => {
+            // sin x sin y = (cos(x-y) - cos(x+y))/2
+            out.push((half.clone(), cos_wave(x.add_signed(y, true))));
+            out.push((half.neg(), cos_wave(x.add_signed(y, false))));
+        }
+        (Wave::Sin(x), Wave::Cos(y)) | (Wave::Cos(y), Wave::Sin(x)) => {
+            // sin x cos y = (sin(x+y) + sin(x-y))/2
+            if let Some((neg, w)) = sin_wave(x.add_signed(y, false)) {
+                out.push((if neg { half.neg() } else { half.clone() }, w));
+            }
+            if let Some((neg, w)) = sin_wave(x.add_signed(y, true)) {
+                out.push((if neg { half.neg() } else { half }, w));
+            }
+        }
+    }
+    out
+}
+
+/// Product of two beats, as `wave_mul` does for waves.
+fn beat_mul(a: &Beat, b: &Beat) -> SmallVec<[(Q, Beat); 2]> {
+    let half = Q::Small(1, 2);
+    let mut out = SmallVec::new();
+    match (a, b) {
+        (Beat::One, w) | (w, Beat::One) => out.push((Q::ONE, w.clone())),
+        (Beat::Cos(x), Beat::Cos(y)) => {
+            out.push((half.clone(), cos_beat(x.sub(y))));
+            out.push((half, cos_beat(x.add(y))));
+        }
+        (Beat::Sin(x), Beat::Sin(y)) => {
+            out.push((half.clone(), cos_beat(x.sub(y))));
+            out.push((half.neg(), cos_beat(x.add(y))));
+        }
+        (Beat::Sin(x), Beat::Cos(y)) | (Beat::Cos(y), Beat::Sin(x)) => {
+            if let Some((neg, w)) = sin_beat(x.add(y)) {
+                out.push((if neg { half.neg() } else { half.clone() }, w));
+            }
+            if let Some((neg, w)) = sin_beat(x.sub(y)) {
+                out.push((if neg { half.neg() } else { half }, w));
+            }
+        }
+    }
+    out
+}
+
+impl Key {
+    /// The key of the constant 1.
+    pub fn one() -> Key {
+        Key { mono: Mono::one(), exp: Lin::default(), wave: Wave::One, beat: Beat::One }
+    }
+
+    /// True if and only if this is the key of a plain number.
+    pub fn is_one(&self) -> bool {
+        self.mono.0.is_empty()
+            && self.exp.is_zero()
+            && self.wave == Wave::One
+            && self.beat == Beat::One
+    }
+
+    /// Multiplies two terms, pushing up to four resulting terms.
+    fn mul_into(
+        &self,
+        ca: &Q,
+        other: &Key,
+        cb: &Q,
+        out: &mut impl FnMut(Key, Q),
+    ) -> CoreResult<()> {
+        let mono = self.mono.mul(&other.mono)?;
+        let exp = if self.exp.is_zero() {
+            other.exp.clone()
+        } else if other.exp.is_zero() {
+            self.exp.clone()
+        } else {
+            self.exp.add_signed(&other.exp, false)
+        };
+        let c = ca.mul(cb);
+        let waves = wave_mul(&self.wave, &other.wave);
+        let beats = beat_mul(&self.beat, &other.beat);
+        for (cw, w) in &waves {
+            for (cbt, bt) in &beats {
+                let mut cc = c.clone();
+                if !cw.is_one() {
+                    cc = cc.mul(cw);
+                }
+                if !cbt.is_one() {
+                    cc = cc.mul(cbt);
+                }
+                out(
+                    Key { mono: mono.clone(), exp: exp.clone(), wave: w.clone(), beat: bt.clone() },
+                    cc,
+                );
+            }
+        }
+        Ok(())
+    }
+}
+
+impl Expr {
+    /// Zero.
+    pub fn zero() -> Expr {
+        Expr { terms: Vec::new() }
+    }
+
+    /// A rational number.
+    pub fn num(q: Q) -> Expr {
+        if q.is_zero() {
+            Expr::zero()
+        } else {
+            Expr { terms: vec![(Key::one(), q)] }
+        }
+    }
+
+    /// The integer `n`.
+    pub fn int(n: i64) -> Expr {
+        Expr::num(Q::int(n))
+    }
+
+    /// A symbol to the first power (state, parameter, `t` or `pi`).
+    pub fn sym(s: Sym) -> Expr {
+        let mut key = Key::one();
+        key.mono.0.push((s, 1));
+        Expr { terms: vec![(key, Q::ONE)] }
+    }
+
+    /// A single term.
+    pub fn term(key: Key, coeff: Q) -> Expr {
+        if coeff.is_zero() {
+            Expr::zero()
+        } else {
+            Expr { terms: vec![(key, coeff)] }
+        }
+    }
+
+    /// Builds from unsorted terms with possible repeats (merged) and zeros (dropped).
+    pub fn from_terms(mut terms: Vec<(Key, Q)>) -> Expr {
+        terms.sort_by(|a, b| a.0.cmp(&b.0));
+        let mut out: Vec<(Key, Q)> = Vec::with_capacity(terms.len());
+        for (k, c) in terms {
+            match out.last_mut() {
+                Some((lk, lc)) if *lk == k => *lc = lc.add(&c),
+                _ => {
+                    if let Some((_, lc)) = out.last() {
+                        if lc.is_zero() {
+                            out.pop();
+                        }
+                    }
+                    out.push((k, c));
+                }
+            }
+        }
+        if out.last().is_some_and(|(_, c)| c.is_zero()) {
+            out.pop();
+        }
+        Expr { terms: out }
+    }
+
+    fn from_map(map: HashMap<Key, Q>) -> Expr {
+        let mut terms: Vec<(Key, Q)> = map.into_iter().filter(|(_, c)| !c.is_zero()).collect();
+        terms.sort_by(|a, b| a.0.cmp(&b.0));
+        Expr { terms }
+    }
+
+    /// The terms, sorted by key.
+    pub fn terms(&self) -> &[(Key, Q)] {
+        &self.terms
+    }
+
+    /// Number of terms.
+    pub fn len(&self) -> usize {
+        self.terms.len()
+    }
+
+    /// True if and only if the expression is zero.
+    pub fn is_zero(&self) -> bool {
+        self.terms.is_empty()
+    }
+
+    /// The value when the expression is a plain rational number.
+    pub fn as_number(&self) -> Option<Q> {
+        match self.terms.as_slice() {
+            [] => Some(Q::ZERO),
+            [(k, c)] if k.is_one() => Some(c.clone()),
+            _ => None,
+        }
+    }
+
+    /// True if and only if some term mentions `s` (in a monomial, an
+    /// argument, or time factors for `Sym::T`).
+    pub fn mentions(&self, s: Sym) -> bool {
+        self.terms.iter().any(|(k, _)| {
+            k.mono.exp_of(s) != 0
+                || !k.exp.coeff(s).is_zero()
+                || match &k.wave {
+                    Wave::One => false,
+                    Wave::Cos(l) | Wave::Sin(l) => !l.coeff(s).is_zero(),
+                }
+                || (s == Sym::T && k.beat != Beat::One)
+        })
+    }
+
+    /// All symbols mentioned, sorted.
+    pub fn symbols(&self) -> Vec<Sym> {
+        let mut out = Vec::new();
+        for (k, _) in &self.terms {
+            out.extend(k.mono.0.iter().map(|(s, _)| *s));
+            out.extend(k.exp.0.iter().map(|(s, _)| *s));
+            if let Wave::Cos(l) | Wave::Sin(l) = &k.wave {
+                out.extend(l.0.iter().map(|(s, _)| *s));
+            }
+            if k.beat != Beat::One {
+                out.push(Sym::T);
+            }
+        }
+        out.sort();
+        out.dedup();
+        out
+    }
+
+    /// True if and only if the expression depends on time.
+    pub fn is_time_varying(&self) -> bool {
+        self.mentions(Sym::T)
+    }
+
+    /// Sum.
+    pub fn add(&self, other: &Expr) -> Expr {
+        self.add_scaled(other, &Q::ONE)
+    }
+
+    /// `self + q·other`, merging sorted term lists.
+    pub fn add_scaled(&self, other: &Expr, q: &Q) -> Expr {
+        if q.is_zero() || other.is_zero() {
+            return self.clone();
+        }
+        let (a, b) = (&self.terms, &other.terms);
+        let mut out = Vec::with_capacity(a.len() + b.len());
+        let (mut i, mut j) = (0, 0);
+        let scaled = |c: &Q| if q.is_one() { c.clone() } else { c.mul(q) };
+        while i < a.len() && j < b.len() {
+            match a[i].0.cmp(&b[j].0) {
+                std::cmp::Ordering::Less => {
+                    out.push(a[i].clone());
+                    i += 1;
+                }
+                std::cmp::Ordering::Greater => {
+                    out.push((b[j].0.clone(), scaled(&b[j].1)));
+                    j += 1;
+                }
+                std::cmp::Ordering::Equal => {
+                    let c = a[i].1.add(&scaled(&b[j].1));
+                    if !c.is_zero() {
+                        out.push((a[i].0.clone(), c));
+                    }
+                    i += 1;
+                    j += 1;
+                }
+            }
+        }
+        out.extend(a[i..].iter().cloned());
+        out.extend(b[j..].iter().map(|(k, c)| (k.clone(), scaled(c))));
+        Expr { terms: out }
+    }
+
+    /// In-place `self += q·other`.
+    pub fn add_assign_scaled(&mut self, other: &Expr, q: &Q) {
+        if other.is_zero() || q.is_zero() {
+            return;
+        }
+        if self.is_zero() {
+            *self = other.scale(q);
+            return;
+        }
+        *self = self.add_scaled(other, q);
+    }
+
+    /// Difference.
+    pub fn sub(&self, other: &Expr) -> Expr {
+        self.add_scaled(other, &Q::int(-1))
+    }
+
+    /// Negation.
+    pub fn neg(&self) -> Expr {
+        self.scale(&Q::int(-1))
+    }
+
+    /// Multiplies by a rational.
+    pub fn scale(&self, q: &Q) -> Expr {
+        if q.is_zero() {
+            return Expr::zero();
+        }
+        if q.is_one() {
+            return self.clone();
+        }
+        Expr { terms: self.terms.iter().map(|(k, c)| (k.clone(), c.mul(q))).collect() }
+    }
+
+    /// Product, reduced to normal form; checks the term budget and the
+    /// coefficient size.
+    pub fn mul(&self, other: &Expr) -> CoreResult<Expr> {
+        if self.is_zero() || other.is_zero() {
+            return Ok(Expr::zero());
+        }
+        // Fast paths: multiplication by a number.
+        if let Some(q) = self.as_number() {
+            return Ok(other.scale(&q));
+        }
+        if let Some(q) = other.as_number() {
+            return Ok(self.scale(&q));
+        }
+        let (a, b) = if self.len() <= other.len() { (self, other) } else { (other, self) };
+        let max_terms = limits::limits().max_terms;
+        let mut map: HashMap<Key, Q> = HashMap::with_capacity((a.len() * b.len()).min(1 << 16));
+        let mut budget_hit = false;
+        let mut max_bits = 0u64;
+        for (n, (ka, ca)) in a.terms.iter().enumerate() {
+            if n % 64 == 0 {
+                limits::poll()?;
+            }
+            for (kb, cb) in &b.terms {
+                ka.mul_into(ca, kb, cb, &mut |k, c| {
+                    max_bits = max_bits.max(c.bits());
+                    match map.get_mut(&k) {
+                        Some(e) => *e = e.add(&c),
+                        None => {
+                            map.insert(k, c);
+                        }
+                    }
+                })?;
+            }
+            if map.len() > max_terms {
+                budget_hit = true;
+                break;
+            }
+        }
+        if budget_hit {
+            return Err(CoreError::Limit { kind: LimitKind::Terms, limit: max_terms as u64 });
+        }
+        limits::check_bits(max_bits)?;
+        Ok(Expr::from_map(map))
+    }
+
+    /// Integer power. Negative powers only for monomials (single terms
+    /// without trigonometric factors).
+    pub fn pow(&self, e: i64) -> CoreResult<Expr> {
+        if e == 0 {
+            return Ok(Expr::int(1));
+        }
+        if self.is_zero() {
+            return if e > 0 { Ok(Expr::zero()) } else { Err(CoreError::DivisionByZero) };
+        }
+        if e < 0 {
+            let inv = self.recip()?;
+            return inv.pow(-e);
+        }
+        if let [(k, c)] = self.terms.as_slice() {
+            if k.wave == Wave::One && k.beat == Beat::One {
+                let e32 = i32::try_from(e).map_err(|_| exp_overflow())?;
+                let mut mono = Mono::one();
+                for (s, x) in &k.mono.0 {
+                    mono.0.push((*s, x.checked_mul(e32).ok_or(exp_overflow())?));
+                }
+                limits::check_bits(c.bits().saturating_mul(e as u64))?;
+                let coeff = c.pow(e).ok_or(CoreError::DivisionByZero)?;
+                let exp = k.exp.scale(&Q::int(e));
+                return Ok(Expr::term(Key { mono, exp, wave: Wave::One, beat: Beat::One }, coeff));
+            }
+        }
+        // A sum (or a trigonometric term): the result has at least e+1 terms
+        // unless cancellations happen; refuse absurd exponents up front.
+        if e as u64 > limits::limits().max_terms as u64 {
+            return Err(CoreError::Limit {
+                kind: LimitKind::Terms,
+                limit: limits::limits().max_terms as u64,
+            });
+        }
+        let mut acc = Expr::int(1);
+        let mut sq = self.clone();
+        let mut e = e as u64;
+        while e > 0 {
+            if e & 1 == 1 {
+                acc = acc.mul(&sq)?;
+            }
+            e >>= 1;
+            if e > 0 {
+                sq = sq.mul(&sq)?;
+            }
+        }
+        Ok(acc)
+    }
+
+    /// Exact reciprocal of a number or monomial (times `exp(M)`).
+    pub fn recip(&self) -> CoreResult<Expr> {
+        match self.terms.as_slice() {
+            [] => Err(CoreError::DivisionByZero),
+            [(k, c)] if k.wave == Wave::One && k.beat == Beat::One => {
+                let mut mono = Mono::one();
+                for (s, x) in &k.mono.0 {
+                    if *s == Sym::T {
+                        return Err(CoreError::DivisionBySum { divisor: self.to_string() });
+                    }
+                    mono.0.push((*s, x.checked_neg().ok_or(exp_overflow())?));
+                }
+                let coeff = c.recip().ok_or(CoreError::DivisionByZero)?;
+                Ok(Expr::term(Key { mono, exp: k.exp.neg(), wave: Wave::One, beat: Beat::One }, coeff))
+            }
+            _ => Err(CoreError::DivisionBySum { divisor: self.to_string() }),
+        }
+    }
+
+    /// Quotient by a number or monomial.
+    pub fn div(&self, other: &Expr) -> CoreResult<Expr> {
+        if let Some(q) = other.as_number() {
+            let r = q.recip().ok_or(CoreError::DivisionByZero)?;
+            return Ok(self.scale(&r));
+        }
+        self.mul(&other.recip()?)
+    }
+
+    /// Keeps the terms satisfying `pred`.
+    pub fn filter(&self, mut pred: impl FnMut(&Key, &Q) -> bool) -> Expr {
+        Expr { terms: self.terms.iter().filter(|(k, c)| pred(k, c)).cloned().collect() }
+    }
+
+    /// Maps each term to a new (key, coefficient); the keys need not stay
+    /// sorted or distinct.
+    pub fn map_terms(&self, mut f: impl FnMut(&Key, &Q) -> Option<(Key, Q)>) -> Expr {
+        Expr::from_terms(self.terms.iter().filter_map(|(k, c)| f(k, c)).collect())
+    }
+
+    /// The coefficient of `s^k` (other powers of `s` dropped).
+    pub fn coeff_of_power(&self, s: Sym, k: i32) -> Expr {
+        self.map_terms(|key, c| {
+            if key.mono.exp_of(s) != k {
+                return None;
+            }
+            let mut key = key.clone();
+            key.mono.0.retain(|(x, _)| *x != s);
+            Some((key, c.clone()))
+        })
+    }
+
+    /// The range of powers of `s` present (min, max); `None` for zero.
+    pub fn power_range(&self, s: Sym) -> Option<(i32, i32)> {
+        let mut it = self.terms.iter().map(|(k, _)| k.mono.exp_of(s));
+        let first = it.next()?;
+        Some(it.fold((first, first), |(lo, hi), e| (lo.min(e), hi.max(e))))
+    }
+
+    /// Size measure for the budget: number of terms.
+    pub fn size(&self) -> usize {
+        self.terms.len()
+    }
+}
+
+// ---------------------------------------------------------------------------
+// Elementary functions of linear arguments.
+
+/// A linear argument split into its parts: state form, time frequency and a
+/// constant (rational number and rational multiple of pi).
+struct LinearArg {
+    state: Lin,
+    freq: Q,
+    pi_multiple: Q,
+    constant: Q,
+}
+
+fn linear_arg(func: &'static str, arg: &Expr, states: &[Sym]) -> CoreResult<LinearArg> {
+    let mut out =
+        LinearArg { state: Lin::default(), freq: Q::ZERO, pi_multiple: Q::ZERO, constant: Q::ZERO };
+    let nonlinear = || CoreError::NonlinearArgument { func, arg: arg.to_string() };
+    for (k, c) in &arg.terms {
+        if !k.exp.is_zero() || k.wave != Wave::One || k.beat != Beat::One {
+            return Err(nonlinear());
+        }
+        match k.mono.0.as_slice() {
+            [] => out.constant = c.clone(),
+            [(s, 1)] if *s == Sym::T => out.freq = c.clone(),
+            [(s, 1)] if *s == Sym::PI => out.pi_multiple = c.clone(),
+            [(s, 1)] if states.contains(s) => out.state.0.push((*s, c.clone())),
+            _ => {
+                if let Some((p, _)) = k.mono.0.iter().find(|(s, _)| {
+                    *s != Sym::T && *s != Sym::PI && !states.contains(s)
+                }) {
+                    if k.mono.exp_of(Sym::T) != 0 {
+                        return Err(CoreError::SymbolicFrequency { arg: arg.to_string() });
+                    }
+                    return Err(CoreError::ParameterInArgument { func, name: p.name() });
+                }
+                // Distinguish a parameter factor from genuine nonlinearity.
+                let has_t = k.mono.exp_of(Sym::T) != 0;
+                if has_t && k.mono.0.len() >= 2 && k.mono.exp_of(Sym::T) == 1 {
+                    return Err(CoreError::SymbolicFrequency { arg: arg.to_string() });
+                }
+                return Err(nonlinear());
+            }
+        }
+    }
+    Ok(out)
+}
+
+/// Exact `cos(c·pi)` and `sin(c·pi)` when c is a multiple of 1/2.
+fn cos_sin_half_pi(c: &Q) -> Option<(i64, i64)> {
+    let two_c = c.mul(&Q::int(2));
+    let n = two_c.to_i64()?;
+    Some(match n.rem_euclid(4) {
+        0 => (1, 0),
+        1 => (0, 1),
+        2 => (-1, 0),
+        _ => (0, -1),
+    })
+}
+
+/// Exact value of cos or sin at a rational multiple of pi, when rational
+/// (Niven: only 0, ±1/2, ±1 occur).
+fn trig_at_pi_multiple(is_sin: bool, c: &Q) -> Option<Q> {
+    // Reduce c modulo 2 and look it up in sixths.
+    let six = c.mul(&Q::int(6));
+    let n = six.to_i64()?.rem_euclid(12);
+    // cos(n*pi/6) for n = 0..11
+    const COS2: [i64; 12] = [2, 99, 1, 0, -1, 99, -2, 99, -1, 0, 1, 99];
+    let idx = if is_sin { (n + 9) % 12 } else { n }; // sin(x) = cos(x - pi/2) = cos(x + 3pi/2)
+    let v = COS2[idx as usize];
+    if v == 99 {
+        None
+    } else {
+        Q::ratio(v, 2)
+    }
+}
+
+impl Expr {
+    /// `cos(arg)` for an argument linear in the state coordinates `states`
+    /// and time (plus a multiple of pi/2), split into state and time factors.
+    /// Any other symbol in the argument is refused as a parameter.
+    pub fn cos_of(arg: &Expr, states: &[Sym]) -> CoreResult<Expr> {
+        Expr::trig_of("cos", arg, states)
+    }
+
+    /// `sin(arg)`, as `cos_of`.
+    pub fn sin_of(arg: &Expr, states: &[Sym]) -> CoreResult<Expr> {
+        Expr::trig_of("sin", arg, states)
+    }
+
+    fn trig_of(func: &'static str, arg: &Expr, states: &[Sym]) -> CoreResult<Expr> {
+        let is_sin = func == "sin";
+        let la = linear_arg(func, arg, states)?;
+        if !la.constant.is_zero() {
+            return Err(CoreError::ConstantInArgument { func, arg: arg.to_string() });
+        }
+        if la.state.is_zero() && la.freq.is_zero() {
+            // A pure constant c*pi.
+            return match trig_at_pi_multiple(is_sin, &la.pi_multiple) {
+                Some(v) => Ok(Expr::num(v)),
+                None => Err(CoreError::Irrational { what: format!("{func}({arg})") }),
+            };
+        }
+        let (cp, sp) = cos_sin_half_pi(&la.pi_multiple)
+            .ok_or_else(|| CoreError::ConstantInArgument { func, arg: arg.to_string() })?;
+        // X = L + k t; cos(X + c pi) = cos X cp - sin X sp; sin(X + c pi) = sin X cp + cos X sp.
+        let cos_l = Expr::term(
+            Key { wave: cos_wave(la.state.clone()), ..Key::one() },
+            Q::ONE,
+        );
+        let sin_l = match sin_wave(la.state.clone()) {
+            Some((neg, w)) => Expr::term(Key { wave: w, ..Key::one() }, Q::int(if neg { -1 } else { 1 })),
+            None => Expr::zero(),
+        };
+        let cos_k = Expr::term(Key { beat: cos_beat(la.freq.clone()), ..Key::one() }, Q::ONE);
+        let sin_k = match sin_beat(la.freq.clone()) {
+            Some((neg, b)) => Expr::term(Key { beat: b, ..Key::one() }, Q::int(if neg { -1 } else { 1 })),
+            None => Expr::zero(),
+        };
+        // cos X = cos L cos kt - sin L sin kt; sin X = sin L cos kt + cos L sin kt.
+        let cos_x = cos_l.mul(&cos_k)?.sub(&sin_l.mul(&sin_k)?);
+        let sin_x = sin_l.mul(&cos_k)?.add(&cos_l.mul(&sin_k)?);
+        let (a, b) = if is_sin { (&sin_x, &cos_x) } else { (&cos_x, &sin_x) };
+        // result = a*cp + (is_sin ? b*sp : -b*sp)
+        let s = if is_sin { sp } else { -sp };
+        Ok(a.scale(&Q::int(cp)).add(&b.scale(&Q::int(s))))
+    }
+
+    /// `exp(arg)` for an argument linear in the state variables.
+    pub fn exp_of(arg: &Expr, states: &[Sym]) -> CoreResult<Expr> {
+        let la = linear_arg("exp", arg, states)?;
+        if !la.freq.is_zero() {
+            return Err(CoreError::TimeInExp { arg: arg.to_string() });
+        }
+        if !la.constant.is_zero() || !la.pi_multiple.is_zero() {
+            return Err(CoreError::Irrational { what: format!("exp({arg})") });
+        }
+        Ok(Expr::term(Key { exp: la.state, ..Key::one() }, Q::ONE))
+    }
+}
+
+// ---------------------------------------------------------------------------
+// Plain rendering in the input syntax.
+
+fn fmt_lin(l: &Lin) -> String {
+    let mut s = String::new();
+    for (i, (sym, c)) in l.0.iter().enumerate() {
+        let neg = c.is_negative();
+        let a = c.abs();
+        if i == 0 {
+            if neg {
+                s.push('-');
+            }
+        } else {
+            s.push_str(if neg { " - " } else { " + " });
+        }
+        if !a.is_one() {
+            s.push_str(&format!("{a}*"));
+        }
+        s.push_str(&sym.name());
+    }
+    s
+}
+
+fn fmt_freq(k: &Q) -> String {
+    if k.is_one() {
+        "t".to_string()
+    } else {
+        format!("{k}*t")
+    }
+}
+
+impl Key {
+    /// The factors of the term (without coefficient), in input syntax;
+    /// empty for the constant key.
+    pub fn factors(&self) -> Vec<String> {
+        let mut f = Vec::new();
+        for (s, e) in &self.mono.0 {
+            if *e == 1 {
+                f.push(s.name());
+            } else {
+                f.push(format!("{}^{}", s.name(), e));
+            }
+        }
+        if !self.exp.is_zero() {
+            f.push(format!("exp({})", fmt_lin(&self.exp)));
+        }
+        match &self.wave {
+            Wave::One => {}
+            Wave::Cos(l) => f.push(format!("cos({})", fmt_lin(l))),
+            Wave::Sin(l) => f.push(format!("sin({})", fmt_lin(l))),
+        }
+        match &self.beat {
+            Beat::One => {}
+            Beat::Cos(k) => f.push(format!("cos({})", fmt_freq(k))),
+            Beat::Sin(k) => f.push(format!("sin({})", fmt_freq(k))),
+        }
+        f
+    }
+}
+
+impl fmt::Display for Expr {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        if self.terms.is_empty() {
+            return write!(f, "0");
+        }
+        for (i, (k, c)) in self.terms.iter().enumerate() {
+            let neg = c.is_negative();
+            let a = c.abs();
+            if i == 0 {
+                if neg {
+                    write!(f, "-")?;
+                }
+            } else {
+                write!(f, "{}", if neg { " - " } else { " + " })?;
+            }
+            let factors = k.factors();
+            if factors.is_empty() {
+                write!(f, "{a}")?;
+            } else if a.is_one() {
+                write!(f, "{}", factors.join("*"))?;
+            } else {
+                write!(f, "{a}*{}", factors.join("*"))?;
+            }
+        }
+        Ok(())
+    }
+}
+
+impl fmt::Debug for Expr {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "{self}")
+    }
+}

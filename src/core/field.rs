@@ -1,0 +1,357 @@
+//! Vector fields and exact matrices.
+//!
+//! A field is a list of expressions, one per state coordinate, in the
+//! state order. Conventions (DESIGN §2.3): the Lie derivative
+//! `X(h) = Σ X_i ∂h/∂x_i`; the bracket `[X, Y] = DY·X − DX·Y`, so that
+//! `[X, Y](h) = X(Y(h)) − Y(X(h))`; `ad_X Y = [X, Y]`; the pull-back by a
+//! flow `(Φ^Y_s)^* X = Σ s^k/k! ad_Y^k X`.
+
+use super::error::{CoreError, CoreResult};
+use super::expr::Expr;
+use super::limits;
+use super::num::Q;
+use super::symbol::Sym;
+
+/// A (possibly time-varying) vector field in the coordinates of a state list.
+#[derive(Clone, PartialEq, Eq, Hash, Debug, Default)]
+pub struct Field(pub Vec<Expr>);
+
+/// A matrix with exact entries, stored by rows.
+#[derive(Clone, PartialEq, Eq, Hash, Debug)]
+pub struct Matrix {
+    /// Number of rows.
+    pub rows: usize,
+    /// Number of columns.
+    pub cols: usize,
+    /// Entries by rows.
+    pub data: Vec<Expr>,
+}
+
+impl Field {
+    /// The zero field of dimension `n`.
+    pub fn zero(n: usize) -> Field {
+        Field(vec![Expr::zero(); n])
+    }
+
+    /// Dimension.
+    pub fn dim(&self) -> usize {
+        self.0.len()
+    }
+
+    /// True if and only if every component is zero.
+    pub fn is_zero(&self) -> bool {
+        self.0.iter().all(Expr::is_zero)
+    }
+
+    /// Number of terms over all components.
+    pub fn n_terms(&self) -> usize {
+        self.0.iter().map(Expr::len).sum()
+    }
+
+    fn same_dim(&self, other: &Field) -> CoreResult<()> {
+        if self.dim() != other.dim() {
+            return Err(CoreError::Dimension {
+                what: format!("fields of dimension {} and {}", self.dim(), other.dim()),
+            });
+        }
+        Ok(())
+    }
+
+    /// Sum.
+    pub fn add(&self, other: &Field) -> CoreResult<Field> {
+        self.same_dim(other)?;
+        Ok(Field(self.0.iter().zip(&other.0).map(|(a, b)| a.add(b)).collect()))
+    }
+
+    /// `self + q·other`.
+    pub fn add_scaled(&self, other: &Field, q: &Q) -> CoreResult<Field> {
+        self.same_dim(other)?;
+        Ok(Field(self.0.iter().zip(&other.0).map(|(a, b)| a.add_scaled(b, q)).collect()))
+    }
+
+    /// Difference.
+    pub fn sub(&self, other: &Field) -> CoreResult<Field> {
+        self.add_scaled(other, &Q::int(-1))
+    }
+
+    /// Multiplies by a rational.
+    pub fn scale(&self, q: &Q) -> Field {
+        Field(self.0.iter().map(|a| a.scale(q)).collect())
+    }
+
+    /// Multiplies by a scalar function.
+    pub fn mul_expr(&self, f: &Expr) -> CoreResult<Field> {
+        Ok(Field(self.0.iter().map(|a| a.mul(f)).collect::<CoreResult<_>>()?))
+    }
+
+    /// Applies `f` to every component.
+    pub fn map(&self, f: impl FnMut(&Expr) -> CoreResult<Expr>) -> CoreResult<Field> {
+        Ok(Field(self.0.iter().map(f).collect::<CoreResult<_>>()?))
+    }
+
+    /// The Lie derivative `X(h) = Σ X_i ∂h/∂x_i`.
+    pub fn lie_derivative(&self, h: &Expr, states: &[Sym]) -> CoreResult<Expr> {
+        self.check_states(states)?;
+        let mut acc = Expr::zero();
+        for (xi, s) in self.0.iter().zip(states) {
+            if xi.is_zero() {
+                continue;
+            }
+            let d = h.pd(*s);
+            if d.is_zero() {
+                continue;
+            }
+            acc = acc.add(&xi.mul(&d)?);
+            limits::check_terms(acc.len())?;
+        }
+        Ok(acc)
+    }
+
+    fn check_states(&self, states: &[Sym]) -> CoreResult<()> {
+        if self.dim() != states.len() {
+            return Err(CoreError::Dimension {
+                what: format!("a field of dimension {} on {} state coordinates", self.dim(), states.len()),
+            });
+        }
+        Ok(())
+    }
+
+    /// The Lie bracket `[self, other] = D(other)·self − D(self)·other`.
+    pub fn bracket(&self, other: &Field, states: &[Sym]) -> CoreResult<Field> {
+        self.same_dim(other)?;
+        self.check_states(states)?;
+        let mut out = Vec::with_capacity(self.dim());
+        for i in 0..self.dim() {
+            let a = self.lie_derivative(&other.0[i], states)?;
+            let b = other.lie_derivative(&self.0[i], states)?;
+            out.push(a.sub(&b));
+        }
+        Ok(Field(out))
+    }
+
+    /// `ad_self^k other`.
+    pub fn ad_pow(&self, other: &Field, k: u64, states: &[Sym]) -> CoreResult<Field> {
+        let mut acc = other.clone();
+        for _ in 0..k {
+            if acc.is_zero() {
+                break;
+            }
+            acc = self.bracket(&acc, states)?;
+        }
+        Ok(acc)
+    }
+
+    /// The Jacobian matrix `J[i][j] = ∂X_i/∂x_j`.
+    pub fn jacobian(&self, states: &[Sym]) -> CoreResult<Matrix> {
+        self.check_states(states)?;
+        let n = self.dim();
+        let mut data = Vec::with_capacity(n * n);
+        for xi in &self.0 {
+            for s in states {
+                data.push(xi.pd(*s));
+            }
+        }
+        Ok(Matrix { rows: n, cols: n, data })
+    }
+
+    /// The divergence `Σ ∂X_i/∂x_i`.
+    pub fn divergence(&self, states: &[Sym]) -> CoreResult<Expr> {
+        self.check_states(states)?;
+        Ok(self.0.iter().zip(states).fold(Expr::zero(), |acc, (xi, s)| acc.add(&xi.pd(*s))))
+    }
+
+    /// The pull-back series `Σ_{k=0..depth} 1/k! ad_y^k self`; returns the
+    /// sum and whether the series ended (a zero term) before `depth`.
+    pub fn pullback(&self, y: &Field, depth: u64, states: &[Sym]) -> CoreResult<(Field, bool)> {
+        let mut term = self.clone();
+        let mut acc = self.clone();
+        let mut fact = Q::ONE;
+        for k in 1..=depth {
+            term = y.bracket(&term, states)?;
+            if term.is_zero() {
+                return Ok((acc, true));
+            }
+            fact = fact.mul(&Q::int(k as i64));
+            acc = acc.add_scaled(&term, &fact.recip().unwrap_or(Q::ZERO))?;
+        }
+        let ended = y.bracket(&term, states)?.is_zero();
+        Ok((acc, ended))
+    }
+}
+
+impl Matrix {
+    /// The `n × n` identity.
+    pub fn identity(n: usize) -> Matrix {
+        let mut data = vec![Expr::zero(); n * n];
+        for i in 0..n {
+            data[i * n + i] = Expr::int(1);
+        }
+        Matrix { rows: n, cols: n, data }
+    }
+
+    /// Builds from rows; all rows must have the same length.
+    pub fn from_rows(rows: Vec<Vec<Expr>>) -> CoreResult<Matrix> {
+        let n_rows = rows.len();
+        let n_cols = rows.first().map_or(0, Vec::len);
+        if n_rows == 0 || n_cols == 0 {
+            return Err(CoreError::Dimension { what: "an empty matrix".to_string() });
+        }
+        if let Some((i, r)) = rows.iter().enumerate().find(|(_, r)| r.len() != n_cols) {
+            return Err(CoreError::Dimension {
+                what: format!("row {} has {} entries, row 1 has {}", i + 1, r.len(), n_cols),
+            });
+        }
+        Ok(Matrix { rows: n_rows, cols: n_cols, data: rows.into_iter().flatten().collect() })
+    }
+
+    /// Entry `(i, j)`, zero-based.
+    pub fn get(&self, i: usize, j: usize) -> &Expr {
+        &self.data[i * self.cols + j]
+    }
+
+    /// Rows as slices.
+    pub fn row(&self, i: usize) -> &[Expr] {
+        &self.data[i * self.cols..(i + 1) * self.cols]
+    }
+
+    /// True if and only if square.
+    pub fn is_square(&self) -> bool {
+        self.rows == self.cols
+    }
+
+    fn require_square(&self, what: &str) -> CoreResult<()> {
+        if !self.is_square() {
+            return Err(CoreError::Dimension {
+                what: format!("{what} needs a square matrix, got {}x{}", self.rows, self.cols),
+            });
+        }
+        Ok(())
+    }
+
+    /// Sum.
+    pub fn add(&self, other: &Matrix) -> CoreResult<Matrix> {
+        self.add_scaled(other, &Q::ONE)
+    }
+
+    /// `self + q·other`.
+    pub fn add_scaled(&self, other: &Matrix, q: &Q) -> CoreResult<Matrix> {
+        if (self.rows, self.cols) != (other.rows, other.cols) {
+            return Err(CoreError::Dimension {
+                what: format!(
+                    "{}x{} and {}x{} matrices",
+                    self.rows, self.cols, other.rows, other.cols
+                ),
+            });
+        }
+        let data = self.data.iter().zip(&other.data).map(|(a, b)| a.add_scaled(b, q)).collect();
+        Ok(Matrix { rows: self.rows, cols: self.cols, data })
+    }
+
+    /// Multiplies every entry by a scalar.
+    pub fn mul_expr(&self, f: &Expr) -> CoreResult<Matrix> {
+        let data = self.data.iter().map(|a| a.mul(f)).collect::<CoreResult<_>>()?;
+        Ok(Matrix { rows: self.rows, cols: self.cols, data })
+    }
+
+    /// Matrix product.
+    pub fn mul(&self, other: &Matrix) -> CoreResult<Matrix> {
+        if self.cols != other.rows {
+            return Err(CoreError::Dimension {
+                what: format!(
+                    "cannot multiply {}x{} by {}x{}",
+                    self.rows, self.cols, other.rows, other.cols
+                ),
+            });
+        }
+        let mut data = Vec::with_capacity(self.rows * other.cols);
+        for i in 0..self.rows {
+            for j in 0..other.cols {
+                let mut acc = Expr::zero();
+                for k in 0..self.cols {
+                    let a = self.get(i, k);
+                    let b = other.get(k, j);
+                    if a.is_zero() || b.is_zero() {
+                        continue;
+                    }
+                    acc = acc.add(&a.mul(b)?);
+                }
+                data.push(acc);
+            }
+        }
+        Ok(Matrix { rows: self.rows, cols: other.cols, data })
+    }
+
+    /// Matrix times a field (column vector).
+    pub fn apply(&self, v: &Field) -> CoreResult<Field> {
+        if self.cols != v.dim() {
+            return Err(CoreError::Dimension {
+                what: format!("a {}x{} matrix applied to a field of dimension {}", self.rows, self.cols, v.dim()),
+            });
+        }
+        let mut out = Vec::with_capacity(self.rows);
+        for i in 0..self.rows {
+            let mut acc = Expr::zero();
+            for (a, b) in self.row(i).iter().zip(&v.0) {
+                if !a.is_zero() && !b.is_zero() {
+                    acc = acc.add(&a.mul(b)?);
+                }
+            }
+            out.push(acc);
+        }
+        Ok(Field(out))
+    }
+
+    /// Trace.
+    pub fn trace(&self) -> CoreResult<Expr> {
+        self.require_square("trace")?;
+        Ok((0..self.rows).fold(Expr::zero(), |acc, i| acc.add(self.get(i, i))))
+    }
+
+    /// Transpose.
+    pub fn transpose(&self) -> Matrix {
+        let mut data = Vec::with_capacity(self.data.len());
+        for j in 0..self.cols {
+            for i in 0..self.rows {
+                data.push(self.get(i, j).clone());
+            }
+        }
+        Matrix { rows: self.cols, cols: self.rows, data }
+    }
+
+    /// Coefficients `c_0..c_n` of the characteristic polynomial
+    /// `det(λI − A) = Σ c_k λ^k` (Faddeev–LeVerrier: only divisions by
+    /// integers, so exact over any expression ring).
+    pub fn charpoly(&self) -> CoreResult<Vec<Expr>> {
+        self.require_square("the characteristic polynomial")?;
+        let n = self.rows;
+        let mut coeffs = vec![Expr::zero(); n + 1];
+        coeffs[n] = Expr::int(1);
+        let mut m = Matrix { rows: n, cols: n, data: vec![Expr::zero(); n * n] };
+        for k in 1..=n {
+            limits::poll()?;
+            // M_k = A M_{k-1} + c_{n-k+1} I
+            let mut next = self.mul(&m)?;
+            for i in 0..n {
+                next.data[i * n + i] = next.data[i * n + i].add(&coeffs[n - k + 1]);
+            }
+            m = next;
+            let am = self.mul(&m)?;
+            let tr = am.trace()?;
+            coeffs[n - k] = tr.scale(&Q::ratio(-1, k as i64).unwrap_or(Q::ZERO));
+        }
+        Ok(coeffs)
+    }
+
+    /// Determinant.
+    pub fn det(&self) -> CoreResult<Expr> {
+        self.require_square("det")?;
+        let c = self.charpoly()?;
+        let sign = if self.rows % 2 == 0 { 1 } else { -1 };
+        Ok(c[0].scale(&Q::int(sign)))
+    }
+
+    /// True if and only if every entry is zero.
+    pub fn is_zero(&self) -> bool {
+        self.data.iter().all(Expr::is_zero)
+    }
+}

@@ -1,0 +1,416 @@
+//! Exact rational numbers with a cheap path for small values.
+//!
+//! `Q` keeps numerator and denominator in machine words while they fit and
+//! promotes to arbitrary precision (`num-rational` over `num-bigint`) on
+//! overflow. Results are always reduced and demoted back to the small form
+//! when they fit again, so equal numbers have one representation and derive
+//! `Eq`/`Hash` safely. This module knows nothing about expressions.
+
+use num_bigint::BigInt;
+use num_integer::Integer;
+use num_rational::BigRational;
+use num_traits::{One, Signed, ToPrimitive};
+use std::cmp::Ordering;
+use std::fmt;
+
+/// An exact rational number.
+///
+/// Invariant: `Small(n, d)` has `d > 0` and `gcd(n, d) == 1`; `Big` is used only
+/// when the value does not fit `Small`.
+#[derive(Clone, PartialEq, Eq, Hash)]
+pub enum Q {
+    /// Numerator and (positive) denominator in machine words.
+    Small(i64, i64),
+    /// Arbitrary precision, only for values that do not fit `Small`.
+    Big(Box<BigRational>),
+}
+
+fn gcd_u128(mut a: u128, mut b: u128) -> u128 {
+    while b != 0 {
+        let r = a % b;
+        a = b;
+        b = r;
+    }
+    a
+}
+
+impl Q {
+    /// Zero.
+    pub const ZERO: Q = Q::Small(0, 1);
+    /// One.
+    pub const ONE: Q = Q::Small(1, 1);
+
+    /// The integer `n`.
+    pub fn int(n: i64) -> Q {
+        Q::Small(n, 1)
+    }
+
+    /// `n / d`; returns `None` when `d == 0`.
+    pub fn ratio(n: i64, d: i64) -> Option<Q> {
+        if d == 0 {
+            return None;
+        }
+        Some(Q::from_i128(n as i128, d as i128))
+    }
+
+    fn from_i128(n: i128, d: i128) -> Q {
+        debug_assert!(d != 0);
+        let (mut n, mut d) = if d < 0 { (-n, -d) } else { (n, d) };
+        let g = gcd_u128(n.unsigned_abs(), d.unsigned_abs());
+        if g > 1 {
+            n /= g as i128;
+            d /= g as i128;
+        }
+        match (i64::try_from(n), i64::try_from(d)) {
+            (Ok(n), Ok(d)) => Q::Small(n, d),
+            _ => Q::Big(Box::new(BigRational::new_raw(BigInt::from(n), BigInt::from(d)))),
+        }
+    }
+
+    /// Builds from a big rational, demoting to the small form when it fits.
+    pub fn from_big(r: BigRational) -> Q {
+        let r = if r.denom().is_negative() || !r.numer().gcd(r.denom()).is_one() {
+            r.reduced()
+        } else {
+            r
+        };
+        match (r.numer().to_i64(), r.denom().to_i64()) {
+            (Some(n), Some(d)) => Q::Small(n, d),
+            _ => Q::Big(Box::new(r)),
+        }
+    }
+
+    /// Converts to a big rational (allocates).
+    pub fn to_big(&self) -> BigRational {
+        match self {
+            Q::Small(n, d) => BigRational::new_raw(BigInt::from(*n), BigInt::from(*d)),
+            Q::Big(b) => (**b).clone(),
+        }
+    }
+
+    /// True if and only if the value is zero.
+    pub fn is_zero(&self) -> bool {
+        matches!(self, Q::Small(0, _))
+    }
+
+    /// True if and only if the value is one.
+    pub fn is_one(&self) -> bool {
+        matches!(self, Q::Small(1, 1))
+    }
+
+    /// True if and only if the value is an integer.
+    pub fn is_integer(&self) -> bool {
+        match self {
+            Q::Small(_, d) => *d == 1,
+            Q::Big(b) => b.is_integer(),
+        }
+    }
+
+    /// True if and only if the value is negative.
+    pub fn is_negative(&self) -> bool {
+        match self {
+            Q::Small(n, _) => *n < 0,
+            Q::Big(b) => b.is_negative(),
+        }
+    }
+
+    /// The value as an `i64` when it is an integer that fits.
+    pub fn to_i64(&self) -> Option<i64> {
+        match self {
+            Q::Small(n, 1) => Some(*n),
+            _ => None,
+        }
+    }
+
+    /// Nearest double (may be infinite for huge values).
+    pub fn to_f64(&self) -> f64 {
+        match self {
+            Q::Small(n, d) => *n as f64 / *d as f64,
+            Q::Big(b) => {
+                // Scale to keep precision for ratios of huge integers.
+                let n = b.numer();
+                let d = b.denom();
+                let shift = n.bits().max(d.bits()).saturating_sub(1000) as usize;
+                let n = (n >> shift).to_f64().unwrap_or(f64::NAN);
+                let d = (d >> shift).to_f64().unwrap_or(f64::NAN);
+                n / d
+            }
+        }
+    }
+
+    /// Numerator as a big integer.
+    pub fn numer(&self) -> BigInt {
+        match self {
+            Q::Small(n, _) => BigInt::from(*n),
+            Q::Big(b) => b.numer().clone(),
+        }
+    }
+
+    /// Denominator as a big integer (positive).
+    pub fn denom(&self) -> BigInt {
+        match self {
+            Q::Small(_, d) => BigInt::from(*d),
+            Q::Big(b) => b.denom().clone(),
+        }
+    }
+
+    /// Number of bits of the larger of numerator and denominator: the size
+    /// that the integer-size limit counts.
+    pub fn bits(&self) -> u64 {
+        match self {
+            Q::Small(n, d) => (64 - n.unsigned_abs().leading_zeros()).max(64 - d.leading_zeros()) as u64,
+            Q::Big(b) => b.numer().bits().max(b.denom().bits()),
+        }
+    }
+
+    /// Sum.
+    pub fn add(&self, other: &Q) -> Q {
+        match (self, other) {
+            (Q::Small(a, b), Q::Small(c, d)) => {
+                if *b == 1 && *d == 1 {
+                    if let Some(s) = a.checked_add(*c) {
+                        return Q::Small(s, 1);
+                    }
+                }
+                let (a, b, c, d) = (*a as i128, *b as i128, *c as i128, *d as i128);
+                match (a * d).checked_add(c * b) {
+                    Some(n) => Q::from_i128(n, b * d),
+                    None => Q::from_big(self.to_big() + other.to_big()),
+                }
+            }
+            _ => Q::from_big(self.to_big() + other.to_big()),
+        }
+    }
+
+    /// Difference.
+    pub fn sub(&self, other: &Q) -> Q {
+        self.add(&other.neg())
+    }
+
+    /// Negation.
+    pub fn neg(&self) -> Q {
+        match self {
+            Q::Small(n, d) => match n.checked_neg() {
+                Some(n) => Q::Small(n, *d),
+                None => Q::from_big(-self.to_big()),
+            },
+            Q::Big(b) => Q::from_big(-(**b).clone()),
+        }
+    }
+
+    /// Product.
+    pub fn mul(&self, other: &Q) -> Q {
+        match (self, other) {
+            (Q::Small(a, b), Q::Small(c, d)) => {
+                if *b == 1 && *d == 1 {
+                    if let Some(p) = a.checked_mul(*c) {
+                        return Q::Small(p, 1);
+                    }
+                }
+                Q::from_i128(*a as i128 * *c as i128, *b as i128 * *d as i128)
+            }
+            _ => Q::from_big(self.to_big() * other.to_big()),
+        }
+    }
+
+    /// Quotient; `None` when dividing by zero.
+    pub fn div(&self, other: &Q) -> Option<Q> {
+        if other.is_zero() {
+            return None;
+        }
+        Some(self.mul(&other.recip()?))
+    }
+
+    /// Reciprocal; `None` for zero.
+    pub fn recip(&self) -> Option<Q> {
+        match self {
+            Q::Small(0, _) => None,
+            Q::Small(n, d) => Some(Q::from_i128(*d as i128, *n as i128)),
+            Q::Big(b) => Some(Q::from_big(b.recip())),
+        }
+    }
+
+    /// Integer power (negative exponents invert); `None` for 0^negative.
+    pub fn pow(&self, e: i64) -> Option<Q> {
+        let base = if e < 0 { self.recip()? } else { self.clone() };
+        let mut e = e.unsigned_abs();
+        let mut acc = Q::ONE;
+        let mut sq = base;
+        while e > 0 {
+            if e & 1 == 1 {
+                acc = acc.mul(&sq);
+            }
+            e >>= 1;
+            if e > 0 {
+                sq = sq.mul(&sq);
+            }
+        }
+        Some(acc)
+    }
+
+    /// Absolute value.
+    pub fn abs(&self) -> Q {
+        if self.is_negative() {
+            self.neg()
+        } else {
+            self.clone()
+        }
+    }
+
+    /// Greatest common divisor of two rationals (gcd of numerators over lcm
+    /// of denominators); both must be nonzero for a meaningful result.
+    pub fn gcd(&self, other: &Q) -> Q {
+        let n = self.numer().gcd(&other.numer());
+        let d = self.denom().lcm(&other.denom());
+        Q::from_big(BigRational::new(n, d))
+    }
+
+    /// Floor as a rational integer.
+    pub fn floor(&self) -> Q {
+        match self {
+            Q::Small(n, d) => Q::Small(n.div_euclid(*d), 1),
+            Q::Big(b) => Q::from_big(b.floor()),
+        }
+    }
+
+    /// Parses decimal or scientific notation exactly: `3`, `0.25`, `.5`,
+    /// `1e-4`, `2.5E+3`. Returns `None` on malformed text or an exponent
+    /// whose magnitude exceeds `max_exp`.
+    pub fn parse_decimal(text: &str, max_exp: u64) -> Option<Q> {
+        let (mant, exp) = match text.find(['e', 'E']) {
+            Some(i) => (&text[..i], text[i + 1..].parse::<i64>().ok()?),
+            None => (text, 0),
+        };
+        if exp.unsigned_abs() > max_exp {
+            return None;
+        }
+        let (int_part, frac_part) = match mant.find('.') {
+            Some(i) => (&mant[..i], &mant[i + 1..]),
+            None => (mant, ""),
+        };
+        if int_part.is_empty() && frac_part.is_empty() {
+            return None;
+        }
+        if !int_part.bytes().chain(frac_part.bytes()).all(|b| b.is_ascii_digit()) {
+            return None;
+        }
+        let digits = format!("{int_part}{frac_part}");
+        let n: BigInt = digits.parse().ok()?;
+        let scale = exp - frac_part.len() as i64;
+        let ten = BigInt::from(10);
+        let r = if scale >= 0 {
+            BigRational::from_integer(n * num_traits::pow(ten, scale as usize))
+        } else {
+            BigRational::new(n, num_traits::pow(ten, scale.unsigned_abs() as usize))
+        };
+        Some(Q::from_big(r))
+    }
+}
+
+impl Ord for Q {
+    fn cmp(&self, other: &Q) -> Ordering {
+        match (self, other) {
+            (Q::Small(a, b), Q::Small(c, d)) => {
+                (*a as i128 * *d as i128).cmp(&(*c as i128 * *b as i128))
+            }
+            _ => self.to_big().cmp(&other.to_big()),
+        }
+    }
+}
+
+impl PartialOrd for Q {
+    fn partial_cmp(&self, other: &Q) -> Option<Ordering> {
+        Some(self.cmp(other))
+    }
+}
+
+impl Default for Q {
+    fn default() -> Q {
+        Q::ZERO
+    }
+}
+
+impl From<i64> for Q {
+    fn from(n: i64) -> Q {
+        Q::int(n)
+    }
+}
+
+impl fmt::Display for Q {
+    /// `n` or `n/d`, in the input syntax.
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            Q::Small(n, 1) => write!(f, "{n}"),
+            Q::Small(n, d) => write!(f, "{n}/{d}"),
+            Q::Big(b) if b.is_integer() => write!(f, "{}", b.numer()),
+            Q::Big(b) => write!(f, "{}/{}", b.numer(), b.denom()),
+        }
+    }
+}
+
+impl fmt::Debug for Q {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "{self}")
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use proptest::prelude::*;
+
+    fn q(n: i64, d: i64) -> Q {
+        Q::ratio(n, d).unwrap()
+    }
+
+    #[test]
+    fn reduces_and_normalises_sign() {
+        assert_eq!(q(2, -4), q(-1, 2));
+        assert_eq!(q(0, -7), Q::ZERO);
+        assert_eq!(format!("{}", q(6, 4)), "3/2");
+    }
+
+    #[test]
+    fn overflow_promotes_and_demotes() {
+        let big = Q::int(i64::MAX).add(&Q::ONE);
+        assert!(matches!(big, Q::Big(_)));
+        assert_eq!(big.sub(&Q::ONE), Q::int(i64::MAX));
+        assert!(matches!(big.sub(&Q::ONE), Q::Small(..)));
+        let m = Q::int(i64::MIN);
+        assert_eq!(m.neg().neg(), m);
+        assert_eq!(format!("{}", Q::int(2).pow(100).unwrap()), "1267650600228229401496703205376");
+    }
+
+    #[test]
+    fn decimals_are_exact() {
+        assert_eq!(Q::parse_decimal("0.1", 100), Some(q(1, 10)));
+        assert_eq!(Q::parse_decimal("1e-4", 100), Some(q(1, 10000)));
+        assert_eq!(Q::parse_decimal("2.5E+3", 100), Some(Q::int(2500)));
+        assert_eq!(Q::parse_decimal(".5", 100), Some(q(1, 2)));
+        assert_eq!(Q::parse_decimal("1e999999", 1000), None);
+        assert_eq!(Q::parse_decimal("1.2.3", 100), None);
+    }
+
+    fn arb_q() -> impl Strategy<Value = Q> {
+        prop_oneof![
+            (-50i64..50, 1i64..20).prop_map(|(n, d)| q(n, d)),
+            (any::<i64>(), 1i64..i64::MAX).prop_map(|(n, d)| q(n, d)),
+        ]
+    }
+
+    proptest! {
+        #[test]
+        fn agrees_with_big_rationals(a in arb_q(), b in arb_q()) {
+            prop_assert_eq!(a.add(&b).to_big(), a.to_big() + b.to_big());
+            prop_assert_eq!(a.mul(&b).to_big(), a.to_big() * b.to_big());
+            prop_assert_eq!(a.sub(&b).to_big(), a.to_big() - b.to_big());
+            prop_assert_eq!(a.cmp(&b), a.to_big().cmp(&b.to_big()));
+            if !b.is_zero() {
+                prop_assert_eq!(a.div(&b).unwrap().to_big(), a.to_big() / b.to_big());
+            }
+            // Canonical: a value that fits is always small.
+            let s = a.add(&b);
+            prop_assert_eq!(Q::from_big(s.to_big()), s);
+        }
+    }
+}

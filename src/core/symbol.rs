@@ -1,0 +1,56 @@
+//! Interned symbol names.
+//!
+//! Every name an expression mentions (state coordinates, parameters, time
+//! `t`, the constant `pi`) is a `Sym`, a small integer handed out in order of
+//! first use. The order of symbols fixes the canonical order of terms, so a
+//! session that declares the same names in the same order prints the same
+//! output byte for byte. The interner is global and append-only.
+
+use std::collections::HashMap;
+use std::sync::{Mutex, OnceLock};
+
+/// An interned name.
+#[derive(Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Debug)]
+pub struct Sym(pub u32);
+
+struct Interner {
+    names: Vec<String>,
+    ids: HashMap<String, u32>,
+}
+
+fn interner() -> &'static Mutex<Interner> {
+    static CELL: OnceLock<Mutex<Interner>> = OnceLock::new();
+    CELL.get_or_init(|| {
+        let mut it = Interner { names: Vec::new(), ids: HashMap::new() };
+        for name in ["t", "pi"] {
+            it.ids.insert(name.to_string(), it.names.len() as u32);
+            it.names.push(name.to_string());
+        }
+        Mutex::new(it)
+    })
+}
+
+impl Sym {
+    /// Time.
+    pub const T: Sym = Sym(0);
+    /// The constant pi.
+    pub const PI: Sym = Sym(1);
+
+    /// Interns `name`.
+    pub fn new(name: &str) -> Sym {
+        let mut it = interner().lock().unwrap_or_else(|e| e.into_inner());
+        if let Some(id) = it.ids.get(name) {
+            return Sym(*id);
+        }
+        let id = it.names.len() as u32;
+        it.names.push(name.to_string());
+        it.ids.insert(name.to_string(), id);
+        Sym(id)
+    }
+
+    /// The symbol's name.
+    pub fn name(self) -> String {
+        let it = interner().lock().unwrap_or_else(|e| e.into_inner());
+        it.names.get(self.0 as usize).cloned().unwrap_or_else(|| format!("?{}", self.0))
+    }
+}

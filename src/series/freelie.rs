@@ -1,0 +1,1081 @@
+//! The free Lie algebra over a generic coefficient ring: words and truncated
+//! tensor series, Lyndon words with their standard bracketing, projection of
+//! Lie elements onto the Lyndon basis, the truncated exponential and
+//! logarithm, the Baker–Campbell–Hausdorff series and the evaluation of Lie
+//! polynomials with concrete values (fields, matrices, ...).
+//!
+//! This module owns the structural side of the chronological logarithm
+//! (DESIGN §2.5, §2.7). It must not know about anything else in ordex:
+//! coefficients enter through the [`Coeff`] trait (implemented here for
+//! [`BigRational`], and by the caller for its exact expressions), and
+//! concrete values enter only through the closures given to [`evaluate`].
+//!
+//! # Conventions
+//! - A letter is a `u16`; letters `0..m` form an [`Alphabet`] in which every
+//!   letter carries a positive integer weight (for ordex: the power of eps it
+//!   brings). Truncation is by total weight: a word of weight above the
+//!   bound is dropped. With all weights 1 this is truncation by length.
+//! - A word `a1 a2 … ak` stands for the composition `X_a1 ∘ X_a2 ∘ … ∘ X_ak`
+//!   of operators on functions, so the product of the tensor algebra is
+//!   concatenation and the commutator is `[u, v] = uv − vu`. For vector
+//!   fields acting as derivations this is exactly the Lie bracket
+//!   `[X, Y](h) = X(Y(h)) − Y(X(h))`.
+//! - In a Chen series the earliest time acts outermost: the earliest letter
+//!   is the leftmost one in the word.
+//! - Lyndon words are taken for the letter order `0 < 1 < 2 < …`; the
+//!   standard factorisation of a Lyndon word `w` of length at least 2 is
+//!   `w = uv` with `v` its longest proper Lyndon suffix, and the standard
+//!   bracketing `P_w = [P_u, P_v]` gives the Lyndon basis of the free Lie
+//!   algebra. `P_w` is `w` plus words of the same length that are
+//!   lexicographically larger, which makes the projection onto the basis a
+//!   triangular elimination.
+
+use std::collections::{BTreeMap, HashMap};
+use std::fmt;
+use std::num::NonZeroU64;
+use std::rc::Rc;
+
+use num_bigint::BigInt;
+use num_rational::BigRational;
+
+/// A letter: an index into an [`Alphabet`].
+pub type Letter = u16;
+
+/// A word: a sequence of letters, read as the composition of the letters'
+/// operators from left (outermost) to right (innermost).
+pub type Word = Vec<Letter>;
+
+/// The coefficient ring of tensor series and Lie polynomials.
+///
+/// Implementations must be exact: `is_zero` must recognise every value that
+/// equals zero (the projection onto the Lyndon basis relies on it to decide
+/// whether an element is a Lie element), and `==` must be equality of
+/// values. Coefficients may be large, so the algorithms of this module keep
+/// the number of calls to [`Coeff::mul`] low and use [`Coeff::scale`] for
+/// integer and rational factors.
+pub trait Coeff: Clone + PartialEq + fmt::Debug {
+    /// The additive identity.
+    fn zero() -> Self;
+    /// The multiplicative identity.
+    fn one() -> Self;
+    /// Returns true if and only if the value is zero.
+    fn is_zero(&self) -> bool;
+    /// The sum `self + other`.
+    fn add(&self, other: &Self) -> Self;
+    /// The difference `self − other`.
+    fn sub(&self, other: &Self) -> Self;
+    /// The product `self · other`.
+    fn mul(&self, other: &Self) -> Self;
+    /// The negation `−self`.
+    fn neg(&self) -> Self;
+    /// The product of `self` with the rational number `num / den`.
+    fn scale(&self, num: i64, den: NonZeroU64) -> Self;
+}
+
+impl Coeff for BigRational {
+    fn zero() -> Self {
+        <BigRational as num_traits::Zero>::zero()
+    }
+
+    fn one() -> Self {
+        <BigRational as num_traits::One>::one()
+    }
+
+    fn is_zero(&self) -> bool {
+        num_traits::Zero::is_zero(self)
+    }
+
+    fn add(&self, other: &Self) -> Self {
+        self + other
+    }
+
+    fn sub(&self, other: &Self) -> Self {
+        self - other
+    }
+
+    fn mul(&self, other: &Self) -> Self {
+        self * other
+    }
+
+    fn neg(&self) -> Self {
+        -self
+    }
+
+    fn scale(&self, num: i64, den: NonZeroU64) -> Self {
+        let factor =
+            BigRational::new(BigInt::from(num), BigInt::from(den.get()));
+        self * factor
+    }
+}
+
+/// Errors of the free Lie algebra computations.
+#[derive(Clone, Debug, PartialEq, Eq)]
+#[non_exhaustive]
+pub enum FreeLieError {
+    /// A letter was given weight 0 (weights must be at least 1 so that
+    /// truncation by weight leaves finitely many words).
+    ZeroWeight {
+        /// The letter with weight 0.
+        letter: Letter,
+    },
+    /// An alphabet with more letters than a `u16` can name.
+    TooManyLetters {
+        /// The number of letters asked for.
+        n_letters: usize,
+    },
+    /// A word uses a letter outside the alphabet.
+    UnknownLetter {
+        /// The offending letter.
+        letter: Letter,
+        /// The number of letters of the alphabet.
+        n_letters: usize,
+    },
+    /// The element is not a Lie element: after eliminating the Lyndon basis
+    /// the term on `word` is left over (the empty word for a nonzero
+    /// constant term).
+    NotLieElement {
+        /// The smallest word carrying a leftover coefficient.
+        word: Word,
+    },
+    /// A word that had to be a Lyndon word is not one.
+    NotLyndon {
+        /// The offending word.
+        word: Word,
+    },
+    /// The logarithm was asked of a series whose constant term is not 1.
+    ConstantTermNotOne,
+    /// The exponential was asked of a series with a nonzero constant term.
+    ConstantTermNotZero,
+    /// An integer coefficient of a bracket expansion overflowed `i64`.
+    Overflow {
+        /// The Lyndon word whose expansion overflowed.
+        word: Word,
+    },
+}
+
+impl fmt::Display for FreeLieError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            FreeLieError::ZeroWeight { letter } => write!(
+                f,
+                "letter {letter} has weight 0, but letter weights must be at least 1"
+            ),
+            FreeLieError::TooManyLetters { n_letters } => write!(
+                f,
+                "an alphabet has at most 65536 letters, not {n_letters}"
+            ),
+            FreeLieError::UnknownLetter { letter, n_letters } => write!(
+                f,
+                "letter {letter} is outside the alphabet of {n_letters} letters"
+            ),
+            FreeLieError::NotLieElement { word } if word.is_empty() => {
+                write!(f, "not a Lie element: the constant term is nonzero")
+            }
+            FreeLieError::NotLieElement { word } => write!(
+                f,
+                "not a Lie element: the term on word '{}' is left after projection onto the Lyndon basis",
+                WordDisplay(word)
+            ),
+            FreeLieError::NotLyndon { word } => {
+                write!(f, "word '{}' is not a Lyndon word", WordDisplay(word))
+            }
+            FreeLieError::ConstantTermNotOne => {
+                write!(f, "the logarithm needs a series with constant term 1")
+            }
+            FreeLieError::ConstantTermNotZero => write!(
+                f,
+                "the exponential needs a series with zero constant term"
+            ),
+            FreeLieError::Overflow { word } => write!(
+                f,
+                "integer overflow while expanding the bracket of word '{}'",
+                WordDisplay(word)
+            ),
+        }
+    }
+}
+
+impl std::error::Error for FreeLieError {}
+
+/// Formats a word as its letters separated by spaces.
+struct WordDisplay<'a>(&'a [Letter]);
+
+impl fmt::Display for WordDisplay<'_> {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        for (idx, letter) in self.0.iter().enumerate() {
+            if idx > 0 {
+                write!(f, " ")?;
+            }
+            write!(f, "{letter}")?;
+        }
+        Ok(())
+    }
+}
+
+/// The letters `0..m` and their weights (each at least 1).
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Alphabet {
+    weights: Vec<u32>,
+}
+
+impl Alphabet {
+    /// An alphabet whose letter `i` has weight `weights[i]`.
+    ///
+    /// Fails if a weight is 0 or if there are more than 65536 letters.
+    pub fn new(weights: Vec<u32>) -> Result<Self, FreeLieError> {
+        if weights.len() > usize::from(u16::MAX) + 1 {
+            return Err(FreeLieError::TooManyLetters {
+                n_letters: weights.len(),
+            });
+        }
+        if let Some(idx) = weights.iter().position(|weight| *weight == 0) {
+            let letter = Letter::try_from(idx).unwrap_or(Letter::MAX);
+            return Err(FreeLieError::ZeroWeight { letter });
+        }
+        Ok(Alphabet { weights })
+    }
+
+    /// The alphabet of `n_letters` letters of weight 1.
+    pub fn uniform(n_letters: u16) -> Self {
+        Alphabet {
+            weights: vec![1; usize::from(n_letters)],
+        }
+    }
+
+    /// The number of letters.
+    pub fn n_letters(&self) -> usize {
+        self.weights.len()
+    }
+
+    /// The weights, indexed by letter.
+    pub fn weights(&self) -> &[u32] {
+        &self.weights
+    }
+
+    /// The weight of a letter, or `None` if the letter is not in the
+    /// alphabet.
+    pub fn weight(&self, letter: Letter) -> Option<u32> {
+        self.weights.get(usize::from(letter)).copied()
+    }
+
+    /// The total weight of a word (0 for the empty word).
+    ///
+    /// Fails if the word uses a letter outside the alphabet.
+    pub fn word_weight(&self, word: &[Letter]) -> Result<u64, FreeLieError> {
+        word.iter().try_fold(0u64, |acc, &letter| {
+            let weight =
+                self.weight(letter).ok_or(FreeLieError::UnknownLetter {
+                    letter,
+                    n_letters: self.n_letters(),
+                })?;
+            Ok(acc.saturating_add(u64::from(weight)))
+        })
+    }
+}
+
+/// A tensor series (or polynomial): a finite sparse combination of words
+/// with coefficients, the empty word standing for the constant term.
+///
+/// Terms with a zero coefficient are never stored, and terms are kept in
+/// lexicographic order of their words, so iteration is deterministic.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Tensor<C> {
+    terms: BTreeMap<Word, C>,
+}
+
+impl<C: Coeff> Default for Tensor<C> {
+    fn default() -> Self {
+        Tensor::zero()
+    }
+}
+
+impl<C: Coeff> Tensor<C> {
+    /// The zero series.
+    pub fn zero() -> Self {
+        Tensor {
+            terms: BTreeMap::new(),
+        }
+    }
+
+    /// The constant series 1 (the empty word).
+    pub fn one() -> Self {
+        Tensor::monomial(Word::new(), C::one())
+    }
+
+    /// The series consisting of one letter with coefficient 1.
+    pub fn letter(letter: Letter) -> Self {
+        Tensor::monomial(vec![letter], C::one())
+    }
+
+    /// The series `coeff · word` (zero if `coeff` is zero).
+    pub fn monomial(word: Word, coeff: C) -> Self {
+        let mut terms = BTreeMap::new();
+        if !coeff.is_zero() {
+            terms.insert(word, coeff);
+        }
+        Tensor { terms }
+    }
+
+    /// The sum of the given terms; repeated words are added up and zero
+    /// coefficients dropped.
+    pub fn from_terms<I: IntoIterator<Item = (Word, C)>>(terms: I) -> Self {
+        let mut map = BTreeMap::new();
+        for (word, coeff) in terms {
+            accumulate(&mut map, word, coeff);
+        }
+        map.retain(|_, coeff: &mut C| !coeff.is_zero());
+        Tensor { terms: map }
+    }
+
+    /// Returns true if and only if the series has no term.
+    pub fn is_zero(&self) -> bool {
+        self.terms.is_empty()
+    }
+
+    /// The number of (nonzero) terms.
+    pub fn n_terms(&self) -> usize {
+        self.terms.len()
+    }
+
+    /// The coefficient of a word, or `None` if it is zero.
+    pub fn coeff(&self, word: &[Letter]) -> Option<&C> {
+        self.terms.get(word)
+    }
+
+    /// The terms in lexicographic order of their words.
+    pub fn terms(&self) -> impl Iterator<Item = (&Word, &C)> + '_ {
+        self.terms.iter()
+    }
+
+    /// The terms, by value, in lexicographic order of their words.
+    pub fn into_terms(self) -> impl Iterator<Item = (Word, C)> {
+        self.terms.into_iter()
+    }
+
+    /// The sum `self + other`.
+    pub fn add(&self, other: &Self) -> Self {
+        let mut res = self.clone();
+        res.add_scaled_assign(other, 1, NonZeroU64::MIN);
+        res
+    }
+
+    /// The difference `self − other`.
+    pub fn sub(&self, other: &Self) -> Self {
+        let mut res = self.clone();
+        res.add_scaled_assign(other, -1, NonZeroU64::MIN);
+        res
+    }
+
+    /// The negation `−self`.
+    pub fn neg(&self) -> Self {
+        Tensor {
+            terms: self
+                .terms
+                .iter()
+                .map(|(word, coeff)| (word.clone(), coeff.neg()))
+                .collect(),
+        }
+    }
+
+    /// The product of every coefficient with the rational `num / den`.
+    pub fn scale(&self, num: i64, den: NonZeroU64) -> Self {
+        Tensor::from_terms(
+            self.terms
+                .iter()
+                .map(|(word, coeff)| (word.clone(), coeff.scale(num, den))),
+        )
+    }
+
+    /// The product of every coefficient with `factor` (on the left).
+    pub fn mul_coeff(&self, factor: &C) -> Self {
+        Tensor::from_terms(
+            self.terms
+                .iter()
+                .map(|(word, coeff)| (word.clone(), factor.mul(coeff))),
+        )
+    }
+
+    /// The series without its terms of weight above `max_weight`.
+    ///
+    /// Fails if a word uses a letter outside the alphabet.
+    pub fn truncated(
+        &self,
+        alphabet: &Alphabet,
+        max_weight: u32,
+    ) -> Result<Self, FreeLieError> {
+        let mut terms = BTreeMap::new();
+        for (word, coeff) in &self.terms {
+            if alphabet.word_weight(word)? <= u64::from(max_weight) {
+                terms.insert(word.clone(), coeff.clone());
+            }
+        }
+        Ok(Tensor { terms })
+    }
+
+    /// The concatenation product `self · other` truncated at weight
+    /// `max_weight`; pairs of terms whose weights add up to more than
+    /// `max_weight` are never multiplied.
+    ///
+    /// Fails if a word uses a letter outside the alphabet.
+    pub fn mul_truncated(
+        &self,
+        other: &Self,
+        alphabet: &Alphabet,
+        max_weight: u32,
+    ) -> Result<Self, FreeLieError> {
+        let max_weight = u64::from(max_weight);
+        let lhs = self.weighted_terms(alphabet, max_weight)?;
+        let mut rhs = other.weighted_terms(alphabet, max_weight)?;
+        rhs.sort_by_key(|(_, _, weight)| *weight);
+        let mut terms = BTreeMap::new();
+        for (left_word, left_coeff, left_weight) in &lhs {
+            let budget = max_weight - left_weight;
+            for (right_word, right_coeff, right_weight) in &rhs {
+                if *right_weight > budget {
+                    break;
+                }
+                let mut word =
+                    Vec::with_capacity(left_word.len() + right_word.len());
+                word.extend_from_slice(left_word);
+                word.extend_from_slice(right_word);
+                accumulate(&mut terms, word, left_coeff.mul(right_coeff));
+            }
+        }
+        terms.retain(|_, coeff: &mut C| !coeff.is_zero());
+        Ok(Tensor { terms })
+    }
+
+    /// The exponential `Σ_k Z^k / k!` of a series `Z` with zero constant
+    /// term, truncated at weight `max_weight`.
+    ///
+    /// Fails if the constant term is nonzero or a word uses a letter outside
+    /// the alphabet.
+    pub fn exp_truncated(
+        &self,
+        alphabet: &Alphabet,
+        max_weight: u32,
+    ) -> Result<Self, FreeLieError> {
+        if self.terms.contains_key(&[][..]) {
+            return Err(FreeLieError::ConstantTermNotZero);
+        }
+        let series = self.truncated(alphabet, max_weight)?;
+        let mut res = Tensor::one();
+        res.add_scaled_assign(&series, 1, NonZeroU64::MIN);
+        // `power` holds Z^k / k!; every factor raises the lowest weight by at
+        // least 1, so at most `max_weight` factors contribute.
+        let mut power = series.clone();
+        for k in 2..=u64::from(max_weight) {
+            let Some(den) = NonZeroU64::new(k) else { break };
+            // Dividing the short factor Z by k is cheaper than dividing the
+            // long product.
+            let factor = series.scale(1, den);
+            power = power.mul_truncated(&factor, alphabet, max_weight)?;
+            if power.is_zero() {
+                break;
+            }
+            res.add_scaled_assign(&power, 1, NonZeroU64::MIN);
+        }
+        Ok(res)
+    }
+
+    /// The logarithm `Σ_k (−1)^(k+1) Z^k / k` with `Z = self − 1`,
+    /// truncated at weight `max_weight`; the powers `Z^k` are built one
+    /// factor at a time, each truncated.
+    ///
+    /// Fails if the constant term is not 1 or a word uses a letter outside
+    /// the alphabet.
+    pub fn log_truncated(
+        &self,
+        alphabet: &Alphabet,
+        max_weight: u32,
+    ) -> Result<Self, FreeLieError> {
+        match self.terms.get(&[][..]) {
+            Some(constant) if *constant == C::one() => {}
+            _ => return Err(FreeLieError::ConstantTermNotOne),
+        }
+        let mut series = self.truncated(alphabet, max_weight)?;
+        series.terms.remove(&[][..]);
+        let mut res = series.clone();
+        let mut power = series.clone();
+        for k in 2..=u64::from(max_weight) {
+            let Some(den) = NonZeroU64::new(k) else { break };
+            power = power.mul_truncated(&series, alphabet, max_weight)?;
+            if power.is_zero() {
+                break;
+            }
+            let sign = if k % 2 == 0 { -1 } else { 1 };
+            res.add_scaled_assign(&power, sign, den);
+        }
+        Ok(res)
+    }
+
+    /// Adds `(num / den) · other` to `self` in place.
+    fn add_scaled_assign(&mut self, other: &Self, num: i64, den: NonZeroU64) {
+        let unit = den.get() == 1 && (num == 1 || num == -1);
+        for (word, coeff) in &other.terms {
+            let term = if !unit {
+                coeff.scale(num, den)
+            } else if num == 1 {
+                coeff.clone()
+            } else {
+                coeff.neg()
+            };
+            accumulate(&mut self.terms, word.clone(), term);
+        }
+        self.terms.retain(|_, coeff| !coeff.is_zero());
+    }
+
+    /// The terms of weight at most `max_weight`, with their weights.
+    fn weighted_terms(
+        &self,
+        alphabet: &Alphabet,
+        max_weight: u64,
+    ) -> Result<Vec<(&Word, &C, u64)>, FreeLieError> {
+        let mut res = Vec::with_capacity(self.terms.len());
+        for (word, coeff) in &self.terms {
+            let weight = alphabet.word_weight(word)?;
+            if weight <= max_weight {
+                res.push((word, coeff, weight));
+            }
+        }
+        Ok(res)
+    }
+
+    /// The untruncated product (used for homogeneous bracket expansions).
+    fn mul_full(&self, other: &Self) -> Self {
+        let mut terms = BTreeMap::new();
+        for (left_word, left_coeff) in &self.terms {
+            for (right_word, right_coeff) in &other.terms {
+                let mut word =
+                    Vec::with_capacity(left_word.len() + right_word.len());
+                word.extend_from_slice(left_word);
+                word.extend_from_slice(right_word);
+                accumulate(&mut terms, word, left_coeff.mul(right_coeff));
+            }
+        }
+        terms.retain(|_, coeff: &mut C| !coeff.is_zero());
+        Tensor { terms }
+    }
+}
+
+/// Adds `value` to the coefficient of `word` (zeros are left in place; the
+/// caller removes them).
+fn accumulate<C: Coeff>(terms: &mut BTreeMap<Word, C>, word: Word, value: C) {
+    match terms.entry(word) {
+        std::collections::btree_map::Entry::Vacant(entry) => {
+            entry.insert(value);
+        }
+        std::collections::btree_map::Entry::Occupied(mut entry) => {
+            let sum = entry.get().add(&value);
+            *entry.get_mut() = sum;
+        }
+    }
+}
+
+/// Returns true if and only if `word` is a Lyndon word: nonempty and
+/// strictly smaller (lexicographically, letter order `0 < 1 < …`) than each
+/// of its proper suffixes.
+pub fn is_lyndon(word: &[Letter]) -> bool {
+    !word.is_empty() && (1..word.len()).all(|idx| word < &word[idx..])
+}
+
+/// The standard factorisation `w = uv` of a Lyndon word of length at least
+/// 2: `v` is the longest proper suffix of `w` that is a Lyndon word (for a
+/// Lyndon word this is also its lexicographically smallest proper suffix),
+/// and `u` is then a Lyndon word too.
+///
+/// Returns `None` for a word that is not Lyndon or is a single letter.
+pub fn standard_factorization(word: &[Letter]) -> Option<(Word, Word)> {
+    if word.len() < 2 || !is_lyndon(word) {
+        return None;
+    }
+    let split = (1..word.len()).min_by(|&a, &b| word[a..].cmp(&word[b..]))?;
+    Some((word[..split].to_vec(), word[split..].to_vec()))
+}
+
+/// A bracket monomial: a letter or the bracket of two bracket monomials.
+#[derive(Clone, Debug, PartialEq, Eq, Hash)]
+pub enum Bracket {
+    /// A single letter.
+    Letter(Letter),
+    /// The bracket `[left, right]`.
+    Pair(Box<Bracket>, Box<Bracket>),
+}
+
+impl Bracket {
+    /// The bracket `[left, right]`.
+    pub fn pair(left: Bracket, right: Bracket) -> Self {
+        Bracket::Pair(Box::new(left), Box::new(right))
+    }
+
+    /// The letters of the bracket read from left to right.
+    pub fn word(&self) -> Word {
+        let mut res = Word::new();
+        self.collect_letters(&mut res);
+        res
+    }
+
+    /// The number of letters.
+    pub fn degree(&self) -> usize {
+        match self {
+            Bracket::Letter(_) => 1,
+            Bracket::Pair(left, right) => left.degree() + right.degree(),
+        }
+    }
+
+    /// The bracket written with the given letter names, e.g.
+    /// `[X, [X, Y]]`.
+    pub fn render(&self, name: &dyn Fn(Letter) -> String) -> String {
+        let mut res = String::new();
+        self.render_into(name, &mut res);
+        res
+    }
+
+    fn collect_letters(&self, out: &mut Word) {
+        match self {
+            Bracket::Letter(letter) => out.push(*letter),
+            Bracket::Pair(left, right) => {
+                left.collect_letters(out);
+                right.collect_letters(out);
+            }
+        }
+    }
+
+    fn render_into(&self, name: &dyn Fn(Letter) -> String, out: &mut String) {
+        match self {
+            Bracket::Letter(letter) => out.push_str(&name(*letter)),
+            Bracket::Pair(left, right) => {
+                out.push('[');
+                left.render_into(name, out);
+                out.push_str(", ");
+                right.render_into(name, out);
+                out.push(']');
+            }
+        }
+    }
+}
+
+impl fmt::Display for Bracket {
+    /// Writes the bracket with letters as numbers, e.g. `[0, [0, 1]]`.
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(&self.render(&|letter| letter.to_string()))
+    }
+}
+
+/// The standard bracketing `P_w` of a Lyndon word: a letter for a single
+/// letter, `[P_u, P_v]` for the standard factorisation `w = uv`.
+///
+/// Returns `None` if the word is not a Lyndon word.
+pub fn standard_bracketing(word: &[Letter]) -> Option<Bracket> {
+    match word {
+        [] => None,
+        [letter] => Some(Bracket::Letter(*letter)),
+        _ => {
+            let (left, right) = standard_factorization(word)?;
+            Some(Bracket::pair(
+                standard_bracketing(&left)?,
+                standard_bracketing(&right)?,
+            ))
+        }
+    }
+}
+
+/// The expansion of a bracket monomial in the tensor algebra, with
+/// `[a, b] = ab − ba`.
+pub fn expand_bracket<C: Coeff>(bracket: &Bracket) -> Tensor<C> {
+    match bracket {
+        Bracket::Letter(letter) => Tensor::letter(*letter),
+        Bracket::Pair(left, right) => {
+            let left = expand_bracket::<C>(left);
+            let right = expand_bracket::<C>(right);
+            left.mul_full(&right).sub(&right.mul_full(&left))
+        }
+    }
+}
+
+/// All Lyndon words of weight at most `max_weight`, sorted by weight and,
+/// within one weight, lexicographically (letter order `0 < 1 < …`, a proper
+/// prefix before its extensions).
+///
+/// The words are generated as extensions of prenecklaces (prefixes of
+/// Lyndon words), pruned by weight, so no non-Lyndon word is built beyond
+/// a prefix of a Lyndon word.
+pub fn lyndon_words(alphabet: &Alphabet, max_weight: u32) -> Vec<Word> {
+    let max_weight = u64::from(max_weight);
+    let n_letters = alphabet.n_letters();
+    let mut res: Vec<(u64, Word)> = Vec::new();
+    if n_letters == 0 {
+        return Vec::new();
+    }
+    let last_letter = n_letters - 1;
+    // One frame per letter of the current prefix, plus the root frame for
+    // the empty prefix. A frame tries the letters `next..n_letters` as the
+    // next letter; `period` is the length of the longest Lyndon prefix of
+    // the prefix (0 for the empty prefix), `weight` its weight.
+    struct Frame {
+        next: usize,
+        period: usize,
+        weight: u64,
+    }
+    let mut prefix: Word = Vec::new();
+    let mut stack = vec![Frame {
+        next: 0,
+        period: 0,
+        weight: 0,
+    }];
+    while let Some(frame) = stack.last_mut() {
+        if frame.next > last_letter {
+            stack.pop();
+            prefix.pop();
+            continue;
+        }
+        let candidate = frame.next;
+        frame.next += 1;
+        let (Ok(letter), Some(letter_weight)) = (
+            Letter::try_from(candidate),
+            alphabet.weights().get(candidate),
+        ) else {
+            continue;
+        };
+        let weight = frame.weight.saturating_add(u64::from(*letter_weight));
+        if weight > max_weight {
+            continue;
+        }
+        let len = prefix.len();
+        // The letter that keeps the period: prefix[len − period].
+        let repeated = len
+            .checked_sub(frame.period)
+            .and_then(|idx| prefix.get(idx))
+            .copied();
+        let period = match repeated {
+            Some(repeated) if len > 0 && letter == repeated => frame.period,
+            _ => len + 1,
+        };
+        prefix.push(letter);
+        if period == prefix.len() {
+            res.push((weight, prefix.clone()));
+        }
+        // Extensions must use a letter at least prefix[len + 1 − period];
+        // if that is the last letter, no extension is ever Lyndon again.
+        let next = prefix
+            .get(prefix.len() - period)
+            .map_or(n_letters, |letter| usize::from(*letter));
+        if next < last_letter {
+            stack.push(Frame {
+                next,
+                period,
+                weight,
+            });
+        } else {
+            prefix.pop();
+        }
+    }
+    res.sort();
+    res.into_iter().map(|(_, word)| word).collect()
+}
+
+/// Integer expansions `P_w` of standard bracketings, cached by Lyndon word;
+/// each is a list of (word, coefficient) sorted by word, starting with `w`
+/// itself (coefficient 1).
+#[derive(Default)]
+struct LyndonExpansions {
+    cache: HashMap<Word, Rc<Vec<(Word, i64)>>>,
+}
+
+impl LyndonExpansions {
+    fn get(&mut self, word: &[Letter]) -> Result<Rc<Vec<(Word, i64)>>, FreeLieError> {
+        if let Some(found) = self.cache.get(word) {
+            return Ok(Rc::clone(found));
+        }
+        let expansion = if word.len() == 1 {
+            vec![(word.to_vec(), 1)]
+        } else {
+            let (left_word, right_word) = standard_factorization(word)
+                .ok_or_else(|| FreeLieError::NotLyndon {
+                    word: word.to_vec(),
+                })?;
+            let left = self.get(&left_word)?;
+            let right = self.get(&right_word)?;
+            let overflow = || FreeLieError::Overflow {
+                word: word.to_vec(),
+            };
+            let mut terms: BTreeMap<Word, i64> = BTreeMap::new();
+            for (first, second, sign) in [(&left, &right, 1i64), (&right, &left, -1)] {
+                for (first_word, first_coeff) in first.iter() {
+                    for (second_word, second_coeff) in second.iter() {
+                        let product = first_coeff
+                            .checked_mul(*second_coeff)
+                            .and_then(|value| value.checked_mul(sign))
+                            .ok_or_else(overflow)?;
+                        let mut concat = first_word.clone();
+                        concat.extend_from_slice(second_word);
+                        let entry = terms.entry(concat).or_insert(0);
+                        *entry = entry.checked_add(product).ok_or_else(overflow)?;
+                    }
+                }
+            }
+            terms.into_iter().filter(|(_, coeff)| *coeff != 0).collect()
+        };
+        let expansion = Rc::new(expansion);
+        self.cache.insert(word.to_vec(), Rc::clone(&expansion));
+        Ok(expansion)
+    }
+}
+
+/// A Lie polynomial in the Lyndon basis: a combination `Σ c_w P_w` of
+/// standard bracketings of Lyndon words.
+///
+/// Terms are ordered by weight, then lexicographically by word; zero
+/// coefficients are never stored, and every word is a Lyndon word.
+#[derive(Clone, Debug, PartialEq)]
+pub struct LiePoly<C> {
+    terms: Vec<(Word, C)>,
+}
+
+impl<C: Coeff> Default for LiePoly<C> {
+    fn default() -> Self {
+        LiePoly { terms: Vec::new() }
+    }
+}
+
+impl<C: Coeff> LiePoly<C> {
+    /// The zero Lie polynomial.
+    pub fn zero() -> Self {
+        LiePoly::default()
+    }
+
+    /// The Lie polynomial `Σ c_w P_w` from (Lyndon word, coefficient)
+    /// pairs; repeated words are added up and zero coefficients dropped.
+    ///
+    /// Fails if a word is not a Lyndon word or uses a letter outside the
+    /// alphabet.
+    pub fn from_terms<I: IntoIterator<Item = (Word, C)>>(
+        terms: I,
+        alphabet: &Alphabet,
+    ) -> Result<Self, FreeLieError> {
+        let mut map = BTreeMap::new();
+        for (word, coeff) in terms {
+            alphabet.word_weight(&word)?;
+            if !is_lyndon(&word) {
+                return Err(FreeLieError::NotLyndon { word });
+            }
+            accumulate(&mut map, word, coeff);
+        }
+        map.retain(|_, coeff: &mut C| !coeff.is_zero());
+        Self::sorted_by_weight(map.into_iter().collect(), alphabet)
+    }
+
+    /// The terms (Lyndon word, coefficient), by weight then
+    /// lexicographically.
+    pub fn terms(&self) -> &[(Word, C)] {
+        &self.terms
+    }
+
+    /// The coefficient of `P_w` for a Lyndon word `w`, or `None` if zero.
+    pub fn coeff(&self, word: &[Letter]) -> Option<&C> {
+        self.terms
+            .iter()
+            .find(|(term_word, _)| term_word.as_slice() == word)
+            .map(|(_, coeff)| coeff)
+    }
+
+    /// Returns true if and only if the polynomial has no term.
+    pub fn is_zero(&self) -> bool {
+        self.terms.is_empty()
+    }
+
+    /// The expansion `Σ c_w P_w` in the tensor algebra.
+    ///
+    /// Fails only if an integer coefficient of some `P_w` overflows `i64`
+    /// (words far longer than any computation can reach).
+    pub fn to_tensor(&self) -> Result<Tensor<C>, FreeLieError> {
+        let mut expansions = LyndonExpansions::default();
+        let mut terms = BTreeMap::new();
+        for (word, coeff) in &self.terms {
+            for (expanded_word, multiple) in expansions.get(word)?.iter() {
+                let term = match *multiple {
+                    1 => coeff.clone(),
+                    -1 => coeff.neg(),
+                    multiple => coeff.scale(multiple, NonZeroU64::MIN),
+                };
+                accumulate(&mut terms, expanded_word.clone(), term);
+            }
+        }
+        terms.retain(|_, coeff: &mut C| !coeff.is_zero());
+        Ok(Tensor { terms })
+    }
+
+    fn sorted_by_weight(
+        terms: Vec<(Word, C)>,
+        alphabet: &Alphabet,
+    ) -> Result<Self, FreeLieError> {
+        let mut keyed = Vec::with_capacity(terms.len());
+        for (word, coeff) in terms {
+            keyed.push((alphabet.word_weight(&word)?, word, coeff));
+        }
+        keyed.sort_by(|a, b| (a.0, &a.1).cmp(&(b.0, &b.1)));
+        Ok(LiePoly {
+            terms: keyed
+                .into_iter()
+                .map(|(_, word, coeff)| (word, coeff))
+                .collect(),
+        })
+    }
+}
+
+/// The coordinates in the Lyndon basis of a Lie element, truncated at
+/// weight `max_weight` (terms of higher weight are ignored: every
+/// homogeneous part of a Lie element is a Lie element).
+///
+/// The smallest remaining word `w` (lexicographically) must be a Lyndon word
+/// and its coefficient `c` is the coordinate of `P_w`; `c · P_w` is
+/// subtracted (it only touches words larger than `w`) and the elimination
+/// goes on until nothing is left. Expansions `P_w` are computed once with
+/// integer coefficients and only for words with a nonzero coordinate.
+///
+/// Fails with [`FreeLieError::NotLieElement`] if the element is not a Lie
+/// element (a term is left that no Lyndon basis element can remove), and if
+/// a word uses a letter outside the alphabet.
+pub fn project_lyndon<C: Coeff>(
+    lie_element: &Tensor<C>,
+    alphabet: &Alphabet,
+    max_weight: u32,
+) -> Result<LiePoly<C>, FreeLieError> {
+    let mut remainder = lie_element.truncated(alphabet, max_weight)?.terms;
+    let mut expansions = LyndonExpansions::default();
+    let mut found = Vec::new();
+    while let Some((word, coeff)) = remainder.pop_first() {
+        if coeff.is_zero() {
+            continue;
+        }
+        if !is_lyndon(&word) {
+            return Err(FreeLieError::NotLieElement { word });
+        }
+        let expansion = expansions.get(&word)?;
+        // The first entry is `word` itself with coefficient 1: it is the
+        // term just removed.
+        for (expanded_word, multiple) in expansion.iter().skip(1) {
+            subtract_multiple(&mut remainder, expanded_word, &coeff, *multiple);
+        }
+        found.push((word, coeff));
+    }
+    LiePoly::sorted_by_weight(found, alphabet)
+}
+
+/// Subtracts `multiple · coeff` from the coefficient of `word`.
+fn subtract_multiple<C: Coeff>(
+    terms: &mut BTreeMap<Word, C>,
+    word: &Word,
+    coeff: &C,
+    multiple: i64,
+) {
+    match terms.get_mut(word) {
+        Some(entry) => {
+            *entry = match multiple {
+                1 => entry.sub(coeff),
+                -1 => entry.add(coeff),
+                _ => entry.sub(&coeff.scale(multiple, NonZeroU64::MIN)),
+            };
+        }
+        None => {
+            let term = match multiple {
+                1 => coeff.neg(),
+                -1 => coeff.clone(),
+                _ => coeff.scale(multiple, NonZeroU64::MIN).neg(),
+            };
+            terms.insert(word.clone(), term);
+        }
+    }
+}
+
+/// The logarithm of a group-like series (such as a Chen series of iterated
+/// integrals) truncated at weight `max_weight`, in the Lyndon basis.
+///
+/// Fails if the constant term is not 1, if the logarithm is not a Lie
+/// element (the series was not group-like up to that weight), or if a word
+/// uses a letter outside the alphabet.
+pub fn chronological_log<C: Coeff>(
+    chen: &Tensor<C>,
+    alphabet: &Alphabet,
+    max_weight: u32,
+) -> Result<LiePoly<C>, FreeLieError> {
+    let log = chen.log_truncated(alphabet, max_weight)?;
+    project_lyndon(&log, alphabet, max_weight)
+}
+
+/// The Baker–Campbell–Hausdorff series `log(e^X e^Y)` up to degree
+/// `max_degree`, on the letters X = 0 and Y = 1, in the Lyndon basis.
+///
+/// Fails only on an internal inconsistency of the coefficient type (a
+/// [`Coeff`] whose `is_zero` misses zeros).
+pub fn bch<C: Coeff>(max_degree: u32) -> Result<LiePoly<C>, FreeLieError> {
+    let alphabet = Alphabet::uniform(2);
+    let exp_x = Tensor::<C>::letter(0).exp_truncated(&alphabet, max_degree)?;
+    let exp_y = Tensor::<C>::letter(1).exp_truncated(&alphabet, max_degree)?;
+    let product = exp_x.mul_truncated(&exp_y, &alphabet, max_degree)?;
+    chronological_log(&product, &alphabet, max_degree)
+}
+
+/// Evaluates a Lie polynomial with concrete values: `letter_value` gives the
+/// value of a letter, `bracket` the bracket of two values, and `scale_add`
+/// adds `coeff · value` to an accumulator (`None` before the first term).
+///
+/// The value of every standard bracketing is computed once and remembered:
+/// the factors of a standard factorisation are Lyndon words, so Lyndon words
+/// share their sub-brackets. Returns `Ok(None)` for the zero polynomial.
+/// Errors of the closures are passed on; a word that is not a Lyndon word
+/// (impossible for a polynomial built by this module) gives
+/// [`FreeLieError::NotLyndon`] converted into `E`.
+pub fn evaluate<C, V, E>(
+    poly: &LiePoly<C>,
+    mut letter_value: impl FnMut(Letter) -> Result<V, E>,
+    mut bracket: impl FnMut(&V, &V) -> Result<V, E>,
+    mut scale_add: impl FnMut(Option<V>, &C, &V) -> Result<V, E>,
+) -> Result<Option<V>, E>
+where
+    C: Coeff,
+    E: From<FreeLieError>,
+{
+    let mut memo: HashMap<Word, V> = HashMap::new();
+    let mut acc = None;
+    for (word, coeff) in &poly.terms {
+        remember_value(word, &mut memo, &mut letter_value, &mut bracket)?;
+        let value = memo.get(word).ok_or_else(|| {
+            E::from(FreeLieError::NotLyndon { word: word.clone() })
+        })?;
+        acc = Some(scale_add(acc, coeff, value)?);
+    }
+    Ok(acc)
+}
+
+/// Makes sure `memo` holds the value of the standard bracketing of `word`.
+fn remember_value<V, E: From<FreeLieError>>(
+    word: &[Letter],
+    memo: &mut HashMap<Word, V>,
+    letter_value: &mut impl FnMut(Letter) -> Result<V, E>,
+    bracket: &mut impl FnMut(&V, &V) -> Result<V, E>,
+) -> Result<(), E> {
+    if memo.contains_key(word) {
+        return Ok(());
+    }
+    let not_lyndon = || {
+        E::from(FreeLieError::NotLyndon {
+            word: word.to_vec(),
+        })
+    };
+    let value = if let [letter] = word {
+        letter_value(*letter)?
+    } else {
+        let (left, right) = standard_factorization(word).ok_or_else(not_lyndon)?;
+        remember_value(&left, memo, letter_value, bracket)?;
+        remember_value(&right, memo, letter_value, bracket)?;
+        let (Some(left_value), Some(right_value)) =
+            (memo.get(&left), memo.get(&right))
+        else {
+            return Err(not_lyndon());
+        };
+        bracket(left_value, right_value)?
+    };
+    memo.insert(word.to_vec(), value);
+    Ok(())
+}
