@@ -7,3 +7,5 @@
 //! binary's prompt and command line.
 
 pub mod core;
+pub mod averaging;
+pub mod series;

@@ -10,6 +10,8 @@ pub mod field;
 pub mod limits;
 pub mod num;
 pub mod symbol;
+#[cfg(test)]
+mod tests;
 
 pub use error::{CoreError, CoreResult};
 pub use expr::Expr;

@@ -1,0 +1,341 @@
+//! Higher-order averaging of time-periodic systems (DESIGN §2.6).
+//!
+//! The input `x' = V(t, x)` is split by powers of the small parameter:
+//! `V = f_0 + Σ_{j≥1} eps^j f_j`. Three shapes of `f_0` are accepted:
+//! zero (standard form), a fast oscillation `Σ u_i(t) g_i` with zero-mean
+//! `u_i` and commuting `g_i` (removed by the pull-back through
+//! `exp(Σ U_i(t) g_i)`), and a linear centre `A x` (removed by rotating
+//! coordinates `exp(A t)`). The resulting standard form is averaged either
+//! stroboscopically (`F = W_T / T`, unique) or classically (near-identity
+//! transform with zero-mean generator terms).
+//!
+//! Pure: no I/O; the caller prints the notes.
+
+mod centre;
+
+use std::collections::HashMap;
+
+use crate::core::calc::{common_period, Period, TimeKey};
+use crate::core::expr::Beat;
+use crate::core::{limits, CoreError, CoreResult, Expr, Field, Matrix, Q, Sym};
+use crate::series::chrono::{magnus_generator, Graded};
+
+/// Which averaged field is wanted.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Method {
+    /// The autonomous field whose time-T flow is the period map.
+    Strobo,
+    /// Near-identity transform with zero-mean generator terms.
+    Classic,
+}
+
+/// The shape in which the system was recognised.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Form {
+    /// `x' = Σ_{j≥1} eps^j f_j(t, x)`.
+    Standard,
+    /// Fast oscillation `f_0 = Σ u_i(t) g_i`, pulled back by `exp(Σ U_i g_i)`.
+    FastOscillation {
+        /// `(U_i(t), g_i)`: the antiderivatives from 0 and the fields.
+        generator: Vec<(Expr, Field)>,
+        /// Depth reached by the ad-series.
+        depth: u64,
+        /// True when the ad-series ended by itself (nilpotent).
+        ended: bool,
+    },
+    /// Linear centre `f_0 = A x`, pulled back by `exp(A t)`.
+    LinearCentre {
+        /// The constant matrix A.
+        a: Matrix,
+        /// The exact `exp(A t)`.
+        rotation: Matrix,
+    },
+}
+
+/// The result of `average`.
+#[derive(Clone, Debug)]
+pub struct Averaged {
+    /// `F_1..F_N` (or `G_1..G_N`), autonomous, without their eps factors.
+    pub orders: Vec<Field>,
+    /// The classical generator `w_1..w_N` (functions of t and the new
+    /// coordinates), when asked for.
+    pub transform: Option<Vec<Field>>,
+    /// The period of the standard form that was averaged.
+    pub period: Period,
+    /// The recognised form.
+    pub form: Form,
+    /// The standard form that was averaged, by order (`h_1..h_N`).
+    pub standard: Vec<Field>,
+}
+
+impl Averaged {
+    /// `Σ eps^k F_k`.
+    pub fn total(&self, eps: Sym) -> CoreResult<Field> {
+        sum_with_powers(&self.orders, eps)
+    }
+
+    /// `Σ eps^k w_k`, when computed.
+    pub fn transform_total(&self, eps: Sym) -> CoreResult<Option<Field>> {
+        match &self.transform {
+            None => Ok(None),
+            Some(w) => Ok(Some(sum_with_powers(w, eps)?)),
+        }
+    }
+}
+
+/// `Σ_k eps^k parts[k-1]`.
+pub fn sum_with_powers(parts: &[Field], eps: Sym) -> CoreResult<Field> {
+    let dim = parts.first().map_or(0, Field::dim);
+    let mut acc = Field::zero(dim);
+    for (k, f) in parts.iter().enumerate() {
+        let p = Expr::sym(eps).pow(k as i64 + 1)?;
+        acc = acc.add(&f.mul_expr(&p)?)?;
+    }
+    Ok(acc)
+}
+
+/// Options of `average`.
+#[derive(Clone, Debug)]
+pub struct Options {
+    /// Strobo or classic.
+    pub method: Method,
+    /// Highest order N.
+    pub order: usize,
+    /// Depth limit of the fast-oscillation ad-series.
+    pub depth: u64,
+    /// Compute the classical generator too.
+    pub with_transform: bool,
+}
+
+/// Splits a field as `Σ_k c_k(t) G_k` over the time parts of all components.
+pub fn split_field_time(f: &Field) -> Vec<(TimeKey, Field)> {
+    let mut groups: HashMap<TimeKey, Field> = HashMap::new();
+    let dim = f.dim();
+    for (i, comp) in f.0.iter().enumerate() {
+        for (tk, g) in comp.split_time() {
+            let entry = groups.entry(tk).or_insert_with(|| Field::zero(dim));
+            entry.0[i] = g;
+        }
+    }
+    let mut out: Vec<(TimeKey, Field)> = groups.into_iter().collect();
+    out.sort_by(|a, b| a.0.cmp(&b.0));
+    out
+}
+
+/// Splits `v` by powers of `eps`: `f_0, f_1, …, f_n` (higher powers dropped).
+fn split_eps(v: &Field, eps: Sym, n: usize) -> CoreResult<Vec<Field>> {
+    for comp in &v.0 {
+        if let Some((lo, _)) = comp.power_range(eps) {
+            if lo < 0 {
+                return Err(CoreError::Refused {
+                    reason: format!(
+                        "negative power of `{}` in `{}`: write the system as f_0 + eps*f_1 + …",
+                        eps.name(),
+                        comp
+                    ),
+                });
+            }
+        }
+    }
+    let mut parts = Vec::with_capacity(n + 1);
+    for j in 0..=n {
+        parts.push(Field(v.0.iter().map(|c| c.coeff_of_power(eps, j as i32)).collect()));
+    }
+    Ok(parts)
+}
+
+/// Averages `v` in `eps` to order `opts.order` (DESIGN §2.6).
+pub fn average(v: &Field, eps: Sym, opts: &Options, states: &[Sym]) -> CoreResult<Averaged> {
+    let n = opts.order;
+    limits::check_order(n as u64)?;
+    if n == 0 {
+        return Err(CoreError::Refused { reason: "the order must be at least 1".to_string() });
+    }
+    let parts = split_eps(v, eps, n)?;
+    let f0 = &parts[0];
+    let (form, standard) = if f0.is_zero() {
+        (Form::Standard, parts[1..].to_vec())
+    } else if f0.0.iter().any(Expr::is_time_varying) {
+        fast_oscillation(f0, &parts[1..], opts.depth, states)?
+    } else {
+        centre::linear_centre(f0, &parts[1..], states)?
+    };
+    let mut freqs = Vec::new();
+    for f in &standard {
+        for c in &f.0 {
+            c.check_periodic()?;
+            freqs.extend(c.frequencies());
+        }
+    }
+    let period = common_period(&freqs).unwrap_or(Period(Q::int(2)));
+    let (orders, transform) = match opts.method {
+        Method::Strobo => (stroboscopic(&standard, &period, states)?, None),
+        Method::Classic => {
+            let (g, w) = classical(&standard, &period, states)?;
+            (g, if opts.with_transform { Some(w) } else { None })
+        }
+    };
+    Ok(Averaged { orders, transform, period, form, standard })
+}
+
+/// Stroboscopic averaging of a standard form: `F_k = W_k(T) / T`.
+pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> CoreResult<Vec<Field>> {
+    let n = standard.len();
+    let w = magnus_generator(&Graded { parts: standard.to_vec() }, n, states)?;
+    let t_expr = period.to_expr();
+    w.iter()
+        .map(|wk| wk.map(|e| e.at_time_pi_multiple(&period.0)?.div(&t_expr)))
+        .collect()
+}
+
+/// Fresh copies of the state symbols, used to freeze the generator while
+/// Taylor-expanding `f(t, y + w)`.
+fn frozen_copies(states: &[Sym]) -> Vec<Sym> {
+    states.iter().map(|s| Sym::new(&format!("{}'", s.name()))).collect()
+}
+
+/// Classical averaging of a standard form with the zero-mean direct
+/// transform; returns `(G_1..G_N, w_1..w_N)`.
+pub fn classical(
+    standard: &[Field],
+    period: &Period,
+    states: &[Sym],
+) -> CoreResult<(Vec<Field>, Vec<Field>)> {
+    let n = standard.len();
+    let dim = states.len();
+    let frozen = frozen_copies(states);
+    let mut ext = states.to_vec();
+    ext.extend(frozen.iter().copied());
+    let to_frozen: HashMap<Sym, Expr> =
+        states.iter().zip(&frozen).map(|(s, z)| (*s, Expr::sym(*z))).collect();
+    let from_frozen: HashMap<Sym, Expr> =
+        frozen.iter().zip(states).map(|(z, s)| (*z, Expr::sym(*s))).collect();
+    // p[m][g]: (1/m!) (w̃·∇)^m f at grade g (index g, grade 0 unused).
+    let mut p: Vec<Vec<Field>> = vec![vec![Field::zero(dim); n + 1]; n + 1];
+    for g in 1..=n {
+        p[0][g] = standard[g - 1].clone();
+    }
+    let mut g_out: Vec<Field> = Vec::with_capacity(n);
+    let mut w_out: Vec<Field> = Vec::with_capacity(n);
+    let mut w_frozen: Vec<Field> = Vec::with_capacity(n);
+    for k in 1..=n {
+        limits::poll()?;
+        // Taylor terms at grade k.
+        for m in 1..k {
+            let mut acc = Field::zero(dim);
+            for i in 1..k {
+                if k - i < m || p[m - 1][k - i].is_zero() {
+                    continue;
+                }
+                let wi = &w_frozen[i - 1];
+                // L_i(h) = Σ_c w̃_{i,c} ∂h/∂y_c, componentwise.
+                let applied = p[m - 1][k - i].map(|h| wi.lie_derivative(h, states))?;
+                acc = acc.add(&applied)?;
+            }
+            p[m][k] = acc.scale(&Q::ratio(1, m as i64).unwrap_or(Q::ZERO));
+        }
+        let mut r = Field::zero(dim);
+        for row in p.iter().take(k) {
+            r = r.add(&row[k])?;
+        }
+        let mut r = r.map(|e| e.subst(&from_frozen, &ext))?;
+        // − Σ_{i+j=k} Dw_i · G_j
+        for i in 1..k {
+            let j = k - i;
+            let gj = &g_out[j - 1];
+            let dwg = w_out[i - 1].map(|wc: &Expr| gj.lie_derivative(wc, states))?;
+            r = r.sub(&dwg)?;
+        }
+        let gk = r.map(|e| e.mean_over(period))?;
+        let osc = r.sub(&gk)?;
+        let wk = osc.map(|e| e.zero_mean_antiderivative(period))?;
+        w_frozen.push(wk.map(|e| e.subst(&to_frozen, &ext))?);
+        g_out.push(gk);
+        w_out.push(wk);
+    }
+    Ok((g_out, w_out))
+}
+
+/// Recognises `f_0 = Σ u_i(t) g_i` and pulls the higher orders back.
+fn fast_oscillation(
+    f0: &Field,
+    higher: &[Field],
+    depth: u64,
+    states: &[Sym],
+) -> CoreResult<(Form, Vec<Field>)> {
+    let pieces = split_field_time(f0);
+    let mut generator: Vec<(Expr, Field)> = Vec::new();
+    for (tk, g) in &pieces {
+        if tk.tpow != 0 {
+            return Err(CoreError::NotPeriodic {
+                term: format!("{}*{}", tk.to_expr(), show_field(g)),
+            });
+        }
+        if tk.beat == Beat::One {
+            return Err(CoreError::Refused {
+                reason: format!(
+                    "the eps^0 part has a nonzero mean {}: it is not a fast oscillation \
+                     (averaging needs f_0 = Σ u_i(t) g_i with zero-mean u_i, a linear centre A*x, \
+                     or no eps^0 part)",
+                    show_field(g)
+                ),
+            });
+        }
+        let u = tk.to_expr();
+        generator.push((u.integral_from_zero()?, g.clone()));
+    }
+    for i in 0..generator.len() {
+        for j in i + 1..generator.len() {
+            let b = generator[i].1.bracket(&generator[j].1, states)?;
+            if !b.is_zero() {
+                return Err(CoreError::Refused {
+                    reason: format!(
+                        "the oscillating fields do not commute: [{}, {}] = {} is not zero",
+                        show_field(&generator[i].1),
+                        show_field(&generator[j].1),
+                        show_field(&b)
+                    ),
+                });
+            }
+        }
+    }
+    let dim = states.len();
+    let mut y = Field::zero(dim);
+    for (u, g) in &generator {
+        y = y.add(&g.mul_expr(u)?)?;
+    }
+    let mut standard = Vec::with_capacity(higher.len());
+    let mut reached = 0;
+    let mut all_ended = true;
+    for f in higher {
+        let (pulled, ended) = f.pullback(&y, depth, states)?;
+        all_ended &= ended;
+        reached = reached.max(depth);
+        standard.push(pulled);
+    }
+    // Report the depth the series actually needed when it ended.
+    let needed = if all_ended { ad_series_length(higher, &y, depth, states)? } else { reached };
+    Ok((Form::FastOscillation { generator, depth: needed, ended: all_ended }, standard))
+}
+
+/// The largest k with ad_y^k f nonzero over the given fields (≤ depth).
+fn ad_series_length(fs: &[Field], y: &Field, depth: u64, states: &[Sym]) -> CoreResult<u64> {
+    let mut best = 0;
+    for f in fs {
+        let mut term = f.clone();
+        for k in 1..=depth {
+            term = y.bracket(&term, states)?;
+            if term.is_zero() {
+                break;
+            }
+            best = best.max(k);
+        }
+    }
+    Ok(best)
+}
+
+/// A field in input syntax.
+pub fn show_field(f: &Field) -> String {
+    let parts: Vec<String> = f.0.iter().map(|e| e.to_string()).collect();
+    format!("[{}]", parts.join(", "))
+}

@@ -1,0 +1,2624 @@
+//! Parser of the command language: the text of one statement to the syntax
+//! tree of `super::ast`, or a [`ParseError`] with a span and what was expected.
+//!
+//! Owns the grammar (written with nom 7 and a custom error type), the reserved
+//! words and the parse limits (bracket nesting, expression depth). It must not
+//! know what names refer to, the kinds of values, numbers' exact values or
+//! anything about evaluation, and it knows nothing of files and line numbers:
+//! cutting a script into statements is `super::split`, showing an error with a
+//! caret is `super::diag`.
+//!
+//! Grammar (whitespace, newlines and `# comments` separate tokens):
+//!
+//! ```text
+//! stmt     := state|param|input NAME {, NAME}   | check expr == expr
+//!           | show expr as WORD | save PATH | run PATH | names | forget NAME
+//!           | help [WORD] | set budget INT | quit | command
+//!           | NAME = (command | expr) | NAME {, NAME} = command | expr
+//! expr     := product {(+|-) product}            left associative
+//! product  := unary {(*|/) unary}                left associative
+//! unary    := {-} power
+//! power    := postfix [(^|**) {-} power]         right associative
+//! postfix  := atom {( args )}                    application binds tightest
+//! atom     := NUMBER | NAME | NAME ( args ) | ( expr ) | [ expr {, expr} ]
+//!           | { expr {, expr} {; expr {, expr}} }
+//! args     := arg {, arg};  arg := NAME = expr | expr
+//! ```
+
+use std::fmt;
+
+use nom::{
+    bytes::complete::take_while,
+    character::complete::satisfy,
+    combinator::recognize,
+    error::{ErrorKind, ParseError as NomParseError},
+    sequence::pair,
+    Err as NomErr, IResult,
+};
+
+use super::ast::{
+    Arg, Assign, BinOp, Command, CommandKind, Expr, ExprKind, Ident, PathArg, Rhs, Span,
+    Spanned, Stmt, StmtKind,
+};
+use super::split::{closer_of, scan_line, BracketFault};
+
+/// The deepest bracket nesting accepted in one statement.
+pub const MAX_NESTING: usize = 256;
+
+/// The deepest syntax tree accepted for one expression (a chain of `n`
+/// operators is `n` levels deep), so that later recursive passes stay
+/// within the stack.
+pub const MAX_EXPR_DEPTH: usize = 1000;
+
+/// Words that cannot be used as names. `t` and `pi` are still values in
+/// expressions, and `sin`, `cos`, `exp` are still called as functions.
+pub const RESERVED_WORDS: &[&str] = &[
+    "t",
+    "pi",
+    "sin",
+    "cos",
+    "exp",
+    "state",
+    "param",
+    "input",
+    "flow",
+    "on",
+    "to",
+    "magnus",
+    "over",
+    "average",
+    "in",
+    "strobo",
+    "classic",
+    "depth",
+    "with",
+    "transform",
+    "carleman",
+    "degree",
+    "simulate",
+    "from",
+    "for",
+    "plot",
+    "compare",
+    "sweep",
+    "tol",
+    "stability",
+    "at",
+    "check",
+    "show",
+    "as",
+    "save",
+    "run",
+    "names",
+    "forget",
+    "help",
+    "set",
+    "budget",
+    "quit",
+];
+
+/// The words that start a series or numeric command.
+pub const COMMAND_WORDS: &[&str] = &[
+    "flow",
+    "magnus",
+    "average",
+    "carleman",
+    "simulate",
+    "compare",
+    "stability",
+];
+
+/// The words that start the other statements.
+pub const STATEMENT_WORDS: &[&str] = &[
+    "state", "param", "input", "check", "show", "save", "run", "names", "forget", "help", "set",
+    "quit",
+];
+
+/// Whether `word` is reserved (see [`RESERVED_WORDS`]).
+pub fn is_reserved(word: &str) -> bool {
+    RESERVED_WORDS.contains(&word)
+}
+
+/// A syntax error: where it is (byte offsets into the statement text) and what
+/// is wrong.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct ParseError {
+    /// The offending token, or an empty span where something is missing.
+    pub span: Span,
+    /// What is wrong.
+    pub kind: ParseErrorKind,
+}
+
+/// The kinds of syntax error. `found` fields are ready to print: a quoted
+/// token such as "`x`" or "the end of the line".
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum ParseErrorKind {
+    /// The statement has no tokens at all.
+    EmptyInput,
+    /// Something specific was required at this point.
+    Expected {
+        /// What was expected, e.g. "an expression after `+`".
+        what: String,
+        /// What was there instead.
+        found: String,
+    },
+    /// A reserved word where a new name is required.
+    Reserved(String),
+    /// A `(`, `[` or `{` that is never closed (reported at the bracket).
+    UnclosedBracket {
+        /// The opening bracket.
+        open: char,
+    },
+    /// A closing bracket with nothing open.
+    UnexpectedClose(char),
+    /// A closing bracket of the wrong shape for the innermost open bracket.
+    MismatchedClose {
+        /// The innermost open bracket.
+        open: char,
+        /// The closing bracket found.
+        close: char,
+    },
+    /// Text after a complete statement.
+    TrailingInput {
+        /// The first unexpected token.
+        found: String,
+    },
+    /// A number literal that breaks the number syntax.
+    BadNumber {
+        /// The literal as typed.
+        text: String,
+        /// What is wrong with it.
+        reason: &'static str,
+    },
+    /// An order, degree, depth or budget that does not fit in 64 bits.
+    NumberTooLarge {
+        /// The literal as typed.
+        text: String,
+    },
+    /// Two operands written next to each other, as in `2x` or `2(x + 1)`.
+    ImplicitMultiplication {
+        /// The left operand as typed (shortened if long).
+        left: String,
+        /// The start of the right operand.
+        right: String,
+    },
+    /// A "quoted file name" without its closing quote.
+    UnterminatedString,
+    /// An optional part of a command given twice.
+    Duplicate {
+        /// The part, ready to print (e.g. "`depth`").
+        clause: String,
+    },
+    /// Brackets nested deeper than [`MAX_NESTING`].
+    NestingTooDeep {
+        /// The limit.
+        limit: usize,
+    },
+    /// An expression deeper than [`MAX_EXPR_DEPTH`].
+    ExpressionTooDeep {
+        /// The limit.
+        limit: usize,
+    },
+}
+
+impl fmt::Display for ParseErrorKind {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            ParseErrorKind::EmptyInput => write!(f, "empty statement"),
+            ParseErrorKind::Expected { what, found } => write!(f, "expected {what}, found {found}"),
+            ParseErrorKind::Reserved(word) => {
+                write!(f, "`{word}` is a reserved word and cannot be used as a name")
+            }
+            ParseErrorKind::UnclosedBracket { open } => write!(f, "`{open}` is never closed"),
+            ParseErrorKind::UnexpectedClose(close) => {
+                write!(f, "`{close}` has no matching opening bracket")
+            }
+            ParseErrorKind::MismatchedClose { open, close } => write!(
+                f,
+                "`{close}` cannot close `{open}` (expected `{}`)",
+                closer_of(*open)
+            ),
+            ParseErrorKind::TrailingInput { found } => {
+                write!(f, "unexpected {found} after the end of the statement")
+            }
+            ParseErrorKind::BadNumber { text, reason } => {
+                write!(f, "malformed number `{text}`: {reason}")
+            }
+            ParseErrorKind::NumberTooLarge { text } => {
+                write!(f, "`{text}` is too large (at most {})", u64::MAX)
+            }
+            ParseErrorKind::ImplicitMultiplication { left, right } => write!(
+                f,
+                "missing `*` between `{left}` and `{right}`: implicit multiplication is not allowed"
+            ),
+            ParseErrorKind::UnterminatedString => {
+                write!(f, "quoted file name without its closing `\"`")
+            }
+            ParseErrorKind::Duplicate { clause } => write!(f, "{clause} is given more than once"),
+            ParseErrorKind::NestingTooDeep { limit } => {
+                write!(f, "brackets are nested more than {limit} deep")
+            }
+            ParseErrorKind::ExpressionTooDeep { limit } => write!(
+                f,
+                "expression is more than {limit} levels deep; split it into named parts"
+            ),
+        }
+    }
+}
+
+impl fmt::Display for ParseError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        self.kind.fmt(f)
+    }
+}
+
+impl std::error::Error for ParseError {}
+
+/// Parses one statement. The whole text must be consumed; it may span lines
+/// (as handed out by `super::split`), and `# comments` and `\` line
+/// continuations inside it are skipped as whitespace.
+pub fn parse_stmt(text: &str) -> Result<Stmt, ParseError> {
+    check_brackets(text)?;
+    let parser = Parser { src: text };
+    match parser.statement(text) {
+        Ok((_, stmt)) => Ok(stmt),
+        Err(err) => Err(parser.convert(err)),
+    }
+}
+
+/// Parses a text that must be exactly one expression (used for expressions
+/// that arrive on their own, e.g. from tests or tools).
+pub fn parse_expr(text: &str) -> Result<Expr, ParseError> {
+    check_brackets(text)?;
+    let parser = Parser { src: text };
+    let result = parser
+        .require(parser.expr(text), text, "an expression")
+        .and_then(|(rest, node)| {
+            parser.end_of_expr(rest)?;
+            Ok((rest, node))
+        });
+    match result {
+        Ok((_, node)) => Ok(node.expr),
+        Err(err) => Err(parser.convert(err)),
+    }
+}
+
+/// Reports stray, mismatched, unclosed and too deeply nested brackets before
+/// the grammar runs, so that each is reported at the bracket itself.
+fn check_brackets(text: &str) -> Result<(), ParseError> {
+    let mut stack = Vec::new();
+    let mut base = 0;
+    for line in text.split('\n') {
+        if let Err(fault) = scan_line(line, base, &mut stack, MAX_NESTING) {
+            let (at, kind) = match fault {
+                BracketFault::Stray { close, at } => (at, ParseErrorKind::UnexpectedClose(close)),
+                BracketFault::Mismatch { open, close, at } => {
+                    (at, ParseErrorKind::MismatchedClose { open, close })
+                }
+                BracketFault::TooDeep { at } => (
+                    at,
+                    ParseErrorKind::NestingTooDeep { limit: MAX_NESTING },
+                ),
+            };
+            return Err(ParseError {
+                span: Span::new(at, at + 1),
+                kind,
+            });
+        }
+        base += line.len() + 1;
+    }
+    match stack.last() {
+        Some(&(open, at)) => Err(ParseError {
+            span: Span::new(at, at + 1),
+            kind: ParseErrorKind::UnclosedBracket { open },
+        }),
+        None => Ok(()),
+    }
+}
+
+/// The parser's error inside nom: the position as the length of the input
+/// left (so that no reference to the text is needed), the length of the
+/// offending token, and the kind. `kind` is `None` for nom's own recoverable
+/// errors, which only mean "this alternative does not start here".
+#[derive(Debug)]
+struct PErr {
+    rem: usize,
+    len: usize,
+    kind: Option<ParseErrorKind>,
+}
+
+impl<'a> NomParseError<&'a str> for PErr {
+    fn from_error_kind(input: &'a str, _kind: ErrorKind) -> Self {
+        PErr {
+            rem: input.len(),
+            len: 0,
+            kind: None,
+        }
+    }
+
+    fn append(_input: &'a str, _kind: ErrorKind, other: Self) -> Self {
+        other
+    }
+
+    /// Of two failed alternatives, keep the one that got furthest.
+    fn or(self, other: Self) -> Self {
+        if other.rem < self.rem {
+            other
+        } else {
+            self
+        }
+    }
+}
+
+type PResult<'a, T> = IResult<&'a str, T, PErr>;
+
+/// An expression with the depth of its tree, tracked while building.
+struct Node {
+    expr: Expr,
+    depth: usize,
+}
+
+fn is_ident_start(ch: char) -> bool {
+    ch.is_ascii_alphabetic() || ch == '_'
+}
+
+fn is_ident_char(ch: char) -> bool {
+    ch.is_ascii_alphanumeric() || ch == '_'
+}
+
+/// An identifier: an ASCII letter or `_`, then letters, digits and `_`.
+fn ident(input: &str) -> PResult<'_, &str> {
+    recognize(pair(satisfy(is_ident_start), take_while(is_ident_char)))(input)
+}
+
+/// Skips whitespace (newlines included), `# comments` to the end of their
+/// line, and a `\` that ends a line.
+fn ws(mut input: &str) -> &str {
+    loop {
+        let trimmed = input.trim_start();
+        if let Some(comment) = trimmed.strip_prefix('#') {
+            input = comment.find('\n').map_or("", |idx| &comment[idx..]);
+        } else if let Some(after) = trimmed.strip_prefix('\\') {
+            let blank = after.trim_start_matches([' ', '\t', '\r']);
+            if blank.is_empty() || blank.starts_with('\n') || blank.starts_with('#') {
+                input = blank;
+            } else {
+                return trimmed;
+            }
+        } else {
+            return trimmed;
+        }
+    }
+}
+
+/// `=` that is not the start of `==`.
+fn single_eq(input: &str) -> bool {
+    input.starts_with('=') && !input.starts_with("==")
+}
+
+fn starts_number(input: &str) -> bool {
+    let mut chars = input.chars();
+    match chars.next() {
+        Some(ch) if ch.is_ascii_digit() => true,
+        Some('.') => chars.next().is_some_and(|ch| ch.is_ascii_digit()),
+        _ => false,
+    }
+}
+
+fn count_digits(input: &str, from: usize) -> usize {
+    input
+        .get(from..)
+        .map_or(0, |rest| rest.bytes().take_while(u8::is_ascii_digit).count())
+}
+
+/// The token at the start of `input` (already past whitespace), for messages:
+/// a word, a number-like run, `==`, `**`, or one character; empty at the end.
+fn next_token(input: &str) -> &str {
+    if let Ok((_, word)) = ident(input) {
+        return word;
+    }
+    if starts_number(input) {
+        let len = input
+            .find(|ch: char| !(is_ident_char(ch) || ch == '.'))
+            .unwrap_or(input.len());
+        return input.get(..len).unwrap_or(input);
+    }
+    if input.starts_with("==") || input.starts_with("**") {
+        return input.get(..2).unwrap_or(input);
+    }
+    input
+        .chars()
+        .next()
+        .and_then(|ch| input.get(..ch.len_utf8()))
+        .unwrap_or("")
+}
+
+/// How a token is named in a message.
+fn describe(token: &str) -> String {
+    if token.is_empty() {
+        "the end of the line".to_string()
+    } else {
+        format!("`{token}`")
+    }
+}
+
+/// A recoverable error: no expression starts at `input`.
+fn no_expr<T>(input: &str) -> PResult<'_, T> {
+    Err(NomErr::Error(PErr {
+        rem: input.len(),
+        len: 0,
+        kind: None,
+    }))
+}
+
+/// Grammar rules over one statement text; every `&'a str` handled is a suffix
+/// of `src`, so positions are `src.len() - rest.len()`.
+struct Parser<'a> {
+    src: &'a str,
+}
+
+impl<'a> Parser<'a> {
+    // ----- positions and errors -----
+
+    fn off(&self, input: &str) -> usize {
+        self.src.len().saturating_sub(input.len())
+    }
+
+    fn fail<T>(&self, span: Span, kind: ParseErrorKind) -> PResult<'a, T> {
+        Err(NomErr::Failure(PErr {
+            rem: self.src.len().saturating_sub(span.start),
+            len: span.end.saturating_sub(span.start),
+            kind: Some(kind),
+        }))
+    }
+
+    fn fail_at<T>(&self, input: &str, len: usize, kind: ParseErrorKind) -> PResult<'a, T> {
+        let start = self.off(input);
+        self.fail(Span::new(start, start + len), kind)
+    }
+
+    /// A failure "expected `what`" at the next token after whitespace.
+    fn expected<T>(&self, input: &str, what: &str) -> PResult<'a, T> {
+        let at = ws(input);
+        let token = next_token(at);
+        self.fail_at(
+            at,
+            token.len(),
+            ParseErrorKind::Expected {
+                what: what.to_string(),
+                found: describe(token),
+            },
+        )
+    }
+
+    /// Turns "nothing of this kind starts here" into a failure naming `what`.
+    fn require<T>(&self, result: PResult<'a, T>, input: &str, what: &str) -> PResult<'a, T> {
+        match result {
+            Err(NomErr::Error(_)) => self.expected(input, what),
+            other => other,
+        }
+    }
+
+    fn convert(&self, err: NomErr<PErr>) -> ParseError {
+        let perr = match err {
+            NomErr::Error(perr) | NomErr::Failure(perr) => perr,
+            NomErr::Incomplete(_) => PErr {
+                rem: 0,
+                len: 0,
+                kind: None,
+            },
+        };
+        let start = self.src.len().saturating_sub(perr.rem);
+        let kind = perr.kind.unwrap_or_else(|| {
+            let at = ws(self.src.get(start..).unwrap_or(""));
+            ParseErrorKind::Expected {
+                what: "a statement or an expression".to_string(),
+                found: describe(next_token(at)),
+            }
+        });
+        ParseError {
+            span: Span::new(start, start + perr.len),
+            kind,
+        }
+    }
+
+    /// Builds a node one level above `child_depth`, refusing trees deeper
+    /// than [`MAX_EXPR_DEPTH`] (reported at byte `at`).
+    fn make(
+        &self,
+        kind: ExprKind,
+        span: Span,
+        child_depth: usize,
+        at: usize,
+    ) -> Result<Node, NomErr<PErr>> {
+        let depth = child_depth + 1;
+        if depth > MAX_EXPR_DEPTH {
+            self.fail::<()>(
+                Span::new(at, at + 1),
+                ParseErrorKind::ExpressionTooDeep {
+                    limit: MAX_EXPR_DEPTH,
+                },
+            )?;
+        }
+        Ok(Node {
+            expr: Expr::new(kind, span),
+            depth,
+        })
+    }
+
+    fn binary(&self, op: BinOp, lhs: Node, rhs: Node, at: usize) -> Result<Node, NomErr<PErr>> {
+        let span = lhs.expr.span.join(rhs.expr.span);
+        let depth = lhs.depth.max(rhs.depth);
+        self.make(
+            ExprKind::Bin(op, Box::new(lhs.expr), Box::new(rhs.expr)),
+            span,
+            depth,
+            at,
+        )
+    }
+
+    /// Wraps `node` in one unary minus per offset in `minuses` (the last one innermost).
+    fn negate(&self, mut node: Node, minuses: &[usize]) -> Result<Node, NomErr<PErr>> {
+        for &at in minuses.iter().rev() {
+            let span = Span::new(at, node.expr.span.end);
+            node = self.make(ExprKind::Neg(Box::new(node.expr)), span, node.depth, at)?;
+        }
+        Ok(node)
+    }
+
+    /// Shortened source text of `span` for messages.
+    fn snippet(&self, span: Span) -> String {
+        let text = self.src.get(span.start..span.end).unwrap_or("");
+        let n_chars = text.chars().count();
+        if n_chars <= 24 {
+            text.to_string()
+        } else {
+            let tail: String = text.chars().skip(n_chars - 23).collect();
+            format!("\u{2026}{tail}")
+        }
+    }
+
+    // ----- tokens -----
+
+    /// A number literal (`input` starts with a digit or `.digit`).
+    fn number(&self, input: &'a str) -> PResult<'a, &'a str> {
+        let bytes = input.as_bytes();
+        let text_to = |end: usize| input.get(..end).unwrap_or(input).to_string();
+        let mut pos = count_digits(input, 0);
+        if bytes.get(pos) == Some(&b'.') {
+            let n_frac = count_digits(input, pos + 1);
+            if n_frac == 0 {
+                return self.fail_at(
+                    input,
+                    pos + 1,
+                    ParseErrorKind::BadNumber {
+                        text: text_to(pos + 1),
+                        reason: "digits must follow the decimal point",
+                    },
+                );
+            }
+            pos += 1 + n_frac;
+        }
+        if matches!(bytes.get(pos), Some(b'e' | b'E')) {
+            let mut exp_at = pos + 1;
+            if matches!(bytes.get(exp_at), Some(b'+' | b'-')) {
+                exp_at += 1;
+            }
+            let n_exp = count_digits(input, exp_at);
+            if n_exp > 0 {
+                pos = exp_at + n_exp;
+            } else if !bytes
+                .get(pos + 1)
+                .is_some_and(|byte| is_ident_char(char::from(*byte)))
+            {
+                // `1e`, `1e-`: an exponent was started; `2eps` is left to the
+                // implicit multiplication check.
+                return self.fail_at(
+                    input,
+                    exp_at,
+                    ParseErrorKind::BadNumber {
+                        text: text_to(exp_at),
+                        reason: "the exponent has no digits",
+                    },
+                );
+            }
+        }
+        if bytes.get(pos) == Some(&b'.') {
+            let run = pos
+                + input.get(pos..).map_or(0, |rest| {
+                    rest.bytes()
+                        .take_while(|byte| byte.is_ascii_digit() || *byte == b'.')
+                        .count()
+                });
+            return self.fail_at(
+                input,
+                run,
+                ParseErrorKind::BadNumber {
+                    text: text_to(run),
+                    reason: "a number has at most one decimal point",
+                },
+            );
+        }
+        let (text, rest) = input.split_at(pos.min(input.len()));
+        Ok((rest, text))
+    }
+
+    /// A non-negative integer (orders, degrees, depths, budgets).
+    fn uint(&self, input: &'a str, what: &str) -> PResult<'a, Spanned<u64>> {
+        let at = ws(input);
+        if !at.starts_with(|ch: char| ch.is_ascii_digit()) {
+            return self.expected(at, what);
+        }
+        let (rest, text) = self.number(at)?;
+        let start = self.off(at);
+        let span = Span::new(start, self.off(rest));
+        let whole = !text.is_empty() && text.bytes().all(|byte| byte.is_ascii_digit());
+        if !whole || rest.starts_with(is_ident_char) {
+            let token = next_token(at);
+            return self.fail_at(
+                at,
+                token.len(),
+                ParseErrorKind::Expected {
+                    what: what.to_string(),
+                    found: describe(token),
+                },
+            );
+        }
+        match text.parse::<u64>() {
+            Ok(value) => Ok((rest, Spanned { value, span })),
+            Err(_) => self.fail(
+                span,
+                ParseErrorKind::NumberTooLarge {
+                    text: text.to_string(),
+                },
+            ),
+        }
+    }
+
+    /// The keyword `word` after whitespace; returns the input after it.
+    fn keyword(&self, input: &'a str, word: &str) -> Option<&'a str> {
+        match ident(ws(input)) {
+            Ok((rest, found)) if found == word => Some(rest),
+            _ => None,
+        }
+    }
+
+    /// A new name: an identifier that is not reserved.
+    fn name(&self, input: &'a str, what: &str) -> PResult<'a, Ident> {
+        let at = ws(input);
+        match ident(at) {
+            Ok((rest, word)) => {
+                let span = Span::new(self.off(at), self.off(rest));
+                if is_reserved(word) {
+                    self.fail(span, ParseErrorKind::Reserved(word.to_string()))
+                } else {
+                    Ok((rest, Ident::new(word, span)))
+                }
+            }
+            Err(_) => self.expected(at, what),
+        }
+    }
+
+    /// Any identifier, reserved words included (help topics, format words).
+    fn word(&self, input: &'a str, what: &str) -> PResult<'a, Ident> {
+        let at = ws(input);
+        match ident(at) {
+            Ok((rest, word)) => Ok((
+                rest,
+                Ident::new(word, Span::new(self.off(at), self.off(rest))),
+            )),
+            Err(_) => self.expected(at, what),
+        }
+    }
+
+    /// A file name: a bare token (no blanks, brackets, quotes or `#`) or a
+    /// "double-quoted string" on one line.
+    fn path(&self, input: &'a str, what: &str) -> PResult<'a, PathArg> {
+        let at = ws(input);
+        let start = self.off(at);
+        if let Some(inner) = at.strip_prefix('"') {
+            let line = inner.split('\n').next().unwrap_or("");
+            let Some(close) = line.find('"') else {
+                return self.fail_at(at, 1, ParseErrorKind::UnterminatedString);
+            };
+            let path = line.get(..close).unwrap_or("");
+            let rest = inner.get(close + 1..).unwrap_or("");
+            if path.is_empty() {
+                return self.fail_at(
+                    at,
+                    2,
+                    ParseErrorKind::Expected {
+                        what: what.to_string(),
+                        found: "an empty name `\"\"`".to_string(),
+                    },
+                );
+            }
+            return Ok((
+                rest,
+                PathArg {
+                    path: path.to_string(),
+                    span: Span::new(start, self.off(rest)),
+                },
+            ));
+        }
+        let len = at
+            .find(|ch: char| ch.is_whitespace() || "#\"()[]{}".contains(ch))
+            .unwrap_or(at.len());
+        if len == 0 {
+            return self.expected(at, what);
+        }
+        let (path, rest) = at.split_at(len);
+        Ok((
+            rest,
+            PathArg {
+                path: path.to_string(),
+                span: Span::new(start, start + len),
+            },
+        ))
+    }
+
+    /// Succeeds at the end of the text (after whitespace and comments);
+    /// otherwise "expected `what`" or, without `what`, trailing input.
+    fn end(&self, input: &'a str, what: Option<&str>) -> PResult<'a, ()> {
+        let at = ws(input);
+        if at.is_empty() {
+            return Ok((at, ()));
+        }
+        match what {
+            Some(what) => self.expected(at, what),
+            None => {
+                let token = next_token(at);
+                self.fail_at(
+                    at,
+                    token.len(),
+                    ParseErrorKind::TrailingInput {
+                        found: describe(token),
+                    },
+                )
+            }
+        }
+    }
+
+    /// The end of a statement that ends with an expression.
+    fn end_of_expr(&self, input: &'a str) -> PResult<'a, ()> {
+        if ws(input).starts_with("==") {
+            return self.expected(
+                input,
+                "the end of the line (to compare two sides, write `check A == B`)",
+            );
+        }
+        self.end(input, Some("an operator or the end of the line"))
+    }
+
+    // ----- expressions -----
+
+    /// An expression; a recoverable error if none starts here.
+    fn expr(&self, input: &'a str) -> PResult<'a, Node> {
+        let (mut rest, mut acc) = self.product(input)?;
+        loop {
+            let at = ws(rest);
+            let (op, after) = if let Some(after) = at.strip_prefix('+') {
+                (BinOp::Add, after)
+            } else if let Some(after) = at.strip_prefix('-') {
+                (BinOp::Sub, after)
+            } else {
+                break;
+            };
+            let what = format!("an expression after `{}`", op.symbol());
+            let (next, rhs) = self.require(self.product(after), after, &what)?;
+            acc = self.binary(op, acc, rhs, self.off(at))?;
+            rest = next;
+        }
+        Ok((rest, acc))
+    }
+
+    fn product(&self, input: &'a str) -> PResult<'a, Node> {
+        let (mut rest, mut acc) = self.unary(input)?;
+        loop {
+            let at = ws(rest);
+            if at.starts_with("**") {
+                break;
+            }
+            let (op, after) = if let Some(after) = at.strip_prefix('*') {
+                (BinOp::Mul, after)
+            } else if let Some(after) = at.strip_prefix('/') {
+                (BinOp::Div, after)
+            } else {
+                break;
+            };
+            let what = format!("an expression after `{}`", op.symbol());
+            let (next, rhs) = self.require(self.unary(after), after, &what)?;
+            acc = self.binary(op, acc, rhs, self.off(at))?;
+            rest = next;
+        }
+        Ok((rest, acc))
+    }
+
+    /// Leading minuses (collected, not recursed, so long runs cannot exhaust
+    /// the stack), then a power.
+    fn unary(&self, input: &'a str) -> PResult<'a, Node> {
+        let (minuses, at) = self.minuses(input);
+        let (rest, node) = if minuses.is_empty() {
+            self.power(at)?
+        } else {
+            self.require(self.power(at), at, "an expression after `-`")?
+        };
+        Ok((rest, self.negate(node, &minuses)?))
+    }
+
+    /// Offsets of a run of `-` signs and the input after them.
+    fn minuses(&self, input: &'a str) -> (Vec<usize>, &'a str) {
+        let mut at = ws(input);
+        let mut minuses = Vec::new();
+        while let Some(after) = at.strip_prefix('-') {
+            minuses.push(self.off(at));
+            at = ws(after);
+        }
+        (minuses, at)
+    }
+
+    /// `a ^ b ^ -c`: operands are collected left to right and folded from the
+    /// right; the exponent of each `^` may start with minuses.
+    fn power(&self, input: &'a str) -> PResult<'a, Node> {
+        let (mut rest, base) = self.postfix(input)?;
+        // (offset of `^`, minuses after it, operand)
+        let mut tail: Vec<(usize, Vec<usize>, Node)> = Vec::new();
+        loop {
+            let at = ws(rest);
+            let (symbol, after) = if let Some(after) = at.strip_prefix("**") {
+                ("**", after)
+            } else if let Some(after) = at.strip_prefix('^') {
+                ("^", after)
+            } else {
+                break;
+            };
+            let (minuses, operand_at) = self.minuses(after);
+            let what = if minuses.is_empty() {
+                format!("an exponent after `{symbol}`")
+            } else {
+                "an expression after `-`".to_string()
+            };
+            let (next, operand) = self.require(self.postfix(operand_at), operand_at, &what)?;
+            tail.push((self.off(at), minuses, operand));
+            rest = next;
+        }
+        let mut exponent: Option<(Node, usize)> = None;
+        while let Some((op_at, minuses, operand)) = tail.pop() {
+            let node = match exponent.take() {
+                None => operand,
+                Some((power, power_op)) => self.binary(BinOp::Pow, operand, power, power_op)?,
+            };
+            exponent = Some((self.negate(node, &minuses)?, op_at));
+        }
+        let node = match exponent {
+            None => base,
+            Some((power, op_at)) => self.binary(BinOp::Pow, base, power, op_at)?,
+        };
+        Ok((rest, node))
+    }
+
+    /// An atom followed by any number of applications `(args)`.
+    fn postfix(&self, input: &'a str) -> PResult<'a, Node> {
+        let (mut rest, mut node) = self.atom(input)?;
+        let is_number = matches!(node.expr.kind, ExprKind::Num(_));
+        loop {
+            self.adjacent(rest, node.expr.span)?;
+            let at = ws(rest);
+            if !at.starts_with('(') {
+                break;
+            }
+            if is_number {
+                return self.fail_at(
+                    at,
+                    1,
+                    ParseErrorKind::ImplicitMultiplication {
+                        left: self.snippet(node.expr.span),
+                        right: "(".to_string(),
+                    },
+                );
+            }
+            let (next, (args, args_depth)) = self.args(at)?;
+            let span = Span::new(node.expr.span.start, self.off(next));
+            let depth = args_depth.max(node.depth);
+            node = self.make(
+                ExprKind::Apply(Box::new(node.expr), args),
+                span,
+                depth,
+                self.off(at),
+            )?;
+            rest = next;
+        }
+        Ok((rest, node))
+    }
+
+    /// Refuses an operand written directly against the previous one (`2x`,
+    /// `(a)b`, `2[x]`): implicit multiplication.
+    fn adjacent(&self, rest: &'a str, left: Span) -> PResult<'a, ()> {
+        let Some(ch) = rest.chars().next() else {
+            return Ok((rest, ()));
+        };
+        if is_ident_start(ch) || starts_number(rest) || ch == '[' || ch == '{' {
+            let token = next_token(rest);
+            return self.fail_at(
+                rest,
+                token.len(),
+                ParseErrorKind::ImplicitMultiplication {
+                    left: self.snippet(left),
+                    right: token.to_string(),
+                },
+            );
+        }
+        Ok((rest, ()))
+    }
+
+    fn atom(&self, input: &'a str) -> PResult<'a, Node> {
+        let at = ws(input);
+        let start = self.off(at);
+        if starts_number(at) {
+            let (rest, text) = self.number(at)?;
+            let span = Span::new(start, self.off(rest));
+            return Ok((
+                rest,
+                Node {
+                    expr: Expr::new(ExprKind::Num(text.to_string()), span),
+                    depth: 1,
+                },
+            ));
+        }
+        if let Ok((rest, word)) = ident(at) {
+            let name_span = Span::new(start, self.off(rest));
+            let after = ws(rest);
+            if matches!(word, "sin" | "cos" | "exp") {
+                if !after.starts_with('(') {
+                    return self.expected(after, &format!("`(` and an argument after `{word}`"));
+                }
+            } else if is_reserved(word) && word != "t" && word != "pi" {
+                return no_expr(at);
+            }
+            if after.starts_with('(') {
+                let (next, (args, depth)) = self.args(after)?;
+                let span = Span::new(start, self.off(next));
+                let node = self.make(
+                    ExprKind::Call(Ident::new(word, name_span), args),
+                    span,
+                    depth,
+                    self.off(after),
+                )?;
+                return Ok((next, node));
+            }
+            return Ok((
+                rest,
+                Node {
+                    expr: Expr::new(ExprKind::Name(word.to_string()), name_span),
+                    depth: 1,
+                },
+            ));
+        }
+        if let Some(inner) = at.strip_prefix('(') {
+            let (next, node) = self.require(self.expr(inner), inner, "an expression after `(`")?;
+            let close = ws(next);
+            if let Some(after) = close.strip_prefix(')') {
+                let mut expr = node.expr;
+                expr.span = Span::new(start, self.off(after));
+                return Ok((
+                    after,
+                    Node {
+                        expr,
+                        depth: node.depth,
+                    },
+                ));
+            }
+            if close.starts_with(',') {
+                return self.expected(
+                    close,
+                    "an operator or `)` (a field is written with square brackets, as in `[a, b]`)",
+                );
+            }
+            return self.expected(close, "an operator or `)`");
+        }
+        if at.starts_with('[') {
+            return self.list(at);
+        }
+        if at.starts_with('{') {
+            return self.matrix(at);
+        }
+        no_expr(at)
+    }
+
+    /// `[e, ...]` (`input` starts with `[`).
+    fn list(&self, input: &'a str) -> PResult<'a, Node> {
+        let start = self.off(input);
+        let mut next_in = input.get(1..).unwrap_or("");
+        let mut entries = Vec::new();
+        let mut depth = 0;
+        loop {
+            let what = if entries.is_empty() {
+                "an entry after `[`"
+            } else {
+                "an entry after `,`"
+            };
+            let (rest, entry) = self.require(self.expr(next_in), next_in, what)?;
+            depth = depth.max(entry.depth);
+            entries.push(entry.expr);
+            let at = ws(rest);
+            if let Some(after) = at.strip_prefix(',') {
+                next_in = after;
+            } else if let Some(after) = at.strip_prefix(']') {
+                let span = Span::new(start, self.off(after));
+                let node = self.make(ExprKind::List(entries), span, depth, start)?;
+                return Ok((after, node));
+            } else {
+                return self.expected(at, "`,` or `]`");
+            }
+        }
+    }
+
+    /// `{a, b; c, d}` (`input` starts with `{`).
+    fn matrix(&self, input: &'a str) -> PResult<'a, Node> {
+        let start = self.off(input);
+        let mut next_in = input.get(1..).unwrap_or("");
+        let mut rows = Vec::new();
+        let mut row = Vec::new();
+        let mut depth = 0;
+        loop {
+            let what = match (row.is_empty(), rows.is_empty()) {
+                (false, _) => "an entry after `,`",
+                (true, true) => "an entry after `{`",
+                (true, false) => "an entry after `;`",
+            };
+            let (rest, entry) = self.require(self.expr(next_in), next_in, what)?;
+            depth = depth.max(entry.depth);
+            row.push(entry.expr);
+            let at = ws(rest);
+            if let Some(after) = at.strip_prefix(',') {
+                next_in = after;
+            } else if let Some(after) = at.strip_prefix(';') {
+                rows.push(std::mem::take(&mut row));
+                next_in = after;
+            } else if let Some(after) = at.strip_prefix('}') {
+                rows.push(row);
+                let span = Span::new(start, self.off(after));
+                let node = self.make(ExprKind::Matrix(rows), span, depth, start)?;
+                return Ok((after, node));
+            } else {
+                return self.expected(at, "`,`, `;` or `}`");
+            }
+        }
+    }
+
+    /// `(arg, ...)` (`input` starts with `(`); returns the arguments and the
+    /// depth of the deepest.
+    fn args(&self, input: &'a str) -> PResult<'a, (Vec<Arg>, usize)> {
+        let mut next_in = input.get(1..).unwrap_or("");
+        let mut args = Vec::new();
+        let mut depth = 0;
+        loop {
+            let what = if args.is_empty() {
+                "an argument after `(`"
+            } else {
+                "an argument after `,`"
+            };
+            let (rest, (arg, arg_depth)) = self.arg(next_in, what)?;
+            depth = depth.max(arg_depth);
+            args.push(arg);
+            let at = ws(rest);
+            if let Some(after) = at.strip_prefix(',') {
+                next_in = after;
+            } else if let Some(after) = at.strip_prefix(')') {
+                return Ok((after, (args, depth)));
+            } else {
+                return self.expected(at, "`,` or `)`");
+            }
+        }
+    }
+
+    /// `NAME = expr` (a binding, as in `plug`) or a plain expression.
+    fn arg(&self, input: &'a str, what: &str) -> PResult<'a, (Arg, usize)> {
+        let at = ws(input);
+        if let Ok((after_name, word)) = ident(at) {
+            let eq = ws(after_name);
+            if single_eq(eq) {
+                let span = Span::new(self.off(at), self.off(after_name));
+                if is_reserved(word) && word != "t" && word != "pi" {
+                    return self.fail(span, ParseErrorKind::Reserved(word.to_string()));
+                }
+                let value_in = eq.get(1..).unwrap_or("");
+                let what = format!("a value after `{word} =`");
+                let (rest, value) = self.require(self.expr(value_in), value_in, &what)?;
+                return Ok((
+                    rest,
+                    (Arg::Bind(Ident::new(word, span), value.expr), value.depth),
+                ));
+            }
+        }
+        let (rest, node) = self.require(self.expr(at), at, what)?;
+        Ok((rest, (Arg::Pos(node.expr), node.depth)))
+    }
+
+    /// A required expression.
+    fn expect_expr(&self, input: &'a str, what: &str) -> PResult<'a, Expr> {
+        let (rest, node) = self.require(self.expr(input), input, what)?;
+        Ok((rest, node.expr))
+    }
+
+    // ----- statements -----
+
+    fn statement(&self, input: &'a str) -> PResult<'a, Stmt> {
+        let at = ws(input);
+        if at.is_empty() {
+            return self.fail(Span::new(0, 0), ParseErrorKind::EmptyInput);
+        }
+        let start = self.off(at);
+        let (rest, kind) = self.statement_kind(at)?;
+        Ok((
+            rest,
+            Stmt {
+                kind,
+                span: Span::new(start, self.off(rest)),
+            },
+        ))
+    }
+
+    /// Decides the statement by its first word; each branch checks that the
+    /// text ends after it and returns the input after its last token.
+    fn statement_kind(&self, at: &'a str) -> PResult<'a, StmtKind> {
+        if let Ok((after, word)) = ident(at) {
+            let look = ws(after);
+            let binds = single_eq(look) || look.starts_with(',');
+            if is_reserved(word) && binds {
+                let span = Span::new(self.off(at), self.off(after));
+                return self.fail(span, ParseErrorKind::Reserved(word.to_string()));
+            }
+            match word {
+                "state" => return self.declaration(after, word, StmtKind::State),
+                "param" => return self.declaration(after, word, StmtKind::Param),
+                "input" => return self.declaration(after, word, StmtKind::Input),
+                "check" => return self.check(after),
+                "show" => return self.show(after),
+                "save" => {
+                    let (rest, path) = self.path(after, "a file name after `save`")?;
+                    self.end(rest, Some(QUOTE_HINT))?;
+                    return Ok((rest, StmtKind::Save(path)));
+                }
+                "run" => {
+                    let (rest, path) = self.path(after, "a file name after `run`")?;
+                    self.end(rest, Some(QUOTE_HINT))?;
+                    return Ok((rest, StmtKind::RunFile(path)));
+                }
+                "names" => {
+                    self.end(after, None)?;
+                    return Ok((after, StmtKind::Names));
+                }
+                "quit" => {
+                    self.end(after, None)?;
+                    return Ok((after, StmtKind::Quit));
+                }
+                "forget" => {
+                    let (rest, name) = self.name(after, "a name after `forget`")?;
+                    self.end(rest, None)?;
+                    return Ok((rest, StmtKind::Forget(name)));
+                }
+                "help" => {
+                    if ws(after).is_empty() {
+                        return Ok((after, StmtKind::Help(None)));
+                    }
+                    let what = "a topic word after `help`, or the end of the line";
+                    let (rest, topic) = self.word(after, what)?;
+                    self.end(rest, None)?;
+                    return Ok((rest, StmtKind::Help(Some(topic))));
+                }
+                "set" => {
+                    let Some(after_budget) = self.keyword(after, "budget") else {
+                        return self.expected(after, "`budget` after `set`");
+                    };
+                    let (rest, budget) =
+                        self.uint(after_budget, "a whole number after `budget`")?;
+                    self.end(rest, None)?;
+                    return Ok((rest, StmtKind::SetBudget(budget)));
+                }
+                _ if COMMAND_WORDS.contains(&word) => {
+                    let (rest, command) = self.command(at)?;
+                    return Ok((rest, StmtKind::Run(command)));
+                }
+                _ if binds => return self.define(at),
+                _ => {}
+            }
+        }
+        let (rest, expr) = self.expect_expr(at, "a statement or an expression")?;
+        self.end_of_expr(rest)?;
+        Ok((rest, StmtKind::Print(expr)))
+    }
+
+    fn declaration(
+        &self,
+        input: &'a str,
+        word: &str,
+        make: fn(Vec<Ident>) -> StmtKind,
+    ) -> PResult<'a, StmtKind> {
+        let mut names = Vec::new();
+        let mut next_in = input;
+        loop {
+            let what = if names.is_empty() {
+                format!("a name after `{word}`")
+            } else {
+                "a name after `,`".to_string()
+            };
+            let (rest, name) = self.name(next_in, &what)?;
+            names.push(name);
+            match ws(rest).strip_prefix(',') {
+                Some(after) => next_in = after,
+                None => {
+                    self.end(rest, Some("`,` or the end of the line"))?;
+                    return Ok((rest, make(names)));
+                }
+            }
+        }
+    }
+
+    fn check(&self, input: &'a str) -> PResult<'a, StmtKind> {
+        let (rest, lhs) = self.expect_expr(input, "an expression after `check`")?;
+        let at = ws(rest);
+        let Some(after) = at.strip_prefix("==") else {
+            return self.expected(at, "`==` between the two sides of `check`");
+        };
+        let (rest, rhs) = self.expect_expr(after, "an expression after `==`")?;
+        self.end(rest, Some("an operator or the end of the line"))?;
+        Ok((rest, StmtKind::Check { lhs, rhs }))
+    }
+
+    fn show(&self, input: &'a str) -> PResult<'a, StmtKind> {
+        let (rest, expr) = self.expect_expr(input, "an expression after `show`")?;
+        let Some(after_as) = self.keyword(rest, "as") else {
+            return self.expected(
+                rest,
+                "`as` and a format (`latex` or `brackets`) after the expression in `show`",
+            );
+        };
+        let (rest, how) = self.word(
+            after_as,
+            "a format word after `as`, such as `latex` or `brackets`",
+        )?;
+        self.end(rest, None)?;
+        Ok((rest, StmtKind::Show { expr, how }))
+    }
+
+    /// `NAME = ...` or `NAME, NAME = command` (`input` starts at the first name).
+    fn define(&self, input: &'a str) -> PResult<'a, StmtKind> {
+        let mut names = Vec::new();
+        let mut next_in = input;
+        let rhs_in = loop {
+            let what = if names.is_empty() {
+                "a name"
+            } else {
+                "a name after `,`"
+            };
+            let (rest, name) = self.name(next_in, what)?;
+            names.push(name);
+            let at = ws(rest);
+            if let Some(after) = at.strip_prefix(',') {
+                next_in = after;
+            } else if single_eq(at) {
+                break at.get(1..).unwrap_or("");
+            } else {
+                return self.expected(at, "`,` or `=` after the names");
+            }
+        };
+        let rhs_at = ws(rhs_in);
+        if let Ok((_, word)) = ident(rhs_at) {
+            if COMMAND_WORDS.contains(&word) {
+                let (rest, command) = self.command(rhs_at)?;
+                let rhs = Rhs::Command(command);
+                return Ok((rest, StmtKind::Define { names, rhs }));
+            }
+        }
+        if names.len() > 1 {
+            return self.expected(
+                rhs_at,
+                "a command after `=` (only a command, such as `average ... with transform`, binds several names)",
+            );
+        }
+        let (rest, expr) = self.expect_expr(rhs_in, "an expression or a command after `=`")?;
+        self.end_of_expr(rest)?;
+        let rhs = Rhs::Expr(expr);
+        Ok((rest, StmtKind::Define { names, rhs }))
+    }
+
+    // ----- commands -----
+
+    /// A command, from its word to the end of the text.
+    fn command(&self, input: &'a str) -> PResult<'a, Command> {
+        let start = self.off(input);
+        let (after, word) = match ident(input) {
+            Ok(found) => found,
+            Err(_) => return self.expected(input, "a command"),
+        };
+        let (rest, kind) = match word {
+            "flow" => self.flow(after)?,
+            "magnus" => self.magnus(after)?,
+            "average" => self.average(after)?,
+            "carleman" => self.carleman(after)?,
+            "simulate" => self.simulate(after)?,
+            "compare" => self.compare(after)?,
+            "stability" => self.stability(after)?,
+            _ => return self.expected(input, "a command"),
+        };
+        let span = Span::new(start, self.off(rest));
+        Ok((rest, Command { kind, span }))
+    }
+
+    fn flow(&self, input: &'a str) -> PResult<'a, CommandKind> {
+        let (rest, field) = self.expect_expr(input, "the field after `flow`")?;
+        let (rest, on) = match self.keyword(rest, "on") {
+            Some(after) => {
+                let (rest, output) = self.expect_expr(after, "an output expression after `on`")?;
+                (rest, Some(output))
+            }
+            None => (rest, None),
+        };
+        let Some(after_to) = self.keyword(rest, "to") else {
+            let what = if on.is_some() {
+                "`to` and an order after the output in `flow`"
+            } else {
+                "`to` and an order after the field in `flow`"
+            };
+            return self.expected(rest, what);
+        };
+        let (rest, to) = self.uint(after_to, ORDER)?;
+        self.end(rest, None)?;
+        Ok((rest, CommandKind::Flow { field, on, to }))
+    }
+
+    fn magnus(&self, input: &'a str) -> PResult<'a, CommandKind> {
+        let (rest, field) = self.expect_expr(input, "the field after `magnus`")?;
+        let Some(after_to) = self.keyword(rest, "to") else {
+            return self.expected(rest, "`to` and an order after the field in `magnus`");
+        };
+        let (rest, to) = self.uint(after_to, ORDER)?;
+        let (rest, over) = match self.keyword(rest, "over") {
+            Some(after) => {
+                let (rest, span) = self.expect_expr(after, "a time span after `over`")?;
+                self.end(rest, None)?;
+                (rest, Some(span))
+            }
+            None => {
+                self.end(rest, Some("`over` or the end of the line"))?;
+                (rest, None)
+            }
+        };
+        Ok((rest, CommandKind::Magnus { field, to, over }))
+    }
+
+    fn average(&self, input: &'a str) -> PResult<'a, CommandKind> {
+        let (rest, field) = self.expect_expr(input, "the field after `average`")?;
+        let Some(after_to) = self.keyword(rest, "to") else {
+            return self.expected(rest, "`to` and an order after the field in `average`");
+        };
+        let (rest, to) = self.uint(after_to, ORDER)?;
+        let Some(after_in) = self.keyword(rest, "in") else {
+            return self.expected(
+                rest,
+                "`in` and the small parameter after the order in `average`",
+            );
+        };
+        let (mut rest, param) = self.name(after_in, "the small parameter after `in`")?;
+        let mut method: Option<Ident> = None;
+        let mut depth: Option<Spanned<u64>> = None;
+        let mut with_transform = false;
+        loop {
+            let at = ws(rest);
+            let Ok((after, word)) = ident(at) else {
+                break;
+            };
+            let span = Span::new(self.off(at), self.off(after));
+            match word {
+                "strobo" | "classic" => {
+                    if method.is_some() {
+                        return self.duplicate(span, "the method (`strobo` or `classic`)");
+                    }
+                    method = Some(Ident::new(word, span));
+                    rest = after;
+                }
+                "depth" => {
+                    if depth.is_some() {
+                        return self.duplicate(span, "`depth`");
+                    }
+                    let (next, value) =
+                        self.uint(after, "the depth (a whole number) after `depth`")?;
+                    depth = Some(value);
+                    rest = next;
+                }
+                "with" => {
+                    if with_transform {
+                        return self.duplicate(span, "`with transform`");
+                    }
+                    let Some(next) = self.keyword(after, "transform") else {
+                        return self.expected(after, "`transform` after `with`");
+                    };
+                    with_transform = true;
+                    rest = next;
+                }
+                _ => break,
+            }
+        }
+        self.end(
+            rest,
+            Some("`strobo`, `classic`, `depth`, `with transform` or the end of the line"),
+        )?;
+        Ok((
+            rest,
+            CommandKind::Average {
+                field,
+                to,
+                param,
+                method,
+                depth,
+                with_transform,
+            },
+        ))
+    }
+
+    fn carleman(&self, input: &'a str) -> PResult<'a, CommandKind> {
+        let (rest, field) = self.expect_expr(input, "the field after `carleman`")?;
+        let Some(after_degree) = self.keyword(rest, "degree") else {
+            return self.expected(
+                rest,
+                "`degree` and a whole number after the field in `carleman`",
+            );
+        };
+        let (rest, degree) =
+            self.uint(after_degree, "a degree (a whole number) after `degree`")?;
+        self.end(rest, None)?;
+        Ok((rest, CommandKind::Carleman { field, degree }))
+    }
+
+    fn simulate(&self, input: &'a str) -> PResult<'a, CommandKind> {
+        let (rest, field) = self.expect_expr(input, "the field after `simulate`")?;
+        let Some(after_from) = self.keyword(rest, "from") else {
+            return self.expected(
+                rest,
+                "`from` and initial values (such as `q = 1, p = 0`) after the field in `simulate`",
+            );
+        };
+        let (rest, from) = self.assigns(after_from, "from")?;
+        let (mut rest, horizon) = self.horizon(rest)?;
+        let mut with: Option<Vec<Assign>> = None;
+        let mut plot: Option<PathArg> = None;
+        loop {
+            let at = ws(rest);
+            let Ok((after, word)) = ident(at) else {
+                break;
+            };
+            let span = Span::new(self.off(at), self.off(after));
+            match word {
+                "with" => {
+                    if with.is_some() {
+                        return self.duplicate(span, "`with`");
+                    }
+                    let (next, values) = self.assigns(after, "with")?;
+                    with = Some(values);
+                    rest = next;
+                }
+                "plot" => {
+                    if plot.is_some() {
+                        return self.duplicate(span, "`plot`");
+                    }
+                    let (next, path) = self.path(after, "a file name after `plot`")?;
+                    plot = Some(path);
+                    rest = next;
+                }
+                _ => break,
+            }
+        }
+        self.end(rest, Some("`with`, `plot` or the end of the line"))?;
+        Ok((
+            rest,
+            CommandKind::Simulate {
+                field,
+                from,
+                horizon,
+                with: with.unwrap_or_default(),
+                plot,
+            },
+        ))
+    }
+
+    fn compare(&self, input: &'a str) -> PResult<'a, CommandKind> {
+        let (rest, system) = self.expect_expr(input, "the system after `compare`")?;
+        let Some(after_with) = self.keyword(rest, "with") else {
+            return self.expected(
+                rest,
+                "`with` and the averaged model after the system in `compare`",
+            );
+        };
+        let (rest, model) = self.expect_expr(after_with, "the model after `with`")?;
+        let Some(after_from) = self.keyword(rest, "from") else {
+            return self.expected(
+                rest,
+                "`from` and initial values (such as `q = 1, p = 0`) after the model in `compare`",
+            );
+        };
+        let (rest, from) = self.assigns(after_from, "from")?;
+        let (mut rest, horizon) = self.horizon(rest)?;
+        let mut with: Option<Vec<Assign>> = None;
+        let mut sweep: Option<(Ident, Vec<Expr>)> = None;
+        let mut tol: Option<Expr> = None;
+        let mut plot: Option<PathArg> = None;
+        loop {
+            let at = ws(rest);
+            let Ok((after, word)) = ident(at) else {
+                break;
+            };
+            let span = Span::new(self.off(at), self.off(after));
+            match word {
+                "with" => {
+                    if with.is_some() {
+                        return self.duplicate(span, "`with`");
+                    }
+                    let (next, values) = self.assigns(after, "with")?;
+                    with = Some(values);
+                    rest = next;
+                }
+                "sweep" => {
+                    if sweep.is_some() {
+                        return self.duplicate(span, "`sweep`");
+                    }
+                    let (next, swept) = self.sweep(after)?;
+                    sweep = Some(swept);
+                    rest = next;
+                }
+                "tol" => {
+                    if tol.is_some() {
+                        return self.duplicate(span, "`tol`");
+                    }
+                    let (next, value) = self.expect_expr(after, "a tolerance after `tol`")?;
+                    tol = Some(value);
+                    rest = next;
+                }
+                "plot" => {
+                    if plot.is_some() {
+                        return self.duplicate(span, "`plot`");
+                    }
+                    let (next, path) = self.path(after, "a file name after `plot`")?;
+                    plot = Some(path);
+                    rest = next;
+                }
+                _ => break,
+            }
+        }
+        let Some((sweep_param, sweep)) = sweep else {
+            let at = ws(rest);
+            let what = if at.is_empty() {
+                "`sweep` and values such as `eps = 0.2, 0.1` in `compare`"
+            } else {
+                "`with`, `sweep`, `tol`, `plot` or the end of the line"
+            };
+            return self.expected(at, what);
+        };
+        self.end(rest, Some("`with`, `tol`, `plot` or the end of the line"))?;
+        Ok((
+            rest,
+            CommandKind::Compare {
+                system,
+                model,
+                from,
+                horizon,
+                with: with.unwrap_or_default(),
+                sweep_param,
+                sweep,
+                tol,
+                plot,
+            },
+        ))
+    }
+
+    fn stability(&self, input: &'a str) -> PResult<'a, CommandKind> {
+        let (rest, field) = self.expect_expr(input, "the field after `stability`")?;
+        let Some(after_at) = self.keyword(rest, "at") else {
+            return self.expected(
+                rest,
+                "`at` and a point such as `q = 0, p = 0` after the field in `stability`",
+            );
+        };
+        let (rest, at) = self.assigns(after_at, "at")?;
+        let (rest, with) = match self.keyword(rest, "with") {
+            Some(after) => {
+                let (rest, values) = self.assigns(after, "with")?;
+                self.end(rest, None)?;
+                (rest, values)
+            }
+            None => {
+                self.end(rest, Some("`with` or the end of the line"))?;
+                (rest, Vec::new())
+            }
+        };
+        Ok((rest, CommandKind::Stability { field, at, with }))
+    }
+
+    /// `for E` after the initial values of `simulate` and `compare`.
+    fn horizon(&self, input: &'a str) -> PResult<'a, Expr> {
+        let Some(after_for) = self.keyword(input, "for") else {
+            return self.expected(input, "`for` and a time horizon after the initial values");
+        };
+        self.expect_expr(after_for, "a time horizon after `for`")
+    }
+
+    /// `NAME = v1, v2, ...` after `sweep`.
+    fn sweep(&self, input: &'a str) -> PResult<'a, (Ident, Vec<Expr>)> {
+        let (rest, name) = self.name(input, "the swept parameter after `sweep`")?;
+        let at = ws(rest);
+        if !single_eq(at) {
+            return self.expected(
+                at,
+                &format!("`=` and values such as `{} = 0.2, 0.1`", name.name),
+            );
+        }
+        let mut next_in = at.get(1..).unwrap_or("");
+        let mut values = Vec::new();
+        loop {
+            let what = if values.is_empty() {
+                "a value after `=`"
+            } else {
+                "a value after `,`"
+            };
+            let (rest, value) = self.expect_expr(next_in, what)?;
+            values.push(value);
+            match ws(rest).strip_prefix(',') {
+                Some(after) => next_in = after,
+                None => return Ok((rest, (name, values))),
+            }
+        }
+    }
+
+    /// `q = 1, p = 0` after `from`, `at` or `with`.
+    fn assigns(&self, input: &'a str, after_word: &str) -> PResult<'a, Vec<Assign>> {
+        let mut assigns = Vec::new();
+        let mut next_in = input;
+        loop {
+            let at = ws(next_in);
+            let what = if assigns.is_empty() {
+                format!("a name after `{after_word}`")
+            } else {
+                "a name after `,`".to_string()
+            };
+            // A reserved word here is a new name only if `=` follows it;
+            // otherwise the list simply lacks its entry (`from q = 1, for 4`).
+            if let Ok((after, word)) = ident(at) {
+                if is_reserved(word) && !single_eq(ws(after)) {
+                    return self.expected(at, &what);
+                }
+            }
+            let (rest, name) = self.name(at, &what)?;
+            let eq = ws(rest);
+            if !single_eq(eq) {
+                return self.expected(eq, &format!("`=` and a value after `{}`", name.name));
+            }
+            let value_in = eq.get(1..).unwrap_or("");
+            let what = format!("a value after `{} =`", name.name);
+            let (rest, value) = self.expect_expr(value_in, &what)?;
+            assigns.push(Assign { name, value });
+            match ws(rest).strip_prefix(',') {
+                Some(after) => next_in = after,
+                None => return Ok((rest, assigns)),
+            }
+        }
+    }
+
+    fn duplicate<T>(&self, span: Span, clause: &str) -> PResult<'a, T> {
+        self.fail(
+            span,
+            ParseErrorKind::Duplicate {
+                clause: clause.to_string(),
+            },
+        )
+    }
+}
+
+/// What an order after `to` is called in messages.
+const ORDER: &str = "an order (a whole number) after `to`";
+
+/// What is expected after a bare file name.
+const QUOTE_HINT: &str = "the end of the line (quote a file name that contains spaces)";
+
+#[cfg(test)]
+mod tests {
+    use super::super::diag::line_col;
+    use super::*;
+
+    fn stmt(text: &str) -> Stmt {
+        match parse_stmt(text) {
+            Ok(stmt) => stmt,
+            Err(err) => panic!("{text:?} failed: {err} at {:?}", err.span),
+        }
+    }
+
+    fn expr(text: &str) -> Expr {
+        match parse_expr(text) {
+            Ok(expr) => expr,
+            Err(err) => panic!("{text:?} failed: {err} at {:?}", err.span),
+        }
+    }
+
+    fn error(text: &str) -> ParseError {
+        match parse_stmt(text) {
+            Ok(stmt) => panic!("{text:?} parsed as {}", stmt.sexpr()),
+            Err(err) => err,
+        }
+    }
+
+    fn expected(what: &str, found: &str) -> ParseErrorKind {
+        ParseErrorKind::Expected {
+            what: what.to_string(),
+            found: found.to_string(),
+        }
+    }
+
+    const END: &str = "the end of the line";
+
+    #[test]
+    fn precedence_and_associativity() {
+        let cases = [
+            ("x", "x"),
+            ("-x^2", "(neg (^ x 2))"),
+            ("x^-2", "(^ x (neg 2))"),
+            ("x^-2^3", "(^ x (neg (^ 2 3)))"),
+            ("x^2^-1", "(^ x (^ 2 (neg 1)))"),
+            ("x^--2", "(^ x (neg (neg 2)))"),
+            ("2^3^2", "(^ 2 (^ 3 2))"),
+            ("2**3**2", "(^ 2 (^ 3 2))"),
+            ("2**3^2", "(^ 2 (^ 3 2))"),
+            ("-2^-x", "(neg (^ 2 (neg x)))"),
+            ("a-b-c", "(- (- a b) c)"),
+            ("a/b/c", "(/ (/ a b) c)"),
+            ("a-b+c", "(+ (- a b) c)"),
+            ("a*b/c*d", "(* (/ (* a b) c) d)"),
+            ("a+b*c", "(+ a (* b c))"),
+            ("a*b+c", "(+ (* a b) c)"),
+            ("a*b^c", "(* a (^ b c))"),
+            ("a^b*c", "(* (^ a b) c)"),
+            ("-a*b", "(* (neg a) b)"),
+            ("a*-b", "(* a (neg b))"),
+            ("a - -b", "(- a (neg b))"),
+            ("--a", "(neg (neg a))"),
+            ("(a+b)*c", "(* (+ a b) c)"),
+            ("(a-b)-(c-d)", "(- (- a b) (- c d))"),
+            ("x^(1/2)", "(^ x (/ 1 2))"),
+            ("2*pi*t", "(* (* 2 pi) t)"),
+            ("-X(h)^2", "(neg (^ (call X h) 2))"),
+            ("a +\n  b # comment\n * c", "(+ a (* b c))"),
+            ("a + \\\n b", "(+ a b)"),
+        ];
+        for (text, expected) in cases {
+            assert_eq!(expr(text).sexpr(), expected, "{text:?}");
+        }
+    }
+
+    #[test]
+    fn atoms_calls_and_applications() {
+        let cases = [
+            ("3", "3"),
+            ("0.25", "0.25"),
+            (".5", ".5"),
+            ("1e-4", "1e-4"),
+            ("2.5E+3", "2.5E+3"),
+            ("10e3", "10e3"),
+            ("007", "007"),
+            ("pi/2", "(/ pi 2)"),
+            ("eps_2", "eps_2"),
+            ("sin(q + pi/2)", "(call sin (+ q (/ pi 2)))"),
+            ("exp(x) * cos(2*x)", "(* (call exp x) (call cos (* 2 x)))"),
+            ("sin (t)", "(call sin t)"),
+            ("X(h)", "(call X h)"),
+            ("X (h)", "(call X h)"),
+            ("X(Y(h))", "(call X (call Y h))"),
+            ("[X, Y](h)", "(apply [X Y] h)"),
+            ("(X + Y)(h)", "(apply (+ X Y) h)"),
+            ("(f)(x)", "(apply f x)"),
+            ("order(A, eps, 2)(p)", "(apply (call order A eps 2) p)"),
+            ("X(h)(g)", "(apply (call X h) g)"),
+            ("plug(e, q = 1, p = x)", "(call plug e (= q 1) (= p x))"),
+            ("plug(W, t = 0)", "(call plug W (= t 0))"),
+            (
+                "plug(pd(order(A, eps, 1)(p), th), th = pi)",
+                "(call plug (call pd (apply (call order A eps 1) p) th) (= th pi))",
+            ),
+            ("ad(X, Y, 3)", "(call ad X Y 3)"),
+            ("bch(X, Y, 4)", "(call bch X Y 4)"),
+            ("iint(u1, u2)", "(call iint u1 u2)"),
+            ("mean(cos(t)^2)", "(call mean (^ (call cos t) 2))"),
+            ("[p, -gam*sin(th)]", "[p (* (neg gam) (call sin th))]"),
+            ("[[a, b], c]", "[[a b] c]"),
+            ("[x]", "[x]"),
+            ("{a, b; c, d}", "{a b; c d}"),
+            ("{1; 2, 3}", "{1; 2 3}"),
+            ("det({a, b;\n c, d})", "(call det {a b; c d})"),
+            (
+                "cos(t)*[0, bet*sin(th)]",
+                "(* (call cos t) [0 (* bet (call sin th))])",
+            ),
+        ];
+        for (text, expected) in cases {
+            assert_eq!(expr(text).sexpr(), expected, "{text:?}");
+        }
+    }
+
+    #[test]
+    fn spans_cover_what_was_typed() {
+        let neg = expr("-x^2");
+        assert_eq!(neg.span, Span::new(0, 4));
+        let ExprKind::Neg(power) = &neg.kind else {
+            panic!("not a negation: {}", neg.sexpr());
+        };
+        assert_eq!(power.span, Span::new(1, 4));
+
+        let product = expr("(a + b) * c");
+        assert_eq!(product.span, Span::new(0, 11));
+        let ExprKind::Bin(BinOp::Mul, lhs, rhs) = &product.kind else {
+            panic!("not a product: {}", product.sexpr());
+        };
+        assert_eq!(lhs.span, Span::new(0, 7));
+        assert_eq!(rhs.span, Span::new(10, 11));
+
+        let call = expr("plug(e, q = 1)");
+        assert_eq!(call.span, Span::new(0, 14));
+        let ExprKind::Call(name, args) = &call.kind else {
+            panic!("not a call: {}", call.sexpr());
+        };
+        assert_eq!(name.span, Span::new(0, 4));
+        let [Arg::Pos(first), Arg::Bind(bound, value)] = args.as_slice() else {
+            panic!("unexpected arguments: {}", call.sexpr());
+        };
+        assert_eq!(first.span, Span::new(5, 6));
+        assert_eq!((bound.name.as_str(), bound.span), ("q", Span::new(8, 9)));
+        assert_eq!(value.span, Span::new(12, 13));
+
+        let statement = stmt("  flow V to 12   # comment");
+        assert_eq!(statement.span, Span::new(2, 14));
+        let StmtKind::Run(command) = &statement.kind else {
+            panic!("not a command: {}", statement.sexpr());
+        };
+        assert_eq!(command.span, Span::new(2, 14));
+        let CommandKind::Flow { to, .. } = &command.kind else {
+            panic!("not flow: {}", command.sexpr());
+        };
+        assert_eq!((to.value, to.span), (12, Span::new(12, 14)));
+
+        let save = stmt("save \"my file.ordex\"");
+        let StmtKind::Save(path) = &save.kind else {
+            panic!("not save: {}", save.sexpr());
+        };
+        assert_eq!(path.span, Span::new(5, 20));
+    }
+
+    #[test]
+    fn statements_and_commands() {
+        let cases = [
+            ("state q, p", "(state q p)"),
+            ("param eps, k, a", "(param eps k a)"),
+            ("input u1,u2", "(input u1 u2)"),
+            ("x + 1", "(print (+ x 1))"),
+            ("t", "(print t)"),
+            ("(x)", "(print x)"),
+            ("-1", "(print (neg 1))"),
+            (
+                "S = eps*[p, -gam*sin(th)] + cos(t)*[0, bet*sin(th)]",
+                "(define S (+ (* eps [p (* (neg gam) (call sin th))]) (* (call cos t) [0 (* bet (call sin th))])))",
+            ),
+            ("x = a +\n b", "(define x (+ a b))"),
+            ("x=1", "(define x 1)"),
+            ("check a == b", "(check a b)"),
+            ("check a==-b", "(check a (neg b))"),
+            (
+                "check plug(pd(order(A, eps, 1)(p), th), th = pi) == gam - bet^2/2",
+                "(check (call plug (call pd (apply (call order A eps 1) p) th) (= th pi)) (- gam (/ (^ bet 2) 2)))",
+            ),
+            (
+                "show order(A, eps, 1) as latex",
+                "(show (call order A eps 1) as latex)",
+            ),
+            ("show A as brackets", "(show A as brackets)"),
+            ("save session.ordex", "(save \"session.ordex\")"),
+            ("save \"my #1 file.ordex\"", "(save \"my #1 file.ordex\")"),
+            ("save out.ordex # the session", "(save \"out.ordex\")"),
+            ("run scripts/boom.ordex", "(run \"scripts/boom.ordex\")"),
+            ("names", "(names)"),
+            ("forget S", "(forget S)"),
+            ("help", "(help)"),
+            ("help average", "(help average)"),
+            ("help flow", "(help flow)"),
+            ("help plug", "(help plug)"),
+            ("set budget 1000000", "(set-budget 1000000)"),
+            ("quit", "(quit)"),
+            ("  quit  # bye", "(quit)"),
+            ("flow V to 3", "(flow V to 3)"),
+            ("flow V on h to 4", "(flow V on h to 4)"),
+            (
+                "flow eps*V on q^2 to 4",
+                "(flow (* eps V) on (^ q 2) to 4)",
+            ),
+            ("flow\n  V\n  to\n  3", "(flow V to 3)"),
+            ("Y = flow V on h to 2", "(define Y (flow V on h to 2))"),
+            ("magnus V to 4", "(magnus V to 4)"),
+            ("magnus V to 4 over 2*pi", "(magnus V to 4 over (* 2 pi))"),
+            ("average V to 2 in eps", "(average V to 2 in eps)"),
+            (
+                "average V to 3 in eps classic depth 4",
+                "(average V to 3 in eps classic depth 4)",
+            ),
+            (
+                "average V to 3 in eps depth 4 strobo",
+                "(average V to 3 in eps strobo depth 4)",
+            ),
+            (
+                "average V to 3 in eps with transform classic",
+                "(average V to 3 in eps classic transform)",
+            ),
+            (
+                "average V to 3 in eps depth 2 with transform strobo",
+                "(average V to 3 in eps strobo depth 2 transform)",
+            ),
+            (
+                "A, W = average S to 3 in eps classic with transform",
+                "(define [A W] (average S to 3 in eps classic transform))",
+            ),
+            (
+                "A = average S to 3 in eps",
+                "(define A (average S to 3 in eps))",
+            ),
+            ("carleman X degree 3", "(carleman X degree 3)"),
+            (
+                "simulate V from q=1, p=0 for 40",
+                "(simulate V from [(= q 1) (= p 0)] for 40)",
+            ),
+            (
+                "simulate V from q=1, p=0 for 40 with eps=0.05, k=1 plot out.svg",
+                "(simulate V from [(= q 1) (= p 0)] for 40 with [(= eps 0.05) (= k 1)] plot \"out.svg\")",
+            ),
+            (
+                "simulate V from q = -1 for 2*pi plot \"my plot.svg\" with eps = 1/20",
+                "(simulate V from [(= q (neg 1))] for (* 2 pi) with [(= eps (/ 1 20))] plot \"my plot.svg\")",
+            ),
+            (
+                "compare S with A from q=1, p=0 for L with k=1 sweep eps=0.2,0.1,0.05 tol 1e-3 plot cmp.svg",
+                "(compare S with A from [(= q 1) (= p 0)] for L with [(= k 1)] sweep eps [0.2 0.1 0.05] tol 1e-3 plot \"cmp.svg\")",
+            ),
+            (
+                "compare S with A from q=1 for 10 sweep eps = 0.1",
+                "(compare S with A from [(= q 1)] for 10 sweep eps [0.1])",
+            ),
+            (
+                "compare S with A from q=1 for 10 plot c.svg sweep eps=0.1, 0.05 with k=2",
+                "(compare S with A from [(= q 1)] for 10 with [(= k 2)] sweep eps [0.1 0.05] plot \"c.svg\")",
+            ),
+            (
+                "stability F at q=pi, p=0",
+                "(stability F at [(= q pi) (= p 0)])",
+            ),
+            (
+                "stability order(A, eps, 1) at th = pi, p = 0 with gam = 12.26, bet = 6.1",
+                "(stability (call order A eps 1) at [(= th pi) (= p 0)] with [(= gam 12.26) (= bet 6.1)])",
+            ),
+        ];
+        for (text, expected) in cases {
+            assert_eq!(stmt(text).sexpr(), expected, "{text:?}");
+        }
+    }
+
+    #[test]
+    fn average_keeps_every_part() {
+        let statement = stmt("A, W = average S to 3 in eps classic depth 5 with transform");
+        let StmtKind::Define { names, rhs } = &statement.kind else {
+            panic!("not a definition: {}", statement.sexpr());
+        };
+        let spans: Vec<Span> = names.iter().map(|name| name.span).collect();
+        assert_eq!(spans, vec![Span::new(0, 1), Span::new(3, 4)]);
+        let Rhs::Command(Command {
+            kind:
+                CommandKind::Average {
+                    to,
+                    param,
+                    method,
+                    depth,
+                    with_transform,
+                    ..
+                },
+            span,
+        }) = rhs
+        else {
+            panic!("not average: {}", statement.sexpr());
+        };
+        assert_eq!(*span, Span::new(7, 59));
+        assert_eq!(to.value, 3);
+        assert_eq!((param.name.as_str(), param.span), ("eps", Span::new(25, 28)));
+        assert_eq!(
+            method.as_ref().map(|m| (m.name.as_str(), m.span)),
+            Some(("classic", Span::new(29, 36)))
+        );
+        assert_eq!(depth.as_ref().map(|d| d.value), Some(5));
+        assert!(*with_transform);
+    }
+
+    #[test]
+    fn largest_integer_is_accepted() {
+        let statement = stmt("set budget 18446744073709551615");
+        assert_eq!(statement.sexpr(), "(set-budget 18446744073709551615)");
+    }
+
+    #[test]
+    fn bad_inputs_report_kind_and_caret_column() {
+        let long_chain = format!("x{}", "+x".repeat(1500));
+        let long_minus = format!("{}x", "-".repeat(2000));
+        let long_power = format!("x{}", "^x".repeat(2000));
+        let deep_parens = format!("{}x{}", "(".repeat(300), ")".repeat(300));
+        let cases: Vec<(&str, ParseErrorKind, usize)> = vec![
+            ("x +", expected("an expression after `+`", END), 4),
+            ("flow V to", expected(ORDER, END), 10),
+            ("state t", ParseErrorKind::Reserved("t".into()), 7),
+            ("sin(x", ParseErrorKind::UnclosedBracket { open: '(' }, 4),
+            ("[1, 2", ParseErrorKind::UnclosedBracket { open: '[' }, 1),
+            (
+                "{1, 2; 3",
+                ParseErrorKind::UnclosedBracket { open: '{' },
+                1,
+            ),
+            (
+                "f(a, [b, c)",
+                ParseErrorKind::MismatchedClose {
+                    open: '[',
+                    close: ')',
+                },
+                11,
+            ),
+            ("(a]", ParseErrorKind::MismatchedClose { open: '(', close: ']' }, 3),
+            (")", ParseErrorKind::UnexpectedClose(')'), 1),
+            ("x = 1]", ParseErrorKind::UnexpectedClose(']'), 6),
+            (
+                "2x",
+                ParseErrorKind::ImplicitMultiplication {
+                    left: "2".into(),
+                    right: "x".into(),
+                },
+                2,
+            ),
+            (
+                "2(x+1)",
+                ParseErrorKind::ImplicitMultiplication {
+                    left: "2".into(),
+                    right: "(".into(),
+                },
+                2,
+            ),
+            (
+                "y = 3 (x+1)",
+                ParseErrorKind::ImplicitMultiplication {
+                    left: "3".into(),
+                    right: "(".into(),
+                },
+                7,
+            ),
+            (
+                "(a+b)c",
+                ParseErrorKind::ImplicitMultiplication {
+                    left: "(a+b)".into(),
+                    right: "c".into(),
+                },
+                6,
+            ),
+            (
+                "[a, b][c, d]",
+                ParseErrorKind::ImplicitMultiplication {
+                    left: "[a, b]".into(),
+                    right: "[".into(),
+                },
+                7,
+            ),
+            (
+                "2pi",
+                ParseErrorKind::ImplicitMultiplication {
+                    left: "2".into(),
+                    right: "pi".into(),
+                },
+                2,
+            ),
+            (
+                "2 x",
+                expected("an operator or the end of the line", "`x`"),
+                3,
+            ),
+            (
+                "f = ",
+                expected("an expression or a command after `=`", END),
+                5,
+            ),
+            (
+                "check a = b",
+                expected("`==` between the two sides of `check`", "`=`"),
+                9,
+            ),
+            ("check a ==", expected("an expression after `==`", END), 11),
+            (
+                "average S to 3",
+                expected(
+                    "`in` and the small parameter after the order in `average`",
+                    END,
+                ),
+                15,
+            ),
+            (
+                "x foo",
+                expected("an operator or the end of the line", "`foo`"),
+                3,
+            ),
+            (
+                "set budget 99999999999999999999999",
+                ParseErrorKind::NumberTooLarge {
+                    text: "99999999999999999999999".into(),
+                },
+                12,
+            ),
+            ("", ParseErrorKind::EmptyInput, 1),
+            ("   # only a comment", ParseErrorKind::EmptyInput, 1),
+            (
+                "names foo",
+                ParseErrorKind::TrailingInput {
+                    found: "`foo`".into(),
+                },
+                7,
+            ),
+            (
+                "quit now",
+                ParseErrorKind::TrailingInput {
+                    found: "`now`".into(),
+                },
+                6,
+            ),
+            (
+                "flow V to 3 x",
+                ParseErrorKind::TrailingInput {
+                    found: "`x`".into(),
+                },
+                13,
+            ),
+            (
+                "flow V",
+                expected("`to` and an order after the field in `flow`", END),
+                7,
+            ),
+            (
+                "flow to 3",
+                expected("the field after `flow`", "`to`"),
+                6,
+            ),
+            (
+                "flow V on h",
+                expected("`to` and an order after the output in `flow`", END),
+                12,
+            ),
+            ("flow V to 2.5", expected(ORDER, "`2.5`"), 11),
+            ("flow V to 1x", expected(ORDER, "`1x`"), 11),
+            ("magnus V to -1", expected(ORDER, "`-`"), 13),
+            (
+                "magnus V to 2 over",
+                expected("a time span after `over`", END),
+                19,
+            ),
+            (
+                "magnus V to 2 in eps",
+                expected("`over` or the end of the line", "`in`"),
+                15,
+            ),
+            ("average S to 3 in t", ParseErrorKind::Reserved("t".into()), 19),
+            (
+                "average S to 3 in eps classic strobo",
+                ParseErrorKind::Duplicate {
+                    clause: "the method (`strobo` or `classic`)".into(),
+                },
+                31,
+            ),
+            (
+                "average S to 3 in eps depth 2 depth 3",
+                ParseErrorKind::Duplicate {
+                    clause: "`depth`".into(),
+                },
+                31,
+            ),
+            (
+                "average S to 3 in eps with",
+                expected("`transform` after `with`", END),
+                27,
+            ),
+            (
+                "average S to 3 in eps fast",
+                expected(
+                    "`strobo`, `classic`, `depth`, `with transform` or the end of the line",
+                    "`fast`",
+                ),
+                23,
+            ),
+            (
+                "carleman X",
+                expected(
+                    "`degree` and a whole number after the field in `carleman`",
+                    END,
+                ),
+                11,
+            ),
+            (
+                "simulate V for 40",
+                expected(
+                    "`from` and initial values (such as `q = 1, p = 0`) after the field in `simulate`",
+                    "`for`",
+                ),
+                12,
+            ),
+            (
+                "simulate V from q 1 for 40",
+                expected("`=` and a value after `q`", "`1`"),
+                19,
+            ),
+            (
+                "simulate V from q=1, for 40",
+                expected("a name after `,`", "`for`"),
+                22,
+            ),
+            (
+                "simulate V from t=0 for 4",
+                ParseErrorKind::Reserved("t".into()),
+                17,
+            ),
+            (
+                "simulate V from q=1",
+                expected("`for` and a time horizon after the initial values", END),
+                20,
+            ),
+            (
+                "simulate V from q=1 for 4 plot a.svg plot b.svg",
+                ParseErrorKind::Duplicate {
+                    clause: "`plot`".into(),
+                },
+                38,
+            ),
+            (
+                "simulate V from q=1 for 4 with",
+                expected("a name after `with`", END),
+                31,
+            ),
+            (
+                "compare S with A from q=1 for 10",
+                expected(
+                    "`sweep` and values such as `eps = 0.2, 0.1` in `compare`",
+                    END,
+                ),
+                33,
+            ),
+            (
+                "compare S from q=1 for 10 sweep eps=1",
+                expected(
+                    "`with` and the averaged model after the system in `compare`",
+                    "`from`",
+                ),
+                11,
+            ),
+            (
+                "compare S with A from q=1 for 10 sweep eps 0.1",
+                expected("`=` and values such as `eps = 0.2, 0.1`", "`0.1`"),
+                44,
+            ),
+            (
+                "stability F",
+                expected(
+                    "`at` and a point such as `q = 0, p = 0` after the field in `stability`",
+                    END,
+                ),
+                12,
+            ),
+            (
+                "show A",
+                expected(
+                    "`as` and a format (`latex` or `brackets`) after the expression in `show`",
+                    END,
+                ),
+                7,
+            ),
+            ("save", expected("a file name after `save`", END), 5),
+            ("save \"unterminated", ParseErrorKind::UnterminatedString, 6),
+            (
+                "save \"\"",
+                expected("a file name after `save`", "an empty name `\"\"`"),
+                6,
+            ),
+            ("save my file.ordex", expected(QUOTE_HINT, "`file.ordex`"), 9),
+            ("forget pi", ParseErrorKind::Reserved("pi".into()), 8),
+            ("forget", expected("a name after `forget`", END), 7),
+            ("t = 3", ParseErrorKind::Reserved("t".into()), 1),
+            ("flow = 2", ParseErrorKind::Reserved("flow".into()), 1),
+            ("x, sin = average S to 1 in eps", ParseErrorKind::Reserved("sin".into()), 4),
+            (
+                "A, W = S + 1",
+                expected(
+                    "a command after `=` (only a command, such as `average ... with transform`, binds several names)",
+                    "`S`",
+                ),
+                8,
+            ),
+            ("a, = 3", expected("a name after `,`", "`=`"), 4),
+            ("a, b c", expected("`,` or `=` after the names", "`c`"), 6),
+            ("x ** * y", expected("an exponent after `**`", "`*`"), 6),
+            ("x^", expected("an exponent after `^`", END), 3),
+            ("x^-", expected("an expression after `-`", END), 4),
+            ("-", expected("an expression after `-`", END), 2),
+            ("a * / b", expected("an expression after `*`", "`/`"), 5),
+            (
+                "(a, b)",
+                expected(
+                    "an operator or `)` (a field is written with square brackets, as in `[a, b]`)",
+                    "`,`",
+                ),
+                3,
+            ),
+            ("(a b)", expected("an operator or `)`", "`b`"), 4),
+            ("()", expected("an expression after `(`", "`)`"), 2),
+            ("[a b]", expected("`,` or `]`", "`b`"), 4),
+            ("[]", expected("an entry after `[`", "`]`"), 2),
+            ("[a,]", expected("an entry after `,`", "`]`"), 4),
+            ("{1, 2 3}", expected("`,`, `;` or `}`", "`3`"), 7),
+            ("{1, 2;}", expected("an entry after `;`", "`}`"), 7),
+            ("f()", expected("an argument after `(`", "`)`"), 3),
+            ("plug(e, q == 1)", expected("`,` or `)`", "`==`"), 11),
+            ("plug(e, to = 1)", ParseErrorKind::Reserved("to".into()), 9),
+            ("plug(e, q = )", expected("a value after `q =`", "`)`"), 13),
+            (
+                "sin x",
+                expected("`(` and an argument after `sin`", "`x`"),
+                5,
+            ),
+            (
+                "1.2.3",
+                ParseErrorKind::BadNumber {
+                    text: "1.2.3".into(),
+                    reason: "a number has at most one decimal point",
+                },
+                1,
+            ),
+            (
+                "x + 1e",
+                ParseErrorKind::BadNumber {
+                    text: "1e".into(),
+                    reason: "the exponent has no digits",
+                },
+                5,
+            ),
+            (
+                "1e-",
+                ParseErrorKind::BadNumber {
+                    text: "1e-".into(),
+                    reason: "the exponent has no digits",
+                },
+                1,
+            ),
+            (
+                "3.",
+                ParseErrorKind::BadNumber {
+                    text: "3.".into(),
+                    reason: "digits must follow the decimal point",
+                },
+                1,
+            ),
+            (
+                "a == b",
+                expected(
+                    "the end of the line (to compare two sides, write `check A == B`)",
+                    "`==`",
+                ),
+                3,
+            ),
+            ("set x 3", expected("`budget` after `set`", "`x`"), 5),
+            ("set budget", expected("a whole number after `budget`", END), 11),
+            (
+                "help +",
+                expected("a topic word after `help`, or the end of the line", "`+`"),
+                6,
+            ),
+            ("to 3", expected("a statement or an expression", "`to`"), 1),
+            (
+                "\u{3b8} = 1",
+                expected("a statement or an expression", "`\u{3b8}`"),
+                1,
+            ),
+            (
+                "x = 2 $",
+                expected("an operator or the end of the line", "`$`"),
+                7,
+            ),
+            ("state a b", expected("`,` or the end of the line", "`b`"), 9),
+            ("state", expected("a name after `state`", END), 6),
+            ("x + flow V to 3", expected("an expression after `+`", "`flow`"), 5),
+            (
+                &long_chain,
+                ParseErrorKind::ExpressionTooDeep {
+                    limit: MAX_EXPR_DEPTH,
+                },
+                2000,
+            ),
+            (
+                &long_minus,
+                ParseErrorKind::ExpressionTooDeep {
+                    limit: MAX_EXPR_DEPTH,
+                },
+                1001,
+            ),
+            (
+                &long_power,
+                ParseErrorKind::ExpressionTooDeep {
+                    limit: MAX_EXPR_DEPTH,
+                },
+                2002,
+            ),
+            (
+                &deep_parens,
+                ParseErrorKind::NestingTooDeep { limit: MAX_NESTING },
+                MAX_NESTING + 1,
+            ),
+        ];
+        assert!(cases.len() >= 30);
+        for (text, kind, column) in cases {
+            let err = error(text);
+            assert_eq!(err.kind, kind, "kind for {text:?}");
+            assert_eq!(
+                line_col(text, err.span.start),
+                (0, column),
+                "caret column for {text:?} ({err})"
+            );
+            assert!(err.span.start <= err.span.end && err.span.end <= text.len());
+        }
+    }
+
+    #[test]
+    fn error_on_a_later_line_of_a_statement() {
+        let text = "f = [a,\n  b +]";
+        let err = error(text);
+        assert_eq!(err.kind, expected("an expression after `+`", "`]`"));
+        assert_eq!(line_col(text, err.span.start), (1, 6));
+        let text = "g = sin(x,\n  [1, 2\n)";
+        let err = error(text);
+        assert_eq!(
+            err.kind,
+            ParseErrorKind::MismatchedClose {
+                open: '[',
+                close: ')'
+            }
+        );
+        assert_eq!(line_col(text, err.span.start), (2, 1));
+    }
+
+    #[test]
+    fn brackets_in_comments_and_quotes_do_not_count() {
+        assert_eq!(stmt("x # (").sexpr(), "(print x)");
+        assert_eq!(stmt("save \"a(b.svg\"").sexpr(), "(save \"a(b.svg\")");
+    }
+
+    #[test]
+    fn messages_are_lowercase_without_full_stop_and_quote_the_input() {
+        let cases = [
+            ("x +", "expected an expression after `+`, found the end of the line"),
+            ("state t", "`t` is a reserved word and cannot be used as a name"),
+            ("sin(x", "`(` is never closed"),
+            (")", "`)` has no matching opening bracket"),
+            ("(a]", "`]` cannot close `(` (expected `)`)"),
+            ("names foo", "unexpected `foo` after the end of the statement"),
+            (
+                "2x",
+                "missing `*` between `2` and `x`: implicit multiplication is not allowed",
+            ),
+            (
+                "1.2.3",
+                "malformed number `1.2.3`: a number has at most one decimal point",
+            ),
+            (
+                "set budget 99999999999999999999999",
+                "`99999999999999999999999` is too large (at most 18446744073709551615)",
+            ),
+            ("save \"x", "quoted file name without its closing `\"`"),
+            (
+                "average S to 1 in e depth 1 depth 2",
+                "`depth` is given more than once",
+            ),
+            ("", "empty statement"),
+        ];
+        for (text, message) in cases {
+            let shown = error(text).to_string();
+            assert_eq!(shown, message, "{text:?}");
+            assert!(!shown.ends_with('.'));
+        }
+    }
+
+    #[test]
+    fn long_operands_are_shortened_in_messages() {
+        let err = error("(aaaaaaaaaa + bbbbbbbbbb + cccccccccc)x");
+        let ParseErrorKind::ImplicitMultiplication { left, right } = err.kind else {
+            panic!("unexpected {:?}", err.kind);
+        };
+        assert_eq!(left, "\u{2026}bbbbbbbbb + cccccccccc)");
+        assert_eq!(right, "x");
+    }
+
+    #[test]
+    fn nesting_up_to_the_limit_parses() {
+        let parens = format!("{}x{}", "(".repeat(MAX_NESTING), ")".repeat(MAX_NESTING));
+        assert_eq!(expr(&parens).sexpr(), "x");
+        let lists = format!("{}x{}", "[".repeat(MAX_NESTING), "]".repeat(MAX_NESTING));
+        assert_eq!(
+            expr(&lists).sexpr(),
+            format!("{}x{}", "[".repeat(MAX_NESTING), "]".repeat(MAX_NESTING))
+        );
+        let calls = format!("{}x{}", "f(".repeat(MAX_NESTING), ")".repeat(MAX_NESTING));
+        assert!(expr(&calls).sexpr().starts_with("(call f (call f"));
+        let mixed = format!(
+            "{}x{}",
+            "-g(1 + [{a, ".repeat(MAX_NESTING / 3),
+            "}])".repeat(MAX_NESTING / 3)
+        );
+        assert!(expr(&mixed).sexpr().starts_with("(neg (call g (+ 1 [{a"));
+        let chain = format!("x{}", "+x".repeat(MAX_EXPR_DEPTH - 2));
+        assert!(parse_expr(&chain).is_ok());
+    }
+
+    #[test]
+    fn parse_expr_requires_exactly_one_expression() {
+        assert_eq!(expr(" a*b ").sexpr(), "(* a b)");
+        let Err(err) = parse_expr("a b") else {
+            panic!("`a b` parsed");
+        };
+        assert_eq!(err.span, Span::new(2, 3));
+        let Err(err) = parse_expr("") else {
+            panic!("empty text parsed");
+        };
+        assert_eq!(err.kind, expected("an expression", END));
+    }
+
+    #[test]
+    fn reserved_words_cover_the_statement_and_command_words() {
+        for word in COMMAND_WORDS.iter().chain(STATEMENT_WORDS) {
+            assert!(is_reserved(word), "{word}");
+        }
+        assert!(!is_reserved("plug"));
+        assert!(!is_reserved("eps"));
+    }
+
+    proptest::proptest! {
+        #[test]
+        fn never_panics_and_spans_stay_inside(text in "[a-z0-9 ()\\[\\]{}+*/^=,;.#\"\\\\\n-]{0,40}") {
+            if let Err(err) = parse_stmt(&text) {
+                proptest::prop_assert!(err.span.start <= err.span.end);
+                proptest::prop_assert!(err.span.end <= text.len());
+                let _ = err.to_string();
+            }
+        }
+
+        #[test]
+        fn never_panics_on_word_soup(words in proptest::collection::vec(
+            proptest::sample::select(vec![
+                "flow", "on", "to", "magnus", "over", "average", "in", "strobo", "classic",
+                "depth", "with", "transform", "carleman", "degree", "simulate", "from", "for",
+                "plot", "compare", "sweep", "tol", "stability", "at", "check", "show", "as",
+                "save", "run", "names", "forget", "help", "set", "budget", "quit", "state",
+                "x", "q", "3", "1e-4", "=", "==", ",", "(", ")", "[", "]", "-", "^", "t", "pi",
+                "sin", "\"a b\"", "#", "\n", "\\",
+            ]),
+            0..14,
+        )) {
+            let text = words.join(" ");
+            match parse_stmt(&text) {
+                Ok(stmt) => { let _ = stmt.sexpr(); }
+                Err(err) => proptest::prop_assert!(err.span.end <= text.len()),
+            }
+        }
+
+        #[test]
+        fn any_unicode_never_panics(text in "\\PC{0,30}") {
+            if let Err(err) = parse_stmt(&text) {
+                proptest::prop_assert!(text.is_char_boundary(err.span.start));
+                proptest::prop_assert!(err.span.end <= text.len());
+            }
+        }
+    }
+}

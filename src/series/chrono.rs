@@ -1,0 +1,184 @@
+//! The chronological exponential and logarithm on concrete fields.
+//!
+//! Conventions (DESIGN §2.4, §2.5): for a time-varying field `V_t` the
+//! flow acts on outputs as `P_t = Σ_k ∫_{0≤τk≤…≤τ1≤t} V_τk ∘ … ∘ V_τ1`
+//! (earliest time outermost), so `P_t' = P_t ∘ V_t`. Writing `P_t = exp(W_t)`
+//! gives the generator `W' = ad_W / (1 − e^{−ad_W}) V = Σ β_n ad_W^n V` with
+//! `Σ β_n x^n = x/(1 − e^{−x})` and `ad_W V = [W, V]`; its degree-2 term is
+//! `½ ∫∫_{τ2<τ1} [V_τ2, V_τ1]`.
+//!
+//! Both series are graded: the input is `V = Σ_j V_j` with `V_j` of grade
+//! `j` (the power of eps, or 1 for the plain degree in `V`).
+
+use std::collections::HashMap;
+
+use crate::core::calc::Period;
+use crate::core::{limits, CoreError, CoreResult, Expr, Field, Q, Sym};
+
+/// A graded time-varying field: `parts[j-1]` has grade `j`.
+#[derive(Clone, Debug)]
+pub struct Graded {
+    /// Components by grade, starting at grade 1.
+    pub parts: Vec<Field>,
+}
+
+impl Graded {
+    /// A field of grade 1 only.
+    pub fn single(v: Field) -> Graded {
+        Graded { parts: vec![v] }
+    }
+
+    fn grade(&self, j: usize) -> Option<&Field> {
+        if j == 0 {
+            None
+        } else {
+            self.parts.get(j - 1).filter(|f| !f.is_zero())
+        }
+    }
+}
+
+/// The Bernoulli-type coefficients β_0..β_n of x/(1 − e^{−x}).
+pub fn beta_coefficients(n: usize) -> Vec<Q> {
+    // x/(1 - e^{-x}) = 1 / (Σ_{k≥0} (-1)^k x^k/(k+1)!): invert the series.
+    let mut d = Vec::with_capacity(n + 1);
+    let mut fact = Q::ONE;
+    for k in 0..=n {
+        fact = fact.mul(&Q::int(k as i64 + 1));
+        let v = fact.recip().unwrap_or(Q::ZERO);
+        d.push(if k % 2 == 0 { v } else { v.neg() });
+    }
+    let mut b = vec![Q::ZERO; n + 1];
+    b[0] = Q::ONE;
+    for m in 1..=n {
+        let mut s = Q::ZERO;
+        for k in 1..=m {
+            s = s.add(&d[k].mul(&b[m - k]));
+        }
+        b[m] = s.neg();
+    }
+    b
+}
+
+fn time_symbol() -> Sym {
+    // A name no user can type: the final time of the backward recursion.
+    Sym::new("t'")
+}
+
+/// Replaces time `t` by the symbol `to` (kept as an ordinary symbol, its
+/// oscillations as trigonometric factors of that symbol).
+fn time_to_symbol(e: &Expr, to: Sym, states: &[Sym]) -> CoreResult<Expr> {
+    let mut ext = states.to_vec();
+    ext.push(to);
+    let mut map = HashMap::new();
+    map.insert(Sym::T, Expr::sym(to));
+    e.subst(&map, &ext)
+}
+
+/// Replaces the symbol `from` by time `t`.
+fn symbol_to_time(e: &Expr, from: Sym, states: &[Sym]) -> CoreResult<Expr> {
+    let mut map = HashMap::new();
+    map.insert(from, Expr::sym(Sym::T));
+    e.subst(&map, states)
+}
+
+/// The value of a time-varying expression at `t = value`.
+pub fn at_time(e: &Expr, value: &Expr, states: &[Sym]) -> CoreResult<Expr> {
+    if let Some(c) = value.as_number() {
+        if c.is_zero() {
+            return Ok(e.at_time_zero());
+        }
+    }
+    let mut map = HashMap::new();
+    map.insert(Sym::T, value.clone());
+    e.subst(&map, states)
+}
+
+/// Terms `k = 1..=n` of the chronological expansion of `h(x(t))` for
+/// `x' = V(t, x)`, `x(0) = x` (DESIGN §2.4), as functions of `t` and `x`.
+pub fn flow_terms(v: &Field, h: &Expr, n: usize, states: &[Sym]) -> CoreResult<Vec<Expr>> {
+    limits::check_order(n as u64)?;
+    let big_t = time_symbol();
+    // Backward recursion in the initial time s (written t here), final time
+    // T: Z_0 = h, Z_k(s) = ∫_s^T V_σ(Z_{k-1}(σ)) dσ; the k-th term is Z_k(0).
+    let mut z = h.clone();
+    let mut out = Vec::with_capacity(n);
+    for _ in 0..n {
+        limits::poll()?;
+        let g = v.lie_derivative(&z, states)?;
+        let f = g.antiderivative_t()?;
+        let f_at_final = time_to_symbol(&f, big_t, states)?;
+        z = f_at_final.sub(&f);
+        limits::check_terms(z.len())?;
+        let term = z.at_time_zero();
+        out.push(symbol_to_time(&term, big_t, states)?);
+    }
+    Ok(out)
+}
+
+/// The graded generator `W(t) = Σ_k W_k(t)` with `exp(W_t)` the time-t flow
+/// of `V = Σ_j V_j`, for grades `1..=n`, as functions of `t`.
+pub fn magnus_generator(v: &Graded, n: usize, states: &[Sym]) -> CoreResult<Vec<Field>> {
+    limits::check_order(n as u64)?;
+    let dim = states.len();
+    let beta = beta_coefficients(n);
+    // a[p][m]: Σ over ad_{W_k1}…ad_{W_kp} V_j with k1+…+kp+j = m.
+    let mut a: Vec<Vec<Field>> = vec![vec![Field::zero(dim); n + 1]; n + 1];
+    let mut w: Vec<Field> = vec![Field::zero(dim); n + 1];
+    for m in 1..=n {
+        a[0][m] = v.grade(m).cloned().unwrap_or_else(|| Field::zero(dim));
+        for p in 1..m {
+            let mut acc = Field::zero(dim);
+            for k in 1..m {
+                if m - k < p || w[k].is_zero() || a[p - 1][m - k].is_zero() {
+                    continue;
+                }
+                limits::poll()?;
+                let b = w[k].bracket(&a[p - 1][m - k], states)?;
+                acc = acc.add(&b)?;
+            }
+            a[p][m] = acc;
+        }
+        let mut dw = Field::zero(dim);
+        for p in 0..m {
+            if beta[p].is_zero() || a[p][m].is_zero() {
+                continue;
+            }
+            dw = dw.add_scaled(&a[p][m], &beta[p])?;
+        }
+        w[m] = dw.map(|e| e.integral_from_zero())?;
+        limits::check_terms(w[m].n_terms())?;
+    }
+    w.remove(0);
+    Ok(w)
+}
+
+/// Evaluates a time-varying field at the end of a period.
+pub fn field_at_period(f: &Field, period: &Period) -> CoreResult<Field> {
+    f.map(|e| e.at_time_pi_multiple(&period.0))
+}
+
+/// The common period of a collection of expressions (2π over the gcd of
+/// their frequencies); `None` when nothing oscillates.
+pub fn period_of(exprs: &[&Expr]) -> Option<Period> {
+    let mut freqs = Vec::new();
+    for e in exprs {
+        freqs.extend(e.frequencies());
+    }
+    crate::core::calc::common_period(&freqs)
+}
+
+/// Checks that a time-varying field has no secular (polynomial in t) part.
+pub fn check_periodic_field(f: &Field) -> CoreResult<()> {
+    for e in &f.0 {
+        e.check_periodic()?;
+    }
+    Ok(())
+}
+
+/// Refusal used when a period is needed but nothing oscillates.
+pub fn no_period_error() -> CoreError {
+    CoreError::Refused {
+        reason: "no period: the field does not oscillate in t (give one with `over T`)"
+            .to_string(),
+    }
+}

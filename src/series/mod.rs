@@ -1,0 +1,6 @@
+//! Series on fields: time integrals, the chronological exponential and
+//! logarithm, the free Lie algebra and Carleman sections.
+//!
+//! Pure: builds on `core` only.
+
+pub mod chrono;
