@@ -9,3 +9,6 @@
 pub mod core;
 pub mod averaging;
 pub mod series;
+pub mod lang;
+pub mod numeric;
+pub mod render;

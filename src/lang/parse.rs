@@ -2326,7 +2326,7 @@ mod tests {
                 expected("a file name after `save`", "an empty name `\"\"`"),
                 6,
             ),
-            ("save my file.ordex", expected(QUOTE_HINT, "`file.ordex`"), 9),
+            ("save my file.ordex", expected(QUOTE_HINT, "`file`"), 9),
             ("forget pi", ParseErrorKind::Reserved("pi".into()), 8),
             ("forget", expected("a name after `forget`", END), 7),
             ("t = 3", ParseErrorKind::Reserved("t".into()), 1),

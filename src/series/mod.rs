@@ -4,3 +4,4 @@
 //! Pure: builds on `core` only.
 
 pub mod chrono;
+pub mod freelie;

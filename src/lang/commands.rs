@@ -1,0 +1,420 @@
+//! The series commands: `flow`, `magnus`, `average`, `carleman`; and the
+//! dispatch to the numerical commands (`simulate`, `compare`, `stability`).
+//! Each prints its terms order by order, a total and a summary line, and
+//! can be bound to names.
+
+use std::time::Instant;
+
+use super::ast::{Command, CommandKind, Ident, Span};
+use super::session::{Report, Session, SessionError, Style, SymKind};
+use super::value::{FieldValue, Value};
+use crate::averaging::{self, Form, Method, Options};
+use crate::core::calc::Period;
+use crate::core::{limits, CoreError, Expr, Field, Matrix, Q, Sym};
+use crate::render::plain;
+use crate::series::chrono::{self, Graded};
+
+type R<T> = Result<T, SessionError>;
+
+fn order_arg(n: u64, span: Span) -> R<usize> {
+    limits::check_order(n).map_err(|e| SessionError::core(span, e))?;
+    if n == 0 {
+        return Err(SessionError::invalid(span, "the order must be at least 1"));
+    }
+    Ok(n as usize)
+}
+
+impl Session {
+    pub(crate) fn run_command(
+        &mut self,
+        cmd: &Command,
+        names: &[Ident],
+        report: &mut Report,
+        started: Instant,
+    ) -> R<()> {
+        let want = |n: usize, span: Span| -> R<()> {
+            if names.len() > n {
+                return Err(SessionError::invalid(
+                    span,
+                    format!("this command gives {n} result{}, {} names given", if n == 1 { "" } else { "s" }, names.len()),
+                ));
+            }
+            Ok(())
+        };
+        let span = cmd.span;
+        let results: Vec<Value> = match &cmd.kind {
+            CommandKind::Flow { field, on, to } => {
+                want(1, span)?;
+                let n = order_arg(to.value, to.span)?;
+                let v = self.eval_field(field, "the field of `flow`")?;
+                let h = match on {
+                    Some(h) => Some(self.eval_scalar(h, "the output of `flow … on h`")?),
+                    None => None,
+                };
+                vec![self.flow(&v.field, h, n, span, report)?]
+            }
+            CommandKind::Magnus { field, to, over } => {
+                want(1, span)?;
+                let n = order_arg(to.value, to.span)?;
+                let v = self.eval_field(field, "the field of `magnus`")?;
+                let period = match over {
+                    Some(t) => Some((self.eval_scalar(t, "the horizon of `magnus … over T`")?, t.span)),
+                    None => None,
+                };
+                vec![self.magnus(&v, n, period, span, report)?]
+            }
+            CommandKind::Average { field, to, param, method, depth, with_transform } => {
+                let n = order_arg(to.value, to.span)?;
+                let v = self.eval_field(field, "the system of `average`")?;
+                let eps = self.param_sym(param)?;
+                let method = match method.as_ref().map(|m| m.name.as_str()) {
+                    None | Some("strobo") => Method::Strobo,
+                    Some("classic") => Method::Classic,
+                    Some(other) => {
+                        let sp = method.as_ref().map_or(span, |m| m.span);
+                        return Err(SessionError::invalid(sp, format!("unknown method `{other}`: use `strobo` or `classic`")));
+                    }
+                };
+                if *with_transform && method != Method::Classic {
+                    return Err(SessionError::invalid(span, "`with transform` goes with `classic` (stroboscopic averaging needs no transform)"));
+                }
+                want(if *with_transform { 2 } else { 1 }, span)?;
+                let depth = match depth {
+                    Some(d) => {
+                        limits::check_order(d.value).map_err(|e| SessionError::core(d.span, e))?;
+                        d.value
+                    }
+                    None => 8,
+                };
+                let opts = Options { method, order: n, depth, with_transform: *with_transform };
+                self.average(&v, eps, &opts, span, report)?
+            }
+            CommandKind::Carleman { field, degree } => {
+                want(1, span)?;
+                let v = self.eval_field(field, "the field of `carleman`")?;
+                if degree.value > 12 {
+                    return Err(SessionError::invalid(degree.span, "the degree of a Carleman section is at most 12"));
+                }
+                vec![self.carleman(&v.field, degree.value as u32, span, report)?]
+            }
+            CommandKind::Simulate { .. } | CommandKind::Compare { .. } | CommandKind::Stability { .. } => {
+                want(0, span)?;
+                self.run_numeric(cmd, report)?;
+                Vec::new()
+            }
+        };
+        let elapsed = started.elapsed();
+        if self.show_timing {
+            if let Some(last) = report.lines.last_mut() {
+                if last.style == Style::Note && last.text.contains(" terms") {
+                    last.text.push_str(&format!(", {} ms", elapsed.as_millis()));
+                }
+            }
+        }
+        for (name, value) in names.iter().zip(results) {
+            let mut tmp = Report::default();
+            self.bind(name, value, &mut tmp)?;
+        }
+        Ok(())
+    }
+
+    pub(crate) fn param_sym(&self, id: &Ident) -> R<Sym> {
+        match self.sym_kind(&id.name) {
+            Some(SymKind::Param) => Ok(Sym::new(&id.name)),
+            _ => Err(SessionError::invalid(
+                id.span,
+                format!("`{}` must be a parameter (declare it with `param {}`)", id.name, id.name),
+            )),
+        }
+    }
+
+    fn input_syms(&self) -> Vec<Sym> {
+        self.symbols
+            .iter()
+            .filter(|(_, k)| **k == SymKind::Input)
+            .map(|(n, _)| Sym::new(n))
+            .collect()
+    }
+
+    fn flow(&self, v: &Field, h: Option<Expr>, n: usize, span: Span, report: &mut Report) -> R<Value> {
+        let core = |e: CoreError| SessionError::core(span, e);
+        let inputs: Vec<Sym> = self.input_syms().into_iter().filter(|u| v.0.iter().any(|c| c.mentions(*u))).collect();
+        let outputs: Vec<Expr> = match &h {
+            Some(h) => vec![h.clone()],
+            None => self.states.iter().map(|s| Expr::sym(*s)).collect(),
+        };
+        let mut per_output: Vec<Vec<Expr>> = Vec::new();
+        for out in &outputs {
+            let terms = if inputs.is_empty() {
+                chrono::flow_terms(v, out, n, &self.states).map_err(core)?
+            } else {
+                super::structural::chen_fliess_terms(v, out, n, &inputs, &self.states).map_err(core)?
+            };
+            per_output.push(terms);
+        }
+        if !inputs.is_empty() {
+            report.push(Style::Note, "Chen–Fliess series: iint(u_i1, …, u_ik) is the iterated integral, first argument at the latest time");
+        }
+        let mut n_terms = 0;
+        for k in 0..n {
+            let line = if h.is_some() {
+                per_output[0][k].to_string()
+            } else {
+                plain::field(&Field(per_output.iter().map(|t| t[k].clone()).collect()))
+            };
+            n_terms += per_output.iter().map(|t| t[k].len()).sum::<usize>();
+            report.push(Style::Result, format!("order {}  {}", k + 1, line));
+        }
+        let totals: Vec<Expr> = outputs
+            .iter()
+            .zip(&per_output)
+            .map(|(o, ts)| ts.iter().fold(o.clone(), |acc, t| acc.add(t)))
+            .collect();
+        let value = if h.is_some() {
+            Value::Scalar(totals[0].clone())
+        } else {
+            Value::field(Field(totals))
+        };
+        report.push(Style::Result, format!("total    {}", plain::value(&value)));
+        report.push(Style::Note, format!("{n} orders, {n_terms} terms"));
+        Ok(value)
+    }
+
+    fn magnus(&self, v: &FieldValue, n: usize, over: Option<(Expr, Span)>, span: Span, report: &mut Report) -> R<Value> {
+        let core = |e: CoreError| SessionError::core(span, e);
+        let (horizon, period) = match over {
+            Some((t, tspan)) => {
+                let p = period_from_expr(&t);
+                if t.as_number().is_none() && p.is_none() {
+                    return Err(SessionError::invalid(tspan, format!("the horizon must be a number or a rational multiple of pi, got `{t}`")));
+                }
+                (t, p)
+            }
+            None => {
+                let exprs: Vec<&Expr> = v.field.0.iter().collect();
+                let p = chrono::period_of(&exprs).ok_or_else(|| core(chrono::no_period_error()))?;
+                (p.to_expr(), Some(p))
+            }
+        };
+        let w = chrono::magnus_generator(&Graded::single(v.field.clone()), n, &self.states).map_err(core)?;
+        let mut orders = Vec::with_capacity(n);
+        for wk in &w {
+            let at = match &period {
+                Some(p) => chrono::field_at_period(wk, p),
+                None => wk.map(|e| chrono::at_time(e, &horizon, &self.states)),
+            }
+            .map_err(core)?;
+            orders.push(at);
+        }
+        report.push(Style::Note, format!("chronological logarithm W over [0, {horizon}]"));
+        let mut total = Field::zero(self.states.len());
+        let mut n_terms = 0;
+        for (k, f) in orders.iter().enumerate() {
+            report.push(Style::Result, format!("order {}  {}", k + 1, plain::field(f)));
+            total = total.add(f).map_err(core)?;
+            n_terms += f.n_terms();
+        }
+        report.push(Style::Result, format!("total    {}", plain::field(&total)));
+        let structure = match &v.combo {
+            Some(combo) => super::structural::magnus_structure(combo, n, &horizon, period.as_ref(), None, &self.states).map_err(core)?,
+            None => None,
+        };
+        if structure.is_some() {
+            report.push(Style::Note, "bracket form available: `show NAME as brackets`");
+        }
+        report.push(Style::Note, format!("{n} orders, {n_terms} terms"));
+        Ok(Value::Field(FieldValue { field: total, combo: None, structure }))
+    }
+
+    fn average(&self, v: &FieldValue, eps: Sym, opts: &Options, span: Span, report: &mut Report) -> R<Vec<Value>> {
+        let core = |e: CoreError| SessionError::core(span, e);
+        let res = averaging::average(&v.field, eps, opts, &self.states).map_err(core)?;
+        let e = eps.name();
+        match &res.form {
+            Form::Standard => report.push(Style::Note, format!("standard form x' = Σ {e}^j f_j(t, x), period {}", res.period)),
+            Form::FastOscillation { generator, depth, ended } => {
+                let g: Vec<String> = generator
+                    .iter()
+                    .map(|(u, g)| format!("({u})*{}", plain::field(g)))
+                    .collect();
+                report.push(
+                    Style::Note,
+                    format!(
+                        "fast-oscillation form: x = exp(Y(t))(z), Y = {}; z is averaged, period {}",
+                        g.join(" + "),
+                        res.period
+                    ),
+                );
+                if *ended {
+                    report.push(Style::Note, format!("ad-series ends at depth {depth}"));
+                } else {
+                    report.push(Style::Warn, format!("warning: ad-series truncated at depth {depth} (raise it with `depth D`)"));
+                }
+            }
+            Form::LinearCentre { a, rotation } => {
+                report.push(
+                    Style::Note,
+                    format!(
+                        "linear centre A = {}: rotating coordinates x = R(t) z, R(t) = exp(A*t) = {}; z is averaged, period {}",
+                        plain::matrix(a),
+                        plain::matrix(rotation),
+                        res.period
+                    ),
+                );
+            }
+        }
+        let method = if opts.method == Method::Strobo { "stroboscopic" } else { "classical" };
+        report.push(Style::Note, format!("{method} averaging in {e} to order {}", opts.order));
+        let mut n_terms = 0;
+        for (k, f) in res.orders.iter().enumerate() {
+            report.push(Style::Result, format!("order {}  {}", k + 1, plain::field(f)));
+            n_terms += f.n_terms();
+        }
+        let total = res.total(eps).map_err(core)?;
+        // Structural form, when the system was written over named fields.
+        let structure = match (&v.combo, &res.form) {
+            (Some(combo), Form::Standard) => match opts.method {
+                Method::Strobo => {
+                    super::structural::magnus_structure(combo, opts.order, &res.period.to_expr(), Some(&res.period), Some(eps), &self.states)
+                        .map_err(core)?
+                }
+                Method::Classic => super::structural::classic_structure(combo, opts.order, &res.period, eps).map_err(core)?,
+            },
+            _ => None,
+        };
+        if structure.is_some() {
+            report.push(Style::Note, "bracket form available: `show NAME as brackets`");
+        }
+        let mut out = vec![Value::Field(FieldValue { field: total, combo: None, structure })];
+        if let Some(w) = res.transform_total(eps).map_err(core)? {
+            for (k, wk) in res.transform.iter().flatten().enumerate() {
+                report.push(Style::Result, format!("w_{}     {}", k + 1, plain::field(wk)));
+            }
+            out.push(Value::field(w));
+        }
+        report.push(Style::Note, format!("{} orders, {n_terms} terms", opts.order));
+        Ok(out)
+    }
+
+    fn carleman(&self, x: &Field, degree: u32, span: Span, report: &mut Report) -> R<Value> {
+        let core = |e: CoreError| SessionError::core(span, e);
+        let basis = monomial_basis(&self.states, degree);
+        let index = |m: &Expr| basis.iter().position(|b| b == m);
+        let mut data = vec![Expr::zero(); basis.len() * basis.len()];
+        for (j, m) in basis.iter().enumerate() {
+            let xm = x.lie_derivative(m, &self.states).map_err(core)?;
+            for (key, c) in xm.split_by_state_monomial(&self.states).map_err(|bad| {
+                SessionError::invalid(span, format!("`carleman` needs a polynomial field; `{bad}` is not a polynomial in the state"))
+            })? {
+                if key.degree_in(&self.states) > degree as i64 {
+                    continue;
+                }
+                let mono = Expr::term(crate::core::expr::Key { mono: key, ..crate::core::expr::Key::one() }, Q::ONE);
+                if let Some(i) = index(&mono) {
+                    data[i * basis.len() + j] = data[i * basis.len() + j].add(&c);
+                }
+            }
+        }
+        let names: Vec<String> = basis.iter().map(|b| b.to_string()).collect();
+        report.push(Style::Note, format!("basis (graded lexicographic, constant first): {}", names.join(", ")));
+        let m = Matrix { rows: basis.len(), cols: basis.len(), data };
+        report.push(Style::Result, plain::matrix(&m));
+        report.push(Style::Note, format!("{}x{} section, {} terms", basis.len(), basis.len(), m.data.iter().map(Expr::len).sum::<usize>()));
+        Ok(Value::Matrix(m))
+    }
+}
+
+/// `c*pi` as a period, when the expression is a rational multiple of pi.
+pub(crate) fn period_from_expr(t: &Expr) -> Option<Period> {
+    let c = t.coeff_of_power(Sym::PI, 1);
+    if t.sub(&Expr::sym(Sym::PI).mul(&c).ok()?).is_zero() {
+        let q = c.as_number()?;
+        (!q.is_zero() && !q.is_negative()).then_some(Period(q))
+    } else {
+        None
+    }
+}
+
+/// Monomials of degree ≤ d in graded lexicographic order, 1 first.
+pub fn monomial_basis(states: &[Sym], d: u32) -> Vec<Expr> {
+    let n = states.len();
+    let mut out = vec![Expr::int(1)];
+    for deg in 1..=d {
+        // Exponent vectors of total degree `deg`, lexicographically decreasing.
+        let mut exps = Vec::new();
+        let mut cur = vec![0u32; n];
+        gen_exps(0, deg, &mut cur, &mut exps);
+        for e in exps {
+            let mut m = Expr::int(1);
+            for (s, k) in states.iter().zip(&e) {
+                if *k > 0 {
+                    m = m.mul(&Expr::sym(*s).pow(*k as i64).unwrap_or_default()).unwrap_or_default();
+                }
+            }
+            out.push(m);
+        }
+    }
+    out
+}
+
+fn gen_exps(i: usize, left: u32, cur: &mut Vec<u32>, out: &mut Vec<Vec<u32>>) {
+    if i + 1 == cur.len() {
+        cur[i] = left;
+        out.push(cur.clone());
+        return;
+    }
+    if cur.is_empty() {
+        return;
+    }
+    for k in (0..=left).rev() {
+        cur[i] = k;
+        gen_exps(i + 1, left - k, cur, out);
+    }
+    cur[i] = 0;
+}
+
+impl Expr {
+    /// Groups the terms by their monomial in the state variables: pairs
+    /// (state monomial, coefficient expression free of the state). Fails
+    /// (returning the offending term) when a term is not polynomial in the
+    /// state.
+    pub fn split_by_state_monomial(&self, states: &[Sym]) -> Result<Vec<(crate::core::expr::Mono, Expr)>, String> {
+        let mut out: Vec<(crate::core::expr::Mono, Expr)> = Vec::new();
+        for (k, c) in self.terms() {
+            let bad = || Expr::term(k.clone(), c.clone()).to_string();
+            let mentions_state = |l: &crate::core::expr::Lin| l.0.iter().any(|(s, _)| states.contains(s));
+            if mentions_state(&k.exp) {
+                return Err(bad());
+            }
+            if let crate::core::expr::Wave::Cos(l) | crate::core::expr::Wave::Sin(l) = &k.wave {
+                if mentions_state(l) {
+                    return Err(bad());
+                }
+            }
+            let mut sm = crate::core::expr::Mono::one();
+            let mut rest = k.clone();
+            for (s, e) in &k.mono.0 {
+                if states.contains(s) {
+                    if *e < 0 {
+                        return Err(bad());
+                    }
+                    sm.0.push((*s, *e));
+                }
+            }
+            rest.mono.0.retain(|(s, _)| !states.contains(s));
+            let coeff = Expr::term(rest, c.clone());
+            match out.iter_mut().find(|(m, _)| *m == sm) {
+                Some((_, acc)) => *acc = acc.add(&coeff),
+                None => out.push((sm, coeff)),
+            }
+        }
+        Ok(out)
+    }
+}
+
+impl Session {
+    /// Numerical commands (not yet wired).
+    fn run_numeric(&mut self, cmd: &Command, _report: &mut Report) -> R<()> {
+        Err(SessionError::invalid(cmd.span, "numerical commands are not available yet"))
+    }
+}

@@ -1,0 +1,549 @@
+//! Evaluation of expressions against a session: names resolved, kinds
+//! checked, built-ins applied. Errors carry the span of the operand at fault.
+
+use std::collections::HashMap;
+
+use super::ast::{Arg, BinOp, Expr as Ast, ExprKind, Ident, Span};
+use super::session::{edit_distance, ErrorKind, Session, SessionError, SymKind};
+use super::value::{Combo, FieldValue, Value};
+use crate::core::calc::common_period;
+use crate::core::{CoreError, Expr, Field, Matrix, Q, Sym};
+
+/// Names of the built-in functions.
+pub const BUILTINS: &[&str] = &[
+    "sin", "cos", "exp", "ad", "pd", "jac", "div", "det", "trace", "plug", "order", "mean",
+    "bch", "iint",
+];
+
+type R<T> = Result<T, SessionError>;
+
+fn kind_err(span: Span, op: &str, left: &Value, right: Option<&Value>) -> SessionError {
+    SessionError::at(
+        span,
+        ErrorKind::Kind {
+            op: op.to_string(),
+            left: left.kind_name(),
+            right: right.map(Value::kind_name),
+        },
+    )
+}
+
+/// The symbol name of an iterated integral `iint(u1, u2)`.
+pub fn iint_name(args: &[String]) -> String {
+    format!("iint({})", args.join(", "))
+}
+
+impl Session {
+    /// True if and only if `e` mentions no state coordinate.
+    pub(crate) fn is_state_free(&self, e: &Expr) -> bool {
+        !e.symbols().iter().any(|s| self.states.contains(s))
+    }
+
+    /// The kind of a declared symbol.
+    pub(crate) fn sym_kind(&self, name: &str) -> Option<SymKind> {
+        self.symbols.get(name).copied()
+    }
+
+    /// Suggests the nearest known name.
+    pub(crate) fn suggest(&self, name: &str) -> Option<String> {
+        let mut best: Option<(usize, String)> = None;
+        let candidates = self
+            .known_names()
+            .into_iter()
+            .chain(BUILTINS.iter().map(|s| s.to_string()))
+            .chain(["t", "pi"].iter().map(|s| s.to_string()));
+        for c in candidates {
+            let d = edit_distance(name, &c);
+            if d <= 2 && d < name.len().max(2) && best.as_ref().is_none_or(|(bd, _)| d < *bd) {
+                best = Some((d, c));
+            }
+        }
+        best.map(|(_, c)| c)
+    }
+
+    fn unknown(&self, name: &str, span: Span) -> SessionError {
+        SessionError::at(
+            span,
+            ErrorKind::UnknownName { name: name.to_string(), suggestion: self.suggest(name) },
+        )
+    }
+
+    /// Evaluates an expression.
+    pub fn eval(&self, e: &Ast) -> R<Value> {
+        let core = |err: CoreError| SessionError::core(e.span, err);
+        match &e.kind {
+            ExprKind::Num(text) => {
+                let q = Q::parse_decimal(text, 100_000).ok_or_else(|| {
+                    SessionError::invalid(e.span, format!("number `{text}` is malformed or too large"))
+                })?;
+                Ok(Value::Scalar(Expr::num(q)))
+            }
+            ExprKind::Name(name) => self.eval_name(name, e.span),
+            ExprKind::Neg(inner) => match self.eval(inner)? {
+                Value::Scalar(x) => Ok(Value::Scalar(x.neg())),
+                Value::Field(f) => Ok(Value::Field(scale_field_value(&f, &Expr::int(-1)).map_err(core)?)),
+                Value::Matrix(m) => Ok(Value::Matrix(m.mul_expr(&Expr::int(-1)).map_err(core)?)),
+            },
+            ExprKind::Bin(op, a, b) => self.eval_bin(*op, a, b, e.span),
+            ExprKind::Call(name, args) => self.eval_call(name, args, e.span),
+            ExprKind::Apply(target, args) => {
+                let v = self.eval(target)?;
+                self.apply_field(v, target.span, args, e.span)
+            }
+            ExprKind::List(items) => self.eval_list(items, e.span),
+            ExprKind::Matrix(rows) => {
+                let mut out = Vec::with_capacity(rows.len());
+                for row in rows {
+                    let mut r = Vec::with_capacity(row.len());
+                    for item in row {
+                        r.push(self.eval_scalar(item, "a matrix entry")?);
+                    }
+                    out.push(r);
+                }
+                Ok(Value::Matrix(Matrix::from_rows(out).map_err(core)?))
+            }
+        }
+    }
+
+    /// Evaluates an expression that must be a scalar.
+    pub fn eval_scalar(&self, e: &Ast, what: &str) -> R<Expr> {
+        match self.eval(e)? {
+            Value::Scalar(x) => Ok(x),
+            other => Err(SessionError::invalid(
+                e.span,
+                format!("{what} must be a scalar, got a {}", other.kind_name()),
+            )),
+        }
+    }
+
+    /// Evaluates an expression that must be a field.
+    pub fn eval_field(&self, e: &Ast, what: &str) -> R<FieldValue> {
+        match self.eval(e)? {
+            Value::Field(f) => Ok(f),
+            other => Err(SessionError::invalid(
+                e.span,
+                format!("{what} must be a field, got a {}", other.kind_name()),
+            )),
+        }
+    }
+
+    /// Evaluates a non-negative integer.
+    pub fn eval_count(&self, e: &Ast, what: &str) -> R<i64> {
+        let x = self.eval_scalar(e, what)?;
+        match x.as_number().and_then(|q| q.to_i64()) {
+            Some(n) => Ok(n),
+            None => Err(SessionError::invalid(e.span, format!("{what} must be an integer number, got `{x}`"))),
+        }
+    }
+
+    fn eval_name(&self, name: &str, span: Span) -> R<Value> {
+        match name {
+            "t" => return Ok(Value::Scalar(Expr::sym(Sym::T))),
+            "pi" => return Ok(Value::Scalar(Expr::sym(Sym::PI))),
+            _ => {}
+        }
+        if self.symbols.contains_key(name) {
+            return Ok(Value::Scalar(Expr::sym(Sym::new(name))));
+        }
+        match self.names.get(name) {
+            Some(Value::Field(f)) => {
+                let mut f = f.clone();
+                if f.combo.is_none() && !f.field.0.iter().any(Expr::is_time_varying) {
+                    f.combo = Some(Combo { parts: vec![(name.to_string(), f.field.clone(), Expr::int(1))] });
+                }
+                Ok(Value::Field(f))
+            }
+            Some(v) => Ok(v.clone()),
+            None => Err(self.unknown(name, span)),
+        }
+    }
+
+    fn eval_bin(&self, op: BinOp, a: &Ast, b: &Ast, span: Span) -> R<Value> {
+        let core = |err: CoreError| SessionError::core(span, err);
+        if op == BinOp::Pow {
+            let base = self.eval(a)?;
+            let n = self.eval_count(b, "an exponent")?;
+            return match base {
+                Value::Scalar(x) => Ok(Value::Scalar(x.pow(n).map_err(core)?)),
+                Value::Matrix(m) if m.is_square() && (0..=10_000).contains(&n) => {
+                    let mut acc = Matrix::identity(m.rows);
+                    for _ in 0..n {
+                        acc = acc.mul(&m).map_err(core)?;
+                    }
+                    Ok(Value::Matrix(acc))
+                }
+                other => Err(kind_err(span, "`^`", &other, None)),
+            };
+        }
+        let x = self.eval(a)?;
+        let y = self.eval(b)?;
+        let opname = format!("`{}`", op.symbol());
+        match op {
+            BinOp::Add | BinOp::Sub => {
+                let sign = if op == BinOp::Add { Q::ONE } else { Q::int(-1) };
+                match (&x, &y) {
+                    (Value::Scalar(p), Value::Scalar(q)) => Ok(Value::Scalar(p.add_scaled(q, &sign))),
+                    (Value::Field(p), Value::Field(q)) => {
+                        let field = p.field.add_scaled(&q.field, &sign).map_err(core)?;
+                        let combo = match (&p.combo, &q.combo) {
+                            (Some(c1), Some(c2)) => Some(merge_combo(c1, c2, &sign)),
+                            _ => None,
+                        };
+                        Ok(Value::Field(FieldValue { field, combo, structure: None }))
+                    }
+                    (Value::Matrix(p), Value::Matrix(q)) => {
+                        Ok(Value::Matrix(p.add_scaled(q, &sign).map_err(core)?))
+                    }
+                    _ => Err(kind_err(span, &opname, &x, Some(&y))),
+                }
+            }
+            BinOp::Mul => match (&x, &y) {
+                (Value::Scalar(p), Value::Scalar(q)) => Ok(Value::Scalar(p.mul(q).map_err(core)?)),
+                (Value::Scalar(s), Value::Field(f)) | (Value::Field(f), Value::Scalar(s)) => {
+                    let mut out = scale_field_value(f, s).map_err(core)?;
+                    if !self.is_state_free(s) {
+                        out.combo = None;
+                    }
+                    Ok(Value::Field(out))
+                }
+                (Value::Scalar(s), Value::Matrix(m)) | (Value::Matrix(m), Value::Scalar(s)) => {
+                    Ok(Value::Matrix(m.mul_expr(s).map_err(core)?))
+                }
+                (Value::Matrix(m), Value::Matrix(n)) => Ok(Value::Matrix(m.mul(n).map_err(core)?)),
+                (Value::Matrix(m), Value::Field(f)) => Ok(Value::field(m.apply(&f.field).map_err(core)?)),
+                _ => Err(kind_err(span, &opname, &x, Some(&y))),
+            },
+            BinOp::Div => {
+                let d = match &y {
+                    Value::Scalar(d) => d.clone(),
+                    _ => return Err(kind_err(span, &opname, &x, Some(&y))),
+                };
+                let inv = if let Some(q) = d.as_number() {
+                    Expr::num(q.recip().ok_or_else(|| SessionError::core(b.span, CoreError::DivisionByZero))?)
+                } else {
+                    d.recip().map_err(|e| SessionError::core(b.span, e))?
+                };
+                match x {
+                    Value::Scalar(p) => Ok(Value::Scalar(p.mul(&inv).map_err(core)?)),
+                    Value::Field(f) => {
+                        let mut out = scale_field_value(&f, &inv).map_err(core)?;
+                        if !self.is_state_free(&inv) {
+                            out.combo = None;
+                        }
+                        Ok(Value::Field(out))
+                    }
+                    Value::Matrix(m) => Ok(Value::Matrix(m.mul_expr(&inv).map_err(core)?)),
+                }
+            }
+            BinOp::Pow => unreachable_pow(span),
+        }
+    }
+
+    fn eval_list(&self, items: &[Ast], span: Span) -> R<Value> {
+        let values: Vec<Value> = items.iter().map(|i| self.eval(i)).collect::<R<_>>()?;
+        if values.len() == 2 {
+            if let (Value::Field(x), Value::Field(y)) = (&values[0], &values[1]) {
+                let b = x.field.bracket(&y.field, &self.states).map_err(|e| SessionError::core(span, e))?;
+                return Ok(Value::field(b));
+            }
+        }
+        let mut comps = Vec::with_capacity(values.len());
+        for (v, item) in values.into_iter().zip(items) {
+            match v {
+                Value::Scalar(x) => comps.push(x),
+                other => {
+                    return Err(SessionError::invalid(
+                        item.span,
+                        format!(
+                            "a field literal needs scalar entries, got a {} (a Lie bracket `[X, Y]` needs exactly two fields)",
+                            other.kind_name()
+                        ),
+                    ))
+                }
+            }
+        }
+        if self.states.is_empty() {
+            return Err(SessionError::invalid(span, "declare the state first (e.g. `state q, p`)"));
+        }
+        if comps.len() != self.states.len() {
+            return Err(SessionError::invalid(
+                span,
+                format!(
+                    "a field on ({}) needs {} entries, got {}",
+                    self.state_list(),
+                    self.states.len(),
+                    comps.len()
+                ),
+            ));
+        }
+        Ok(Value::field(Field(comps)))
+    }
+
+    /// The state names joined for messages.
+    pub(crate) fn state_list(&self) -> String {
+        self.states.iter().map(|s| s.name()).collect::<Vec<_>>().join(", ")
+    }
+
+    fn apply_field(&self, target: Value, tspan: Span, args: &[Arg], span: Span) -> R<Value> {
+        let f = match target {
+            Value::Field(f) => f,
+            other => {
+                return Err(SessionError::invalid(
+                    tspan,
+                    format!("only a field can be applied (as a Lie derivative), this is a {}", other.kind_name()),
+                ))
+            }
+        };
+        let [Arg::Pos(h)] = args else {
+            return Err(SessionError::invalid(span, "a Lie derivative `X(h)` takes exactly one argument"));
+        };
+        let core = |err: CoreError| SessionError::core(span, err);
+        match self.eval(h)? {
+            Value::Scalar(h) => Ok(Value::Scalar(f.field.lie_derivative(&h, &self.states).map_err(core)?)),
+            Value::Field(g) => Ok(Value::field(
+                g.field.map(|c| f.field.lie_derivative(c, &self.states)).map_err(core)?,
+            )),
+            Value::Matrix(_) => Err(SessionError::invalid(h.span, "a Lie derivative applies to a scalar or a field")),
+        }
+    }
+
+    fn pos_args<'a>(&self, name: &Ident, args: &'a [Arg], n: usize, usage: &str) -> R<Vec<&'a Ast>> {
+        let mut out = Vec::new();
+        for a in args {
+            match a {
+                Arg::Pos(e) => out.push(e),
+                Arg::Bind(id, _) => {
+                    return Err(SessionError::invalid(id.span, format!("`{}` takes no `name = value` arguments; usage: {usage}", name.name)))
+                }
+            }
+        }
+        if out.len() != n {
+            return Err(SessionError::invalid(
+                name.span,
+                format!("`{}` takes {} argument{}, got {}; usage: {usage}", name.name, n, if n == 1 { "" } else { "s" }, out.len()),
+            ));
+        }
+        Ok(out)
+    }
+
+    /// Resolves an argument that must be a declared name of the given kinds.
+    fn symbol_arg(&self, e: &Ast, kinds: &[SymKind], what: &str) -> R<Sym> {
+        if let ExprKind::Name(n) = &e.kind {
+            if n == "t" {
+                return Ok(Sym::T);
+            }
+            if let Some(k) = self.sym_kind(n) {
+                if kinds.contains(&k) {
+                    return Ok(Sym::new(n));
+                }
+            }
+        }
+        Err(SessionError::invalid(e.span, format!("{what}")))
+    }
+
+    fn eval_call(&self, name: &Ident, args: &[Arg], span: Span) -> R<Value> {
+        let core = |err: CoreError| SessionError::core(span, err);
+        match name.name.as_str() {
+            f @ ("sin" | "cos" | "exp") => {
+                let a = self.pos_args(name, args, 1, &format!("{f}(x)"))?;
+                let x = self.eval_scalar(a[0], &format!("the argument of `{f}`"))?;
+                let r = match f {
+                    "sin" => Expr::sin_of(&x, &self.states),
+                    "cos" => Expr::cos_of(&x, &self.states),
+                    _ => Expr::exp_of(&x, &self.states),
+                };
+                Ok(Value::Scalar(r.map_err(|e| SessionError::core(a[0].span, e))?))
+            }
+            "ad" => {
+                let a = self.pos_args(name, args, 3, "ad(X, Y, k)")?;
+                let x = self.eval_field(a[0], "the first argument of `ad`")?;
+                let y = self.eval_field(a[1], "the second argument of `ad`")?;
+                let k = self.eval_count(a[2], "the power of `ad`")?;
+                if k < 0 {
+                    return Err(SessionError::invalid(a[2].span, "the power of `ad` must be non-negative"));
+                }
+                crate::core::limits::check_order(k as u64).map_err(|e| SessionError::core(a[2].span, e))?;
+                Ok(Value::field(x.field.ad_pow(&y.field, k as u64, &self.states).map_err(core)?))
+            }
+            "pd" => {
+                let a = self.pos_args(name, args, 2, "pd(h, q)")?;
+                let s = self.symbol_arg(
+                    a[1],
+                    &[SymKind::State, SymKind::Param],
+                    "the second argument of `pd` must be a state, a parameter or t",
+                )?;
+                match self.eval(a[0])? {
+                    Value::Scalar(h) => Ok(Value::Scalar(h.pd(s))),
+                    Value::Field(f) => Ok(Value::field(Field(f.field.0.iter().map(|c| c.pd(s)).collect()))),
+                    Value::Matrix(m) => Ok(Value::Matrix(Matrix { data: m.data.iter().map(|c| c.pd(s)).collect(), ..m })),
+                }
+            }
+            "jac" => {
+                let a = self.pos_args(name, args, 1, "jac(X)")?;
+                let x = self.eval_field(a[0], "the argument of `jac`")?;
+                Ok(Value::Matrix(x.field.jacobian(&self.states).map_err(core)?))
+            }
+            "div" => {
+                let a = self.pos_args(name, args, 1, "div(X)")?;
+                let x = self.eval_field(a[0], "the argument of `div`")?;
+                Ok(Value::Scalar(x.field.divergence(&self.states).map_err(core)?))
+            }
+            f @ ("det" | "trace") => {
+                let a = self.pos_args(name, args, 1, &format!("{f}(M)"))?;
+                let m = match self.eval(a[0])? {
+                    Value::Matrix(m) => m,
+                    other => return Err(kind_err(a[0].span, &format!("`{f}`"), &other, None)),
+                };
+                let r = if f == "det" { m.det() } else { m.trace() };
+                Ok(Value::Scalar(r.map_err(core)?))
+            }
+            "plug" => self.eval_plug(name, args, span),
+            "order" => {
+                let a = self.pos_args(name, args, 3, "order(e, eps, k)")?;
+                let s = self.symbol_arg(a[1], &[SymKind::Param, SymKind::State], "the second argument of `order` must be a parameter")?;
+                let k = self.eval_count(a[2], "the order")?;
+                let k = i32::try_from(k).map_err(|_| SessionError::invalid(a[2].span, "the order is out of range"))?;
+                Ok(match self.eval(a[0])? {
+                    Value::Scalar(x) => Value::Scalar(x.coeff_of_power(s, k)),
+                    Value::Field(f) => {
+                        let structure = f.structure.as_ref().map(|terms| {
+                            terms
+                                .iter()
+                                .filter_map(|t| {
+                                    let c = t.coeff.coeff_of_power(s, k);
+                                    (!c.is_zero()).then(|| super::value::BracketTerm { coeff: c, ..t.clone() })
+                                })
+                                .collect()
+                        });
+                        Value::Field(FieldValue {
+                            field: Field(f.field.0.iter().map(|c| c.coeff_of_power(s, k)).collect()),
+                            combo: None,
+                            structure,
+                        })
+                    }
+                    Value::Matrix(m) => Value::Matrix(Matrix { data: m.data.iter().map(|c| c.coeff_of_power(s, k)).collect(), ..m }),
+                })
+            }
+            "mean" => {
+                let a = self.pos_args(name, args, 1, "mean(e)")?;
+                let v = self.eval(a[0])?;
+                let exprs: Vec<&Expr> = match &v {
+                    Value::Scalar(x) => vec![x],
+                    Value::Field(f) => f.field.0.iter().collect(),
+                    Value::Matrix(m) => m.data.iter().collect(),
+                };
+                let mut freqs = Vec::new();
+                for x in &exprs {
+                    x.check_periodic().map_err(|e| SessionError::core(a[0].span, e))?;
+                    freqs.extend(x.frequencies());
+                }
+                let Some(period) = common_period(&freqs) else { return Ok(v) };
+                let m = |x: &Expr| x.mean_over(&period);
+                Ok(match v {
+                    Value::Scalar(x) => Value::Scalar(m(&x).map_err(core)?),
+                    Value::Field(f) => Value::field(f.field.map(m).map_err(core)?),
+                    Value::Matrix(mm) => Value::Matrix(Matrix { data: mm.data.iter().map(m).collect::<Result<_, _>>().map_err(core)?, ..mm }),
+                })
+            }
+            "bch" => self.eval_bch(name, args, span),
+            "iint" => {
+                let mut names = Vec::new();
+                for a in args {
+                    match a {
+                        Arg::Pos(Ast { kind: ExprKind::Name(n), .. }) if self.sym_kind(n) == Some(SymKind::Input) => names.push(n.clone()),
+                        Arg::Pos(Ast { kind: ExprKind::Num(n), .. }) if n == "1" => names.push("1".to_string()),
+                        Arg::Pos(e) | Arg::Bind(_, e) => {
+                            return Err(SessionError::invalid(e.span, "`iint` takes input names (declared with `input`) or 1"))
+                        }
+                    }
+                }
+                if names.is_empty() {
+                    return Err(SessionError::invalid(span, "`iint` needs at least one input"));
+                }
+                Ok(Value::Scalar(Expr::sym(Sym::new(&iint_name(&names)))))
+            }
+            other => {
+                if let Some(v) = self.names.get(other) {
+                    return self.apply_field(v.clone(), name.span, args, span);
+                }
+                if self.symbols.contains_key(other) {
+                    return Err(SessionError::invalid(
+                        name.span,
+                        format!("`{other}` is a symbol, not a field: it cannot be applied (write `{other}*(...)` for a product)"),
+                    ));
+                }
+                Err(self.unknown(other, name.span))
+            }
+        }
+    }
+
+    fn eval_plug(&self, name: &Ident, args: &[Arg], span: Span) -> R<Value> {
+        let mut target = None;
+        let mut map: HashMap<Sym, Expr> = HashMap::new();
+        for a in args {
+            match a {
+                Arg::Pos(e) if target.is_none() => target = Some(e),
+                Arg::Pos(e) => return Err(SessionError::invalid(e.span, "usage: plug(e, q = v, …)")),
+                Arg::Bind(id, v) => {
+                    let s = match id.name.as_str() {
+                        "t" => Sym::T,
+                        n if matches!(self.sym_kind(n), Some(SymKind::State | SymKind::Param)) => Sym::new(n),
+                        n => {
+                            return Err(SessionError::invalid(
+                                id.span,
+                                format!("`{n}` is not a state or a parameter: only those can be plugged"),
+                            ))
+                        }
+                    };
+                    let val = self.eval_scalar(v, "a plugged value")?;
+                    map.insert(s, val);
+                }
+            }
+        }
+        let Some(target) = target else {
+            return Err(SessionError::invalid(name.span, "usage: plug(e, q = v, …)"));
+        };
+        let core = |err: CoreError| SessionError::core(span, err);
+        let st = &self.states;
+        Ok(match self.eval(target)? {
+            Value::Scalar(x) => Value::Scalar(x.subst(&map, st).map_err(core)?),
+            Value::Field(f) => Value::field(f.field.map(|c| c.subst(&map, st)).map_err(core)?),
+            Value::Matrix(m) => Value::Matrix(Matrix {
+                data: m.data.iter().map(|c| c.subst(&map, st)).collect::<Result<_, _>>().map_err(core)?,
+                ..m
+            }),
+        })
+    }
+}
+
+fn unreachable_pow(span: Span) -> R<Value> {
+    Err(SessionError::invalid(span, "internal: power handled above"))
+}
+
+/// Multiplies a field value by a scalar, keeping its combination.
+pub(crate) fn scale_field_value(f: &FieldValue, s: &Expr) -> Result<FieldValue, CoreError> {
+    let field = f.field.mul_expr(s)?;
+    let combo = match &f.combo {
+        Some(c) => Some(Combo {
+            parts: c
+                .parts
+                .iter()
+                .map(|(n, g, k)| Ok((n.clone(), g.clone(), k.mul(s)?)))
+                .collect::<Result<_, CoreError>>()?,
+        }),
+        None => None,
+    };
+    Ok(FieldValue { field, combo, structure: None })
+}
+
+fn merge_combo(a: &Combo, b: &Combo, sign: &Q) -> Combo {
+    let mut parts = a.parts.clone();
+    for (n, g, k) in &b.parts {
+        match parts.iter_mut().find(|(m, _, _)| m == n) {
+            Some(p) => p.2 = p.2.add_scaled(k, sign),
+            None => parts.push((n.clone(), g.clone(), k.scale(sign))),
+        }
+    }
+    parts.retain(|(_, _, k)| !k.is_zero());
+    Combo { parts }
+}

@@ -1,0 +1,342 @@
+//! Execution of statements: declarations, definitions, printing, checks,
+//! `show`, session commands (`save`, `run`, `names`, `forget`, `help`,
+//! `set budget`). Series and numeric commands live in `commands`.
+
+use std::time::Instant;
+
+use super::ast::{Ident, Rhs, Stmt, StmtKind};
+use super::session::{ErrorKind, Report, Session, SessionError, Style, SymKind};
+use super::split::SourceStmt;
+use super::value::Value;
+use crate::core::limits::{self, Limits};
+use crate::core::Sym;
+use crate::render::{latex, plain};
+
+type R<T> = Result<T, SessionError>;
+
+impl Session {
+    pub(crate) fn execute_parsed(
+        &mut self,
+        stmt: &Stmt,
+        src: &SourceStmt,
+        origin: Option<&str>,
+        started: Instant,
+    ) -> R<Report> {
+        let mut report = Report::default();
+        match &stmt.kind {
+            StmtKind::State(ids) => self.declare_state(ids)?,
+            StmtKind::Param(ids) => self.declare(ids, SymKind::Param)?,
+            StmtKind::Input(ids) => self.declare(ids, SymKind::Input)?,
+            StmtKind::Define { names, rhs } => match rhs {
+                Rhs::Expr(e) => {
+                    if names.len() != 1 {
+                        return Err(SessionError::invalid(
+                            names[1].span,
+                            "only a command with two results (`average … with transform`) binds two names",
+                        ));
+                    }
+                    let v = self.eval(e)?;
+                    self.bind(&names[0], v, &mut report)?;
+                }
+                Rhs::Command(c) => self.run_command(c, names, &mut report, started)?,
+            },
+            StmtKind::Print(e) => {
+                let v = self.eval(e)?;
+                report.push(Style::Result, plain::value(&v));
+            }
+            StmtKind::Run(c) => self.run_command(c, &[], &mut report, started)?,
+            StmtKind::Check { lhs, rhs } => self.check(lhs, rhs, &mut report, src, origin)?,
+            StmtKind::Show { expr, how } => {
+                let v = self.eval(expr)?;
+                match how.name.as_str() {
+                    "latex" => report.push(Style::Result, latex::value(&v)),
+                    "brackets" => match &v {
+                        Value::Field(f) => match &f.structure {
+                            Some(terms) => report.push(Style::Result, super::structural::show_terms(terms)),
+                            None => {
+                                return Err(SessionError::invalid(
+                                    expr.span,
+                                    "no bracket form: it exists for results of `magnus`, `average` and `bch` \
+                                     on systems written as Σ c_i(t)*X_i with named fields X_i",
+                                ))
+                            }
+                        },
+                        _ => {
+                            return Err(SessionError::invalid(
+                                expr.span,
+                                format!("a {} has no bracket form", v.kind_name()),
+                            ))
+                        }
+                    },
+                    other => {
+                        return Err(SessionError::invalid(
+                            how.span,
+                            format!("unknown display `{other}`: use `latex` or `brackets`"),
+                        ))
+                    }
+                }
+            }
+            StmtKind::Save(path) => {
+                if !self.replaying {
+                    let p = self.resolve_path(&path.path);
+                    let mut text = self.accepted.join("\n");
+                    text.push('\n');
+                    crate::lang::files::write_atomic(&p, text.as_bytes()).map_err(|e| {
+                        SessionError::at(path.span, ErrorKind::File { path: path.path.clone(), reason: e })
+                    })?;
+                    report.push(Style::Note, format!("saved {} lines to {}", self.accepted.len(), path.path));
+                }
+            }
+            StmtKind::RunFile(path) => self.run_file(&path.path, path.span, &mut report)?,
+            StmtKind::Names => self.list_names(&mut report),
+            StmtKind::Forget(id) => {
+                if self.names.remove(&id.name).is_none() {
+                    return Err(SessionError::at(
+                        id.span,
+                        ErrorKind::UnknownName { name: id.name.clone(), suggestion: self.suggest(&id.name) },
+                    ));
+                }
+                self.order.retain(|n| n != &id.name);
+                report.push(Style::Note, format!("forgot {}", id.name));
+            }
+            StmtKind::Help(word) => {
+                let text = super::help::help(word.as_ref().map(|w| w.name.as_str()))
+                    .ok_or_else(|| {
+                        let w = word.as_ref().map_or(String::new(), |w| w.name.clone());
+                        SessionError::invalid(
+                            word.as_ref().map_or(stmt.span, |w| w.span),
+                            format!("no help for `{w}`; `help` lists the topics"),
+                        )
+                    })?;
+                for l in text.lines() {
+                    report.push(Style::Plain, l);
+                }
+            }
+            StmtKind::SetBudget(n) => {
+                if n.value == 0 {
+                    return Err(SessionError::invalid(n.span, "the budget must be positive"));
+                }
+                let mut l: Limits = limits::limits();
+                l.max_terms = usize::try_from(n.value).unwrap_or(usize::MAX);
+                limits::set_limits(l);
+                report.push(Style::Note, format!("term budget {}", n.value));
+            }
+            StmtKind::Quit => report.quit = true,
+        }
+        Ok(report)
+    }
+
+    fn check_new_name(&self, id: &Ident, allow_redefine_value: bool) -> R<()> {
+        if let Some(k) = self.symbols.get(&id.name) {
+            let what = match k {
+                SymKind::State => "a state coordinate",
+                SymKind::Param => "a parameter",
+                SymKind::Input => "an input",
+            };
+            return Err(SessionError::invalid(id.span, format!("`{}` is already {what}", id.name)));
+        }
+        if !allow_redefine_value && self.names.contains_key(&id.name) {
+            return Err(SessionError::invalid(id.span, format!("`{}` is already defined (use `forget {}` first)", id.name, id.name)));
+        }
+        if super::eval::BUILTINS.contains(&id.name.as_str()) {
+            return Err(SessionError::invalid(id.span, format!("`{}` is a built-in function", id.name)));
+        }
+        Ok(())
+    }
+
+    fn declare_state(&mut self, ids: &[Ident]) -> R<()> {
+        let new: Vec<String> = ids.iter().map(|i| i.name.clone()).collect();
+        let old: Vec<String> = self.states.iter().map(|s| s.name()).collect();
+        if new == old {
+            return Ok(());
+        }
+        if !self.states.is_empty() && self.names.values().any(|v| !matches!(v, Value::Scalar(_))) {
+            return Err(SessionError::invalid(
+                ids.first().map_or_else(Default::default, |i| i.span),
+                format!(
+                    "the state is ({}) and fields or matrices are defined on it: changing it would \
+                     invalidate them (start a new session, or `forget` them first)",
+                    old.join(", ")
+                ),
+            ));
+        }
+        for (i, id) in ids.iter().enumerate() {
+            if ids[..i].iter().any(|j| j.name == id.name) {
+                return Err(SessionError::invalid(id.span, format!("`{}` is listed twice", id.name)));
+            }
+            if self.symbols.get(&id.name) != Some(&SymKind::State) {
+                self.check_new_name(id, false)?;
+            }
+        }
+        for s in &old {
+            self.symbols.remove(s);
+        }
+        self.states = ids.iter().map(|i| Sym::new(&i.name)).collect();
+        for id in ids {
+            self.symbols.insert(id.name.clone(), SymKind::State);
+        }
+        Ok(())
+    }
+
+    fn declare(&mut self, ids: &[Ident], kind: SymKind) -> R<()> {
+        for id in ids {
+            if self.symbols.get(&id.name) == Some(&kind) {
+                continue;
+            }
+            self.check_new_name(id, false)?;
+        }
+        for id in ids {
+            Sym::new(&id.name);
+            self.symbols.insert(id.name.clone(), kind);
+        }
+        Ok(())
+    }
+
+    /// Binds a value to a name, saying so when it replaces an old value.
+    pub(crate) fn bind(&mut self, id: &Ident, v: Value, report: &mut Report) -> R<()> {
+        self.check_new_name(id, true)?;
+        let summary = self.describe(&v);
+        if self.names.insert(id.name.clone(), v).is_some() {
+            report.push(Style::Note, format!("{}: {summary} (replaces the previous {})", id.name, id.name));
+        } else {
+            self.order.push(id.name.clone());
+            report.push(Style::Note, format!("{}: {summary}", id.name));
+        }
+        Ok(())
+    }
+
+    /// A one-line description of a value's kind.
+    pub(crate) fn describe(&self, v: &Value) -> String {
+        match v {
+            Value::Scalar(e) => {
+                let tv = if e.is_time_varying() { "time-varying scalar" } else { "scalar" };
+                format!("{tv}, {} term{}", e.len(), if e.len() == 1 { "" } else { "s" })
+            }
+            Value::Field(f) => {
+                let tv = f.field.0.iter().any(|e| e.is_time_varying());
+                let mut s = format!(
+                    "{}field on ({}), {} terms",
+                    if tv { "time-varying " } else { "" },
+                    self.state_list(),
+                    f.field.n_terms()
+                );
+                if tv {
+                    let exprs: Vec<&crate::core::Expr> = f.field.0.iter().collect();
+                    if let Some(p) = crate::series::chrono::period_of(&exprs) {
+                        if f.field.0.iter().all(|e| e.check_periodic().is_ok()) {
+                            s.push_str(&format!(", period {p}"));
+                        }
+                    }
+                }
+                s
+            }
+            Value::Matrix(m) => format!("{}x{} matrix", m.rows, m.cols),
+        }
+    }
+
+    fn list_names(&self, report: &mut Report) {
+        let by_kind = |k: SymKind| -> Vec<String> {
+            self.symbols.iter().filter(|(_, v)| **v == k).map(|(n, _)| n.clone()).collect()
+        };
+        if !self.states.is_empty() {
+            report.push(Style::Plain, format!("state  {}", self.state_list()));
+        }
+        let params = by_kind(SymKind::Param);
+        if !params.is_empty() {
+            report.push(Style::Plain, format!("param  {}", params.join(", ")));
+        }
+        let inputs = by_kind(SymKind::Input);
+        if !inputs.is_empty() {
+            report.push(Style::Plain, format!("input  {}", inputs.join(", ")));
+        }
+        for n in &self.order {
+            if let Some(v) = self.names.get(n) {
+                report.push(Style::Plain, format!("{n}: {}", self.describe(v)));
+            }
+        }
+        if report.lines.is_empty() {
+            report.push(Style::Plain, "nothing declared or defined yet");
+        }
+    }
+
+    fn check(
+        &self,
+        lhs: &super::ast::Expr,
+        rhs: &super::ast::Expr,
+        report: &mut Report,
+        src: &SourceStmt,
+        origin: Option<&str>,
+    ) -> R<()> {
+        let a = self.eval(lhs)?;
+        let b = self.eval(rhs)?;
+        let span = lhs.span.join(rhs.span);
+        let core = |e| SessionError::core(span, e);
+        let diff: Option<Value> = match (&a, &b) {
+            (Value::Scalar(x), Value::Scalar(y)) => {
+                let d = x.sub(y);
+                (!d.is_zero()).then_some(Value::Scalar(d))
+            }
+            (Value::Field(x), Value::Field(y)) => {
+                let d = x.field.sub(&y.field).map_err(core)?;
+                (!d.is_zero()).then_some(Value::field(d))
+            }
+            (Value::Matrix(x), Value::Matrix(y)) => {
+                let d = x.add_scaled(y, &crate::core::Q::int(-1)).map_err(core)?;
+                (!d.is_zero()).then_some(Value::Matrix(d))
+            }
+            _ => {
+                return Err(SessionError::at(
+                    span,
+                    ErrorKind::Kind { op: "`==`".to_string(), left: a.kind_name(), right: Some(b.kind_name()) },
+                ))
+            }
+        };
+        match diff {
+            None => report.push(Style::Pass, "holds"),
+            Some(d) => {
+                report.check_failed = true;
+                let (line, _) = src.locate(0);
+                let place = match origin {
+                    Some(o) => format!("{o}:{line}"),
+                    None => format!("line {line}"),
+                };
+                report.push(Style::Fail, format!("check failed at {place}: {}", src.text.trim()));
+                report.push(Style::Fail, format!("  left:       {}", plain::value(&a)));
+                report.push(Style::Fail, format!("  right:      {}", plain::value(&b)));
+                report.push(Style::Fail, format!("  difference: {}", plain::value(&d)));
+            }
+        }
+        Ok(())
+    }
+
+    fn run_file(&mut self, path: &str, span: super::ast::Span, report: &mut Report) -> R<()> {
+        if self.run_depth >= 16 {
+            return Err(SessionError::invalid(span, "`run` is nested more than 16 deep (a script runs itself?)"));
+        }
+        let p = self.resolve_path(path);
+        let text = crate::lang::files::read_script(&p)
+            .map_err(|reason| SessionError::at(span, ErrorKind::File { path: path.to_string(), reason }))?;
+        self.run_depth += 1;
+        let mut events = Vec::new();
+        let status = self.run_text(&text, Some(path), &mut |e| events.push(e));
+        self.run_depth -= 1;
+        let mut nested_error = None;
+        for e in events {
+            match e {
+                super::session::Event::Report(r) => {
+                    report.lines.extend(r.lines);
+                    report.check_failed |= r.check_failed;
+                    report.journal.extend(r.journal);
+                }
+                super::session::Event::Error(msg) => nested_error = Some(msg),
+            }
+        }
+        if let Some(msg) = nested_error {
+            return Err(SessionError::at(span, ErrorKind::Nested(msg)));
+        }
+        if status.quit {
+            report.quit = true;
+        }
+        Ok(())
+    }
+}

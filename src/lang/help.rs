@@ -1,0 +1,65 @@
+//! Help texts: `help` lists the topics, `help WORD` explains one with an
+//! example. The averaging and validation topics carry the safety caution.
+
+const CAUTION: &str = "\
+caution: an averaged model is an approximation, valid only for fast enough
+oscillation (small enough eps). Before a result drives a real machine,
+validate it numerically (`compare`), then physically, and follow the
+applicable engineering codes and licensed professional practice.";
+
+const TOPICS: &[(&str, &str)] = &[
+    ("state", "state q, p\n  declare the state coordinates, in this order (fields list one entry per coordinate).\n  Changing the state after fields exist is refused."),
+    ("param", "param eps, k\n  declare exact symbolic constants; negative integer powers (eps^-1) are allowed."),
+    ("input", "input u1, u2\n  declare unspecified time functions; `flow` then gives the Chen–Fliess series with\n  iterated integrals iint(u1, u2) (first argument at the latest time).\n  example: input u1\n           flow u1*[1, x] on y to 2"),
+    ("define", "NAME = EXPRESSION\n  bind a value (scalar, field or matrix); redefining replaces it (and says so).\n  example: X = [p, -q]"),
+    ("flow", "flow V on h to N   |   flow V to N\n  the chronological expansion of h(x(t)) for x' = V(t, x), x(0) = x, term by term to order N\n  (earliest time outermost); without `on`, every coordinate.\n  example: flow cos(t)*[1, 0] + [0, q] on p to 3"),
+    ("magnus", "magnus V to N [over T]\n  the chronological logarithm W_T (exp(W_T) = the time-T flow) by order; T is the period by default.\n  When V = Σ c_i(t)*X_i with named fields, `show W as brackets` gives the Lie polynomial.\n  example: W = magnus cos(t)*X + sin(t)*Y to 3"),
+    ("average", "average V to N in eps [strobo | classic] [depth D]\nA, W = average V to N in eps classic with transform\n  higher-order averaging of x' = f_0 + Σ eps^j f_j (T-periodic in t).\n  forms: standard (f_0 = 0), fast oscillation (f_0 = Σ u_i(t) g_i, zero-mean u_i, commuting g_i),\n  linear centre (f_0 = A x with eigenvalues ±i*k).\n  strobo (default): the field whose time-T flow is the period map; classic: zero-mean\n  near-identity transform x = y + W(t, y).\n  example: A = average eps*[p, -q + cos(t)*q^2] to 2 in eps\n           order(A, eps, 1)"),
+    ("carleman", "carleman X degree d\n  the finite section of h -> X(h) on monomials of degree <= d (1 first, graded lexicographic);\n  column j holds the coefficients of X(m_j).\n  example: carleman [p, -q - q^2] degree 2"),
+    ("simulate", "simulate V from q=1, p=0 for L [with eps=1/20, k=1] [plot FILE.svg]\n  integrate x' = V numerically (adaptive Runge–Kutta of order 5) over [0, L] and print a table;\n  `plot` writes an SVG."),
+    ("compare", "compare S with A from q=1, p=0 for L [with k=1] sweep eps=0.2,0.1,0.05 [tol E] [plot FILE.svg]\n  integrate the system S and each order of the averaged model A at multiples of the period over\n  the slow horizon L/eps, print the error per eps and order, the fitted slope of log(error)\n  against log(eps) per order, and with `tol` the largest eps whose error meets it."),
+    ("stability", "stability F at q=pi, p=0 [with k=1]\n  the exact Jacobian of F at the point and its eigenvalues (numerically when every parameter\n  has a value, else the exact characteristic polynomial)."),
+    ("check", "check A == B\n  exact comparison of normal forms; a failure shows both sides and the difference\n  (a script goes on, and exits with status 1)."),
+    ("show", "show E as latex   |   show A as brackets\n  LaTeX for papers; the Lie-polynomial form of a result written over named fields."),
+    ("save", "save FILE\n  write the session's accepted lines as a script (atomically)."),
+    ("run", "run FILE\n  replay a script into this session."),
+    ("names", "names\n  list declarations and definitions."),
+    ("forget", "forget NAME\n  remove a definition."),
+    ("set", "set budget N\n  the most terms one result may hold before the computation stops with a message."),
+    ("quit", "quit\n  leave the prompt (Ctrl-D too)."),
+    ("builtins", "built-in functions\n  sin cos exp (of linear arguments), ad(X, Y, k), pd(h, q), jac(X), div(X), det(M), trace(M),\n  plug(e, q = v, ...), order(e, eps, k), mean(e), bch(X, Y, N), iint(u1, ...), X(h) (Lie derivative),\n  [X, Y] (Lie bracket: [X,Y](h) = X(Y(h)) - Y(X(h)))."),
+];
+
+/// The help text for `word`, or the topic list for `None`; `None` when
+/// the word has no help.
+pub fn help(word: Option<&str>) -> Option<String> {
+    match word {
+        None => {
+            let words: Vec<&str> = TOPICS.iter().map(|(w, _)| *w).collect();
+            Some(format!(
+                "ordex: exact series computations on time-varying systems.\nhelp topics: {}\ntype `help WORD` for one of them.",
+                words.join(", ")
+            ))
+        }
+        Some(w) => {
+            let key = match w {
+                "sin" | "cos" | "exp" | "ad" | "pd" | "jac" | "div" | "det" | "trace" | "plug" | "order"
+                | "mean" | "bch" | "iint" => "builtins",
+                "budget" => "set",
+                other => other,
+            };
+            let (_, text) = TOPICS.iter().find(|(k, _)| *k == key)?;
+            let mut s = text.to_string();
+            if matches!(key, "average" | "compare" | "stability") {
+                s.push('\n');
+                s.push_str(CAUTION);
+            }
+            Some(s)
+        }
+    }
+}
+
+/// The caution shown in the README and in help texts.
+pub fn caution() -> &'static str {
+    CAUTION
+}

@@ -1,0 +1,20 @@
+//! The command language: syntax (tree, parser, splitter, diagnostics),
+//! values, evaluation and the session.
+//!
+//! Architecture invariant: the parser never evaluates and the evaluator
+//! never sees raw text; the session returns reports and never prints.
+
+pub mod ast;
+pub mod commands;
+pub mod diag;
+pub mod eval;
+pub mod exec;
+pub mod files;
+pub mod help;
+pub mod parse;
+pub mod session;
+pub mod split;
+pub mod structural;
+pub mod value;
+
+pub use session::{Event, Report, RunStatus, Session, Style};

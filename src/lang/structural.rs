@@ -1,0 +1,380 @@
+//! The structural (free Lie) route: Chen series of iterated integrals of
+//! the time coefficients of a field written `Σ c_i(t) X_i` over named
+//! fields, its logarithm in the Lyndon basis, and the display of Lie
+//! polynomials in the names (DESIGN §2.7); the Chen–Fliess series with
+//! unspecified inputs; and `bch`.
+
+use std::cell::RefCell;
+use std::num::NonZeroU64;
+
+use super::ast::{Arg, ExprKind, Ident, Span};
+use super::session::{Session, SessionError};
+use super::value::{BracketTerm, Combo, FieldValue, Value};
+use crate::core::calc::Period;
+use crate::core::{CoreError, CoreResult, Expr, Field, Q, Sym};
+use crate::render::latex;
+use crate::series::chrono;
+use crate::series::freelie::{self, Alphabet, Bracket, Coeff, FreeLieError, LiePoly, Tensor};
+
+thread_local! {
+    static COEFF_ERROR: RefCell<Option<CoreError>> = const { RefCell::new(None) };
+}
+
+fn note_error(e: CoreError) {
+    COEFF_ERROR.with(|c| {
+        let mut c = c.borrow_mut();
+        if c.is_none() {
+            *c = Some(e);
+        }
+    });
+}
+
+fn take_error() -> Option<CoreError> {
+    COEFF_ERROR.with(|c| c.borrow_mut().take())
+}
+
+/// Exact expressions as free-Lie coefficients. A product that trips a
+/// limit is recorded and surfaces as an error after the computation.
+impl Coeff for Expr {
+    fn zero() -> Self {
+        Expr::zero()
+    }
+    fn one() -> Self {
+        Expr::int(1)
+    }
+    fn is_zero(&self) -> bool {
+        Expr::is_zero(self)
+    }
+    fn add(&self, o: &Self) -> Self {
+        Expr::add(self, o)
+    }
+    fn sub(&self, o: &Self) -> Self {
+        Expr::sub(self, o)
+    }
+    fn mul(&self, o: &Self) -> Self {
+        Expr::mul(self, o).unwrap_or_else(|e| {
+            note_error(e);
+            Expr::zero()
+        })
+    }
+    fn neg(&self) -> Self {
+        Expr::neg(self)
+    }
+    fn scale(&self, num: i64, den: NonZeroU64) -> Self {
+        let q = Q::ratio(num, den.get() as i64).unwrap_or(Q::ZERO);
+        Expr::scale(self, &q)
+    }
+}
+
+fn lie_err(e: FreeLieError) -> CoreError {
+    CoreError::Refused { reason: format!("free Lie algebra: {e}") }
+}
+
+fn checked<T>(r: Result<T, FreeLieError>) -> CoreResult<T> {
+    let v = r.map_err(lie_err)?;
+    match take_error() {
+        Some(e) => Err(e),
+        None => Ok(v),
+    }
+}
+
+/// Renders a bracket of names.
+fn bracket_text(b: &Bracket, names: &[String]) -> (String, String) {
+    let plain = b.render(&|l| names.get(l as usize).cloned().unwrap_or_default());
+    let tex = b.render(&|l| latex::name(names.get(l as usize).map_or("", String::as_str)));
+    (plain, tex.replace('[', "\\left[").replace(']', "\\right]"))
+}
+
+/// Turns a Lie polynomial into display terms.
+fn to_terms(poly: &LiePoly<Expr>, names: &[String]) -> Vec<BracketTerm> {
+    poly.terms()
+        .iter()
+        .filter_map(|(w, c)| {
+            let b = freelie::standard_bracketing(w)?;
+            let (bracket, latex) = bracket_text(&b, names);
+            Some(BracketTerm { coeff: c.clone(), bracket, latex })
+        })
+        .collect()
+}
+
+/// The plain display of a Lie polynomial, e.g. `eps^2*(1/2)*[X1, X2]`.
+pub fn show_terms(terms: &[BracketTerm]) -> String {
+    if terms.is_empty() {
+        return "0".to_string();
+    }
+    let mut s = String::new();
+    for (i, t) in terms.iter().enumerate() {
+        let c = t.coeff.to_string();
+        let simple = t.coeff.len() == 1;
+        let (neg, body) = if simple && c.starts_with('-') { (true, c[1..].to_string()) } else { (false, c) };
+        if i > 0 {
+            s.push_str(if neg { " - " } else { " + " });
+        } else if neg {
+            s.push('-');
+        }
+        if body == "1" {
+            s.push_str(&t.bracket);
+        } else if simple {
+            s.push_str(&format!("{body}*{}", t.bracket));
+        } else {
+            s.push_str(&format!("({body})*{}", t.bracket));
+        }
+    }
+    s
+}
+
+/// Weight of a letter: the lowest power of `eps` in its coefficient (≥ 1),
+/// or 1 without a grading parameter.
+fn letter_weight(c: &Expr, eps: Option<Sym>) -> CoreResult<u32> {
+    let Some(eps) = eps else { return Ok(1) };
+    match c.power_range(eps) {
+        Some((lo, _)) if lo >= 1 => Ok(lo as u32),
+        _ => Err(CoreError::Refused {
+            reason: format!("the coefficient `{c}` has no positive power of {}", eps.name()),
+        }),
+    }
+}
+
+/// Drops powers of eps above `n`.
+fn truncate_eps(e: &Expr, eps: Option<Sym>, n: usize) -> Expr {
+    match eps {
+        None => e.clone(),
+        Some(s) => e.filter(|k, _| k.mono.exp_of(s) <= n as i32),
+    }
+}
+
+/// The logarithm of the Chen series of `Σ c_i(t) X_i` over `[0, T]` in the
+/// Lyndon basis of the names, divided by `T` when `eps` (averaging) is given.
+pub fn magnus_structure(
+    combo: &Combo,
+    n: usize,
+    horizon: &Expr,
+    period: Option<&Period>,
+    eps: Option<Sym>,
+    states: &[Sym],
+) -> CoreResult<Option<Vec<BracketTerm>>> {
+    if combo.parts.is_empty() || combo.parts.len() > 16 {
+        return Ok(None);
+    }
+    // The letters' coefficients must not depend on the state.
+    for (_, _, c) in &combo.parts {
+        if c.symbols().iter().any(|s| states.contains(s)) {
+            return Ok(None);
+        }
+    }
+    let weights: Vec<u32> =
+        combo.parts.iter().map(|(_, _, c)| letter_weight(c, eps)).collect::<CoreResult<_>>()?;
+    let alphabet = Alphabet::new(weights.clone()).map_err(lie_err)?;
+    let max_w = n as u32;
+    // Iterated integrals by prefix: I(w a)(t) = ∫_0^t I(w)(s) c_a(s) ds,
+    // the first letter at the earliest time.
+    let mut terms: Vec<(Vec<u16>, Expr)> = vec![(Vec::new(), Expr::int(1))];
+    let mut frontier: Vec<(Vec<u16>, Expr, u32)> = vec![(Vec::new(), Expr::int(1), 0)];
+    while let Some((word, integral, w)) = frontier.pop() {
+        crate::core::limits::poll()?;
+        for (a, (_, _, c)) in combo.parts.iter().enumerate() {
+            let wa = w + weights[a];
+            if wa > max_w {
+                continue;
+            }
+            let integrand = truncate_eps(&integral.mul(c)?, eps, n);
+            let next = integrand.integral_from_zero()?;
+            if next.is_zero() {
+                continue;
+            }
+            let mut nw = word.clone();
+            nw.push(a as u16);
+            let at_end = match period {
+                Some(p) => next.at_time_pi_multiple(&p.0)?,
+                None => chrono::at_time(&next, horizon, states)?,
+            };
+            terms.push((nw.clone(), at_end));
+            frontier.push((nw, next, wa));
+        }
+    }
+    let chen = Tensor::from_terms(terms);
+    let log = checked(freelie::chronological_log(&chen, &alphabet, max_w))?;
+    let log = log.map_coeffs(|c| truncate_eps(&c, eps, n));
+    let log = if eps.is_some() {
+        let t = horizon.recip()?;
+        let mut err = None;
+        let out = log.map_coeffs(|c| {
+            c.mul(&t).unwrap_or_else(|e| {
+                err = Some(e);
+                Expr::zero()
+            })
+        });
+        if let Some(e) = err {
+            return Err(e);
+        }
+        out
+    } else {
+        log
+    };
+    let names: Vec<String> = combo.parts.iter().map(|(n, _, _)| n.clone()).collect();
+    Ok(Some(to_terms(&log, &names)))
+}
+
+/// The classical averaged field in bracket form, orders 1 and 2
+/// (G_1 = Σ mean(a_i) X_i, G_2 = Σ_{i<j} −mean(a_i A_j) [X_i, X_j] + Σ mean(b_i) X_i).
+pub fn classic_structure(combo: &Combo, n: usize, period: &Period, eps: Sym) -> CoreResult<Option<Vec<BracketTerm>>> {
+    if n > 2 {
+        return Ok(None);
+    }
+    let names: Vec<String> = combo.parts.iter().map(|(n, _, _)| n.clone()).collect();
+    let a: Vec<Expr> = combo.parts.iter().map(|(_, _, c)| c.coeff_of_power(eps, 1)).collect();
+    let b: Vec<Expr> = combo.parts.iter().map(|(_, _, c)| c.coeff_of_power(eps, 2)).collect();
+    for (_, _, c) in &combo.parts {
+        if let Some((lo, _)) = c.power_range(eps) {
+            if lo < 1 {
+                return Ok(None);
+            }
+        }
+    }
+    let e1 = Expr::sym(eps);
+    let e2 = e1.pow(2)?;
+    let mut poly: Vec<(Vec<u16>, Expr)> = Vec::new();
+    for (i, ai) in a.iter().enumerate() {
+        let mut c = ai.mean_over(period)?.mul(&e1)?;
+        if n >= 2 {
+            c = c.add(&b[i].mean_over(period)?.mul(&e2)?);
+        }
+        poly.push((vec![i as u16], c));
+    }
+    if n >= 2 {
+        let big_a: Vec<Expr> = a
+            .iter()
+            .map(|ai| {
+                let osc = ai.sub(&ai.mean_over(period)?);
+                osc.zero_mean_antiderivative(period)
+            })
+            .collect::<CoreResult<_>>()?;
+        for i in 0..a.len() {
+            for j in i + 1..a.len() {
+                let m = a[i].mul(&big_a[j])?.mean_over(period)?;
+                poly.push((vec![i as u16, j as u16], m.neg().mul(&e2)?));
+            }
+        }
+    }
+    let alphabet = Alphabet::uniform(names.len() as u16);
+    let lp = LiePoly::from_terms(poly.into_iter().filter(|(_, c)| !c.is_zero()), &alphabet).map_err(lie_err)?;
+    Ok(Some(to_terms(&lp, &names)))
+}
+
+/// Terms `k = 1..=n` of the Chen–Fliess series of `h` along
+/// `V = X_0 + Σ_i u_i X_i` with unspecified inputs `u_i`.
+pub fn chen_fliess_terms(v: &Field, h: &Expr, n: usize, inputs: &[Sym], states: &[Sym]) -> CoreResult<Vec<Expr>> {
+    crate::core::limits::check_order(n as u64)?;
+    let mut letters: Vec<(String, Field)> = Vec::new();
+    let mut drift = v.clone();
+    for u in inputs {
+        let mut xu = Vec::with_capacity(v.dim());
+        for c in &v.0 {
+            if let Some((lo, hi)) = c.power_range(*u) {
+                if lo < 0 || hi > 1 {
+                    return Err(CoreError::Refused {
+                        reason: format!("the input `{}` must enter linearly (found a power {} in `{c}`)", u.name(), if hi > 1 { hi } else { lo }),
+                    });
+                }
+            }
+            xu.push(c.coeff_of_power(*u, 1));
+        }
+        let xu = Field(xu);
+        for other in inputs {
+            if xu.0.iter().any(|c| c.mentions(*other)) {
+                return Err(CoreError::Refused { reason: "products of inputs are not supported: V must be X_0 + Σ u_i X_i".to_string() });
+            }
+        }
+        drift = drift.sub(&xu.mul_expr(&Expr::sym(*u))?)?;
+        letters.push((u.name(), xu));
+    }
+    if !drift.is_zero() {
+        letters.insert(0, ("1".to_string(), drift));
+    }
+    for (_, f) in &letters {
+        if f.0.iter().any(Expr::is_time_varying) {
+            return Err(CoreError::Refused { reason: "with inputs, the fields X_i must be autonomous (time enters through the inputs)".to_string() });
+        }
+    }
+    let mut out = vec![Expr::zero(); n];
+    // Depth-first over words (first letter = latest time acts first on h).
+    let mut stack: Vec<(Vec<usize>, Expr)> = vec![(Vec::new(), h.clone())];
+    while let Some((word, d)) = stack.pop() {
+        crate::core::limits::poll()?;
+        if word.len() == n {
+            continue;
+        }
+        for (i, (_, f)) in letters.iter().enumerate() {
+            let next = f.lie_derivative(&d, states)?;
+            if next.is_zero() {
+                continue;
+            }
+            let mut w = word.clone();
+            w.push(i);
+            let names: Vec<String> = w.iter().map(|j| letters[*j].0.clone()).collect();
+            let coeff = Expr::sym(Sym::new(&super::eval::iint_name(&names)));
+            out[w.len() - 1] = out[w.len() - 1].add(&coeff.mul(&next)?);
+            crate::core::limits::check_terms(out[w.len() - 1].len())?;
+            stack.push((w, next));
+        }
+    }
+    Ok(out)
+}
+
+impl Session {
+    /// `bch(X, Y, N)`: log(e^X e^Y) to degree N, concrete and structural.
+    pub(crate) fn eval_bch(&self, name: &Ident, args: &[Arg], span: Span) -> Result<Value, SessionError> {
+        let pos: Vec<&super::ast::Expr> = args
+            .iter()
+            .filter_map(|a| if let Arg::Pos(e) = a { Some(e) } else { None })
+            .collect();
+        if pos.len() != 3 || pos.len() != args.len() {
+            return Err(SessionError::invalid(name.span, "usage: bch(X, Y, N)"));
+        }
+        let x = self.eval_field(pos[0], "the first argument of `bch`")?;
+        let y = self.eval_field(pos[1], "the second argument of `bch`")?;
+        let n = self.eval_count(pos[2], "the degree of `bch`")?;
+        if n < 1 {
+            return Err(SessionError::invalid(pos[2].span, "the degree of `bch` must be at least 1"));
+        }
+        crate::core::limits::check_order(n as u64).map_err(|e| SessionError::core(pos[2].span, e))?;
+        let core = |e: CoreError| SessionError::core(span, e);
+        let poly: LiePoly<Expr> = checked(freelie::bch(n as u32)).map_err(core)?;
+        let label = |e: &super::ast::Expr, d: &str| match &e.kind {
+            ExprKind::Name(n) => n.clone(),
+            _ => d.to_string(),
+        };
+        let names = vec![label(pos[0], "X"), label(pos[1], "Y")];
+        let fields = [x.field.clone(), y.field.clone()];
+        let states = &self.states;
+        let value = freelie::evaluate(
+            &poly,
+            |l| Ok::<Field, BchError>(fields[l as usize].clone()),
+            |a, b| a.bracket(b, states).map_err(BchError::Core),
+            |acc, c, v| {
+                let scaled = v.mul_expr(c).map_err(BchError::Core)?;
+                match acc {
+                    None => Ok(scaled),
+                    Some(a) => a.add(&scaled).map_err(BchError::Core),
+                }
+            },
+        )
+        .map_err(|e| match e {
+            BchError::Core(c) => core(c),
+            BchError::Lie(l) => core(lie_err(l)),
+        })?
+        .unwrap_or_else(|| Field::zero(states.len()));
+        Ok(Value::Field(FieldValue { field: value, combo: None, structure: Some(to_terms(&poly, &names)) }))
+    }
+}
+
+enum BchError {
+    Core(CoreError),
+    Lie(FreeLieError),
+}
+
+impl From<FreeLieError> for BchError {
+    fn from(e: FreeLieError) -> Self {
+        BchError::Lie(e)
+    }
+}

@@ -1,0 +1,77 @@
+//! Values held by a session and produced by evaluation.
+//!
+//! Kinds: scalar, field, matrix (each possibly time-varying). A field may
+//! remember how it was written as `Σ c_i(t) X_i` over named fields (its
+//! combination, used by the structural free-Lie route) and may carry a
+//! structural display (a Lie polynomial in names) when it is the result of
+//! `magnus`, `average` or `bch`.
+
+use crate::core::{Expr, Field, Matrix};
+
+/// A linear combination `Σ c_i X_i` of named fields with scalar
+/// coefficients free of the state (functions of time and parameters).
+#[derive(Clone, Debug, PartialEq)]
+pub struct Combo {
+    /// `(name, value of the field, coefficient)` in order of first appearance.
+    pub parts: Vec<(String, Field, Expr)>,
+}
+
+/// One term of a structural display: a coefficient times a bracket of names.
+#[derive(Clone, Debug, PartialEq)]
+pub struct BracketTerm {
+    /// The coefficient (may contain eps, pi and parameters).
+    pub coeff: Expr,
+    /// The bracket in input syntax, e.g. `[X1, [X1, X2]]`.
+    pub bracket: String,
+    /// The bracket in LaTeX.
+    pub latex: String,
+}
+
+/// A field value with its optional structure.
+#[derive(Clone, Debug, PartialEq)]
+pub struct FieldValue {
+    /// The concrete field.
+    pub field: Field,
+    /// How it was written over named fields, when known.
+    pub combo: Option<Combo>,
+    /// A structural display (Lie polynomial), when known.
+    pub structure: Option<Vec<BracketTerm>>,
+}
+
+/// A value.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Value {
+    /// A scalar expression.
+    Scalar(Expr),
+    /// A vector field.
+    Field(FieldValue),
+    /// A matrix.
+    Matrix(Matrix),
+}
+
+impl Value {
+    /// A plain field without structure.
+    pub fn field(f: Field) -> Value {
+        Value::Field(FieldValue { field: f, combo: None, structure: None })
+    }
+
+    /// The kind's name for messages.
+    pub fn kind_name(&self) -> &'static str {
+        match self {
+            Value::Scalar(e) if e.is_time_varying() => "time-varying scalar",
+            Value::Scalar(_) => "scalar",
+            Value::Field(f) if f.field.0.iter().any(Expr::is_time_varying) => "time-varying field",
+            Value::Field(_) => "field",
+            Value::Matrix(_) => "matrix",
+        }
+    }
+
+    /// Number of terms (for summaries).
+    pub fn n_terms(&self) -> usize {
+        match self {
+            Value::Scalar(e) => e.len(),
+            Value::Field(f) => f.field.n_terms(),
+            Value::Matrix(m) => m.data.iter().map(Expr::len).sum(),
+        }
+    }
+}

@@ -1,0 +1,4 @@
+//! Floating point, at the edge of the exact core: compiled evaluation of
+//! exact fields, adaptive Runge–Kutta integration, fits, eigenvalues and
+//! SVG plots, and the numerical commands `simulate`, `compare`,
+//! `stability`. The exact core never depends on this module.
