@@ -160,7 +160,17 @@ pub fn average(v: &Field, eps: Sym, opts: &Options, states: &[Sym]) -> CoreResul
     } else {
         centre::linear_centre(f0, &parts[1..], states)?
     };
-    let mut freqs = Vec::new();
+    // The period must also bring the change of coordinates back to the
+    // identity, so that x = z at multiples of it.
+    let mut freqs = match &form {
+        Form::Standard => Vec::new(),
+        Form::FastOscillation { generator, .. } => {
+            generator.iter().flat_map(|(u, _)| u.frequencies()).collect()
+        }
+        Form::LinearCentre { rotation, .. } => {
+            rotation.data.iter().flat_map(Expr::frequencies).collect()
+        }
+    };
     for f in &standard {
         for c in &f.0 {
             c.check_periodic()?;

@@ -106,7 +106,7 @@ impl Session {
         let elapsed = started.elapsed();
         if self.show_timing {
             if let Some(last) = report.lines.last_mut() {
-                if last.style == Style::Note && last.text.contains(" terms") {
+                if last.style == Style::Note && (last.text.contains(" term") || last.text.contains(" section")) {
                     last.text.push_str(&format!(", {} ms", elapsed.as_millis()));
                 }
             }
@@ -176,7 +176,7 @@ impl Session {
             Value::field(Field(totals))
         };
         report.push(Style::Result, format!("total    {}", plain::value(&value)));
-        report.push(Style::Note, format!("{n} orders, {n_terms} terms"));
+        report.push(Style::Note, summary(n, n_terms));
         Ok(value)
     }
 
@@ -222,7 +222,7 @@ impl Session {
         if structure.is_some() {
             report.push(Style::Note, "bracket form available: `show NAME as brackets`");
         }
-        report.push(Style::Note, format!("{n} orders, {n_terms} terms"));
+        report.push(Style::Note, summary(n, n_terms));
         Ok(Value::Field(FieldValue { field: total, combo: None, structure }))
     }
 
@@ -284,6 +284,12 @@ impl Session {
         };
         if structure.is_some() {
             report.push(Style::Note, "bracket form available: `show NAME as brackets`");
+        } else if v.combo.is_some() && opts.method == Method::Classic && opts.order > 2 {
+            report.push(
+                Style::Note,
+                "no bracket form: from order 3 the classical averaged field is not a Lie polynomial \
+                 (it depends on the coordinates); use `strobo` or order 2 for one",
+            );
         }
         let mut out = vec![Value::Field(FieldValue { field: total, combo: None, structure })];
         if let Some(w) = res.transform_total(eps).map_err(core)? {
@@ -292,7 +298,7 @@ impl Session {
             }
             out.push(Value::field(w));
         }
-        report.push(Style::Note, format!("{} orders, {n_terms} terms", opts.order));
+        report.push(Style::Note, summary(opts.order, n_terms));
         Ok(out)
     }
 
@@ -321,6 +327,21 @@ impl Session {
         report.push(Style::Result, plain::matrix(&m));
         report.push(Style::Note, format!("{}x{} section, {} terms", basis.len(), basis.len(), m.data.iter().map(Expr::len).sum::<usize>()));
         Ok(Value::Matrix(m))
+    }
+}
+
+/// The summary line of a series command: orders and size (the timing is
+/// appended by the caller).
+fn summary(n_orders: usize, n_terms: usize) -> String {
+    format!("{} {}, {} {}", n_orders, plural(n_orders, "order"), n_terms, plural(n_terms, "term"))
+}
+
+/// `word` or `words`.
+pub(crate) fn plural(n: usize, word: &str) -> String {
+    if n == 1 {
+        word.to_string()
+    } else {
+        format!("{word}s")
     }
 }
 

@@ -214,11 +214,13 @@ impl Session {
             }
             Value::Field(f) => {
                 let tv = f.field.0.iter().any(|e| e.is_time_varying());
+                let n = f.field.n_terms();
                 let mut s = format!(
-                    "{}field on ({}), {} terms",
+                    "{}field on ({}), {} term{}",
                     if tv { "time-varying " } else { "" },
                     self.state_list(),
-                    f.field.n_terms()
+                    n,
+                    if n == 1 { "" } else { "s" }
                 );
                 if tv {
                     let exprs: Vec<&crate::core::Expr> = f.field.0.iter().collect();

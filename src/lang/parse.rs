@@ -258,61 +258,101 @@ impl std::error::Error for ParseError {}
 /// (as handed out by `super::split`), and `# comments` and `\` line
 /// continuations inside it are skipped as whitespace.
 pub fn parse_stmt(text: &str) -> Result<Stmt, ParseError> {
-    check_brackets(text)?;
-    let parser = Parser { src: text };
-    match parser.statement(text) {
-        Ok((_, stmt)) => Ok(stmt),
-        Err(err) => Err(parser.convert(err)),
-    }
+    let nesting = check_brackets(text)?;
+    with_stack_for(nesting, || {
+        let parser = Parser { src: text };
+        match parser.statement(text) {
+            Ok((_, stmt)) => Ok(stmt),
+            Err(err) => Err(parser.convert(err)),
+        }
+    })
 }
 
 /// Parses a text that must be exactly one expression (used for expressions
 /// that arrive on their own, e.g. from tests or tools).
 pub fn parse_expr(text: &str) -> Result<Expr, ParseError> {
-    check_brackets(text)?;
-    let parser = Parser { src: text };
-    let result = parser
-        .require(parser.expr(text), text, "an expression")
-        .and_then(|(rest, node)| {
-            parser.end_of_expr(rest)?;
-            Ok((rest, node))
-        });
-    match result {
-        Ok((_, node)) => Ok(node.expr),
-        Err(err) => Err(parser.convert(err)),
+    let nesting = check_brackets(text)?;
+    with_stack_for(nesting, || {
+        let parser = Parser { src: text };
+        let result = parser
+            .require(parser.expr(text), text, "an expression")
+            .and_then(|(rest, node)| {
+                parser.end_of_expr(rest)?;
+                Ok((rest, node))
+            });
+        match result {
+            Ok((_, node)) => Ok(*node.expr),
+            Err(err) => Err(parser.convert(err)),
+        }
+    })
+}
+
+/// Bracket nesting up to which a statement is parsed on the caller's stack
+/// (a few kilobytes per level even in unoptimised builds).
+const INLINE_NESTING: usize = 24;
+
+/// Stack size of the helper thread that parses more deeply nested statements.
+const DEEP_STACK_BYTES: usize = 16 << 20;
+
+/// Runs `parse` on the caller's stack for shallow text, and on a scoped
+/// helper thread with a large stack when the brackets nest deeper than
+/// [`INLINE_NESTING`], so that no caller (a test thread, an unoptimised
+/// build) can run out of stack on [`MAX_NESTING`] levels. If the thread
+/// cannot be started the parse runs inline.
+fn with_stack_for<T: Send>(nesting: usize, parse: impl Fn() -> T + Sync) -> T {
+    if nesting <= INLINE_NESTING {
+        return parse();
     }
+    std::thread::scope(|scope| {
+        let spawned = std::thread::Builder::new()
+            .name("ordex-parse".to_string())
+            .stack_size(DEEP_STACK_BYTES)
+            .spawn_scoped(scope, &parse);
+        match spawned {
+            Ok(handle) => match handle.join() {
+                Ok(result) => result,
+                // Only a bug in the parser can get here; pass it on unchanged.
+                Err(payload) => std::panic::resume_unwind(payload),
+            },
+            Err(_) => parse(),
+        }
+    })
 }
 
 /// Reports stray, mismatched, unclosed and too deeply nested brackets before
-/// the grammar runs, so that each is reported at the bracket itself.
-fn check_brackets(text: &str) -> Result<(), ParseError> {
+/// the grammar runs, so that each is reported at the bracket itself. Returns
+/// the deepest nesting.
+fn check_brackets(text: &str) -> Result<usize, ParseError> {
     let mut stack = Vec::new();
     let mut base = 0;
+    let mut deepest = 0;
     for line in text.split('\n') {
-        if let Err(fault) = scan_line(line, base, &mut stack, MAX_NESTING) {
-            let (at, kind) = match fault {
-                BracketFault::Stray { close, at } => (at, ParseErrorKind::UnexpectedClose(close)),
-                BracketFault::Mismatch { open, close, at } => {
-                    (at, ParseErrorKind::MismatchedClose { open, close })
-                }
-                BracketFault::TooDeep { at } => (
-                    at,
-                    ParseErrorKind::NestingTooDeep { limit: MAX_NESTING },
-                ),
-            };
-            return Err(ParseError {
-                span: Span::new(at, at + 1),
-                kind,
-            });
-        }
-        base += line.len() + 1;
+        let (at, kind) = match scan_line(line, base, &mut stack, MAX_NESTING) {
+            Ok(scan) => {
+                deepest = deepest.max(scan.deepest);
+                base += line.len() + 1;
+                continue;
+            }
+            Err(BracketFault::Stray { close, at }) => (at, ParseErrorKind::UnexpectedClose(close)),
+            Err(BracketFault::Mismatch { open, close, at }) => {
+                (at, ParseErrorKind::MismatchedClose { open, close })
+            }
+            Err(BracketFault::TooDeep { at }) => (
+                at,
+                ParseErrorKind::NestingTooDeep { limit: MAX_NESTING },
+            ),
+        };
+        return Err(ParseError {
+            span: Span::new(at, at + 1),
+            kind,
+        });
     }
     match stack.last() {
         Some(&(open, at)) => Err(ParseError {
             span: Span::new(at, at + 1),
             kind: ParseErrorKind::UnclosedBracket { open },
         }),
-        None => Ok(()),
+        None => Ok(deepest),
     }
 }
 
@@ -324,7 +364,7 @@ fn check_brackets(text: &str) -> Result<(), ParseError> {
 struct PErr {
     rem: usize,
     len: usize,
-    kind: Option<ParseErrorKind>,
+    kind: Option<Box<ParseErrorKind>>,
 }
 
 impl<'a> NomParseError<&'a str> for PErr {
@@ -352,9 +392,10 @@ impl<'a> NomParseError<&'a str> for PErr {
 
 type PResult<'a, T> = IResult<&'a str, T, PErr>;
 
-/// An expression with the depth of its tree, tracked while building.
+/// An expression with the depth of its tree, tracked while building. The
+/// expression is boxed to keep the recursive rules' stack frames small.
 struct Node {
-    expr: Expr,
+    expr: Box<Expr>,
     depth: usize,
 }
 
@@ -389,6 +430,11 @@ fn ws(mut input: &str) -> &str {
             return trimmed;
         }
     }
+}
+
+/// `^` or `**`.
+fn starts_power(input: &str) -> bool {
+    input.starts_with('^') || input.starts_with("**")
 }
 
 /// `=` that is not the start of `==`.
@@ -468,7 +514,7 @@ impl<'a> Parser<'a> {
         Err(NomErr::Failure(PErr {
             rem: self.src.len().saturating_sub(span.start),
             len: span.end.saturating_sub(span.start),
-            kind: Some(kind),
+            kind: Some(Box::new(kind)),
         }))
     }
 
@@ -509,7 +555,7 @@ impl<'a> Parser<'a> {
             },
         };
         let start = self.src.len().saturating_sub(perr.rem);
-        let kind = perr.kind.unwrap_or_else(|| {
+        let kind = perr.kind.map(|kind| *kind).unwrap_or_else(|| {
             let at = ws(self.src.get(start..).unwrap_or(""));
             ParseErrorKind::Expected {
                 what: "a statement or an expression".to_string(),
@@ -541,7 +587,7 @@ impl<'a> Parser<'a> {
             )?;
         }
         Ok(Node {
-            expr: Expr::new(kind, span),
+            expr: Box::new(Expr::new(kind, span)),
             depth,
         })
     }
@@ -550,7 +596,7 @@ impl<'a> Parser<'a> {
         let span = lhs.expr.span.join(rhs.expr.span);
         let depth = lhs.depth.max(rhs.depth);
         self.make(
-            ExprKind::Bin(op, Box::new(lhs.expr), Box::new(rhs.expr)),
+            ExprKind::Bin(op, lhs.expr, rhs.expr),
             span,
             depth,
             at,
@@ -561,7 +607,7 @@ impl<'a> Parser<'a> {
     fn negate(&self, mut node: Node, minuses: &[usize]) -> Result<Node, NomErr<PErr>> {
         for &at in minuses.iter().rev() {
             let span = Span::new(at, node.expr.span.end);
-            node = self.make(ExprKind::Neg(Box::new(node.expr)), span, node.depth, at)?;
+            node = self.make(ExprKind::Neg(node.expr), span, node.depth, at)?;
         }
         Ok(node)
     }
@@ -791,57 +837,63 @@ impl<'a> Parser<'a> {
     }
 
     // ----- expressions -----
+    //
+    // The rules that recurse (through brackets) keep few locals: stack use per
+    // bracket level stays small, and every other repetition (operator chains,
+    // runs of minus signs, exponent towers) is a loop.
 
-    /// An expression; a recoverable error if none starts here.
+    /// An expression: products joined by `+` and `-`, products of unary
+    /// operands joined by `*` and `/`, all left associative. A recoverable
+    /// error if no expression starts here.
     fn expr(&self, input: &'a str) -> PResult<'a, Node> {
-        let (mut rest, mut acc) = self.product(input)?;
+        let (mut rest, mut product) = self.unary(input)?;
+        // The sum so far with the additive operator that follows it.
+        let mut sum: Option<(Node, BinOp, usize)> = None;
         loop {
             let at = ws(rest);
-            let (op, after) = if let Some(after) = at.strip_prefix('+') {
-                (BinOp::Add, after)
-            } else if let Some(after) = at.strip_prefix('-') {
-                (BinOp::Sub, after)
-            } else {
-                break;
+            let (op, what) = match at.as_bytes() {
+                [b'+', ..] => (BinOp::Add, "an expression after `+`"),
+                [b'-', ..] => (BinOp::Sub, "an expression after `-`"),
+                [b'*', b'*', ..] => break,
+                [b'*', ..] => (BinOp::Mul, "an expression after `*`"),
+                [b'/', ..] => (BinOp::Div, "an expression after `/`"),
+                _ => break,
             };
-            let what = format!("an expression after `{}`", op.symbol());
-            let (next, rhs) = self.require(self.product(after), after, &what)?;
-            acc = self.binary(op, acc, rhs, self.off(at))?;
-            rest = next;
-        }
-        Ok((rest, acc))
-    }
-
-    fn product(&self, input: &'a str) -> PResult<'a, Node> {
-        let (mut rest, mut acc) = self.unary(input)?;
-        loop {
-            let at = ws(rest);
-            if at.starts_with("**") {
-                break;
+            let after = at.get(1..).unwrap_or("");
+            let (next, operand) = self.require(self.unary(after), after, what)?;
+            let op_at = self.off(at);
+            if matches!(op, BinOp::Mul | BinOp::Div) {
+                product = self.binary(op, product, operand, op_at)?;
+            } else {
+                let left = match sum.take() {
+                    None => product,
+                    Some((acc, acc_op, acc_at)) => self.binary(acc_op, acc, product, acc_at)?,
+                };
+                sum = Some((left, op, op_at));
+                product = operand;
             }
-            let (op, after) = if let Some(after) = at.strip_prefix('*') {
-                (BinOp::Mul, after)
-            } else if let Some(after) = at.strip_prefix('/') {
-                (BinOp::Div, after)
-            } else {
-                break;
-            };
-            let what = format!("an expression after `{}`", op.symbol());
-            let (next, rhs) = self.require(self.unary(after), after, &what)?;
-            acc = self.binary(op, acc, rhs, self.off(at))?;
             rest = next;
         }
-        Ok((rest, acc))
+        let node = match sum {
+            None => product,
+            Some((acc, op, op_at)) => self.binary(op, acc, product, op_at)?,
+        };
+        Ok((rest, node))
     }
 
-    /// Leading minuses (collected, not recursed, so long runs cannot exhaust
-    /// the stack), then a power.
+    /// Leading minus signs (collected in a loop), then a power.
     fn unary(&self, input: &'a str) -> PResult<'a, Node> {
         let (minuses, at) = self.minuses(input);
-        let (rest, node) = if minuses.is_empty() {
-            self.power(at)?
+        let result = self.postfix(at);
+        let (rest, base) = if minuses.is_empty() {
+            result?
         } else {
-            self.require(self.power(at), at, "an expression after `-`")?
+            self.require(result, at, "an expression after `-`")?
+        };
+        let (rest, node) = if starts_power(ws(rest)) {
+            self.power_tail(base, rest)?
+        } else {
+            (rest, base)
         };
         Ok((rest, self.negate(node, &minuses)?))
     }
@@ -857,28 +909,28 @@ impl<'a> Parser<'a> {
         (minuses, at)
     }
 
-    /// `a ^ b ^ -c`: operands are collected left to right and folded from the
-    /// right; the exponent of each `^` may start with minuses.
-    fn power(&self, input: &'a str) -> PResult<'a, Node> {
-        let (mut rest, base) = self.postfix(input)?;
+    /// `base ^ b ^ -c ...` after `base`: operands are collected left to right
+    /// and folded from the right (right associative); the exponent of each
+    /// `^` (or `**`) may start with minus signs.
+    fn power_tail(&self, base: Node, mut rest: &'a str) -> PResult<'a, Node> {
         // (offset of `^`, minuses after it, operand)
         let mut tail: Vec<(usize, Vec<usize>, Node)> = Vec::new();
         loop {
             let at = ws(rest);
-            let (symbol, after) = if let Some(after) = at.strip_prefix("**") {
-                ("**", after)
+            let (after, what) = if let Some(after) = at.strip_prefix("**") {
+                (after, "an exponent after `**`")
             } else if let Some(after) = at.strip_prefix('^') {
-                ("^", after)
+                (after, "an exponent after `^`")
             } else {
                 break;
             };
             let (minuses, operand_at) = self.minuses(after);
             let what = if minuses.is_empty() {
-                format!("an exponent after `{symbol}`")
+                what
             } else {
-                "an expression after `-`".to_string()
+                "an expression after `-`"
             };
-            let (next, operand) = self.require(self.postfix(operand_at), operand_at, &what)?;
+            let (next, operand) = self.require(self.postfix(operand_at), operand_at, what)?;
             tail.push((self.off(at), minuses, operand));
             rest = next;
         }
@@ -900,129 +952,117 @@ impl<'a> Parser<'a> {
     /// An atom followed by any number of applications `(args)`.
     fn postfix(&self, input: &'a str) -> PResult<'a, Node> {
         let (mut rest, mut node) = self.atom(input)?;
-        let is_number = matches!(node.expr.kind, ExprKind::Num(_));
         loop {
-            self.adjacent(rest, node.expr.span)?;
+            self.adjacent(rest, &node)?;
             let at = ws(rest);
             if !at.starts_with('(') {
-                break;
+                return Ok((rest, node));
             }
-            if is_number {
-                return self.fail_at(
-                    at,
-                    1,
-                    ParseErrorKind::ImplicitMultiplication {
-                        left: self.snippet(node.expr.span),
-                        right: "(".to_string(),
-                    },
-                );
-            }
-            let (next, (args, args_depth)) = self.args(at)?;
-            let span = Span::new(node.expr.span.start, self.off(next));
-            let depth = args_depth.max(node.depth);
-            node = self.make(
-                ExprKind::Apply(Box::new(node.expr), args),
-                span,
-                depth,
-                self.off(at),
-            )?;
+            let (next, applied) = self.apply(node, at)?;
+            node = applied;
             rest = next;
         }
-        Ok((rest, node))
+    }
+
+    /// `head(args)` for a head that is not a plain name (`at` starts with `(`).
+    fn apply(&self, head: Node, at: &'a str) -> PResult<'a, Node> {
+        let mut args = Vec::new();
+        let (next, args_depth) = self.args(at, &mut args)?;
+        let span = Span::new(head.expr.span.start, self.off(next));
+        let depth = args_depth.max(head.depth);
+        let node = self.make(ExprKind::Apply(head.expr, args), span, depth, self.off(at))?;
+        Ok((next, node))
     }
 
     /// Refuses an operand written directly against the previous one (`2x`,
-    /// `(a)b`, `2[x]`): implicit multiplication.
-    fn adjacent(&self, rest: &'a str, left: Span) -> PResult<'a, ()> {
-        let Some(ch) = rest.chars().next() else {
+    /// `(a)b`, `2[x]`), and a number followed by `(`: implicit multiplication.
+    fn adjacent(&self, rest: &'a str, left: &Node) -> PResult<'a, ()> {
+        let touching = rest.chars().next().is_some_and(|ch| {
+            is_ident_start(ch) || ch == '[' || ch == '{' || starts_number(rest)
+        });
+        let at = ws(rest);
+        let number_call = at.starts_with('(') && matches!(left.expr.kind, ExprKind::Num(_));
+        if !touching && !number_call {
             return Ok((rest, ()));
-        };
-        if is_ident_start(ch) || starts_number(rest) || ch == '[' || ch == '{' {
-            let token = next_token(rest);
-            return self.fail_at(
-                rest,
-                token.len(),
-                ParseErrorKind::ImplicitMultiplication {
-                    left: self.snippet(left),
-                    right: token.to_string(),
-                },
-            );
         }
-        Ok((rest, ()))
+        let at = if touching { rest } else { at };
+        let token = next_token(at);
+        self.fail_at(
+            at,
+            token.len(),
+            ParseErrorKind::ImplicitMultiplication {
+                left: self.snippet(left.expr.span),
+                right: token.to_string(),
+            },
+        )
     }
 
+    /// A number, a name, a call `name(args)`, `(expr)`, a list or a matrix.
     fn atom(&self, input: &'a str) -> PResult<'a, Node> {
         let at = ws(input);
-        let start = self.off(at);
-        if starts_number(at) {
-            let (rest, text) = self.number(at)?;
-            let span = Span::new(start, self.off(rest));
-            return Ok((
-                rest,
-                Node {
-                    expr: Expr::new(ExprKind::Num(text.to_string()), span),
-                    depth: 1,
-                },
-            ));
+        match at.as_bytes().first() {
+            Some(b'(') => self.parens(at),
+            Some(b'[') => self.list(at),
+            Some(b'{') => self.matrix(at),
+            _ if starts_number(at) => self.number_atom(at),
+            Some(byte) if is_ident_start(char::from(*byte)) => self.name_atom(at),
+            _ => no_expr(at),
         }
-        if let Ok((rest, word)) = ident(at) {
-            let name_span = Span::new(start, self.off(rest));
-            let after = ws(rest);
-            if matches!(word, "sin" | "cos" | "exp") {
-                if !after.starts_with('(') {
-                    return self.expected(after, &format!("`(` and an argument after `{word}`"));
-                }
-            } else if is_reserved(word) && word != "t" && word != "pi" {
-                return no_expr(at);
+    }
+
+    fn number_atom(&self, at: &'a str) -> PResult<'a, Node> {
+        let (rest, text) = self.number(at)?;
+        let span = Span::new(self.off(at), self.off(rest));
+        let expr = Box::new(Expr::new(ExprKind::Num(text.to_string()), span));
+        Ok((rest, Node { expr, depth: 1 }))
+    }
+
+    /// A name, or a call when `(` follows. Reserved words other than `t` and
+    /// `pi` are not names; `sin`, `cos` and `exp` must be called.
+    fn name_atom(&self, at: &'a str) -> PResult<'a, Node> {
+        let (rest, word) = ident(at)?;
+        let name_span = Span::new(self.off(at), self.off(rest));
+        let after = ws(rest);
+        let is_call = after.starts_with('(');
+        if matches!(word, "sin" | "cos" | "exp") {
+            if !is_call {
+                return self.expected(after, &format!("`(` and an argument after `{word}`"));
             }
-            if after.starts_with('(') {
-                let (next, (args, depth)) = self.args(after)?;
-                let span = Span::new(start, self.off(next));
-                let node = self.make(
-                    ExprKind::Call(Ident::new(word, name_span), args),
-                    span,
-                    depth,
-                    self.off(after),
-                )?;
-                return Ok((next, node));
-            }
-            return Ok((
-                rest,
-                Node {
-                    expr: Expr::new(ExprKind::Name(word.to_string()), name_span),
-                    depth: 1,
-                },
-            ));
+        } else if is_reserved(word) && word != "t" && word != "pi" {
+            return no_expr(at);
         }
-        if let Some(inner) = at.strip_prefix('(') {
-            let (next, node) = self.require(self.expr(inner), inner, "an expression after `(`")?;
-            let close = ws(next);
-            if let Some(after) = close.strip_prefix(')') {
-                let mut expr = node.expr;
-                expr.span = Span::new(start, self.off(after));
-                return Ok((
-                    after,
-                    Node {
-                        expr,
-                        depth: node.depth,
-                    },
-                ));
-            }
-            if close.starts_with(',') {
-                return self.expected(
-                    close,
-                    "an operator or `)` (a field is written with square brackets, as in `[a, b]`)",
-                );
-            }
-            return self.expected(close, "an operator or `)`");
+        if !is_call {
+            let expr = Box::new(Expr::new(ExprKind::Name(word.to_string()), name_span));
+            return Ok((rest, Node { expr, depth: 1 }));
         }
-        if at.starts_with('[') {
-            return self.list(at);
+        self.call(Ident::new(word, name_span), after)
+    }
+
+    /// `name(args)` (`at` starts with `(`).
+    fn call(&self, name: Ident, at: &'a str) -> PResult<'a, Node> {
+        let mut args = Vec::new();
+        let (next, depth) = self.args(at, &mut args)?;
+        let span = Span::new(name.span.start, self.off(next));
+        let node = self.make(ExprKind::Call(name, args), span, depth, self.off(at))?;
+        Ok((next, node))
+    }
+
+    /// `(expr)`; the span of the result includes the parentheses.
+    fn parens(&self, at: &'a str) -> PResult<'a, Node> {
+        let inner = at.get(1..).unwrap_or("");
+        let (next, mut node) = self.require(self.expr(inner), inner, "an expression after `(`")?;
+        let close = ws(next);
+        if let Some(after) = close.strip_prefix(')') {
+            node.expr.span = Span::new(self.off(at), self.off(after));
+            return Ok((after, node));
         }
-        if at.starts_with('{') {
-            return self.matrix(at);
+        if close.starts_with(',') {
+            return self.expected(
+                close,
+                "an operator or `)` (a field is written with square brackets, as in `[a, b]`)",
+            );
         }
-        no_expr(at)
+        self.expected(close, "an operator or `)`")
     }
 
     /// `[e, ...]` (`input` starts with `[`).
@@ -1039,7 +1079,7 @@ impl<'a> Parser<'a> {
             };
             let (rest, entry) = self.require(self.expr(next_in), next_in, what)?;
             depth = depth.max(entry.depth);
-            entries.push(entry.expr);
+            entries.push(*entry.expr);
             let at = ws(rest);
             if let Some(after) = at.strip_prefix(',') {
                 next_in = after;
@@ -1068,7 +1108,7 @@ impl<'a> Parser<'a> {
             };
             let (rest, entry) = self.require(self.expr(next_in), next_in, what)?;
             depth = depth.max(entry.depth);
-            row.push(entry.expr);
+            row.push(*entry.expr);
             let at = ws(rest);
             if let Some(after) = at.strip_prefix(',') {
                 next_in = after;
@@ -1086,11 +1126,10 @@ impl<'a> Parser<'a> {
         }
     }
 
-    /// `(arg, ...)` (`input` starts with `(`); returns the arguments and the
-    /// depth of the deepest.
-    fn args(&self, input: &'a str) -> PResult<'a, (Vec<Arg>, usize)> {
+    /// `(arg, ...)` (`input` starts with `(`): pushes the arguments on `args`
+    /// and returns the depth of the deepest.
+    fn args(&self, input: &'a str, args: &mut Vec<Arg>) -> PResult<'a, usize> {
         let mut next_in = input.get(1..).unwrap_or("");
-        let mut args = Vec::new();
         let mut depth = 0;
         loop {
             let what = if args.is_empty() {
@@ -1098,47 +1137,64 @@ impl<'a> Parser<'a> {
             } else {
                 "an argument after `,`"
             };
-            let (rest, (arg, arg_depth)) = self.arg(next_in, what)?;
+            let (rest, arg_depth) = self.arg(next_in, what, args)?;
             depth = depth.max(arg_depth);
-            args.push(arg);
             let at = ws(rest);
             if let Some(after) = at.strip_prefix(',') {
                 next_in = after;
             } else if let Some(after) = at.strip_prefix(')') {
-                return Ok((after, (args, depth)));
+                return Ok((after, depth));
             } else {
                 return self.expected(at, "`,` or `)`");
             }
         }
     }
 
-    /// `NAME = expr` (a binding, as in `plug`) or a plain expression.
-    fn arg(&self, input: &'a str, what: &str) -> PResult<'a, (Arg, usize)> {
+    /// `NAME = expr` (a binding, as in `plug`) or a plain expression, pushed
+    /// on `args`; returns its depth.
+    fn arg(&self, input: &'a str, what: &str, args: &mut Vec<Arg>) -> PResult<'a, usize> {
         let at = ws(input);
-        if let Ok((after_name, word)) = ident(at) {
-            let eq = ws(after_name);
-            if single_eq(eq) {
-                let span = Span::new(self.off(at), self.off(after_name));
-                if is_reserved(word) && word != "t" && word != "pi" {
-                    return self.fail(span, ParseErrorKind::Reserved(word.to_string()));
-                }
-                let value_in = eq.get(1..).unwrap_or("");
-                let what = format!("a value after `{word} =`");
-                let (rest, value) = self.require(self.expr(value_in), value_in, &what)?;
-                return Ok((
-                    rest,
-                    (Arg::Bind(Ident::new(word, span), value.expr), value.depth),
-                ));
-            }
+        if let Some((name, value_in)) = self.binding(at)? {
+            return self.bound_arg(name, value_in, args);
         }
         let (rest, node) = self.require(self.expr(at), at, what)?;
-        Ok((rest, (Arg::Pos(node.expr), node.depth)))
+        args.push(Arg::Pos(*node.expr));
+        Ok((rest, node.depth))
+    }
+
+    /// The value of `name = value` in an argument list, pushed on `args`.
+    fn bound_arg(&self, name: Ident, value_in: &'a str, args: &mut Vec<Arg>) -> PResult<'a, usize> {
+        let (rest, value) = match self.expr(value_in) {
+            Err(NomErr::Error(_)) => {
+                return self.expected(value_in, &format!("a value after `{} =`", name.name))
+            }
+            other => other?,
+        };
+        args.push(Arg::Bind(name, *value.expr));
+        Ok((rest, value.depth))
+    }
+
+    /// `NAME =` (not `==`) at `at`: the name and the input after `=`.
+    /// `t` and `pi` are accepted (lowering decides); other reserved words are not.
+    fn binding(&self, at: &'a str) -> Result<Option<(Ident, &'a str)>, NomErr<PErr>> {
+        let Ok((after_name, word)) = ident(at) else {
+            return Ok(None);
+        };
+        let eq = ws(after_name);
+        if !single_eq(eq) {
+            return Ok(None);
+        }
+        let span = Span::new(self.off(at), self.off(after_name));
+        if is_reserved(word) && word != "t" && word != "pi" {
+            self.fail::<()>(span, ParseErrorKind::Reserved(word.to_string()))?;
+        }
+        Ok(Some((Ident::new(word, span), eq.get(1..).unwrap_or(""))))
     }
 
     /// A required expression.
     fn expect_expr(&self, input: &'a str, what: &str) -> PResult<'a, Expr> {
         let (rest, node) = self.require(self.expr(input), input, what)?;
-        Ok((rest, node.expr))
+        Ok((rest, *node.expr))
     }
 
     // ----- statements -----
@@ -2560,6 +2616,33 @@ mod tests {
         assert!(expr(&mixed).sexpr().starts_with("(neg (call g (+ 1 [{a"));
         let chain = format!("x{}", "+x".repeat(MAX_EXPR_DEPTH - 2));
         assert!(parse_expr(&chain).is_ok());
+    }
+
+    #[test]
+    fn deep_nesting_is_safe_on_a_small_stack() {
+        let handle = std::thread::Builder::new()
+            .stack_size(256 * 1024)
+            .spawn(|| {
+                let calls = format!("{}x{}", "f(".repeat(MAX_NESTING), ")".repeat(MAX_NESTING));
+                let shallow = format!(
+                    "{}x{}",
+                    "g(".repeat(INLINE_NESTING),
+                    ")".repeat(INLINE_NESTING)
+                );
+                (
+                    parse_stmt(&calls).map(|stmt| stmt.span),
+                    parse_stmt(&shallow).map(|stmt| stmt.span),
+                )
+            });
+        let joined = match handle {
+            Ok(handle) => handle.join(),
+            Err(err) => panic!("cannot start the test thread: {err}"),
+        };
+        let Ok((deep, shallow)) = joined else {
+            panic!("parsing on a small stack panicked");
+        };
+        assert_eq!(deep, Ok(Span::new(0, 3 * MAX_NESTING + 1)));
+        assert_eq!(shallow, Ok(Span::new(0, 3 * INLINE_NESTING + 1)));
     }
 
     #[test]

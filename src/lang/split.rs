@@ -250,6 +250,8 @@ pub(super) struct LineScan {
     pub(super) code_end: usize,
     /// Whether the line ended inside an unterminated "double-quoted" string.
     pub(super) open_string: bool,
+    /// The deepest the stack of open brackets got on this line.
+    pub(super) deepest: usize,
 }
 
 /// A bracket problem found by [`scan_line`]; offsets are `base` plus the byte
@@ -275,6 +277,7 @@ pub(super) fn scan_line(
     limit: usize,
 ) -> Result<LineScan, BracketFault> {
     let mut in_string = false;
+    let mut deepest = stack.len();
     for (idx, ch) in line.char_indices() {
         if in_string {
             if ch == '"' {
@@ -288,6 +291,7 @@ pub(super) fn scan_line(
                 return Ok(LineScan {
                     code_end: idx,
                     open_string: false,
+                    deepest,
                 })
             }
             '(' | '[' | '{' => {
@@ -295,6 +299,7 @@ pub(super) fn scan_line(
                     return Err(BracketFault::TooDeep { at: base + idx });
                 }
                 stack.push((ch, base + idx));
+                deepest = deepest.max(stack.len());
             }
             ')' | ']' | '}' => match stack.last() {
                 None => {
@@ -320,6 +325,7 @@ pub(super) fn scan_line(
     Ok(LineScan {
         code_end: line.len(),
         open_string: in_string,
+        deepest,
     })
 }
 

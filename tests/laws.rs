@@ -1,0 +1,494 @@
+//! Property tests of the algebraic laws of the exact core, on random
+//! expressions and fields in 2–3 state coordinates (`x`, `y`, `z`), one
+//! parameter (`a`) and time: ring laws and canonical form of the normal
+//! form, trigonometric and exponential identities, derivations (product
+//! rule of `pd`, commuting partial derivatives, the chain rule under a
+//! linear change of coordinates, the Lie derivative as a derivation), the
+//! Lie bracket (its action on functions, antisymmetry, Jacobi identity),
+//! the fundamental theorem of calculus for time integrals, and the
+//! print → parse round trip through a session for expressions and fields.
+//!
+//! The laws are standard identities of commutative algebra, calculus and
+//! Lie algebras of vector fields (from memory); the bracket convention is
+//! the one of DESIGN §2.3 and REFERENCES §0:
+//! `[X, Y] = DY·X − DX·Y`, so `[X, Y](h) = X(Y(h)) − Y(X(h))`.
+//!
+//! This file knows only the public API of `ordex::core` and
+//! `ordex::lang::Session`; it must not know how the core stores terms
+//! beyond the public term list and key fields.
+
+use std::collections::HashMap;
+use std::fmt::Display;
+
+use ordex::core::expr::{Beat, Wave};
+use ordex::core::{Expr, Field, Q, Sym};
+use ordex::lang::value::Value;
+use ordex::lang::{Event, Session, Style};
+use proptest::prelude::*;
+use proptest::test_runner::TestCaseError;
+
+// ---------------------------------------------------------------------------
+// Random expressions.
+
+const STATE_NAMES: [&str; 3] = ["x", "y", "z"];
+const PARAM_NAME: &str = "a";
+
+/// Recipe for one random term
+/// `(num/den) · x^e1 y^e2 z^e3 · a^p · {1|sin L|cos L} · {1|exp M} · t^n · {1|cos kt|sin kt}`.
+#[derive(Clone, Debug)]
+struct TermSpec {
+    num: i64,
+    den: i64,
+    /// Exponents of the state coordinates, −1..=3.
+    exps: [i64; 3],
+    /// Exponent of the parameter, 0..=2.
+    param_pow: i64,
+    /// 0: no factor, 1: `sin(L)`, 2: `cos(L)`.
+    wave: u8,
+    /// Coefficients of `L` in halves (−4..=4 → −2..=2).
+    wave_lin: [i64; 3],
+    /// Whether an `exp(M)` factor is present.
+    has_exp: bool,
+    /// Coefficients of `M` in halves (−2..=2 → −1..=1).
+    exp_lin: [i64; 3],
+    /// Power of `t`, 0..=2.
+    t_pow: i64,
+    /// 0: no factor, 1: `cos(kt)`, 2: `sin(kt)`.
+    beat: u8,
+    /// Frequency `k` in halves (1..=4 → 1/2..=2).
+    freq: i64,
+}
+
+fn term_spec() -> impl Strategy<Value = TermSpec> {
+    (
+        (-4i64..=4, 1i64..=3),
+        prop::array::uniform3(-1i64..=3),
+        0i64..=2,
+        (prop_oneof![2 => Just(0u8), 1 => Just(1u8), 1 => Just(2u8)], prop::array::uniform3(-4i64..=4)),
+        (prop::bool::weighted(0.25), prop::array::uniform3(-2i64..=2)),
+        (prop_oneof![3 => Just(0i64), 1 => Just(1i64), 1 => Just(2i64)], 0u8..=2, 1i64..=4),
+    )
+        .prop_map(|((num, den), exps, param_pow, (wave, wave_lin), (has_exp, exp_lin), (t_pow, beat, freq))| {
+            TermSpec { num, den, exps, param_pow, wave, wave_lin, has_exp, exp_lin, t_pow, beat, freq }
+        })
+}
+
+/// A list of term recipes (an expression).
+fn expr_spec(max_terms: usize) -> impl Strategy<Value = Vec<TermSpec>> {
+    prop::collection::vec(term_spec(), 1..=max_terms)
+}
+
+/// Recipes for the three components of a field (the first `dim` are used).
+fn field_spec(max_terms: usize) -> impl Strategy<Value = Vec<Vec<TermSpec>>> {
+    prop::collection::vec(expr_spec(max_terms), 3)
+}
+
+fn dim_strategy() -> impl Strategy<Value = usize> {
+    prop_oneof![Just(2usize), Just(3usize)]
+}
+
+fn q(n: i64, d: i64) -> Q {
+    Q::ratio(n, d).unwrap_or(Q::ZERO)
+}
+
+fn states(dim: usize) -> Vec<Sym> {
+    STATE_NAMES[..dim].iter().map(|n| Sym::new(n)).collect()
+}
+
+fn param() -> Sym {
+    Sym::new(PARAM_NAME)
+}
+
+fn t() -> Expr {
+    Expr::sym(Sym::T)
+}
+
+/// Turns a core error into a test failure naming the step.
+trait OrFail<T> {
+    fn or_fail(self, what: &str) -> Result<T, TestCaseError>;
+}
+
+impl<T, E: Display> OrFail<T> for Result<T, E> {
+    fn or_fail(self, what: &str) -> Result<T, TestCaseError> {
+        self.map_err(|e| TestCaseError::fail(format!("{what}: {e}")))
+    }
+}
+
+/// The linear form `Σ (c_i/den) x_i` over the first `dim` coordinates.
+fn linear_form(coeffs: &[i64; 3], den: i64, st: &[Sym]) -> Expr {
+    st.iter()
+        .zip(coeffs)
+        .fold(Expr::zero(), |acc, (s, c)| acc.add(&Expr::sym(*s).scale(&q(*c, den))))
+}
+
+/// Builds a term with the core's own operations (products, powers,
+/// `sin_of`, `cos_of`, `exp_of`), so the construction itself exercises them.
+fn build_term(spec: &TermSpec, dim: usize) -> Result<Expr, TestCaseError> {
+    let st = states(dim);
+    let mut e = Expr::num(q(spec.num, spec.den));
+    for (s, p) in st.iter().zip(&spec.exps) {
+        e = e.mul(&Expr::sym(*s).pow(*p).or_fail("state power")?).or_fail("product")?;
+    }
+    e = e.mul(&Expr::sym(param()).pow(spec.param_pow).or_fail("parameter power")?).or_fail("product")?;
+    if spec.wave != 0 {
+        let l = linear_form(&spec.wave_lin, 2, &st);
+        let w = if spec.wave == 1 { Expr::sin_of(&l, &st) } else { Expr::cos_of(&l, &st) };
+        e = e.mul(&w.or_fail("trigonometric factor")?).or_fail("product")?;
+    }
+    if spec.has_exp {
+        let m = linear_form(&spec.exp_lin, 2, &st);
+        e = e.mul(&Expr::exp_of(&m, &st).or_fail("exponential factor")?).or_fail("product")?;
+    }
+    e = e.mul(&t().pow(spec.t_pow).or_fail("power of t")?).or_fail("product")?;
+    if spec.beat != 0 {
+        let kt = t().scale(&q(spec.freq, 2));
+        let b = if spec.beat == 1 { Expr::cos_of(&kt, &st) } else { Expr::sin_of(&kt, &st) };
+        e = e.mul(&b.or_fail("time factor")?).or_fail("product")?;
+    }
+    Ok(e)
+}
+
+fn build_expr(specs: &[TermSpec], dim: usize) -> Result<Expr, TestCaseError> {
+    let mut e = Expr::zero();
+    for s in specs {
+        e = e.add(&build_term(s, dim)?);
+    }
+    Ok(e)
+}
+
+fn build_field(specs: &[Vec<TermSpec>], dim: usize) -> Result<Field, TestCaseError> {
+    Ok(Field(specs[..dim].iter().map(|s| build_expr(s, dim)).collect::<Result<_, _>>()?))
+}
+
+/// Keeps only non-negative state exponents (for substitutions by sums,
+/// which are defined on polynomials only).
+fn polynomial_specs(specs: &[TermSpec]) -> Vec<TermSpec> {
+    specs
+        .iter()
+        .map(|s| TermSpec { exps: s.exps.map(|e| e.max(0)), ..s.clone() })
+        .collect()
+}
+
+fn config(cases: u32) -> ProptestConfig {
+    ProptestConfig { cases, max_shrink_iters: 256, ..ProptestConfig::default() }
+}
+
+// ---------------------------------------------------------------------------
+// Sessions.
+
+/// Runs `text` in `session`; returns the printed lines, or the error or
+/// failed check as a message.
+fn run(session: &mut Session, text: &str) -> Result<Vec<String>, String> {
+    let mut lines = Vec::new();
+    let mut error = None;
+    let status = session.run_text(text, Some("laws"), &mut |ev| match ev {
+        Event::Report(r) => {
+            lines.extend(r.lines.iter().map(|l| (l.style, l.text.clone())));
+        }
+        Event::Error(msg) => error = Some(msg),
+    });
+    if let Some(msg) = error {
+        return Err(format!("error running `{text}`: {msg}"));
+    }
+    if status.check_failed {
+        let all: Vec<String> = lines.iter().map(|(_, l)| l.clone()).collect();
+        return Err(format!("check failed in `{text}`:\n{}", all.join("\n")));
+    }
+    Ok(lines.into_iter().filter(|(s, _)| *s == Style::Result).map(|(_, l)| l).collect())
+}
+
+fn session_for(dim: usize) -> Result<Session, TestCaseError> {
+    let mut s = Session::new();
+    let decl = format!("state {}\nparam {PARAM_NAME}", STATE_NAMES[..dim].join(", "));
+    run(&mut s, &decl).map_err(TestCaseError::fail)?;
+    Ok(s)
+}
+
+fn field_text(f: &Field) -> String {
+    let parts: Vec<String> = f.0.iter().map(|e| e.to_string()).collect();
+    format!("[{}]", parts.join(", "))
+}
+
+// ---------------------------------------------------------------------------
+// Laws.
+
+proptest! {
+    #![proptest_config(config(128))]
+
+    /// Associativity, commutativity, distributivity, neutral elements and
+    /// additive inverse (commutative ring laws, from memory).
+    #[test]
+    fn ring_laws(dim in dim_strategy(), sa in expr_spec(4), sb in expr_spec(4), sc in expr_spec(3)) {
+        let a = build_expr(&sa, dim)?;
+        let b = build_expr(&sb, dim)?;
+        let c = build_expr(&sc, dim)?;
+        prop_assert_eq!(a.add(&b).add(&c), a.add(&b.add(&c)), "associativity of +");
+        prop_assert_eq!(a.add(&b), b.add(&a), "commutativity of +");
+        prop_assert_eq!(a.add(&a.neg()), Expr::zero(), "additive inverse");
+        prop_assert_eq!(a.sub(&a), Expr::zero(), "a - a");
+        prop_assert_eq!(a.add(&Expr::zero()), a.clone(), "neutral 0");
+        let ab = a.mul(&b).or_fail("a*b")?;
+        let ba = b.mul(&a).or_fail("b*a")?;
+        prop_assert_eq!(&ab, &ba, "commutativity of *");
+        let ab_c = ab.mul(&c).or_fail("(ab)c")?;
+        let a_bc = a.mul(&b.mul(&c).or_fail("bc")?).or_fail("a(bc)")?;
+        prop_assert_eq!(ab_c, a_bc, "associativity of *");
+        let left = a.mul(&b.add(&c)).or_fail("a(b+c)")?;
+        let right = ab.add(&a.mul(&c).or_fail("ac")?);
+        prop_assert_eq!(left, right, "distributivity");
+        prop_assert_eq!(a.mul(&Expr::int(1)).or_fail("a*1")?, a.clone(), "neutral 1");
+        prop_assert_eq!(a.mul(&Expr::zero()).or_fail("a*0")?, Expr::zero(), "absorbing 0");
+        prop_assert_eq!(a.neg().mul(&b).or_fail("(-a)b")?, ab.neg(), "(-a)b = -(ab)");
+        prop_assert_eq!(a.pow(2).or_fail("a^2")?, a.mul(&a).or_fail("a*a")?, "a^2 = a*a");
+    }
+
+    /// The normal form is canonical: rebuilding from its own terms (in any
+    /// order), going round through a product and a quotient, or scaling
+    /// there and back gives the identical form; terms are strictly sorted,
+    /// with nonzero coefficients and canonical signs of trigonometric
+    /// arguments (DESIGN §2.2).
+    #[test]
+    fn normal_form_is_idempotent(dim in dim_strategy(), sa in expr_spec(5), sm in prop::array::uniform3(-2i64..=2)) {
+        let a = build_expr(&sa, dim)?;
+        let st = states(dim);
+        // Invariants of the term list.
+        for w in a.terms().windows(2) {
+            prop_assert!(w[0].0 < w[1].0, "terms not strictly sorted in {}", a);
+        }
+        for (k, c) in a.terms() {
+            prop_assert!(!c.is_zero(), "zero coefficient in {}", a);
+            if let Wave::Cos(l) | Wave::Sin(l) = &k.wave {
+                prop_assert!(!l.is_zero() && !l.is_negative(), "non-canonical argument in {}", a);
+            }
+            if let Beat::Cos(f) | Beat::Sin(f) = &k.beat {
+                prop_assert!(!f.is_zero() && !f.is_negative(), "non-canonical frequency in {}", a);
+            }
+        }
+        // Rebuilding from the terms, forwards and backwards.
+        prop_assert_eq!(Expr::from_terms(a.terms().to_vec()), a.clone());
+        let mut rev = a.terms().to_vec();
+        rev.reverse();
+        prop_assert_eq!(Expr::from_terms(rev), a.clone());
+        let summed = a.terms().iter().rev().fold(Expr::zero(), |acc, (k, c)| {
+            acc.add(&Expr::term(k.clone(), c.clone()))
+        });
+        prop_assert_eq!(summed, a.clone());
+        // Through genuine products: a(1 + x) − ax, a·x·x⁻¹, a·exp(M)·exp(−M).
+        let x = Expr::sym(st[0]);
+        let one_plus_x = Expr::int(1).add(&x);
+        let back = a.mul(&one_plus_x).or_fail("a(1+x)")?.sub(&a.mul(&x).or_fail("ax")?);
+        prop_assert_eq!(back, a.clone(), "a(1+x) - ax");
+        let inv = x.pow(-1).or_fail("x^-1")?;
+        prop_assert_eq!(a.mul(&x).or_fail("ax")?.mul(&inv).or_fail("ax/x")?, a.clone(), "a x x^-1");
+        prop_assert_eq!(a.mul(&x).or_fail("ax")?.div(&x).or_fail("ax/x")?, a.clone(), "(a x)/x");
+        let m = linear_form(&sm, 2, &st);
+        let em = Expr::exp_of(&m, &st).or_fail("exp(M)")?;
+        let emn = Expr::exp_of(&m.neg(), &st).or_fail("exp(-M)")?;
+        prop_assert_eq!(a.mul(&em).or_fail("a exp M")?.mul(&emn).or_fail("a exp M exp -M")?, a.clone());
+        let three = q(3, 7);
+        prop_assert_eq!(a.scale(&three).scale(&q(7, 3)), a.clone(), "scale there and back");
+    }
+
+    /// Trigonometric and exponential identities on random linear arguments
+    /// (state part with integer or half-integer coefficients, optionally
+    /// plus a time frequency): Pythagoras, double angle, addition formulas,
+    /// parity, and exp(L1) exp(L2) = exp(L1 + L2) (from memory).
+    #[test]
+    fn trig_and_exp_identities(
+        dim in dim_strategy(),
+        l1 in prop::array::uniform3(-4i64..=4),
+        l2 in prop::array::uniform3(-4i64..=4),
+        k1 in -3i64..=3,
+        k2 in -3i64..=3,
+    ) {
+        let st = states(dim);
+        let arg1 = linear_form(&l1, 2, &st).add(&t().scale(&q(k1, 2)));
+        let arg2 = linear_form(&l2, 2, &st).add(&t().scale(&q(k2, 2)));
+        let s1 = Expr::sin_of(&arg1, &st).or_fail("sin L1")?;
+        let c1 = Expr::cos_of(&arg1, &st).or_fail("cos L1")?;
+        let s2 = Expr::sin_of(&arg2, &st).or_fail("sin L2")?;
+        let c2 = Expr::cos_of(&arg2, &st).or_fail("cos L2")?;
+        let sq = s1.pow(2).or_fail("sin^2")?.add(&c1.pow(2).or_fail("cos^2")?);
+        prop_assert_eq!(sq, Expr::int(1), "sin^2 + cos^2 for L = {}", arg1);
+        let two = arg1.scale(&Q::int(2));
+        let s2l = Expr::sin_of(&two, &st).or_fail("sin 2L")?;
+        let c2l = Expr::cos_of(&two, &st).or_fail("cos 2L")?;
+        prop_assert_eq!(s2l, s1.mul(&c1).or_fail("sin cos")?.scale(&Q::int(2)), "sin 2L");
+        prop_assert_eq!(c2l, c1.pow(2).or_fail("c^2")?.sub(&s1.pow(2).or_fail("s^2")?), "cos 2L");
+        let sum = arg1.add(&arg2);
+        let s_sum = Expr::sin_of(&sum, &st).or_fail("sin(L1+L2)")?;
+        let c_sum = Expr::cos_of(&sum, &st).or_fail("cos(L1+L2)")?;
+        let s_rhs = s1.mul(&c2).or_fail("s1 c2")?.add(&c1.mul(&s2).or_fail("c1 s2")?);
+        let c_rhs = c1.mul(&c2).or_fail("c1 c2")?.sub(&s1.mul(&s2).or_fail("s1 s2")?);
+        prop_assert_eq!(s_sum, s_rhs, "sin(L1 + L2)");
+        prop_assert_eq!(c_sum, c_rhs, "cos(L1 + L2)");
+        prop_assert_eq!(Expr::sin_of(&arg1.neg(), &st).or_fail("sin -L")?, s1.neg(), "sin(-L)");
+        prop_assert_eq!(Expr::cos_of(&arg1.neg(), &st).or_fail("cos -L")?, c1.clone(), "cos(-L)");
+        // exp of the state parts only (time is not allowed in exp).
+        let m1 = linear_form(&l1, 2, &st);
+        let m2 = linear_form(&l2, 2, &st);
+        let e1 = Expr::exp_of(&m1, &st).or_fail("exp M1")?;
+        let e2 = Expr::exp_of(&m2, &st).or_fail("exp M2")?;
+        let e12 = Expr::exp_of(&m1.add(&m2), &st).or_fail("exp(M1+M2)")?;
+        prop_assert_eq!(e1.mul(&e2).or_fail("exp exp")?, e12, "exp(M1) exp(M2)");
+    }
+
+    /// Product rule of `pd` for every symbol (states, parameter, time), and
+    /// `pd` commutes for every pair of symbols (from memory).
+    #[test]
+    fn partial_derivatives(dim in dim_strategy(), sa in expr_spec(4), sb in expr_spec(3)) {
+        let a = build_expr(&sa, dim)?;
+        let b = build_expr(&sb, dim)?;
+        let mut syms = states(dim);
+        syms.push(param());
+        syms.push(Sym::T);
+        let ab = a.mul(&b).or_fail("ab")?;
+        for s in &syms {
+            let lhs = ab.pd(*s);
+            let rhs = a.pd(*s).mul(&b).or_fail("a' b")?.add(&a.mul(&b.pd(*s)).or_fail("a b'")?);
+            prop_assert_eq!(lhs, rhs, "product rule in {}", s.name());
+        }
+        for s in &syms {
+            for r in &syms {
+                prop_assert_eq!(a.pd(*s).pd(*r), a.pd(*r).pd(*s), "pd in {} and {}", s.name(), r.name());
+            }
+        }
+    }
+
+    /// A linear change of coordinates `x ↦ x + c·y` is a ring homomorphism
+    /// and obeys the chain rule
+    /// `∂_y (e∘φ) = c·(∂_x e)∘φ + (∂_y e)∘φ` (from memory).
+    #[test]
+    fn linear_substitution(dim in dim_strategy(), sa in expr_spec(3), sb in expr_spec(3), c in -4i64..=4) {
+        let a = build_expr(&polynomial_specs(&sa), dim)?;
+        let b = build_expr(&polynomial_specs(&sb), dim)?;
+        let st = states(dim);
+        let (x, y) = (st[0], st[1]);
+        let cq = q(c, 2);
+        let mut map = HashMap::new();
+        map.insert(x, Expr::sym(x).add(&Expr::sym(y).scale(&cq)));
+        let phi = |e: &Expr| e.subst(&map, &st);
+        let ab = a.mul(&b).or_fail("ab")?;
+        let lhs = phi(&ab).or_fail("phi(ab)")?;
+        let rhs = phi(&a).or_fail("phi(a)")?.mul(&phi(&b).or_fail("phi(b)")?).or_fail("phi(a)phi(b)")?;
+        prop_assert_eq!(lhs, rhs, "substitution is multiplicative");
+        let lhs = phi(&a).or_fail("phi(a)")?.pd(y);
+        let rhs = phi(&a.pd(x)).or_fail("phi(a_x)")?.scale(&cq).add(&phi(&a.pd(y)).or_fail("phi(a_y)")?);
+        prop_assert_eq!(lhs, rhs, "chain rule");
+    }
+
+    /// `d/dt ∫_0^t e = e`, the antiderivative differentiates back, and
+    /// `∫_0^t e` vanishes at t = 0 (fundamental theorem of calculus).
+    #[test]
+    fn time_integrals(dim in dim_strategy(), sa in expr_spec(4)) {
+        let e = build_expr(&sa, dim)?;
+        prop_assume!(e.is_time_varying());
+        let big = e.integral_from_zero().or_fail("integral")?;
+        prop_assert_eq!(big.pd(Sym::T), e.clone(), "d/dt of the integral of {}", e);
+        prop_assert_eq!(big.at_time_zero(), Expr::zero(), "integral at t = 0");
+        let anti = e.antiderivative_t().or_fail("antiderivative")?;
+        prop_assert_eq!(anti.pd(Sym::T), e.clone(), "d/dt of the antiderivative");
+    }
+
+    /// The Lie derivative is a derivation: `X(fg) = X(f) g + f X(g)`.
+    #[test]
+    fn lie_derivative_is_a_derivation(dim in dim_strategy(), sx in field_spec(2), sf in expr_spec(3), sg in expr_spec(3)) {
+        let st = states(dim);
+        let x = build_field(&sx, dim)?;
+        let f = build_expr(&sf, dim)?;
+        let g = build_expr(&sg, dim)?;
+        let lhs = x.lie_derivative(&f.mul(&g).or_fail("fg")?, &st).or_fail("X(fg)")?;
+        let xf = x.lie_derivative(&f, &st).or_fail("X(f)")?;
+        let xg = x.lie_derivative(&g, &st).or_fail("X(g)")?;
+        let rhs = xf.mul(&g).or_fail("X(f)g")?.add(&f.mul(&xg).or_fail("fX(g)")?);
+        prop_assert_eq!(lhs, rhs);
+        // On a coordinate the Lie derivative is the component (DESIGN §2.3).
+        for (i, s) in st.iter().enumerate() {
+            prop_assert_eq!(x.lie_derivative(&Expr::sym(*s), &st).or_fail("X(x_i)")?, x.0[i].clone());
+        }
+    }
+
+    /// `[X, Y](h) = X(Y(h)) − Y(X(h))` (REFERENCES §0), and the bracket
+    /// is antisymmetric with `[X, X] = 0`.
+    #[test]
+    fn bracket_is_the_commutator(dim in dim_strategy(), sx in field_spec(2), sy in field_spec(2), sh in expr_spec(3)) {
+        let st = states(dim);
+        let x = build_field(&sx, dim)?;
+        let y = build_field(&sy, dim)?;
+        let h = build_expr(&sh, dim)?;
+        let xy = x.bracket(&y, &st).or_fail("[X,Y]")?;
+        let lhs = xy.lie_derivative(&h, &st).or_fail("[X,Y](h)")?;
+        let xyh = x.lie_derivative(&y.lie_derivative(&h, &st).or_fail("Y(h)")?, &st).or_fail("X(Y(h))")?;
+        let yxh = y.lie_derivative(&x.lie_derivative(&h, &st).or_fail("X(h)")?, &st).or_fail("Y(X(h))")?;
+        prop_assert_eq!(lhs, xyh.sub(&yxh), "[X,Y](h)");
+        let yx = y.bracket(&x, &st).or_fail("[Y,X]")?;
+        prop_assert_eq!(xy, yx.scale(&Q::int(-1)), "antisymmetry");
+        prop_assert!(x.bracket(&x, &st).or_fail("[X,X]")?.is_zero(), "[X,X] = 0");
+    }
+
+    /// Jacobi identity `[X,[Y,Z]] + [Y,[Z,X]] + [Z,[X,Y]] = 0`.
+    #[test]
+    fn jacobi_identity(dim in dim_strategy(), sx in field_spec(2), sy in field_spec(2), sz in field_spec(1)) {
+        let st = states(dim);
+        let x = build_field(&sx, dim)?;
+        let y = build_field(&sy, dim)?;
+        let z = build_field(&sz, dim)?;
+        let br = |a: &Field, b: &Field| a.bracket(b, &st);
+        let j1 = br(&x, &br(&y, &z).or_fail("[Y,Z]")?).or_fail("[X,[Y,Z]]")?;
+        let j2 = br(&y, &br(&z, &x).or_fail("[Z,X]")?).or_fail("[Y,[Z,X]]")?;
+        let j3 = br(&z, &br(&x, &y).or_fail("[X,Y]")?).or_fail("[Z,[X,Y]]")?;
+        let sum = j1.add(&j2).or_fail("sum")?.add(&j3).or_fail("sum")?;
+        prop_assert!(sum.is_zero(), "Jacobi sum is {:?}", sum);
+    }
+}
+
+proptest! {
+    #![proptest_config(config(64))]
+
+    /// The printed form of an expression, read back by a session, is the
+    /// same normal form; the session's arithmetic on printed operands agrees
+    /// with the core's; a bare line prints the same text again.
+    #[test]
+    fn expression_round_trip(dim in dim_strategy(), sa in expr_spec(5), sb in expr_spec(3)) {
+        let a = build_expr(&sa, dim)?;
+        let b = build_expr(&sb, dim)?;
+        let mut s = session_for(dim)?;
+        run(&mut s, &format!("E = {a}")).map_err(TestCaseError::fail)?;
+        match s.get("E") {
+            Some(Value::Scalar(e)) => prop_assert_eq!(e, &a, "printed: {}", a),
+            other => return Err(TestCaseError::fail(format!("E is {other:?}"))),
+        }
+        let printed = run(&mut s, "E").map_err(TestCaseError::fail)?;
+        prop_assert_eq!(printed, vec![a.to_string()]);
+        let sum = a.add(&b);
+        let prod = a.mul(&b).or_fail("ab")?;
+        run(&mut s, &format!("check ({a}) + ({b}) == {sum}")).map_err(TestCaseError::fail)?;
+        run(&mut s, &format!("check ({a})*({b}) == {prod}")).map_err(TestCaseError::fail)?;
+        let st = states(dim);
+        let dx = a.pd(st[0]);
+        run(&mut s, &format!("check pd({a}, {}) == {dx}", STATE_NAMES[0])).map_err(TestCaseError::fail)?;
+    }
+
+    /// The printed form of a field, read back by a session, is the same
+    /// field; the session's bracket and Lie derivative of printed fields
+    /// agree with the core's.
+    #[test]
+    fn field_round_trip(dim in dim_strategy(), sx in field_spec(2), sy in field_spec(2), sh in expr_spec(2)) {
+        let st = states(dim);
+        let x = build_field(&sx, dim)?;
+        let y = build_field(&sy, dim)?;
+        let h = build_expr(&sh, dim)?;
+        let mut s = session_for(dim)?;
+        run(&mut s, &format!("F = {}\nG = {}", field_text(&x), field_text(&y))).map_err(TestCaseError::fail)?;
+        match s.get("F") {
+            Some(Value::Field(f)) => prop_assert_eq!(&f.field, &x, "printed: {}", field_text(&x)),
+            other => return Err(TestCaseError::fail(format!("F is {other:?}"))),
+        }
+        let printed = run(&mut s, "F").map_err(TestCaseError::fail)?;
+        prop_assert_eq!(printed, vec![field_text(&x)]);
+        let xy = x.bracket(&y, &st).or_fail("[X,Y]")?;
+        run(&mut s, &format!("check [F, G] == {}", field_text(&xy))).map_err(TestCaseError::fail)?;
+        let xh = x.lie_derivative(&h, &st).or_fail("X(h)")?;
+        run(&mut s, &format!("check F({h}) == {xh}")).map_err(TestCaseError::fail)?;
+    }
+}
