@@ -22,7 +22,10 @@ impl Span {
     /// The span `start..end`; the two ends are swapped if given in reverse.
     pub fn new(start: usize, end: usize) -> Span {
         if end < start {
-            Span { start: end, end: start }
+            Span {
+                start: end,
+                end: start,
+            }
         } else {
             Span { start, end }
         }
@@ -184,6 +187,9 @@ pub enum StmtKind {
 }
 
 /// The right-hand side of a definition.
+// One statement exists at a time, so the size of a command inline costs nothing;
+// keeping it unboxed keeps the shape the evaluator is written against.
+#[allow(clippy::large_enum_variant)]
 #[derive(Clone, Debug, PartialEq)]
 pub enum Rhs {
     /// `A = EXPR`
@@ -229,6 +235,8 @@ pub struct Command {
 }
 
 /// The commands of the language and their parts.
+// Commands are few and short-lived; their parts stay inline (see `Rhs`).
+#[allow(clippy::large_enum_variant)]
 #[derive(Clone, Debug, PartialEq)]
 pub enum CommandKind {
     /// `flow E [on E] to N`

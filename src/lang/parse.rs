@@ -37,8 +37,8 @@ use nom::{
 };
 
 use super::ast::{
-    Arg, Assign, BinOp, Command, CommandKind, Expr, ExprKind, Ident, PathArg, Rhs, Span,
-    Spanned, Stmt, StmtKind,
+    Arg, Assign, BinOp, Command, CommandKind, Expr, ExprKind, Ident, PathArg, Rhs, Span, Spanned,
+    Stmt, StmtKind,
 };
 use super::split::{closer_of, scan_line, BracketFault};
 
@@ -207,7 +207,10 @@ impl fmt::Display for ParseErrorKind {
             ParseErrorKind::EmptyInput => write!(f, "empty statement"),
             ParseErrorKind::Expected { what, found } => write!(f, "expected {what}, found {found}"),
             ParseErrorKind::Reserved(word) => {
-                write!(f, "`{word}` is a reserved word and cannot be used as a name")
+                write!(
+                    f,
+                    "`{word}` is a reserved word and cannot be used as a name"
+                )
             }
             ParseErrorKind::UnclosedBracket { open } => write!(f, "`{open}` is never closed"),
             ParseErrorKind::UnexpectedClose(close) => {
@@ -337,10 +340,9 @@ fn check_brackets(text: &str) -> Result<usize, ParseError> {
             Err(BracketFault::Mismatch { open, close, at }) => {
                 (at, ParseErrorKind::MismatchedClose { open, close })
             }
-            Err(BracketFault::TooDeep { at }) => (
-                at,
-                ParseErrorKind::NestingTooDeep { limit: MAX_NESTING },
-            ),
+            Err(BracketFault::TooDeep { at }) => {
+                (at, ParseErrorKind::NestingTooDeep { limit: MAX_NESTING })
+            }
         };
         return Err(ParseError {
             span: Span::new(at, at + 1),
@@ -452,9 +454,9 @@ fn starts_number(input: &str) -> bool {
 }
 
 fn count_digits(input: &str, from: usize) -> usize {
-    input
-        .get(from..)
-        .map_or(0, |rest| rest.bytes().take_while(u8::is_ascii_digit).count())
+    input.get(from..).map_or(0, |rest| {
+        rest.bytes().take_while(u8::is_ascii_digit).count()
+    })
 }
 
 /// The token at the start of `input` (already past whitespace), for messages:
@@ -595,12 +597,7 @@ impl<'a> Parser<'a> {
     fn binary(&self, op: BinOp, lhs: Node, rhs: Node, at: usize) -> Result<Node, NomErr<PErr>> {
         let span = lhs.expr.span.join(rhs.expr.span);
         let depth = lhs.depth.max(rhs.depth);
-        self.make(
-            ExprKind::Bin(op, lhs.expr, rhs.expr),
-            span,
-            depth,
-            at,
-        )
+        self.make(ExprKind::Bin(op, lhs.expr, rhs.expr), span, depth, at)
     }
 
     /// Wraps `node` in one unary minus per offset in `minuses` (the last one innermost).
@@ -977,9 +974,10 @@ impl<'a> Parser<'a> {
     /// Refuses an operand written directly against the previous one (`2x`,
     /// `(a)b`, `2[x]`), and a number followed by `(`: implicit multiplication.
     fn adjacent(&self, rest: &'a str, left: &Node) -> PResult<'a, ()> {
-        let touching = rest.chars().next().is_some_and(|ch| {
-            is_ident_start(ch) || ch == '[' || ch == '{' || starts_number(rest)
-        });
+        let touching = rest
+            .chars()
+            .next()
+            .is_some_and(|ch| is_ident_start(ch) || ch == '[' || ch == '{' || starts_number(rest));
         let at = ws(rest);
         let number_call = at.starts_with('(') && matches!(left.expr.kind, ExprKind::Num(_));
         if !touching && !number_call {
@@ -1521,8 +1519,7 @@ impl<'a> Parser<'a> {
                 "`degree` and a whole number after the field in `carleman`",
             );
         };
-        let (rest, degree) =
-            self.uint(after_degree, "a degree (a whole number) after `degree`")?;
+        let (rest, degree) = self.uint(after_degree, "a degree (a whole number) after `degree`")?;
         self.end(rest, None)?;
         Ok((rest, CommandKind::Carleman { field, degree }))
     }
@@ -2084,7 +2081,10 @@ mod tests {
         };
         assert_eq!(*span, Span::new(7, 59));
         assert_eq!(to.value, 3);
-        assert_eq!((param.name.as_str(), param.span), ("eps", Span::new(25, 28)));
+        assert_eq!(
+            (param.name.as_str(), param.span),
+            ("eps", Span::new(25, 28))
+        );
         assert_eq!(
             method.as_ref().map(|m| (m.name.as_str(), m.span)),
             Some(("classic", Span::new(29, 36)))
@@ -2555,12 +2555,21 @@ mod tests {
     #[test]
     fn messages_are_lowercase_without_full_stop_and_quote_the_input() {
         let cases = [
-            ("x +", "expected an expression after `+`, found the end of the line"),
-            ("state t", "`t` is a reserved word and cannot be used as a name"),
+            (
+                "x +",
+                "expected an expression after `+`, found the end of the line",
+            ),
+            (
+                "state t",
+                "`t` is a reserved word and cannot be used as a name",
+            ),
             ("sin(x", "`(` is never closed"),
             (")", "`)` has no matching opening bracket"),
             ("(a]", "`]` cannot close `(` (expected `)`)"),
-            ("names foo", "unexpected `foo` after the end of the statement"),
+            (
+                "names foo",
+                "unexpected `foo` after the end of the statement",
+            ),
             (
                 "2x",
                 "missing `*` between `2` and `x`: implicit multiplication is not allowed",

@@ -40,7 +40,11 @@ impl SourceStmt {
             Err(idx) => idx.saturating_sub(1),
         };
         let line_start = self.line_starts.get(line_idx).copied().unwrap_or(0);
-        let column = self.text.get(line_start..byte).map_or(0, |s| s.chars().count()) + 1;
+        let column = self
+            .text
+            .get(line_start..byte)
+            .map_or(0, |s| s.chars().count())
+            + 1;
         (self.line + line_idx, column)
     }
 
@@ -73,14 +77,7 @@ impl SourceStmt {
             .map_or(self.text.len(), |next| next.saturating_sub(1));
         let end = diag::floor_boundary(&self.text, span.end.clamp(start, line_end));
         let local = Span::new(start - line_start, end - line_start);
-        diag::render_located(
-            origin,
-            line,
-            column,
-            self.line_text(line),
-            local,
-            message,
-        )
+        diag::render_located(origin, line, column, self.line_text(line), local, message)
     }
 }
 
@@ -381,11 +378,7 @@ fn fault_error(src: &str, fault: BracketFault) -> SplitError {
             (SplitErrorKind::MismatchedClose { open, close }, at, close)
         }
         // The splitter scans without a nesting limit; keep a sensible report anyway.
-        BracketFault::TooDeep { at } => (
-            SplitErrorKind::UnclosedBracket { open: '(' },
-            at,
-            '(',
-        ),
+        BracketFault::TooDeep { at } => (SplitErrorKind::UnclosedBracket { open: '(' }, at, '('),
     };
     let (line, column, source_line, span) = place(src, at, ch);
     SplitError {
