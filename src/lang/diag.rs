@@ -198,6 +198,24 @@ mod tests {
         assert_eq!(report, "f:1:5: error: m\n    f = (a\n        ^^");
     }
 
+    proptest::proptest! {
+        #[test]
+        fn rendering_never_panics(
+            text in "[a-z \t\r\n\u{3b8}\u{4e2d}]{0,30}",
+            start in 0usize..40,
+            len in 0usize..40,
+            offset in 0usize..5,
+        ) {
+            let span = Span::new(start, start + len);
+            let caret = render_caret(&text, span);
+            proptest::prop_assert!(caret.ends_with('^'));
+            let report = render_error(Some("f"), 1, offset, &text, span, "m");
+            proptest::prop_assert_eq!(report.lines().count(), 3);
+            let (_, column) = line_col(&text, start);
+            proptest::prop_assert!(column >= 1);
+        }
+    }
+
     #[test]
     fn line_col_counts_characters() {
         assert_eq!(line_col("ab\n\u{3b8}cd", 5), (1, 2));

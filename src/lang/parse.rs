@@ -23,6 +23,18 @@
 //! atom     := NUMBER | NAME | NAME ( args ) | ( expr ) | [ expr {, expr} ]
 //!           | { expr {, expr} {; expr {, expr}} }
 //! args     := arg {, arg};  arg := NAME = expr | expr
+//! NUMBER   := DIGITS [. DIGITS] [(e|E) [+|-] DIGITS] | . DIGITS [...]   kept as text
+//! PATH     := "any text on one line" | a run without blanks, quotes, brackets or #
+//! ```
+//!
+//! Commands (the optional parts after the required ones may come in any order):
+//!
+//! ```text
+//! flow E [on E] to N            magnus E to N [over E]
+//! average E to N in NAME [strobo|classic] [depth N] [with transform]
+//! carleman E degree N           stability E at q = v, ... [with a = v, ...]
+//! simulate E from q = v, ... for E [with a = v, ...] [plot PATH]
+//! compare E with E from q = v, ... for E [with ...] sweep NAME = E, ... [tol E] [plot PATH]
 //! ```
 
 use std::fmt;

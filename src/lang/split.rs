@@ -593,6 +593,31 @@ mod tests {
         }
     }
 
+    proptest::proptest! {
+        #[test]
+        fn splitting_and_locating_never_panic(src in "[a-z0-9 ()\\[\\]{}+=,#\"\\\\\r\n\u{3b8}]{0,60}") {
+            match split_statements(&src) {
+                Ok(statements) => {
+                    for statement in &statements {
+                        proptest::prop_assert!(!statement.text.trim().is_empty());
+                        for byte in 0..=statement.text.len() + 1 {
+                            let (line, column) = statement.locate(byte);
+                            proptest::prop_assert!(line >= statement.line);
+                            proptest::prop_assert!(line <= statement.last_line());
+                            proptest::prop_assert!(column >= 1);
+                            let _ = statement.render(Some("p"), Span::new(byte, byte + 3), "m");
+                        }
+                    }
+                }
+                Err(err) => {
+                    proptest::prop_assert!(err.line >= 1 && err.column >= 1);
+                    let _ = err.render(None);
+                }
+            }
+            let _ = needs_more(&src);
+        }
+    }
+
     #[test]
     fn scan_line_reports_depth_limit() {
         let mut stack = Vec::new();
