@@ -6,7 +6,7 @@
 use std::collections::HashMap;
 
 use num_bigint::BigInt;
-use num_integer::{Integer, Roots as _};
+use num_integer::Integer;
 use num_traits::{Signed, ToPrimitive, Zero};
 
 use super::Form;

@@ -58,7 +58,7 @@ pub struct Averaged {
     /// `F_1..F_N` (or `G_1..G_N`), autonomous, without their eps factors.
     pub orders: Vec<Field>,
     /// The classical generator `w_1..w_N` (functions of t and the new
-    /// coordinates), when asked for.
+    /// coordinates), for classical averaging.
     pub transform: Option<Vec<Field>>,
     /// The period of the standard form that was averaged.
     pub period: Period,
@@ -182,7 +182,7 @@ pub fn average(v: &Field, eps: Sym, opts: &Options, states: &[Sym]) -> CoreResul
         Method::Strobo => (stroboscopic(&standard, &period, states)?, None),
         Method::Classic => {
             let (g, w) = classical(&standard, &period, states)?;
-            (g, if opts.with_transform { Some(w) } else { None })
+            (g, Some(w))
         }
     };
     Ok(Averaged { orders, transform, period, form, standard })

@@ -7,7 +7,7 @@ use std::time::Instant;
 
 use super::ast::{Command, CommandKind, Ident, Span};
 use super::session::{Report, Session, SessionError, Style, SymKind};
-use super::value::{FieldValue, Value};
+use super::value::{AveragedInfo, FieldValue, Value};
 use crate::averaging::{self, Form, Method, Options};
 use crate::core::calc::Period;
 use crate::core::{limits, CoreError, Expr, Field, Matrix, Q, Sym};
@@ -223,7 +223,7 @@ impl Session {
             report.push(Style::Note, "bracket form available: `show NAME as brackets`");
         }
         report.push(Style::Note, summary(n, n_terms));
-        Ok(Value::Field(FieldValue { field: total, combo: None, structure }))
+        Ok(Value::Field(FieldValue { field: total, combo: None, structure, averaged: None }))
     }
 
     fn average(&self, v: &FieldValue, eps: Sym, opts: &Options, span: Span, report: &mut Report) -> R<Vec<Value>> {
@@ -291,8 +291,21 @@ impl Session {
                  (it depends on the coordinates); use `strobo` or order 2 for one",
             );
         }
-        let mut out = vec![Value::Field(FieldValue { field: total, combo: None, structure })];
-        if let Some(w) = res.transform_total(eps).map_err(core)? {
+        let info = AveragedInfo {
+            eps,
+            orders: res.orders.clone(),
+            transform: res.transform.clone(),
+            period: res.period.clone(),
+            classic: opts.method == Method::Classic,
+        };
+        let mut out = vec![Value::Field(FieldValue {
+            field: total,
+            combo: None,
+            structure,
+            averaged: Some(std::sync::Arc::new(info)),
+        })];
+        if !opts.with_transform {
+        } else if let Some(w) = res.transform_total(eps).map_err(core)? {
             for (k, wk) in res.transform.iter().flatten().enumerate() {
                 report.push(Style::Result, format!("w_{}     {}", k + 1, plain::field(wk)));
             }

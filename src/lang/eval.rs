@@ -189,7 +189,7 @@ impl Session {
                             (Some(c1), Some(c2)) => Some(merge_combo(c1, c2, &sign)),
                             _ => None,
                         };
-                        Ok(Value::Field(FieldValue { field, combo, structure: None }))
+                        Ok(Value::Field(FieldValue { field, combo, structure: None, averaged: None }))
                     }
                     (Value::Matrix(p), Value::Matrix(q)) => {
                         Ok(Value::Matrix(p.add_scaled(q, &sign).map_err(core)?))
@@ -419,6 +419,7 @@ impl Session {
                             field: Field(f.field.0.iter().map(|c| c.coeff_of_power(s, k)).collect()),
                             combo: None,
                             structure,
+                            averaged: None,
                         })
                     }
                     Value::Matrix(m) => Value::Matrix(Matrix { data: m.data.iter().map(|c| c.coeff_of_power(s, k)).collect(), ..m }),
@@ -533,7 +534,7 @@ pub(crate) fn scale_field_value(f: &FieldValue, s: &Expr) -> Result<FieldValue, 
         }),
         None => None,
     };
-    Ok(FieldValue { field, combo, structure: None })
+    Ok(FieldValue { field, combo, structure: None, averaged: None })
 }
 
 fn merge_combo(a: &Combo, b: &Combo, sign: &Q) -> Combo {

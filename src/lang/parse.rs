@@ -2688,7 +2688,101 @@ mod tests {
         assert!(!is_reserved("eps"));
     }
 
+    /// Random expression trees over a few leaves, operators, calls and lists.
+    fn arb_expr() -> impl proptest::strategy::Strategy<Value = Expr> {
+        use proptest::prelude::*;
+        let leaf = prop_oneof![
+            Just(ExprKind::Name("a".into())),
+            Just(ExprKind::Name("t".into())),
+            Just(ExprKind::Num("2".into())),
+            Just(ExprKind::Num("0.5".into())),
+        ]
+        .prop_map(|kind| Expr::new(kind, Span::default()));
+        leaf.prop_recursive(5, 48, 3, |inner| {
+            let op = prop_oneof![
+                Just(BinOp::Add),
+                Just(BinOp::Sub),
+                Just(BinOp::Mul),
+                Just(BinOp::Div),
+                Just(BinOp::Pow),
+            ];
+            prop_oneof![
+                (op, inner.clone(), inner.clone()).prop_map(|(op, l, r)| ExprKind::Bin(
+                    op,
+                    Box::new(l),
+                    Box::new(r)
+                )),
+                inner.clone().prop_map(|e| ExprKind::Neg(Box::new(e))),
+                proptest::collection::vec(inner.clone(), 1..3).prop_map(|args| {
+                    let args = args.into_iter().map(Arg::Pos).collect();
+                    ExprKind::Call(Ident::new("f", Span::default()), args)
+                }),
+                proptest::collection::vec(inner, 1..3).prop_map(ExprKind::List),
+            ]
+            .prop_map(|kind| Expr::new(kind, Span::default()))
+        })
+    }
+
+    /// Binding strength of the outermost operator, as the grammar defines it.
+    fn strength(expr: &Expr) -> u8 {
+        match &expr.kind {
+            ExprKind::Bin(BinOp::Add | BinOp::Sub, ..) => 1,
+            ExprKind::Bin(BinOp::Mul | BinOp::Div, ..) => 2,
+            ExprKind::Neg(_) => 3,
+            ExprKind::Bin(BinOp::Pow, ..) => 4,
+            _ => 5,
+        }
+    }
+
+    /// Writes `expr` with only the parentheses the precedence rules require.
+    fn print_min(expr: &Expr, min: u8) -> String {
+        let body = match &expr.kind {
+            ExprKind::Num(text) | ExprKind::Name(text) => text.clone(),
+            ExprKind::Neg(inner) => format!("-{}", print_min(inner, 3)),
+            ExprKind::Bin(op, lhs, rhs) => {
+                let (left_min, right_min) = match op {
+                    BinOp::Add | BinOp::Sub => (1, 2),
+                    BinOp::Mul | BinOp::Div => (2, 3),
+                    BinOp::Pow => (5, 3),
+                };
+                format!(
+                    "{} {} {}",
+                    print_min(lhs, left_min),
+                    op.symbol(),
+                    print_min(rhs, right_min)
+                )
+            }
+            ExprKind::Call(name, args) => {
+                let args: Vec<String> = args
+                    .iter()
+                    .map(|arg| match arg {
+                        Arg::Pos(e) | Arg::Bind(_, e) => print_min(e, 0),
+                    })
+                    .collect();
+                format!("{}({})", name.name, args.join(", "))
+            }
+            ExprKind::List(entries) => {
+                let entries: Vec<String> = entries.iter().map(|e| print_min(e, 0)).collect();
+                format!("[{}]", entries.join(", "))
+            }
+            ExprKind::Apply(..) | ExprKind::Matrix(_) => String::new(),
+        };
+        if strength(expr) < min {
+            format!("({body})")
+        } else {
+            body
+        }
+    }
+
     proptest::proptest! {
+        #[test]
+        fn minimally_bracketed_text_parses_back_to_the_same_tree(tree in arb_expr()) {
+            let text = print_min(&tree, 0);
+            eprintln!("SAMPLE {text}");
+            let parsed = parse_expr(&text);
+            proptest::prop_assert_eq!(parsed.map(|e| e.sexpr()), Ok(tree.sexpr()), "{}", text);
+        }
+
         #[test]
         fn never_panics_and_spans_stay_inside(text in "[a-z0-9 ()\\[\\]{}+*/^=,;.#\"\\\\\n-]{0,40}") {
             if let Err(err) = parse_stmt(&text) {

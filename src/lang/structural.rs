@@ -364,7 +364,7 @@ impl Session {
             BchError::Lie(l) => core(lie_err(l)),
         })?
         .unwrap_or_else(|| Field::zero(states.len()));
-        Ok(Value::Field(FieldValue { field: value, combo: None, structure: Some(to_terms(&poly, &names)) }))
+        Ok(Value::Field(FieldValue { field: value, combo: None, structure: Some(to_terms(&poly, &names)), averaged: None }))
     }
 }
 

@@ -6,7 +6,10 @@
 //! structural display (a Lie polynomial in names) when it is the result of
 //! `magnus`, `average` or `bch`.
 
-use crate::core::{Expr, Field, Matrix};
+use std::sync::Arc;
+
+use crate::core::calc::Period;
+use crate::core::{Expr, Field, Matrix, Sym};
 
 /// A linear combination `Σ c_i X_i` of named fields with scalar
 /// coefficients free of the state (functions of time and parameters).
@@ -36,6 +39,24 @@ pub struct FieldValue {
     pub combo: Option<Combo>,
     /// A structural display (Lie polynomial), when known.
     pub structure: Option<Vec<BracketTerm>>,
+    /// The averaging result behind this field, for `compare`.
+    pub averaged: Option<Arc<AveragedInfo>>,
+}
+
+/// What `compare` needs to know of an averaged model.
+#[derive(Clone, Debug, PartialEq)]
+pub struct AveragedInfo {
+    /// The small parameter.
+    pub eps: Sym,
+    /// `F_1..F_N` (autonomous, without eps factors).
+    pub orders: Vec<Field>,
+    /// The classical generator `w_1..w_N`, when computed.
+    pub transform: Option<Vec<Field>>,
+    /// The period of the averaged standard form (and of the change of
+    /// coordinates): original and model agree in coordinates at its multiples.
+    pub period: Period,
+    /// Classical (near-identity transform) rather than stroboscopic.
+    pub classic: bool,
 }
 
 /// A value.
@@ -52,7 +73,7 @@ pub enum Value {
 impl Value {
     /// A plain field without structure.
     pub fn field(f: Field) -> Value {
-        Value::Field(FieldValue { field: f, combo: None, structure: None })
+        Value::Field(FieldValue { field: f, combo: None, structure: None, averaged: None })
     }
 
     /// The kind's name for messages.

@@ -2,3 +2,9 @@
 //! exact fields, adaptive Runge–Kutta integration, fits, eigenvalues and
 //! SVG plots, and the numerical commands `simulate`, `compare`,
 //! `stability`. The exact core never depends on this module.
+
+pub mod compile;
+pub mod eigen;
+pub mod fit;
+pub mod ode;
+pub mod plot;

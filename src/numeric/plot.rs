@@ -70,7 +70,8 @@ impl std::error::Error for PlotError {}
 /// `series[k]` holds component `k` at each of the `times` and is labelled
 /// `names[k]`. Points whose time or value is not finite are left out of
 /// the line. Constant data is drawn on a padded axis. An error is returned
-/// when lengths disagree or no point is usable; the file is then untouched.
+/// when lengths disagree, no point is usable or the values overflow an
+/// axis (such as `-f64::MAX` with `f64::MAX`); the file is then untouched.
 pub fn time_series_svg(
     path: &Path,
     title: &str,
@@ -135,10 +136,10 @@ pub fn time_series_svg(
 ///
 /// Each entry of `per_order` is a label (such as "order 1") and the errors
 /// at each of the `eps` values. Points where eps or the error is not a
-/// positive finite number (or is subnormal, below about 2.2e-308) are
-/// skipped; an order with no usable point is
+/// number in `1e-300..=1e300` are skipped; an order with no usable point is
 /// still listed in the legend, marked as having no data. An error is
-/// returned when lengths disagree or no point at all is usable.
+/// returned when lengths disagree, no point at all is usable, or the
+/// usable values span more than 280 decades.
 pub fn error_vs_eps_svg(
     path: &Path,
     title: &str,
@@ -284,10 +285,11 @@ fn check_len(what: &str, expected: usize, found: usize) -> Result<(), PlotError>
     }
 }
 
-/// Whether a value can sit on a log axis. Subnormal numbers are left out:
-/// as errors they are zero for all practical purposes.
+/// Whether a value can sit on a log axis: positive and within
+/// `1e-300..=1e300`, beyond which numbers stop behaving (as errors, values
+/// that small are zero for all practical purposes).
 fn is_loggable(value: f64) -> bool {
-    value.is_normal() && value > 0.0
+    (1e-300..=1e300).contains(&value)
 }
 
 /// Line colours, chosen to stay distinct on white.
@@ -317,15 +319,22 @@ fn extent(values: impl Iterator<Item = f64>) -> Result<(f64, f64), PlotError> {
     extent.ok_or(PlotError::NoData)
 }
 
-/// A linear axis range around the values with a 5% margin; an empty or
-/// nearly empty spread is widened so the axis has room for tick labels.
+/// A linear axis range around the values with a 5% margin.
+///
+/// The plotting library picks tick marks by refining a step until enough
+/// fit; it loops forever when the range is so narrow (relative to its
+/// position, or in absolute terms near the subnormal numbers) that the
+/// step underflows. So a spread below `1e-9` of the magnitude is widened to
+/// 10% of the magnitude, and values all below `1e-250` in size are shown on
+/// the axis `-1..1`.
 fn linear_range(values: impl Iterator<Item = f64>) -> Result<Range<f64>, PlotError> {
     let (lo, hi) = extent(values)?;
     let magnitude = lo.abs().max(hi.abs());
     let span = hi - lo;
-    let (lo, hi) = if span <= 1e-9 * magnitude || span == 0.0 {
-        let pad = if magnitude == 0.0 { 1.0 } else { 0.1 * magnitude };
-        (lo - pad, hi + pad)
+    let (lo, hi) = if magnitude < 1e-250 {
+        (-1.0, 1.0)
+    } else if span <= 1e-9 * magnitude {
+        (lo - 0.1 * magnitude, hi + 0.1 * magnitude)
     } else {
         (lo - 0.05 * span, hi + 0.05 * span)
     };
@@ -336,20 +345,28 @@ fn linear_range(values: impl Iterator<Item = f64>) -> Result<Range<f64>, PlotErr
     }
 }
 
-/// A logarithmic axis range around positive values with a margin of 5% of
-/// the decades spanned (a factor 1.5 each way when all values are equal),
-/// kept within the normal `f64` numbers.
+/// Most decades a log axis may span: the plotting library divides the
+/// ends of the range and loops forever if the ratio overflows.
+const MAX_DECADES: f64 = 280.0;
+
+/// A logarithmic axis range around values that pass [`is_loggable`], with
+/// a margin of 5% of the decades spanned (a factor 1.5 each way when all
+/// values are equal), extended down to a power of ten so that the axis
+/// always carries a labelled tick.
 fn log_range(values: impl Iterator<Item = f64>) -> Result<Range<f64>, PlotError> {
     let (lo, hi) = extent(values.filter(|v| is_loggable(*v)))?;
     let (lo_log, hi_log) = (lo.log10(), hi.log10());
     let decades = hi_log - lo_log;
+    if decades > MAX_DECADES {
+        return Err(PlotError::RangeTooWide);
+    }
     let pad = if decades > 1e-9 {
         0.05 * decades
     } else {
         1.5f64.log10()
     };
-    let lo = 10f64.powf(lo_log - pad).max(f64::MIN_POSITIVE);
-    let hi = 10f64.powf(hi_log + pad).min(f64::MAX);
+    let lo = 10f64.powf((lo_log - pad).min(lo_log.floor()));
+    let hi = 10f64.powf(hi_log + pad);
     if lo.is_normal() && hi.is_normal() && hi > lo {
         Ok(lo..hi)
     } else {
@@ -506,6 +523,11 @@ mod tests {
             (vec![1.0, 2.0, 3.0], vec![1.0, f64::NAN, f64::INFINITY]),
             (vec![0.0, 1.0], vec![1e300, -1e300]),
             (vec![0.0, 1.0], vec![1e-320, 0.0]),
+            (vec![0.0, 1.0], vec![1e-300, 3e-300]),
+            (vec![0.0, 1.0], vec![1e300, 1e300 * (1.0 + 1e-12)]),
+            (vec![0.0, 1.0], vec![1e300, 1e300 * (1.0 + 2e-9)]),
+            (vec![1.0, 1.0 + 4e-9], vec![1.0, 2.0]),
+            (vec![0.0, 1e-200], vec![1.0, 2.0]),
         ];
         for (idx, (times, values)) in cases.into_iter().enumerate() {
             let path = dir.file(&format!("case{idx}.svg"));
@@ -515,9 +537,10 @@ mod tests {
         let eps_cases: Vec<(Vec<f64>, Vec<f64>)> = vec![
             (vec![0.1, 0.1], vec![1e-3, 1e-3]),
             (vec![0.1], vec![1e-3]),
-            (vec![1e-300, 1e300], vec![1e-300, 1e300]),
+            (vec![1e-300, 1e-30], vec![1e-300, 1e-30]),
             (vec![0.1, 0.2], vec![1e-310, 1e-300]),
-            (vec![0.1, 0.2], vec![f64::MIN_POSITIVE, f64::MAX]),
+            (vec![0.02, 0.08], vec![2e-3, 8e-3]),
+            (vec![0.1, 0.2], vec![1.0, 1.0 + 1e-15]),
         ];
         for (idx, (eps, errors)) in eps_cases.into_iter().enumerate() {
             let path = dir.file(&format!("eps{idx}.svg"));
@@ -562,6 +585,11 @@ mod tests {
         assert_eq!(
             error_vs_eps_svg(&path, "e", &[0.1, 0.2], &subnormal),
             Err(PlotError::NoData)
+        );
+        let wide = vec![("order 1".to_string(), vec![1e-300, 1e300])];
+        assert_eq!(
+            error_vs_eps_svg(&path, "e", &[0.1, 0.2], &wide),
+            Err(PlotError::RangeTooWide)
         );
         assert!(dir.entries().is_empty());
     }
