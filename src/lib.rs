@@ -6,9 +6,10 @@
 //! → `lang` (syntax, evaluation, sessions) → `render` → `numeric` → the
 //! binary's prompt and command line.
 
-pub mod core;
+pub mod app;
 pub mod averaging;
-pub mod series;
+pub mod core;
 pub mod lang;
 pub mod numeric;
 pub mod render;
+pub mod series;

@@ -21,7 +21,7 @@ use std::collections::HashMap;
 use std::fmt::Display;
 
 use ordex::core::expr::{Beat, Wave};
-use ordex::core::{Expr, Field, Q, Sym};
+use ordex::core::{Expr, Field, Sym, Q};
 use ordex::lang::value::Value;
 use ordex::lang::{Event, Session, Style};
 use proptest::prelude::*;
@@ -64,13 +64,41 @@ fn term_spec() -> impl Strategy<Value = TermSpec> {
         (-4i64..=4, 1i64..=3),
         prop::array::uniform3(-1i64..=3),
         0i64..=2,
-        (prop_oneof![2 => Just(0u8), 1 => Just(1u8), 1 => Just(2u8)], prop::array::uniform3(-4i64..=4)),
+        (
+            prop_oneof![2 => Just(0u8), 1 => Just(1u8), 1 => Just(2u8)],
+            prop::array::uniform3(-4i64..=4),
+        ),
         (prop::bool::weighted(0.25), prop::array::uniform3(-2i64..=2)),
-        (prop_oneof![3 => Just(0i64), 1 => Just(1i64), 1 => Just(2i64)], 0u8..=2, 1i64..=4),
+        (
+            prop_oneof![3 => Just(0i64), 1 => Just(1i64), 1 => Just(2i64)],
+            0u8..=2,
+            1i64..=4,
+        ),
     )
-        .prop_map(|((num, den), exps, param_pow, (wave, wave_lin), (has_exp, exp_lin), (t_pow, beat, freq))| {
-            TermSpec { num, den, exps, param_pow, wave, wave_lin, has_exp, exp_lin, t_pow, beat, freq }
-        })
+        .prop_map(
+            |(
+                (num, den),
+                exps,
+                param_pow,
+                (wave, wave_lin),
+                (has_exp, exp_lin),
+                (t_pow, beat, freq),
+            )| {
+                TermSpec {
+                    num,
+                    den,
+                    exps,
+                    param_pow,
+                    wave,
+                    wave_lin,
+                    has_exp,
+                    exp_lin,
+                    t_pow,
+                    beat,
+                    freq,
+                }
+            },
+        )
 }
 
 /// A list of term recipes (an expression).
@@ -116,9 +144,9 @@ impl<T, E: Display> OrFail<T> for Result<T, E> {
 
 /// The linear form `Σ (c_i/den) x_i` over the first `dim` coordinates.
 fn linear_form(coeffs: &[i64; 3], den: i64, st: &[Sym]) -> Expr {
-    st.iter()
-        .zip(coeffs)
-        .fold(Expr::zero(), |acc, (s, c)| acc.add(&Expr::sym(*s).scale(&q(*c, den))))
+    st.iter().zip(coeffs).fold(Expr::zero(), |acc, (s, c)| {
+        acc.add(&Expr::sym(*s).scale(&q(*c, den)))
+    })
 }
 
 /// Builds a term with the core's own operations (products, powers,
@@ -127,22 +155,44 @@ fn build_term(spec: &TermSpec, dim: usize) -> Result<Expr, TestCaseError> {
     let st = states(dim);
     let mut e = Expr::num(q(spec.num, spec.den));
     for (s, p) in st.iter().zip(&spec.exps) {
-        e = e.mul(&Expr::sym(*s).pow(*p).or_fail("state power")?).or_fail("product")?;
+        e = e
+            .mul(&Expr::sym(*s).pow(*p).or_fail("state power")?)
+            .or_fail("product")?;
     }
-    e = e.mul(&Expr::sym(param()).pow(spec.param_pow).or_fail("parameter power")?).or_fail("product")?;
+    e = e
+        .mul(
+            &Expr::sym(param())
+                .pow(spec.param_pow)
+                .or_fail("parameter power")?,
+        )
+        .or_fail("product")?;
     if spec.wave != 0 {
         let l = linear_form(&spec.wave_lin, 2, &st);
-        let w = if spec.wave == 1 { Expr::sin_of(&l, &st) } else { Expr::cos_of(&l, &st) };
-        e = e.mul(&w.or_fail("trigonometric factor")?).or_fail("product")?;
+        let w = if spec.wave == 1 {
+            Expr::sin_of(&l, &st)
+        } else {
+            Expr::cos_of(&l, &st)
+        };
+        e = e
+            .mul(&w.or_fail("trigonometric factor")?)
+            .or_fail("product")?;
     }
     if spec.has_exp {
         let m = linear_form(&spec.exp_lin, 2, &st);
-        e = e.mul(&Expr::exp_of(&m, &st).or_fail("exponential factor")?).or_fail("product")?;
+        e = e
+            .mul(&Expr::exp_of(&m, &st).or_fail("exponential factor")?)
+            .or_fail("product")?;
     }
-    e = e.mul(&t().pow(spec.t_pow).or_fail("power of t")?).or_fail("product")?;
+    e = e
+        .mul(&t().pow(spec.t_pow).or_fail("power of t")?)
+        .or_fail("product")?;
     if spec.beat != 0 {
         let kt = t().scale(&q(spec.freq, 2));
-        let b = if spec.beat == 1 { Expr::cos_of(&kt, &st) } else { Expr::sin_of(&kt, &st) };
+        let b = if spec.beat == 1 {
+            Expr::cos_of(&kt, &st)
+        } else {
+            Expr::sin_of(&kt, &st)
+        };
         e = e.mul(&b.or_fail("time factor")?).or_fail("product")?;
     }
     Ok(e)
@@ -157,7 +207,12 @@ fn build_expr(specs: &[TermSpec], dim: usize) -> Result<Expr, TestCaseError> {
 }
 
 fn build_field(specs: &[Vec<TermSpec>], dim: usize) -> Result<Field, TestCaseError> {
-    Ok(Field(specs[..dim].iter().map(|s| build_expr(s, dim)).collect::<Result<_, _>>()?))
+    Ok(Field(
+        specs[..dim]
+            .iter()
+            .map(|s| build_expr(s, dim))
+            .collect::<Result<_, _>>()?,
+    ))
 }
 
 /// Keeps only non-negative state exponents (for substitutions by sums,
@@ -165,12 +220,19 @@ fn build_field(specs: &[Vec<TermSpec>], dim: usize) -> Result<Field, TestCaseErr
 fn polynomial_specs(specs: &[TermSpec]) -> Vec<TermSpec> {
     specs
         .iter()
-        .map(|s| TermSpec { exps: s.exps.map(|e| e.max(0)), ..s.clone() })
+        .map(|s| TermSpec {
+            exps: s.exps.map(|e| e.max(0)),
+            ..s.clone()
+        })
         .collect()
 }
 
 fn config(cases: u32) -> ProptestConfig {
-    ProptestConfig { cases, max_shrink_iters: 256, ..ProptestConfig::default() }
+    ProptestConfig {
+        cases,
+        max_shrink_iters: 256,
+        ..ProptestConfig::default()
+    }
 }
 
 // ---------------------------------------------------------------------------
@@ -194,12 +256,19 @@ fn run(session: &mut Session, text: &str) -> Result<Vec<String>, String> {
         let all: Vec<String> = lines.iter().map(|(_, l)| l.clone()).collect();
         return Err(format!("check failed in `{text}`:\n{}", all.join("\n")));
     }
-    Ok(lines.into_iter().filter(|(s, _)| *s == Style::Result).map(|(_, l)| l).collect())
+    Ok(lines
+        .into_iter()
+        .filter(|(s, _)| *s == Style::Result)
+        .map(|(_, l)| l)
+        .collect())
 }
 
 fn session_for(dim: usize) -> Result<Session, TestCaseError> {
     let mut s = Session::new();
-    let decl = format!("state {}\nparam {PARAM_NAME}", STATE_NAMES[..dim].join(", "));
+    let decl = format!(
+        "state {}\nparam {PARAM_NAME}",
+        STATE_NAMES[..dim].join(", ")
+    );
     run(&mut s, &decl).map_err(TestCaseError::fail)?;
     Ok(s)
 }
@@ -490,5 +559,35 @@ proptest! {
         run(&mut s, &format!("check [F, G] == {}", field_text(&xy))).map_err(TestCaseError::fail)?;
         let xh = x.lie_derivative(&h, &st).or_fail("X(h)")?;
         run(&mut s, &format!("check F({h}) == {xh}")).map_err(TestCaseError::fail)?;
+    }
+}
+
+#[test]
+fn zz_debug_samples() {
+    use proptest::strategy::ValueTree;
+    let mut runner = proptest::test_runner::TestRunner::default();
+    for _ in 0..6 {
+        let (d, s) = (dim_strategy(), expr_spec(5))
+            .new_tree(&mut runner)
+            .unwrap()
+            .current();
+        let e = build_expr(&s, d).unwrap();
+        eprintln!("dim {d}: {} terms: {e}", e.len());
+    }
+    for _ in 0..2 {
+        let (d, s) = (dim_strategy(), field_spec(2))
+            .new_tree(&mut runner)
+            .unwrap()
+            .current();
+        let f = build_field(&s, d).unwrap();
+        let g = f
+            .bracket(
+                &f.scale(&Q::int(1))
+                    .add(&Field(vec![Expr::sym(Sym::new("y")); d]))
+                    .unwrap(),
+                &states(d),
+            )
+            .unwrap();
+        eprintln!("field {}  bracket terms {}", field_text(&f), g.n_terms());
     }
 }

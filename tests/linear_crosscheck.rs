@@ -15,7 +15,7 @@ use std::fmt::Display;
 use nalgebra::{Matrix3, Vector3};
 use ordex::core::calc::Period;
 use ordex::core::expr::{Beat, Lin, Wave};
-use ordex::core::{Expr, Field, Q, Sym};
+use ordex::core::{Expr, Field, Sym, Q};
 use ordex::lang::value::Value;
 use ordex::lang::{Event, Session};
 use ordex::series::chrono::{at_time, field_at_period, flow_terms, magnus_generator, Graded};
@@ -47,10 +47,6 @@ fn t() -> Expr {
 
 fn qmat(rows: [[(i64, i64); 3]; 3]) -> QMat {
     rows.map(|r| r.map(|(n, d)| q(n, d)))
-}
-
-fn qzero() -> QMat {
-    std::array::from_fn(|_| std::array::from_fn(|_| Q::ZERO))
 }
 
 fn qidentity() -> QMat {
@@ -259,9 +255,21 @@ proptest! {
 /// non-normal shear, real distinct eigenvalues).
 fn constant_matrices() -> Vec<QMat> {
     vec![
-        qmat([[(0, 1), (1, 1), (0, 1)], [(-1, 1), (-1, 5), (1, 2)], [(1, 3), (0, 1), (-1, 2)]]),
-        qmat([[(1, 2), (2, 1), (-1, 1)], [(0, 1), (1, 2), (3, 2)], [(0, 1), (0, 1), (1, 2)]]),
-        qmat([[(-1, 1), (1, 4), (0, 1)], [(1, 4), (1, 1), (1, 3)], [(1, 2), (-1, 3), (2, 3)]]),
+        qmat([
+            [(0, 1), (1, 1), (0, 1)],
+            [(-1, 1), (-1, 5), (1, 2)],
+            [(1, 3), (0, 1), (-1, 2)],
+        ]),
+        qmat([
+            [(1, 2), (2, 1), (-1, 1)],
+            [(0, 1), (1, 2), (3, 2)],
+            [(0, 1), (0, 1), (1, 2)],
+        ]),
+        qmat([
+            [(-1, 1), (1, 4), (0, 1)],
+            [(1, 4), (1, 1), (1, 3)],
+            [(1, 2), (-1, 3), (2, 3)],
+        ]),
     ]
 }
 
@@ -292,7 +300,11 @@ fn constant_matrix_flow_is_the_exponential_series() {
             let expected = ok(linear_field(&const_emat(&power)), "A^k x");
             for i in 0..3 {
                 let e = ok(expected.0[i].mul(&tk), "t^k/k! (A^k x)_i");
-                assert_eq!(terms[i][k - 1], e, "matrix {a:?}: term {k} of coordinate {i}");
+                assert_eq!(
+                    terms[i][k - 1],
+                    e,
+                    "matrix {a:?}: term {k} of coordinate {i}"
+                );
             }
         }
         // Numerically at t = 3/10 and the point.
@@ -324,10 +336,16 @@ fn constant_matrix_flow_is_the_exponential_series() {
         };
         let errors: Vec<f64> = [2, 4, 6, 8].iter().map(|n| error_at(*n)).collect();
         for w in errors.windows(2) {
-            assert!(w[1] < w[0], "matrix {a:?}: errors do not fall with the order: {errors:?}");
+            assert!(
+                w[1] < w[0],
+                "matrix {a:?}: errors do not fall with the order: {errors:?}"
+            );
         }
         let e10 = error_at(10);
-        assert!(e10 < 1e-8, "matrix {a:?}: error {e10} at order 10 (errors {errors:?})");
+        assert!(
+            e10 < 1e-8,
+            "matrix {a:?}: error {e10} at order 10 (errors {errors:?})"
+        );
     }
 }
 
@@ -339,8 +357,15 @@ fn constant_matrix_flow_through_a_session() {
     let a = constant_matrices().remove(0);
     let v = ok(linear_field(&const_emat(&a)), "Ax");
     let mut s = Session::new();
-    let rows: Vec<String> =
-        a.iter().map(|r| r.iter().map(|c| c.to_string()).collect::<Vec<_>>().join(", ")).collect();
+    let rows: Vec<String> = a
+        .iter()
+        .map(|r| {
+            r.iter()
+                .map(|c| c.to_string())
+                .collect::<Vec<_>>()
+                .join(", ")
+        })
+        .collect();
     let script = format!(
         "state x, y, z\nV = {{{}}}*[x, y, z]\ncheck V == {}\nY = flow V to 6",
         rows.join("; "),
@@ -369,7 +394,10 @@ struct Iterated {
 
 fn iterated(c: &[Expr]) -> Result<Iterated, String> {
     let s = |e: ordex::core::CoreError| e.to_string();
-    let one: Vec<Expr> = c.iter().map(|ci| ci.integral_from_zero().map_err(s)).collect::<Result<_, _>>()?;
+    let one: Vec<Expr> = c
+        .iter()
+        .map(|ci| ci.integral_from_zero().map_err(s))
+        .collect::<Result<_, _>>()?;
     let mut two = Vec::new();
     for ci in c {
         let mut row = Vec::new();
@@ -410,8 +438,10 @@ fn magnus_terms(c: &[Expr], m: &[QMat]) -> Result<[EMat; 3], String> {
         for j in 0..n {
             accumulate(&mut o2, &it.two[i][j], &q(1, 2), &comm(&m[i], &m[j]));
             for k in 0..n {
-                let nested =
-                    qadd(&comm(&m[i], &comm(&m[j], &m[k])), &comm(&m[k], &comm(&m[j], &m[i])));
+                let nested = qadd(
+                    &comm(&m[i], &comm(&m[j], &m[k])),
+                    &comm(&m[k], &comm(&m[j], &m[i])),
+                );
                 accumulate(&mut o3, &it.three[i][j][k], &q(1, 6), &nested);
             }
         }
@@ -504,9 +534,21 @@ proptest! {
 fn polynomial_system() -> (Vec<Expr>, Vec<QMat>) {
     let c = vec![Expr::int(1), t(), ok(t().pow(2), "t^2")];
     let m = vec![
-        qmat([[(0, 1), (1, 1), (0, 1)], [(-1, 1), (0, 1), (1, 2)], [(0, 1), (-1, 2), (0, 1)]]),
-        qmat([[(1, 2), (0, 1), (1, 1)], [(0, 1), (-1, 1), (0, 1)], [(2, 1), (0, 1), (1, 3)]]),
-        qmat([[(0, 1), (0, 1), (-1, 3)], [(1, 4), (0, 1), (0, 1)], [(0, 1), (3, 2), (-1, 2)]]),
+        qmat([
+            [(0, 1), (1, 1), (0, 1)],
+            [(-1, 1), (0, 1), (1, 2)],
+            [(0, 1), (-1, 2), (0, 1)],
+        ]),
+        qmat([
+            [(1, 2), (0, 1), (1, 1)],
+            [(0, 1), (-1, 1), (0, 1)],
+            [(2, 1), (0, 1), (1, 3)],
+        ]),
+        qmat([
+            [(0, 1), (0, 1), (-1, 3)],
+            [(1, 4), (0, 1), (0, 1)],
+            [(0, 1), (3, 2), (-1, 2)],
+        ]),
     ];
     (c, m)
 }
@@ -518,10 +560,26 @@ fn polynomial_system() -> (Vec<Expr>, Vec<QMat>) {
 fn magnus_command_matches_matrix_magnus() {
     let states = st();
     let trig_m = vec![
-        qmat([[(0, 1), (1, 1), (0, 1)], [(-1, 1), (0, 1), (0, 1)], [(0, 1), (0, 1), (-1, 2)]]),
-        qmat([[(1, 1), (0, 1), (1, 2)], [(0, 1), (0, 1), (1, 1)], [(0, 1), (-1, 1), (0, 1)]]),
-        qmat([[(0, 1), (1, 2), (0, 1)], [(0, 1), (1, 1), (0, 1)], [(-1, 1), (0, 1), (0, 1)]]),
-        qmat([[(0, 1), (0, 1), (0, 1)], [(1, 3), (0, 1), (0, 1)], [(0, 1), (1, 1), (0, 1)]]),
+        qmat([
+            [(0, 1), (1, 1), (0, 1)],
+            [(-1, 1), (0, 1), (0, 1)],
+            [(0, 1), (0, 1), (-1, 2)],
+        ]),
+        qmat([
+            [(1, 1), (0, 1), (1, 2)],
+            [(0, 1), (0, 1), (1, 1)],
+            [(0, 1), (-1, 1), (0, 1)],
+        ]),
+        qmat([
+            [(0, 1), (1, 2), (0, 1)],
+            [(0, 1), (1, 1), (0, 1)],
+            [(-1, 1), (0, 1), (0, 1)],
+        ]),
+        qmat([
+            [(0, 1), (0, 1), (0, 1)],
+            [(1, 3), (0, 1), (0, 1)],
+            [(0, 1), (1, 1), (0, 1)],
+        ]),
     ];
     let (pc, pm) = polynomial_system();
     let cases: Vec<(Vec<Expr>, Vec<QMat>, &str, Box<dyn Fn(&Expr) -> Expr>)> = vec![
@@ -556,7 +614,12 @@ fn magnus_command_matches_matrix_magnus() {
             let jac = ok(got.jacobian(&states), "jacobian");
             for i in 0..3 {
                 for j in 0..3 {
-                    assert_eq!(jac.get(i, j), &end[i][j], "order {} entry ({i}, {j})", k + 1);
+                    assert_eq!(
+                        jac.get(i, j),
+                        &end[i][j],
+                        "order {} entry ({i}, {j})",
+                        k + 1
+                    );
                 }
             }
         }
@@ -564,7 +627,12 @@ fn magnus_command_matches_matrix_magnus() {
 }
 
 /// RK4 for `x' = A(t) x` with a fixed step (common practice).
-fn rk4(a: &dyn Fn(f64) -> Matrix3<f64>, x0: Vector3<f64>, t_end: f64, steps: usize) -> Vector3<f64> {
+fn rk4(
+    a: &dyn Fn(f64) -> Matrix3<f64>,
+    x0: Vector3<f64>,
+    t_end: f64,
+    steps: usize,
+) -> Vector3<f64> {
     let h = t_end / steps as f64;
     let mut x = x0;
     for n in 0..steps {
@@ -589,10 +657,26 @@ fn time_varying_flow_converges_to_the_fundamental_matrix() {
     let states = st();
     let c = time_functions();
     let m = vec![
-        qmat([[(0, 1), (1, 1), (0, 1)], [(-1, 1), (0, 1), (1, 2)], [(0, 1), (0, 1), (-1, 2)]]),
-        qmat([[(1, 2), (0, 1), (0, 1)], [(0, 1), (0, 1), (1, 1)], [(1, 1), (0, 1), (0, 1)]]),
-        qmat([[(0, 1), (0, 1), (1, 1)], [(1, 2), (0, 1), (0, 1)], [(0, 1), (-1, 1), (0, 1)]]),
-        qmat([[(0, 1), (1, 1), (0, 1)], [(0, 1), (-1, 1), (0, 1)], [(1, 3), (0, 1), (0, 1)]]),
+        qmat([
+            [(0, 1), (1, 1), (0, 1)],
+            [(-1, 1), (0, 1), (1, 2)],
+            [(0, 1), (0, 1), (-1, 2)],
+        ]),
+        qmat([
+            [(1, 2), (0, 1), (0, 1)],
+            [(0, 1), (0, 1), (1, 1)],
+            [(1, 1), (0, 1), (0, 1)],
+        ]),
+        qmat([
+            [(0, 1), (0, 1), (1, 1)],
+            [(1, 2), (0, 1), (0, 1)],
+            [(0, 1), (-1, 1), (0, 1)],
+        ]),
+        qmat([
+            [(0, 1), (1, 1), (0, 1)],
+            [(0, 1), (-1, 1), (0, 1)],
+            [(1, 3), (0, 1), (0, 1)],
+        ]),
     ];
     let v = ok(linear_field(&combine(&c, &m)), "A(t)x");
     let t_end = 0.5;
@@ -637,7 +721,11 @@ fn time_varying_flow_converges_to_the_fundamental_matrix() {
         assert!(w[1] < w[0], "errors do not fall with the order: {errors:?}");
     }
     for (n, e) in [2, 4, 6].iter().zip(&errors) {
-        assert!(*e <= bound(*n), "order {n}: error {e} above the bound {}", bound(*n));
+        assert!(
+            *e <= bound(*n),
+            "order {n}: error {e} above the bound {}",
+            bound(*n)
+        );
     }
 }
 
@@ -652,8 +740,16 @@ fn assert_solution(xs: &Expr, ys: &Expr, f: &Expr, g: &Expr) {
     map.insert(Sym::new("x"), xs.clone());
     map.insert(Sym::new("y"), ys.clone());
     let states = [Sym::new("x"), Sym::new("y")];
-    assert_eq!(xs.pd(Sym::T), ok(f.subst(&map, &states), "f at the solution"), "x' = f");
-    assert_eq!(ys.pd(Sym::T), ok(g.subst(&map, &states), "g at the solution"), "y' = g");
+    assert_eq!(
+        xs.pd(Sym::T),
+        ok(f.subst(&map, &states), "f at the solution"),
+        "x' = f"
+    );
+    assert_eq!(
+        ys.pd(Sym::T),
+        ok(g.subst(&map, &states), "g at the solution"),
+        "y' = g"
+    );
     assert_eq!(xs.at_time_zero(), x, "x(0)");
     assert_eq!(ys.at_time_zero(), y, "y(0)");
 }
@@ -691,8 +787,18 @@ fn flow_terms_are_eps_coefficients_of_exact_solutions() {
         .add(&m(&eps2, &m(&y, &one_minus_cos)).scale(&Q::int(2)))
         .add(&m(&eps3, &t().scale(&q(1, 2)).sub(&sin_2t.scale(&q(1, 4)))));
     let systems = [
-        ("[eps*y, eps*cos(t)]", Field(vec![m(&eps, &y), m(&eps, &cos_t)]), xs1, 4usize),
-        ("[eps*y^2, eps*cos(t)]", Field(vec![m(&eps, &m(&y, &y)), m(&eps, &cos_t)]), xs2, 6usize),
+        (
+            "[eps*y, eps*cos(t)]",
+            Field(vec![m(&eps, &y), m(&eps, &cos_t)]),
+            xs1,
+            4usize,
+        ),
+        (
+            "[eps*y^2, eps*cos(t)]",
+            Field(vec![m(&eps, &m(&y, &y)), m(&eps, &cos_t)]),
+            xs2,
+            6usize,
+        ),
     ];
     for (text, v, xs, degree) in systems {
         assert_solution(&xs, &ys, &v.0[0], &v.0[1]);
@@ -700,7 +806,11 @@ fn flow_terms_are_eps_coefficients_of_exact_solutions() {
         map.insert(states[0], xs.clone());
         map.insert(states[1], ys.clone());
         let h_of_solution = ok(h.subst(&map, &states), "h(x(t))");
-        assert_eq!(h_of_solution.power_range(eps_sym).map(|r| r.1), Some(degree as i32), "{text}");
+        assert_eq!(
+            h_of_solution.power_range(eps_sym).map(|r| r.1),
+            Some(degree as i32),
+            "{text}"
+        );
         let n = degree + 2;
         let terms = ok(flow_terms(&v, &h, n, &states), "flow terms");
         for k in 1..=n {
@@ -713,14 +823,19 @@ fn flow_terms_are_eps_coefficients_of_exact_solutions() {
         }
         // Through the command language: `order(flow …, eps, k)`.
         let mut s = Session::new();
-        let mut script = format!("state x, y\nparam eps\nV = {text}\nY = flow V on x^2 + x*y to {n}");
+        let mut script =
+            format!("state x, y\nparam eps\nV = {text}\nY = flow V on x^2 + x*y to {n}");
         for k in 1..=n {
             script.push_str(&format!("\nY{k} = order(Y, eps, {k})"));
         }
         ok(run(&mut s, &script), "session");
         for k in 1..=n {
             let got = session_scalar(&s, &format!("Y{k}"));
-            assert_eq!(got, h_of_solution.coeff_of_power(eps_sym, k as i32), "{text}: order {k} in a session");
+            assert_eq!(
+                got,
+                h_of_solution.coeff_of_power(eps_sym, k as i32),
+                "{text}: order {k} in a session"
+            );
         }
     }
 }

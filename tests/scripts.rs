@@ -26,7 +26,10 @@ fn run(path: &Path) -> Outcome {
     }
     let mut out = String::new();
     let mut holds = 0;
-    let name = path.file_name().map(|n| n.to_string_lossy().to_string()).unwrap_or_default();
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().to_string())
+        .unwrap_or_default();
     let status = session.run_text(&text, Some(&name), &mut |e| match e {
         Event::Report(r) => {
             for l in r.lines {
@@ -43,7 +46,11 @@ fn run(path: &Path) -> Outcome {
             out.push('\n');
         }
     });
-    Outcome { text: out, exit: status.exit_code(), holds }
+    Outcome {
+        text: out,
+        exit: status.exit_code(),
+        holds,
+    }
 }
 
 fn scripts_in(dir: &str) -> Vec<PathBuf> {
@@ -66,13 +73,25 @@ fn count_checks(path: &Path) -> usize {
 
 fn assert_all_hold(dir: &str, at_least: usize) {
     let files = scripts_in(dir);
-    assert!(files.len() >= at_least, "expected at least {at_least} scripts in {dir}, found {}", files.len());
+    assert!(
+        files.len() >= at_least,
+        "expected at least {at_least} scripts in {dir}, found {}",
+        files.len()
+    );
     for f in files {
         let o = run(&f);
         let n = count_checks(&f);
         assert!(n > 0, "{} has no checks", f.display());
         assert_eq!(o.exit, 0, "{} did not pass:\n{}", f.display(), o.text);
-        assert_eq!(o.holds, n, "{}: {} of {} checks held:\n{}", f.display(), o.holds, n, o.text);
+        assert_eq!(
+            o.holds,
+            n,
+            "{}: {} of {} checks held:\n{}",
+            f.display(),
+            o.holds,
+            n,
+            o.text
+        );
     }
 }
 
@@ -93,8 +112,16 @@ fn scenario_scripts_snapshots() {
     for f in files {
         let o = run(&f);
         assert_eq!(o.exit, 0, "{} did not pass:\n{}", f.display(), o.text);
-        assert_eq!(o.holds, count_checks(&f), "{}: not every check held", f.display());
-        let name = f.file_stem().map(|s| s.to_string_lossy().to_string()).unwrap_or_default();
+        assert_eq!(
+            o.holds,
+            count_checks(&f),
+            "{}: not every check held",
+            f.display()
+        );
+        let name = f
+            .file_stem()
+            .map(|s| s.to_string_lossy().to_string())
+            .unwrap_or_default();
         insta::assert_snapshot!(format!("scenario_{name}"), o.text);
     }
 }

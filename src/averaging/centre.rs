@@ -11,7 +11,7 @@ use num_traits::{Signed, ToPrimitive, Zero};
 
 use super::Form;
 use crate::core::expr::{Beat, Key};
-use crate::core::{CoreError, CoreResult, Expr, Field, Matrix, Q, Sym};
+use crate::core::{CoreError, CoreResult, Expr, Field, Matrix, Sym, Q};
 
 fn refuse(reason: String) -> CoreError {
     CoreError::Refused { reason }
@@ -35,7 +35,11 @@ fn linear_matrix(f0: &Field, states: &[Sym]) -> CoreResult<Matrix> {
             data.push(c);
         }
     }
-    let a = Matrix { rows: n, cols: n, data };
+    let a = Matrix {
+        rows: n,
+        cols: n,
+        data,
+    };
     let ax = a.apply(&Field(states.iter().map(|s| Expr::sym(*s)).collect()))?;
     if ax != *f0 {
         return Err(refuse(format!(
@@ -70,9 +74,13 @@ fn rational_sqrt(q: &Q) -> Option<Q> {
 /// coefficients `c[0] + c[1] x + …`.
 fn rational_roots(coeffs: &[Q]) -> Vec<Q> {
     // Clear denominators.
-    let lcm = coeffs.iter().fold(BigInt::from(1), |acc, c| acc.lcm(&c.denom()));
-    let mut ints: Vec<BigInt> =
-        coeffs.iter().map(|c| c.numer() * (&lcm / c.denom())).collect();
+    let lcm = coeffs
+        .iter()
+        .fold(BigInt::from(1), |acc, c| acc.lcm(&c.denom()));
+    let mut ints: Vec<BigInt> = coeffs
+        .iter()
+        .map(|c| c.numer() * (&lcm / c.denom()))
+        .collect();
     while ints.last().is_some_and(|c| c.is_zero()) {
         ints.pop();
     }
@@ -114,7 +122,10 @@ fn rational_roots(coeffs: &[Q]) -> Vec<Q> {
     }
     candidates.sort();
     candidates.dedup();
-    let mut poly: Vec<Q> = ints.iter().map(|c| Q::from_big(num_rational::BigRational::from_integer(c.clone()))).collect();
+    let mut poly: Vec<Q> = ints
+        .iter()
+        .map(|c| Q::from_big(num_rational::BigRational::from_integer(c.clone())))
+        .collect();
     for r in candidates {
         loop {
             if poly.len() <= 1 {
@@ -179,7 +190,11 @@ fn rotation(a: &Matrix) -> CoreResult<(Matrix, Matrix)> {
     }
     // Diagonalisable: the minimal polynomial divides x Π (x^2 + k^2), simple roots.
     let ident = Matrix::identity(n);
-    let mut check = if ks.iter().any(Q::is_zero) { a.clone() } else { ident.clone() };
+    let mut check = if ks.iter().any(Q::is_zero) {
+        a.clone()
+    } else {
+        ident.clone()
+    };
     for (mu, k) in mus.iter().zip(&ks) {
         if !k.is_zero() {
             check = check.mul(&a2.add_scaled(&ident, &mu.neg())?)?;
@@ -192,7 +207,11 @@ fn rotation(a: &Matrix) -> CoreResult<(Matrix, Matrix)> {
         )));
     }
     // Spectral projectors of A^2.
-    let mut plus = Matrix { rows: n, cols: n, data: vec![Expr::zero(); n * n] };
+    let mut plus = Matrix {
+        rows: n,
+        cols: n,
+        data: vec![Expr::zero(); n * n],
+    };
     let mut minus = plus.clone();
     for (j, (muj, kj)) in mus.iter().zip(&ks).enumerate() {
         let mut proj = ident.clone();
@@ -206,7 +225,11 @@ fn rotation(a: &Matrix) -> CoreResult<(Matrix, Matrix)> {
             proj = Matrix {
                 rows: n,
                 cols: n,
-                data: proj.data.iter().map(|e| e.scale(&denom.recip().unwrap_or(Q::ZERO))).collect(),
+                data: proj
+                    .data
+                    .iter()
+                    .map(|e| e.scale(&denom.recip().unwrap_or(Q::ZERO)))
+                    .collect(),
             };
         }
         if kj.is_zero() {
@@ -214,8 +237,20 @@ fn rotation(a: &Matrix) -> CoreResult<(Matrix, Matrix)> {
             minus = minus.add(&proj)?;
             continue;
         }
-        let cos = Expr::term(Key { beat: Beat::Cos(kj.clone()), ..Key::one() }, Q::ONE);
-        let sin = Expr::term(Key { beat: Beat::Sin(kj.clone()), ..Key::one() }, Q::ONE);
+        let cos = Expr::term(
+            Key {
+                beat: Beat::Cos(kj.clone()),
+                ..Key::one()
+            },
+            Q::ONE,
+        );
+        let sin = Expr::term(
+            Key {
+                beat: Beat::Sin(kj.clone()),
+                ..Key::one()
+            },
+            Q::ONE,
+        );
         let ap = a.mul(&proj)?;
         let kinv = kj.recip().unwrap_or(Q::ZERO);
         let c_part = proj.mul_expr(&cos)?;
@@ -229,7 +264,10 @@ fn rotation(a: &Matrix) -> CoreResult<(Matrix, Matrix)> {
 fn show_matrix(m: &Matrix) -> String {
     let rows: Vec<String> = (0..m.rows)
         .map(|i| {
-            (0..m.cols).map(|j| num(m, i, j).to_string()).collect::<Vec<_>>().join(", ")
+            (0..m.cols)
+                .map(|j| num(m, i, j).to_string())
+                .collect::<Vec<_>>()
+                .join(", ")
         })
         .collect();
     format!("{{{}}}", rows.join("; "))
@@ -269,9 +307,18 @@ mod tests {
     #[test]
     fn finds_rational_roots_with_multiplicity() {
         // (x + 1)^2 (x + 1/4) x = x^4 + 9/4 x^3 + 3/2 x^2 + 1/4 x
-        let c = vec![Q::ZERO, Q::ratio(1, 4).unwrap(), Q::ratio(3, 2).unwrap(), Q::ratio(9, 4).unwrap(), Q::ONE];
+        let c = vec![
+            Q::ZERO,
+            Q::ratio(1, 4).unwrap(),
+            Q::ratio(3, 2).unwrap(),
+            Q::ratio(9, 4).unwrap(),
+            Q::ONE,
+        ];
         let mut r = rational_roots(&c);
         r.sort();
-        assert_eq!(r, vec![Q::int(-1), Q::int(-1), Q::ratio(-1, 4).unwrap(), Q::ZERO]);
+        assert_eq!(
+            r,
+            vec![Q::int(-1), Q::int(-1), Q::ratio(-1, 4).unwrap(), Q::ZERO]
+        );
     }
 }

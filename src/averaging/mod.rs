@@ -17,7 +17,7 @@ use std::collections::HashMap;
 
 use crate::core::calc::{common_period, Period, TimeKey};
 use crate::core::expr::Beat;
-use crate::core::{limits, CoreError, CoreResult, Expr, Field, Matrix, Q, Sym};
+use crate::core::{limits, CoreError, CoreResult, Expr, Field, Matrix, Sym, Q};
 use crate::series::chrono::{magnus_generator, Graded};
 
 /// Which averaged field is wanted.
@@ -139,7 +139,11 @@ fn split_eps(v: &Field, eps: Sym, n: usize) -> CoreResult<Vec<Field>> {
     }
     let mut parts = Vec::with_capacity(n + 1);
     for j in 0..=n {
-        parts.push(Field(v.0.iter().map(|c| c.coeff_of_power(eps, j as i32)).collect()));
+        parts.push(Field(
+            v.0.iter()
+                .map(|c| c.coeff_of_power(eps, j as i32))
+                .collect(),
+        ));
     }
     Ok(parts)
 }
@@ -149,7 +153,9 @@ pub fn average(v: &Field, eps: Sym, opts: &Options, states: &[Sym]) -> CoreResul
     let n = opts.order;
     limits::check_order(n as u64)?;
     if n == 0 {
-        return Err(CoreError::Refused { reason: "the order must be at least 1".to_string() });
+        return Err(CoreError::Refused {
+            reason: "the order must be at least 1".to_string(),
+        });
     }
     let parts = split_eps(v, eps, n)?;
     let f0 = &parts[0];
@@ -164,9 +170,10 @@ pub fn average(v: &Field, eps: Sym, opts: &Options, states: &[Sym]) -> CoreResul
     // identity, so that x = z at multiples of it.
     let mut freqs = match &form {
         Form::Standard => Vec::new(),
-        Form::FastOscillation { generator, .. } => {
-            generator.iter().flat_map(|(u, _)| u.frequencies()).collect()
-        }
+        Form::FastOscillation { generator, .. } => generator
+            .iter()
+            .flat_map(|(u, _)| u.frequencies())
+            .collect(),
         Form::LinearCentre { rotation, .. } => {
             rotation.data.iter().flat_map(Expr::frequencies).collect()
         }
@@ -185,13 +192,25 @@ pub fn average(v: &Field, eps: Sym, opts: &Options, states: &[Sym]) -> CoreResul
             (g, Some(w))
         }
     };
-    Ok(Averaged { orders, transform, period, form, standard })
+    Ok(Averaged {
+        orders,
+        transform,
+        period,
+        form,
+        standard,
+    })
 }
 
 /// Stroboscopic averaging of a standard form: `F_k = W_k(T) / T`.
 pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> CoreResult<Vec<Field>> {
     let n = standard.len();
-    let w = magnus_generator(&Graded { parts: standard.to_vec() }, n, states)?;
+    let w = magnus_generator(
+        &Graded {
+            parts: standard.to_vec(),
+        },
+        n,
+        states,
+    )?;
     let t_expr = period.to_expr();
     w.iter()
         .map(|wk| wk.map(|e| e.at_time_pi_multiple(&period.0)?.div(&t_expr)))
@@ -201,7 +220,10 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
 /// Fresh copies of the state symbols, used to freeze the generator while
 /// Taylor-expanding `f(t, y + w)`.
 fn frozen_copies(states: &[Sym]) -> Vec<Sym> {
-    states.iter().map(|s| Sym::new(&format!("{}'", s.name()))).collect()
+    states
+        .iter()
+        .map(|s| Sym::new(&format!("{}'", s.name())))
+        .collect()
 }
 
 /// Classical averaging of a standard form with the zero-mean direct
@@ -216,10 +238,16 @@ pub fn classical(
     let frozen = frozen_copies(states);
     let mut ext = states.to_vec();
     ext.extend(frozen.iter().copied());
-    let to_frozen: HashMap<Sym, Expr> =
-        states.iter().zip(&frozen).map(|(s, z)| (*s, Expr::sym(*z))).collect();
-    let from_frozen: HashMap<Sym, Expr> =
-        frozen.iter().zip(states).map(|(z, s)| (*z, Expr::sym(*s))).collect();
+    let to_frozen: HashMap<Sym, Expr> = states
+        .iter()
+        .zip(&frozen)
+        .map(|(s, z)| (*s, Expr::sym(*z)))
+        .collect();
+    let from_frozen: HashMap<Sym, Expr> = frozen
+        .iter()
+        .zip(states)
+        .map(|(z, s)| (*z, Expr::sym(*s)))
+        .collect();
     // p[m][g]: (1/m!) (w̃·∇)^m f at grade g (index g, grade 0 unused).
     let mut p: Vec<Vec<Field>> = vec![vec![Field::zero(dim); n + 1]; n + 1];
     for g in 1..=n {
@@ -324,8 +352,19 @@ fn fast_oscillation(
         standard.push(pulled);
     }
     // Report the depth the series actually needed when it ended.
-    let needed = if all_ended { ad_series_length(higher, &y, depth, states)? } else { reached };
-    Ok((Form::FastOscillation { generator, depth: needed, ended: all_ended }, standard))
+    let needed = if all_ended {
+        ad_series_length(higher, &y, depth, states)?
+    } else {
+        reached
+    };
+    Ok((
+        Form::FastOscillation {
+            generator,
+            depth: needed,
+            ended: all_ended,
+        },
+        standard,
+    ))
 }
 
 /// The largest k with ad_y^k f nonzero over the given fields (≤ depth).

@@ -39,14 +39,20 @@ impl Expr {
                 Wave::Cos(l) => {
                     let a = l.coeff(s);
                     if !a.is_zero() {
-                        let key = Key { wave: Wave::Sin(l.clone()), ..k.clone() };
+                        let key = Key {
+                            wave: Wave::Sin(l.clone()),
+                            ..k.clone()
+                        };
                         out.push((key, c.mul(&a).neg()));
                     }
                 }
                 Wave::Sin(l) => {
                     let a = l.coeff(s);
                     if !a.is_zero() {
-                        let key = Key { wave: Wave::Cos(l.clone()), ..k.clone() };
+                        let key = Key {
+                            wave: Wave::Cos(l.clone()),
+                            ..k.clone()
+                        };
                         out.push((key, c.mul(&a)));
                     }
                 }
@@ -55,12 +61,20 @@ impl Expr {
             if s == Sym::T {
                 match &k.beat {
                     Beat::One => {}
-                    Beat::Cos(w) => {
-                        out.push((Key { beat: Beat::Sin(w.clone()), ..k.clone() }, c.mul(w).neg()))
-                    }
-                    Beat::Sin(w) => {
-                        out.push((Key { beat: Beat::Cos(w.clone()), ..k.clone() }, c.mul(w)))
-                    }
+                    Beat::Cos(w) => out.push((
+                        Key {
+                            beat: Beat::Sin(w.clone()),
+                            ..k.clone()
+                        },
+                        c.mul(w).neg(),
+                    )),
+                    Beat::Sin(w) => out.push((
+                        Key {
+                            beat: Beat::Cos(w.clone()),
+                            ..k.clone()
+                        },
+                        c.mul(w),
+                    )),
                 }
             }
         }
@@ -209,14 +223,19 @@ impl Expr {
     pub fn split_time(&self) -> Vec<(TimeKey, Expr)> {
         let mut groups: HashMap<TimeKey, Vec<(Key, Q)>> = HashMap::new();
         for (k, c) in self.terms() {
-            let tk = TimeKey { tpow: k.mono.exp_of(Sym::T), beat: k.beat.clone() };
+            let tk = TimeKey {
+                tpow: k.mono.exp_of(Sym::T),
+                beat: k.beat.clone(),
+            };
             let mut rest = k.clone();
             rest.mono.0.retain(|(s, _)| *s != Sym::T);
             rest.beat = Beat::One;
             groups.entry(tk).or_default().push((rest, c.clone()));
         }
-        let mut out: Vec<(TimeKey, Expr)> =
-            groups.into_iter().map(|(tk, terms)| (tk, Expr::from_terms(terms))).collect();
+        let mut out: Vec<(TimeKey, Expr)> = groups
+            .into_iter()
+            .map(|(tk, terms)| (tk, Expr::from_terms(terms)))
+            .collect();
         out.sort_by(|a, b| a.0.cmp(&b.0));
         out
     }
@@ -240,7 +259,9 @@ impl Expr {
     pub fn check_periodic(&self) -> CoreResult<()> {
         for (k, c) in self.terms() {
             if k.mono.exp_of(Sym::T) != 0 {
-                return Err(CoreError::NotPeriodic { term: Expr::term(k.clone(), c.clone()).to_string() });
+                return Err(CoreError::NotPeriodic {
+                    term: Expr::term(k.clone(), c.clone()).to_string(),
+                });
             }
         }
         Ok(())
@@ -364,7 +385,11 @@ fn trig_value(is_sin: bool, c: &Q) -> Option<Q> {
 /// `∫ t^n · beat dt` as a list of `(power, beat, coefficient)`.
 fn integrate_time_monomial(n: i32, beat: &Beat) -> Vec<(i32, Beat, Q)> {
     match beat {
-        Beat::One => vec![(n + 1, Beat::One, Q::ratio(1, n as i64 + 1).unwrap_or(Q::ZERO))],
+        Beat::One => vec![(
+            n + 1,
+            Beat::One,
+            Q::ratio(1, n as i64 + 1).unwrap_or(Q::ZERO),
+        )],
         Beat::Cos(k) | Beat::Sin(k) => {
             // I_c(n) = t^n sin/k - (n/k) I_s(n-1); I_s(n) = -t^n cos/k + (n/k) I_c(n-1).
             let mut out = Vec::new();

@@ -98,7 +98,9 @@ impl fmt::Display for CoreError {
             ),
             TimeInExp { arg } => write!(f, "time inside `exp({arg})` is not supported"),
             Irrational { what } => write!(f, "`{what}` is not a rational number"),
-            OutsideAlgebra { what } => write!(f, "the result would leave exact normal forms: {what}"),
+            OutsideAlgebra { what } => {
+                write!(f, "the result would leave exact normal forms: {what}")
+            }
             NotPeriodic { term } => write!(f, "not periodic in t: term `{term}`"),
             Dimension { what } => write!(f, "dimension mismatch: {what}"),
             Refused { reason } => write!(f, "{reason}"),
@@ -117,7 +119,10 @@ impl fmt::Display for CoreError {
                     write!(f, "nesting limit exceeded: at most {limit} nested brackets")
                 }
                 LimitKind::Exponent => {
-                    write!(f, "exponent out of range: at most {limit} in absolute value")
+                    write!(
+                        f,
+                        "exponent out of range: at most {limit} in absolute value"
+                    )
                 }
             },
             Interrupted => write!(f, "interrupted"),

@@ -115,18 +115,28 @@ impl Mono {
 
     /// Total degree in the given symbols.
     pub fn degree_in(&self, syms: &[Sym]) -> i64 {
-        self.0.iter().filter(|(s, _)| syms.contains(s)).map(|(_, e)| *e as i64).sum()
+        self.0
+            .iter()
+            .filter(|(s, _)| syms.contains(s))
+            .map(|(_, e)| *e as i64)
+            .sum()
     }
 }
 
 fn exp_overflow() -> CoreError {
-    CoreError::Limit { kind: LimitKind::Exponent, limit: i32::MAX as u64 }
+    CoreError::Limit {
+        kind: LimitKind::Exponent,
+        limit: i32::MAX as u64,
+    }
 }
 
 impl Lin {
     /// Coefficient of `s`.
     pub fn coeff(&self, s: Sym) -> Q {
-        self.0.iter().find(|(x, _)| *x == s).map_or(Q::ZERO, |(_, c)| c.clone())
+        self.0
+            .iter()
+            .find(|(x, _)| *x == s)
+            .map_or(Q::ZERO, |(_, c)| c.clone())
     }
 
     /// True if and only if the form is zero.
@@ -148,7 +158,11 @@ impl Lin {
                 out.push((b[j].0, sgn(&b[j].1)));
                 j += 1;
             } else {
-                let c = if negate { a[i].1.sub(&b[j].1) } else { a[i].1.add(&b[j].1) };
+                let c = if negate {
+                    a[i].1.sub(&b[j].1)
+                } else {
+                    a[i].1.add(&b[j].1)
+                };
                 if !c.is_zero() {
                     out.push((a[i].0, c));
                 }
@@ -278,7 +292,12 @@ fn beat_mul(a: &Beat, b: &Beat) -> SmallVec<[(Q, Beat); 2]> {
 impl Key {
     /// The key of the constant 1.
     pub fn one() -> Key {
-        Key { mono: Mono::one(), exp: Lin::default(), wave: Wave::One, beat: Beat::One }
+        Key {
+            mono: Mono::one(),
+            exp: Lin::default(),
+            wave: Wave::One,
+            beat: Beat::One,
+        }
     }
 
     /// True if and only if this is the key of a plain number.
@@ -318,7 +337,12 @@ impl Key {
                     cc = cc.mul(cbt);
                 }
                 out(
-                    Key { mono: mono.clone(), exp: exp.clone(), wave: w.clone(), beat: bt.clone() },
+                    Key {
+                        mono: mono.clone(),
+                        exp: exp.clone(),
+                        wave: w.clone(),
+                        beat: bt.clone(),
+                    },
                     cc,
                 );
             }
@@ -338,7 +362,9 @@ impl Expr {
         if q.is_zero() {
             Expr::zero()
         } else {
-            Expr { terms: vec![(Key::one(), q)] }
+            Expr {
+                terms: vec![(Key::one(), q)],
+            }
         }
     }
 
@@ -351,7 +377,9 @@ impl Expr {
     pub fn sym(s: Sym) -> Expr {
         let mut key = Key::one();
         key.mono.0.push((s, 1));
-        Expr { terms: vec![(key, Q::ONE)] }
+        Expr {
+            terms: vec![(key, Q::ONE)],
+        }
     }
 
     /// A single term.
@@ -359,7 +387,9 @@ impl Expr {
         if coeff.is_zero() {
             Expr::zero()
         } else {
-            Expr { terms: vec![(key, coeff)] }
+            Expr {
+                terms: vec![(key, coeff)],
+            }
         }
     }
 
@@ -522,7 +552,13 @@ impl Expr {
         if q.is_one() {
             return self.clone();
         }
-        Expr { terms: self.terms.iter().map(|(k, c)| (k.clone(), c.mul(q))).collect() }
+        Expr {
+            terms: self
+                .terms
+                .iter()
+                .map(|(k, c)| (k.clone(), c.mul(q)))
+                .collect(),
+        }
     }
 
     /// Product, reduced to normal form; checks the term budget and the
@@ -538,7 +574,11 @@ impl Expr {
         if let Some(q) = other.as_number() {
             return Ok(self.scale(&q));
         }
-        let (a, b) = if self.len() <= other.len() { (self, other) } else { (other, self) };
+        let (a, b) = if self.len() <= other.len() {
+            (self, other)
+        } else {
+            (other, self)
+        };
         let max_terms = limits::limits().max_terms;
         let mut map: HashMap<Key, Q> = HashMap::with_capacity((a.len() * b.len()).min(1 << 16));
         let mut budget_hit = false;
@@ -564,7 +604,10 @@ impl Expr {
             }
         }
         if budget_hit {
-            return Err(CoreError::Limit { kind: LimitKind::Terms, limit: max_terms as u64 });
+            return Err(CoreError::Limit {
+                kind: LimitKind::Terms,
+                limit: max_terms as u64,
+            });
         }
         limits::check_bits(max_bits)?;
         Ok(Expr::from_map(map))
@@ -577,7 +620,11 @@ impl Expr {
             return Ok(Expr::int(1));
         }
         if self.is_zero() {
-            return if e > 0 { Ok(Expr::zero()) } else { Err(CoreError::DivisionByZero) };
+            return if e > 0 {
+                Ok(Expr::zero())
+            } else {
+                Err(CoreError::DivisionByZero)
+            };
         }
         if e < 0 {
             let inv = self.recip()?;
@@ -593,7 +640,15 @@ impl Expr {
                 limits::check_bits(c.bits().saturating_mul(e as u64))?;
                 let coeff = c.pow(e).ok_or(CoreError::DivisionByZero)?;
                 let exp = k.exp.scale(&Q::int(e));
-                return Ok(Expr::term(Key { mono, exp, wave: Wave::One, beat: Beat::One }, coeff));
+                return Ok(Expr::term(
+                    Key {
+                        mono,
+                        exp,
+                        wave: Wave::One,
+                        beat: Beat::One,
+                    },
+                    coeff,
+                ));
             }
         }
         // A sum (or a trigonometric term): the result has at least e+1 terms
@@ -627,14 +682,26 @@ impl Expr {
                 let mut mono = Mono::one();
                 for (s, x) in &k.mono.0 {
                     if *s == Sym::T {
-                        return Err(CoreError::DivisionBySum { divisor: self.to_string() });
+                        return Err(CoreError::DivisionBySum {
+                            divisor: self.to_string(),
+                        });
                     }
                     mono.0.push((*s, x.checked_neg().ok_or(exp_overflow())?));
                 }
                 let coeff = c.recip().ok_or(CoreError::DivisionByZero)?;
-                Ok(Expr::term(Key { mono, exp: k.exp.neg(), wave: Wave::One, beat: Beat::One }, coeff))
+                Ok(Expr::term(
+                    Key {
+                        mono,
+                        exp: k.exp.neg(),
+                        wave: Wave::One,
+                        beat: Beat::One,
+                    },
+                    coeff,
+                ))
             }
-            _ => Err(CoreError::DivisionBySum { divisor: self.to_string() }),
+            _ => Err(CoreError::DivisionBySum {
+                divisor: self.to_string(),
+            }),
         }
     }
 
@@ -649,7 +716,14 @@ impl Expr {
 
     /// Keeps the terms satisfying `pred`.
     pub fn filter(&self, mut pred: impl FnMut(&Key, &Q) -> bool) -> Expr {
-        Expr { terms: self.terms.iter().filter(|(k, c)| pred(k, c)).cloned().collect() }
+        Expr {
+            terms: self
+                .terms
+                .iter()
+                .filter(|(k, c)| pred(k, c))
+                .cloned()
+                .collect(),
+        }
     }
 
     /// Maps each term to a new (key, coefficient); the keys need not stay
@@ -696,9 +770,16 @@ struct LinearArg {
 }
 
 fn linear_arg(func: &'static str, arg: &Expr, states: &[Sym]) -> CoreResult<LinearArg> {
-    let mut out =
-        LinearArg { state: Lin::default(), freq: Q::ZERO, pi_multiple: Q::ZERO, constant: Q::ZERO };
-    let nonlinear = || CoreError::NonlinearArgument { func, arg: arg.to_string() };
+    let mut out = LinearArg {
+        state: Lin::default(),
+        freq: Q::ZERO,
+        pi_multiple: Q::ZERO,
+        constant: Q::ZERO,
+    };
+    let nonlinear = || CoreError::NonlinearArgument {
+        func,
+        arg: arg.to_string(),
+    };
     for (k, c) in &arg.terms {
         if !k.exp.is_zero() || k.wave != Wave::One || k.beat != Beat::One {
             return Err(nonlinear());
@@ -709,18 +790,28 @@ fn linear_arg(func: &'static str, arg: &Expr, states: &[Sym]) -> CoreResult<Line
             [(s, 1)] if *s == Sym::PI => out.pi_multiple = c.clone(),
             [(s, 1)] if states.contains(s) => out.state.0.push((*s, c.clone())),
             _ => {
-                if let Some((p, _)) = k.mono.0.iter().find(|(s, _)| {
-                    *s != Sym::T && *s != Sym::PI && !states.contains(s)
-                }) {
+                if let Some((p, _)) = k
+                    .mono
+                    .0
+                    .iter()
+                    .find(|(s, _)| *s != Sym::T && *s != Sym::PI && !states.contains(s))
+                {
                     if k.mono.exp_of(Sym::T) != 0 {
-                        return Err(CoreError::SymbolicFrequency { arg: arg.to_string() });
+                        return Err(CoreError::SymbolicFrequency {
+                            arg: arg.to_string(),
+                        });
                     }
-                    return Err(CoreError::ParameterInArgument { func, name: p.name() });
+                    return Err(CoreError::ParameterInArgument {
+                        func,
+                        name: p.name(),
+                    });
                 }
                 // Distinguish a parameter factor from genuine nonlinearity.
                 let has_t = k.mono.exp_of(Sym::T) != 0;
                 if has_t && k.mono.0.len() >= 2 && k.mono.exp_of(Sym::T) == 1 {
-                    return Err(CoreError::SymbolicFrequency { arg: arg.to_string() });
+                    return Err(CoreError::SymbolicFrequency {
+                        arg: arg.to_string(),
+                    });
                 }
                 return Err(nonlinear());
             }
@@ -775,35 +866,68 @@ impl Expr {
         let is_sin = func == "sin";
         let la = linear_arg(func, arg, states)?;
         if !la.constant.is_zero() {
-            return Err(CoreError::ConstantInArgument { func, arg: arg.to_string() });
+            return Err(CoreError::ConstantInArgument {
+                func,
+                arg: arg.to_string(),
+            });
         }
         if la.state.is_zero() && la.freq.is_zero() {
             // A pure constant c*pi.
             return match trig_at_pi_multiple(is_sin, &la.pi_multiple) {
                 Some(v) => Ok(Expr::num(v)),
-                None => Err(CoreError::Irrational { what: format!("{func}({arg})") }),
+                None => Err(CoreError::Irrational {
+                    what: format!("{func}({arg})"),
+                }),
             };
         }
-        let (cp, sp) = cos_sin_half_pi(&la.pi_multiple)
-            .ok_or_else(|| CoreError::ConstantInArgument { func, arg: arg.to_string() })?;
+        let (cp, sp) =
+            cos_sin_half_pi(&la.pi_multiple).ok_or_else(|| CoreError::ConstantInArgument {
+                func,
+                arg: arg.to_string(),
+            })?;
         // X = L + k t; cos(X + c pi) = cos X cp - sin X sp; sin(X + c pi) = sin X cp + cos X sp.
         let cos_l = Expr::term(
-            Key { wave: cos_wave(la.state.clone()), ..Key::one() },
+            Key {
+                wave: cos_wave(la.state.clone()),
+                ..Key::one()
+            },
             Q::ONE,
         );
         let sin_l = match sin_wave(la.state.clone()) {
-            Some((neg, w)) => Expr::term(Key { wave: w, ..Key::one() }, Q::int(if neg { -1 } else { 1 })),
+            Some((neg, w)) => Expr::term(
+                Key {
+                    wave: w,
+                    ..Key::one()
+                },
+                Q::int(if neg { -1 } else { 1 }),
+            ),
             None => Expr::zero(),
         };
-        let cos_k = Expr::term(Key { beat: cos_beat(la.freq.clone()), ..Key::one() }, Q::ONE);
+        let cos_k = Expr::term(
+            Key {
+                beat: cos_beat(la.freq.clone()),
+                ..Key::one()
+            },
+            Q::ONE,
+        );
         let sin_k = match sin_beat(la.freq.clone()) {
-            Some((neg, b)) => Expr::term(Key { beat: b, ..Key::one() }, Q::int(if neg { -1 } else { 1 })),
+            Some((neg, b)) => Expr::term(
+                Key {
+                    beat: b,
+                    ..Key::one()
+                },
+                Q::int(if neg { -1 } else { 1 }),
+            ),
             None => Expr::zero(),
         };
         // cos X = cos L cos kt - sin L sin kt; sin X = sin L cos kt + cos L sin kt.
         let cos_x = cos_l.mul(&cos_k)?.sub(&sin_l.mul(&sin_k)?);
         let sin_x = sin_l.mul(&cos_k)?.add(&cos_l.mul(&sin_k)?);
-        let (a, b) = if is_sin { (&sin_x, &cos_x) } else { (&cos_x, &sin_x) };
+        let (a, b) = if is_sin {
+            (&sin_x, &cos_x)
+        } else {
+            (&cos_x, &sin_x)
+        };
         // result = a*cp + (is_sin ? b*sp : -b*sp)
         let s = if is_sin { sp } else { -sp };
         Ok(a.scale(&Q::int(cp)).add(&b.scale(&Q::int(s))))
@@ -813,12 +937,22 @@ impl Expr {
     pub fn exp_of(arg: &Expr, states: &[Sym]) -> CoreResult<Expr> {
         let la = linear_arg("exp", arg, states)?;
         if !la.freq.is_zero() {
-            return Err(CoreError::TimeInExp { arg: arg.to_string() });
+            return Err(CoreError::TimeInExp {
+                arg: arg.to_string(),
+            });
         }
         if !la.constant.is_zero() || !la.pi_multiple.is_zero() {
-            return Err(CoreError::Irrational { what: format!("exp({arg})") });
+            return Err(CoreError::Irrational {
+                what: format!("exp({arg})"),
+            });
         }
-        Ok(Expr::term(Key { exp: la.state, ..Key::one() }, Q::ONE))
+        Ok(Expr::term(
+            Key {
+                exp: la.state,
+                ..Key::one()
+            },
+            Q::ONE,
+        ))
     }
 }
 

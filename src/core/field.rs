@@ -60,13 +60,21 @@ impl Field {
     /// Sum.
     pub fn add(&self, other: &Field) -> CoreResult<Field> {
         self.same_dim(other)?;
-        Ok(Field(self.0.iter().zip(&other.0).map(|(a, b)| a.add(b)).collect()))
+        Ok(Field(
+            self.0.iter().zip(&other.0).map(|(a, b)| a.add(b)).collect(),
+        ))
     }
 
     /// `self + q·other`.
     pub fn add_scaled(&self, other: &Field, q: &Q) -> CoreResult<Field> {
         self.same_dim(other)?;
-        Ok(Field(self.0.iter().zip(&other.0).map(|(a, b)| a.add_scaled(b, q)).collect()))
+        Ok(Field(
+            self.0
+                .iter()
+                .zip(&other.0)
+                .map(|(a, b)| a.add_scaled(b, q))
+                .collect(),
+        ))
     }
 
     /// Difference.
@@ -81,7 +89,9 @@ impl Field {
 
     /// Multiplies by a scalar function.
     pub fn mul_expr(&self, f: &Expr) -> CoreResult<Field> {
-        Ok(Field(self.0.iter().map(|a| a.mul(f)).collect::<CoreResult<_>>()?))
+        Ok(Field(
+            self.0.iter().map(|a| a.mul(f)).collect::<CoreResult<_>>()?,
+        ))
     }
 
     /// Applies `f` to every component.
@@ -110,7 +120,11 @@ impl Field {
     fn check_states(&self, states: &[Sym]) -> CoreResult<()> {
         if self.dim() != states.len() {
             return Err(CoreError::Dimension {
-                what: format!("a field of dimension {} on {} state coordinates", self.dim(), states.len()),
+                what: format!(
+                    "a field of dimension {} on {} state coordinates",
+                    self.dim(),
+                    states.len()
+                ),
             });
         }
         Ok(())
@@ -151,13 +165,21 @@ impl Field {
                 data.push(xi.pd(*s));
             }
         }
-        Ok(Matrix { rows: n, cols: n, data })
+        Ok(Matrix {
+            rows: n,
+            cols: n,
+            data,
+        })
     }
 
     /// The divergence `Σ ∂X_i/∂x_i`.
     pub fn divergence(&self, states: &[Sym]) -> CoreResult<Expr> {
         self.check_states(states)?;
-        Ok(self.0.iter().zip(states).fold(Expr::zero(), |acc, (xi, s)| acc.add(&xi.pd(*s))))
+        Ok(self
+            .0
+            .iter()
+            .zip(states)
+            .fold(Expr::zero(), |acc, (xi, s)| acc.add(&xi.pd(*s))))
     }
 
     /// The pull-back series `Σ_{k=0..depth} 1/k! ad_y^k self`; returns the
@@ -186,7 +208,11 @@ impl Matrix {
         for i in 0..n {
             data[i * n + i] = Expr::int(1);
         }
-        Matrix { rows: n, cols: n, data }
+        Matrix {
+            rows: n,
+            cols: n,
+            data,
+        }
     }
 
     /// Builds from rows; all rows must have the same length.
@@ -194,14 +220,25 @@ impl Matrix {
         let n_rows = rows.len();
         let n_cols = rows.first().map_or(0, Vec::len);
         if n_rows == 0 || n_cols == 0 {
-            return Err(CoreError::Dimension { what: "an empty matrix".to_string() });
+            return Err(CoreError::Dimension {
+                what: "an empty matrix".to_string(),
+            });
         }
         if let Some((i, r)) = rows.iter().enumerate().find(|(_, r)| r.len() != n_cols) {
             return Err(CoreError::Dimension {
-                what: format!("row {} has {} entries, row 1 has {}", i + 1, r.len(), n_cols),
+                what: format!(
+                    "row {} has {} entries, row 1 has {}",
+                    i + 1,
+                    r.len(),
+                    n_cols
+                ),
             });
         }
-        Ok(Matrix { rows: n_rows, cols: n_cols, data: rows.into_iter().flatten().collect() })
+        Ok(Matrix {
+            rows: n_rows,
+            cols: n_cols,
+            data: rows.into_iter().flatten().collect(),
+        })
     }
 
     /// Entry `(i, j)`, zero-based.
@@ -222,7 +259,10 @@ impl Matrix {
     fn require_square(&self, what: &str) -> CoreResult<()> {
         if !self.is_square() {
             return Err(CoreError::Dimension {
-                what: format!("{what} needs a square matrix, got {}x{}", self.rows, self.cols),
+                what: format!(
+                    "{what} needs a square matrix, got {}x{}",
+                    self.rows, self.cols
+                ),
             });
         }
         Ok(())
@@ -243,14 +283,31 @@ impl Matrix {
                 ),
             });
         }
-        let data = self.data.iter().zip(&other.data).map(|(a, b)| a.add_scaled(b, q)).collect();
-        Ok(Matrix { rows: self.rows, cols: self.cols, data })
+        let data = self
+            .data
+            .iter()
+            .zip(&other.data)
+            .map(|(a, b)| a.add_scaled(b, q))
+            .collect();
+        Ok(Matrix {
+            rows: self.rows,
+            cols: self.cols,
+            data,
+        })
     }
 
     /// Multiplies every entry by a scalar.
     pub fn mul_expr(&self, f: &Expr) -> CoreResult<Matrix> {
-        let data = self.data.iter().map(|a| a.mul(f)).collect::<CoreResult<_>>()?;
-        Ok(Matrix { rows: self.rows, cols: self.cols, data })
+        let data = self
+            .data
+            .iter()
+            .map(|a| a.mul(f))
+            .collect::<CoreResult<_>>()?;
+        Ok(Matrix {
+            rows: self.rows,
+            cols: self.cols,
+            data,
+        })
     }
 
     /// Matrix product.
@@ -278,14 +335,23 @@ impl Matrix {
                 data.push(acc);
             }
         }
-        Ok(Matrix { rows: self.rows, cols: other.cols, data })
+        Ok(Matrix {
+            rows: self.rows,
+            cols: other.cols,
+            data,
+        })
     }
 
     /// Matrix times a field (column vector).
     pub fn apply(&self, v: &Field) -> CoreResult<Field> {
         if self.cols != v.dim() {
             return Err(CoreError::Dimension {
-                what: format!("a {}x{} matrix applied to a field of dimension {}", self.rows, self.cols, v.dim()),
+                what: format!(
+                    "a {}x{} matrix applied to a field of dimension {}",
+                    self.rows,
+                    self.cols,
+                    v.dim()
+                ),
             });
         }
         let mut out = Vec::with_capacity(self.rows);
@@ -315,7 +381,11 @@ impl Matrix {
                 data.push(self.get(i, j).clone());
             }
         }
-        Matrix { rows: self.cols, cols: self.rows, data }
+        Matrix {
+            rows: self.cols,
+            cols: self.rows,
+            data,
+        }
     }
 
     /// Coefficients `c_0..c_n` of the characteristic polynomial
@@ -326,7 +396,11 @@ impl Matrix {
         let n = self.rows;
         let mut coeffs = vec![Expr::zero(); n + 1];
         coeffs[n] = Expr::int(1);
-        let mut m = Matrix { rows: n, cols: n, data: vec![Expr::zero(); n * n] };
+        let mut m = Matrix {
+            rows: n,
+            cols: n,
+            data: vec![Expr::zero(); n * n],
+        };
         for k in 1..=n {
             limits::poll()?;
             // M_k = A M_{k-1} + c_{n-k+1} I

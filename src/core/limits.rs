@@ -25,7 +25,12 @@ pub struct Limits {
 
 impl Default for Limits {
     fn default() -> Limits {
-        Limits { max_terms: 200_000, max_digits: 100_000, max_order: 40, max_depth: 256 }
+        Limits {
+            max_terms: 200_000,
+            max_digits: 100_000,
+            max_order: 40,
+            max_depth: 256,
+        }
     }
 }
 
@@ -73,7 +78,10 @@ pub fn poll() -> Result<(), CoreError> {
 pub fn check_terms(n_terms: usize) -> Result<(), CoreError> {
     let max = limits().max_terms;
     if n_terms > max {
-        return Err(CoreError::Limit { kind: LimitKind::Terms, limit: max as u64 });
+        return Err(CoreError::Limit {
+            kind: LimitKind::Terms,
+            limit: max as u64,
+        });
     }
     poll()
 }
@@ -83,7 +91,10 @@ pub fn check_bits(bits: u64) -> Result<(), CoreError> {
     let max = limits().max_digits;
     // log10(2) ~ 0.30103: bits * 0.30103 digits.
     if bits.saturating_mul(30103) / 100_000 > max {
-        return Err(CoreError::Limit { kind: LimitKind::Digits, limit: max });
+        return Err(CoreError::Limit {
+            kind: LimitKind::Digits,
+            limit: max,
+        });
     }
     Ok(())
 }
@@ -92,7 +103,10 @@ pub fn check_bits(bits: u64) -> Result<(), CoreError> {
 pub fn check_order(order: u64) -> Result<(), CoreError> {
     let max = limits().max_order;
     if order > max {
-        return Err(CoreError::Limit { kind: LimitKind::Order, limit: max });
+        return Err(CoreError::Limit {
+            kind: LimitKind::Order,
+            limit: max,
+        });
     }
     Ok(())
 }

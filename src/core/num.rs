@@ -63,7 +63,10 @@ impl Q {
         }
         match (i64::try_from(n), i64::try_from(d)) {
             (Ok(n), Ok(d)) => Q::Small(n, d),
-            _ => Q::Big(Box::new(BigRational::new_raw(BigInt::from(n), BigInt::from(d)))),
+            _ => Q::Big(Box::new(BigRational::new_raw(
+                BigInt::from(n),
+                BigInt::from(d),
+            ))),
         }
     }
 
@@ -158,7 +161,9 @@ impl Q {
     /// that the integer-size limit counts.
     pub fn bits(&self) -> u64 {
         match self {
-            Q::Small(n, d) => (64 - n.unsigned_abs().leading_zeros()).max(64 - d.leading_zeros()) as u64,
+            Q::Small(n, d) => {
+                (64 - n.unsigned_abs().leading_zeros()).max(64 - d.leading_zeros()) as u64
+            }
             Q::Big(b) => b.numer().bits().max(b.denom().bits()),
         }
     }
@@ -291,7 +296,11 @@ impl Q {
         if int_part.is_empty() && frac_part.is_empty() {
             return None;
         }
-        if !int_part.bytes().chain(frac_part.bytes()).all(|b| b.is_ascii_digit()) {
+        if !int_part
+            .bytes()
+            .chain(frac_part.bytes())
+            .all(|b| b.is_ascii_digit())
+        {
             return None;
         }
         let digits = format!("{int_part}{frac_part}");
@@ -378,7 +387,10 @@ mod tests {
         assert!(matches!(big.sub(&Q::ONE), Q::Small(..)));
         let m = Q::int(i64::MIN);
         assert_eq!(m.neg().neg(), m);
-        assert_eq!(format!("{}", Q::int(2).pow(100).unwrap()), "1267650600228229401496703205376");
+        assert_eq!(
+            format!("{}", Q::int(2).pow(100).unwrap()),
+            "1267650600228229401496703205376"
+        );
     }
 
     #[test]

@@ -21,7 +21,10 @@ struct Interner {
 fn interner() -> &'static Mutex<Interner> {
     static CELL: OnceLock<Mutex<Interner>> = OnceLock::new();
     CELL.get_or_init(|| {
-        let mut it = Interner { names: Vec::new(), ids: HashMap::new() };
+        let mut it = Interner {
+            names: Vec::new(),
+            ids: HashMap::new(),
+        };
         for name in ["t", "pi"] {
             it.ids.insert(name.to_string(), it.names.len() as u32);
             it.names.push(name.to_string());
@@ -51,6 +54,9 @@ impl Sym {
     /// The symbol's name.
     pub fn name(self) -> String {
         let it = interner().lock().unwrap_or_else(|e| e.into_inner());
-        it.names.get(self.0 as usize).cloned().unwrap_or_else(|| format!("?{}", self.0))
+        it.names
+            .get(self.0 as usize)
+            .cloned()
+            .unwrap_or_else(|| format!("?{}", self.0))
     }
 }

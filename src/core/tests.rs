@@ -23,8 +23,14 @@ fn pythagoras_and_product_to_sum() {
     let one = sn.pow(2).unwrap().add(&cs.pow(2).unwrap());
     assert_eq!(one, n(1));
     // sin(-x) = -sin(x), cos(-x) = cos(x)
-    assert_eq!(Expr::sin_of(&x.neg(), &st).unwrap(), Expr::sin_of(&x, &st).unwrap().neg());
-    assert_eq!(Expr::cos_of(&x.neg(), &st).unwrap(), Expr::cos_of(&x, &st).unwrap());
+    assert_eq!(
+        Expr::sin_of(&x.neg(), &st).unwrap(),
+        Expr::sin_of(&x, &st).unwrap().neg()
+    );
+    assert_eq!(
+        Expr::cos_of(&x.neg(), &st).unwrap(),
+        Expr::cos_of(&x, &st).unwrap()
+    );
     // 2 sin x cos x = sin 2x
     let sx = Expr::sin_of(&x, &st).unwrap();
     let cx = Expr::cos_of(&x, &st).unwrap();
@@ -45,7 +51,10 @@ fn phase_shifts_and_time_splitting() {
     let e = Expr::cos_of(&t.sub(&q), &st).unwrap();
     assert_eq!(e.to_string(), "cos(q)*cos(t) + sin(q)*sin(t)");
     assert!(Expr::sin_of(&pi.scale(&Q::ratio(1, 3).unwrap()), &st).is_err());
-    assert_eq!(Expr::cos_of(&pi.scale(&Q::ratio(1, 3).unwrap()), &st).unwrap(), Expr::num(Q::ratio(1, 2).unwrap()));
+    assert_eq!(
+        Expr::cos_of(&pi.scale(&Q::ratio(1, 3).unwrap()), &st).unwrap(),
+        Expr::num(Q::ratio(1, 2).unwrap())
+    );
     // a parameter in an argument is refused
     assert!(matches!(
         Expr::sin_of(&s("kk").mul(&q).unwrap(), &st),

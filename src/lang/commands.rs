@@ -10,7 +10,7 @@ use super::session::{Report, Session, SessionError, Style, SymKind};
 use super::value::{AveragedInfo, FieldValue, Value};
 use crate::averaging::{self, Form, Method, Options};
 use crate::core::calc::Period;
-use crate::core::{limits, CoreError, Expr, Field, Matrix, Q, Sym};
+use crate::core::{limits, CoreError, Expr, Field, Matrix, Sym, Q};
 use crate::render::plain;
 use crate::series::chrono::{self, Graded};
 
@@ -36,7 +36,11 @@ impl Session {
             if names.len() > n {
                 return Err(SessionError::invalid(
                     span,
-                    format!("this command gives {n} result{}, {} names given", if n == 1 { "" } else { "s" }, names.len()),
+                    format!(
+                        "this command gives {n} result{}, {} names given",
+                        if n == 1 { "" } else { "s" },
+                        names.len()
+                    ),
                 ));
             }
             Ok(())
@@ -58,12 +62,22 @@ impl Session {
                 let n = order_arg(to.value, to.span)?;
                 let v = self.eval_field(field, "the field of `magnus`")?;
                 let period = match over {
-                    Some(t) => Some((self.eval_scalar(t, "the horizon of `magnus … over T`")?, t.span)),
+                    Some(t) => Some((
+                        self.eval_scalar(t, "the horizon of `magnus … over T`")?,
+                        t.span,
+                    )),
                     None => None,
                 };
                 vec![self.magnus(&v, n, period, span, report)?]
             }
-            CommandKind::Average { field, to, param, method, depth, with_transform } => {
+            CommandKind::Average {
+                field,
+                to,
+                param,
+                method,
+                depth,
+                with_transform,
+            } => {
                 let n = order_arg(to.value, to.span)?;
                 let v = self.eval_field(field, "the system of `average`")?;
                 let eps = self.param_sym(param)?;
@@ -72,7 +86,10 @@ impl Session {
                     Some("classic") => Method::Classic,
                     Some(other) => {
                         let sp = method.as_ref().map_or(span, |m| m.span);
-                        return Err(SessionError::invalid(sp, format!("unknown method `{other}`: use `strobo` or `classic`")));
+                        return Err(SessionError::invalid(
+                            sp,
+                            format!("unknown method `{other}`: use `strobo` or `classic`"),
+                        ));
                     }
                 };
                 if *with_transform && method != Method::Classic {
@@ -86,18 +103,28 @@ impl Session {
                     }
                     None => 8,
                 };
-                let opts = Options { method, order: n, depth, with_transform: *with_transform };
+                let opts = Options {
+                    method,
+                    order: n,
+                    depth,
+                    with_transform: *with_transform,
+                };
                 self.average(&v, eps, &opts, span, report)?
             }
             CommandKind::Carleman { field, degree } => {
                 want(1, span)?;
                 let v = self.eval_field(field, "the field of `carleman`")?;
                 if degree.value > 12 {
-                    return Err(SessionError::invalid(degree.span, "the degree of a Carleman section is at most 12"));
+                    return Err(SessionError::invalid(
+                        degree.span,
+                        "the degree of a Carleman section is at most 12",
+                    ));
                 }
                 vec![self.carleman(&v.field, degree.value as u32, span, report)?]
             }
-            CommandKind::Simulate { .. } | CommandKind::Compare { .. } | CommandKind::Stability { .. } => {
+            CommandKind::Simulate { .. }
+            | CommandKind::Compare { .. }
+            | CommandKind::Stability { .. } => {
                 want(0, span)?;
                 self.run_numeric(cmd, report)?;
                 Vec::new()
@@ -106,7 +133,9 @@ impl Session {
         let elapsed = started.elapsed();
         if self.show_timing {
             if let Some(last) = report.lines.last_mut() {
-                if last.style == Style::Note && (last.text.contains(" term") || last.text.contains(" section")) {
+                if last.style == Style::Note
+                    && (last.text.contains(" term") || last.text.contains(" section"))
+                {
                     last.text.push_str(&format!(", {} ms", elapsed.as_millis()));
                 }
             }
@@ -123,7 +152,10 @@ impl Session {
             Some(SymKind::Param) => Ok(Sym::new(&id.name)),
             _ => Err(SessionError::invalid(
                 id.span,
-                format!("`{}` must be a parameter (declare it with `param {}`)", id.name, id.name),
+                format!(
+                    "`{}` must be a parameter (declare it with `param {}`)",
+                    id.name, id.name
+                ),
             )),
         }
     }
@@ -136,9 +168,20 @@ impl Session {
             .collect()
     }
 
-    fn flow(&self, v: &Field, h: Option<Expr>, n: usize, span: Span, report: &mut Report) -> R<Value> {
+    fn flow(
+        &self,
+        v: &Field,
+        h: Option<Expr>,
+        n: usize,
+        span: Span,
+        report: &mut Report,
+    ) -> R<Value> {
         let core = |e: CoreError| SessionError::core(span, e);
-        let inputs: Vec<Sym> = self.input_syms().into_iter().filter(|u| v.0.iter().any(|c| c.mentions(*u))).collect();
+        let inputs: Vec<Sym> = self
+            .input_syms()
+            .into_iter()
+            .filter(|u| v.0.iter().any(|c| c.mentions(*u)))
+            .collect();
         let outputs: Vec<Expr> = match &h {
             Some(h) => vec![h.clone()],
             None => self.states.iter().map(|s| Expr::sym(*s)).collect(),
@@ -148,7 +191,8 @@ impl Session {
             let terms = if inputs.is_empty() {
                 chrono::flow_terms(v, out, n, &self.states).map_err(core)?
             } else {
-                super::structural::chen_fliess_terms(v, out, n, &inputs, &self.states).map_err(core)?
+                super::structural::chen_fliess_terms(v, out, n, &inputs, &self.states)
+                    .map_err(core)?
             };
             per_output.push(terms);
         }
@@ -180,13 +224,25 @@ impl Session {
         Ok(value)
     }
 
-    fn magnus(&self, v: &FieldValue, n: usize, over: Option<(Expr, Span)>, span: Span, report: &mut Report) -> R<Value> {
+    fn magnus(
+        &self,
+        v: &FieldValue,
+        n: usize,
+        over: Option<(Expr, Span)>,
+        span: Span,
+        report: &mut Report,
+    ) -> R<Value> {
         let core = |e: CoreError| SessionError::core(span, e);
         let (horizon, period) = match over {
             Some((t, tspan)) => {
                 let p = period_from_expr(&t);
                 if t.as_number().is_none() && p.is_none() {
-                    return Err(SessionError::invalid(tspan, format!("the horizon must be a number or a rational multiple of pi, got `{t}`")));
+                    return Err(SessionError::invalid(
+                        tspan,
+                        format!(
+                            "the horizon must be a number or a rational multiple of pi, got `{t}`"
+                        ),
+                    ));
                 }
                 (t, p)
             }
@@ -196,7 +252,8 @@ impl Session {
                 (p.to_expr(), Some(p))
             }
         };
-        let w = chrono::magnus_generator(&Graded::single(v.field.clone()), n, &self.states).map_err(core)?;
+        let w = chrono::magnus_generator(&Graded::single(v.field.clone()), n, &self.states)
+            .map_err(core)?;
         let mut orders = Vec::with_capacity(n);
         for wk in &w {
             let at = match &period {
@@ -206,33 +263,72 @@ impl Session {
             .map_err(core)?;
             orders.push(at);
         }
-        report.push(Style::Note, format!("chronological logarithm W over [0, {horizon}]"));
+        report.push(
+            Style::Note,
+            format!("chronological logarithm W over [0, {horizon}]"),
+        );
         let mut total = Field::zero(self.states.len());
         let mut n_terms = 0;
         for (k, f) in orders.iter().enumerate() {
-            report.push(Style::Result, format!("order {}  {}", k + 1, plain::field(f)));
+            report.push(
+                Style::Result,
+                format!("order {}  {}", k + 1, plain::field(f)),
+            );
             total = total.add(f).map_err(core)?;
             n_terms += f.n_terms();
         }
         report.push(Style::Result, format!("total    {}", plain::field(&total)));
         let structure = match &v.combo {
-            Some(combo) => super::structural::magnus_structure(combo, n, &horizon, period.as_ref(), None, &self.states).map_err(core)?,
+            Some(combo) => super::structural::magnus_structure(
+                combo,
+                n,
+                &horizon,
+                period.as_ref(),
+                None,
+                &self.states,
+            )
+            .map_err(core)?,
             None => None,
         };
         if structure.is_some() {
-            report.push(Style::Note, "bracket form available: `show NAME as brackets`");
+            report.push(
+                Style::Note,
+                "bracket form available: `show NAME as brackets`",
+            );
         }
         report.push(Style::Note, summary(n, n_terms));
-        Ok(Value::Field(FieldValue { field: total, combo: None, structure, averaged: None }))
+        Ok(Value::Field(FieldValue {
+            field: total,
+            combo: None,
+            structure,
+            averaged: None,
+        }))
     }
 
-    fn average(&self, v: &FieldValue, eps: Sym, opts: &Options, span: Span, report: &mut Report) -> R<Vec<Value>> {
+    fn average(
+        &self,
+        v: &FieldValue,
+        eps: Sym,
+        opts: &Options,
+        span: Span,
+        report: &mut Report,
+    ) -> R<Vec<Value>> {
         let core = |e: CoreError| SessionError::core(span, e);
         let res = averaging::average(&v.field, eps, opts, &self.states).map_err(core)?;
         let e = eps.name();
         match &res.form {
-            Form::Standard => report.push(Style::Note, format!("standard form x' = Σ {e}^j f_j(t, x), period {}", res.period)),
-            Form::FastOscillation { generator, depth, ended } => {
+            Form::Standard => report.push(
+                Style::Note,
+                format!(
+                    "standard form x' = Σ {e}^j f_j(t, x), period {}",
+                    res.period
+                ),
+            ),
+            Form::FastOscillation {
+                generator,
+                depth,
+                ended,
+            } => {
                 let g: Vec<String> = generator
                     .iter()
                     .map(|(u, g)| format!("({u})*{}", plain::field(g)))
@@ -263,27 +359,48 @@ impl Session {
                 );
             }
         }
-        let method = if opts.method == Method::Strobo { "stroboscopic" } else { "classical" };
-        report.push(Style::Note, format!("{method} averaging in {e} to order {}", opts.order));
+        let method = if opts.method == Method::Strobo {
+            "stroboscopic"
+        } else {
+            "classical"
+        };
+        report.push(
+            Style::Note,
+            format!("{method} averaging in {e} to order {}", opts.order),
+        );
         let mut n_terms = 0;
         for (k, f) in res.orders.iter().enumerate() {
-            report.push(Style::Result, format!("order {}  {}", k + 1, plain::field(f)));
+            report.push(
+                Style::Result,
+                format!("order {}  {}", k + 1, plain::field(f)),
+            );
             n_terms += f.n_terms();
         }
         let total = res.total(eps).map_err(core)?;
         // Structural form, when the system was written over named fields.
         let structure = match (&v.combo, &res.form) {
             (Some(combo), Form::Standard) => match opts.method {
-                Method::Strobo => {
-                    super::structural::magnus_structure(combo, opts.order, &res.period.to_expr(), Some(&res.period), Some(eps), &self.states)
+                Method::Strobo => super::structural::magnus_structure(
+                    combo,
+                    opts.order,
+                    &res.period.to_expr(),
+                    Some(&res.period),
+                    Some(eps),
+                    &self.states,
+                )
+                .map_err(core)?,
+                Method::Classic => {
+                    super::structural::classic_structure(combo, opts.order, &res.period, eps)
                         .map_err(core)?
                 }
-                Method::Classic => super::structural::classic_structure(combo, opts.order, &res.period, eps).map_err(core)?,
             },
             _ => None,
         };
         if structure.is_some() {
-            report.push(Style::Note, "bracket form available: `show NAME as brackets`");
+            report.push(
+                Style::Note,
+                "bracket form available: `show NAME as brackets`",
+            );
         } else if v.combo.is_some() && opts.method == Method::Classic && opts.order > 2 {
             report.push(
                 Style::Note,
@@ -307,7 +424,10 @@ impl Session {
         if !opts.with_transform {
         } else if let Some(w) = res.transform_total(eps).map_err(core)? {
             for (k, wk) in res.transform.iter().flatten().enumerate() {
-                report.push(Style::Result, format!("w_{}     {}", k + 1, plain::field(wk)));
+                report.push(
+                    Style::Result,
+                    format!("w_{}     {}", k + 1, plain::field(wk)),
+                );
             }
             out.push(Value::field(w));
         }
@@ -335,10 +455,28 @@ impl Session {
             }
         }
         let names: Vec<String> = basis.iter().map(|b| b.to_string()).collect();
-        report.push(Style::Note, format!("basis (graded lexicographic, constant first): {}", names.join(", ")));
-        let m = Matrix { rows: basis.len(), cols: basis.len(), data };
+        report.push(
+            Style::Note,
+            format!(
+                "basis (graded lexicographic, constant first): {}",
+                names.join(", ")
+            ),
+        );
+        let m = Matrix {
+            rows: basis.len(),
+            cols: basis.len(),
+            data,
+        };
         report.push(Style::Result, plain::matrix(&m));
-        report.push(Style::Note, format!("{}x{} section, {} terms", basis.len(), basis.len(), m.data.iter().map(Expr::len).sum::<usize>()));
+        report.push(
+            Style::Note,
+            format!(
+                "{}x{} section, {} terms",
+                basis.len(),
+                basis.len(),
+                m.data.iter().map(Expr::len).sum::<usize>()
+            ),
+        );
         Ok(Value::Matrix(m))
     }
 }
@@ -346,7 +484,13 @@ impl Session {
 /// The summary line of a series command: orders and size (the timing is
 /// appended by the caller).
 fn summary(n_orders: usize, n_terms: usize) -> String {
-    format!("{} {}, {} {}", n_orders, plural(n_orders, "order"), n_terms, plural(n_terms, "term"))
+    format!(
+        "{} {}, {} {}",
+        n_orders,
+        plural(n_orders, "order"),
+        n_terms,
+        plural(n_terms, "term")
+    )
 }
 
 /// `word` or `words`.
@@ -382,7 +526,9 @@ pub fn monomial_basis(states: &[Sym], d: u32) -> Vec<Expr> {
             let mut m = Expr::int(1);
             for (s, k) in states.iter().zip(&e) {
                 if *k > 0 {
-                    m = m.mul(&Expr::sym(*s).pow(*k as i64).unwrap_or_default()).unwrap_or_default();
+                    m = m
+                        .mul(&Expr::sym(*s).pow(*k as i64).unwrap_or_default())
+                        .unwrap_or_default();
                 }
             }
             out.push(m);
@@ -412,11 +558,15 @@ impl Expr {
     /// (state monomial, coefficient expression free of the state). Fails
     /// (returning the offending term) when a term is not polynomial in the
     /// state.
-    pub fn split_by_state_monomial(&self, states: &[Sym]) -> Result<Vec<(crate::core::expr::Mono, Expr)>, String> {
+    pub fn split_by_state_monomial(
+        &self,
+        states: &[Sym],
+    ) -> Result<Vec<(crate::core::expr::Mono, Expr)>, String> {
         let mut out: Vec<(crate::core::expr::Mono, Expr)> = Vec::new();
         for (k, c) in self.terms() {
             let bad = || Expr::term(k.clone(), c.clone()).to_string();
-            let mentions_state = |l: &crate::core::expr::Lin| l.0.iter().any(|(s, _)| states.contains(s));
+            let mentions_state =
+                |l: &crate::core::expr::Lin| l.0.iter().any(|(s, _)| states.contains(s));
             if mentions_state(&k.exp) {
                 return Err(bad());
             }
@@ -443,12 +593,5 @@ impl Expr {
             }
         }
         Ok(out)
-    }
-}
-
-impl Session {
-    /// Numerical commands (not yet wired).
-    fn run_numeric(&mut self, cmd: &Command, _report: &mut Report) -> R<()> {
-        Err(SessionError::invalid(cmd.span, "numerical commands are not available yet"))
     }
 }

@@ -7,12 +7,12 @@ use super::ast::{Arg, BinOp, Expr as Ast, ExprKind, Ident, Span};
 use super::session::{edit_distance, ErrorKind, Session, SessionError, SymKind};
 use super::value::{Combo, FieldValue, Value};
 use crate::core::calc::common_period;
-use crate::core::{CoreError, Expr, Field, Matrix, Q, Sym};
+use crate::core::{CoreError, Expr, Field, Matrix, Sym, Q};
 
 /// Names of the built-in functions.
 pub const BUILTINS: &[&str] = &[
-    "sin", "cos", "exp", "ad", "pd", "jac", "div", "det", "trace", "plug", "order", "mean",
-    "bch", "iint",
+    "sin", "cos", "exp", "ad", "pd", "jac", "div", "det", "trace", "plug", "order", "mean", "bch",
+    "iint",
 ];
 
 type R<T> = Result<T, SessionError>;
@@ -64,7 +64,10 @@ impl Session {
     fn unknown(&self, name: &str, span: Span) -> SessionError {
         SessionError::at(
             span,
-            ErrorKind::UnknownName { name: name.to_string(), suggestion: self.suggest(name) },
+            ErrorKind::UnknownName {
+                name: name.to_string(),
+                suggestion: self.suggest(name),
+            },
         )
     }
 
@@ -74,14 +77,19 @@ impl Session {
         match &e.kind {
             ExprKind::Num(text) => {
                 let q = Q::parse_decimal(text, 100_000).ok_or_else(|| {
-                    SessionError::invalid(e.span, format!("number `{text}` is malformed or too large"))
+                    SessionError::invalid(
+                        e.span,
+                        format!("number `{text}` is malformed or too large"),
+                    )
                 })?;
                 Ok(Value::Scalar(Expr::num(q)))
             }
             ExprKind::Name(name) => self.eval_name(name, e.span),
             ExprKind::Neg(inner) => match self.eval(inner)? {
                 Value::Scalar(x) => Ok(Value::Scalar(x.neg())),
-                Value::Field(f) => Ok(Value::Field(scale_field_value(&f, &Expr::int(-1)).map_err(core)?)),
+                Value::Field(f) => Ok(Value::Field(
+                    scale_field_value(&f, &Expr::int(-1)).map_err(core)?,
+                )),
                 Value::Matrix(m) => Ok(Value::Matrix(m.mul_expr(&Expr::int(-1)).map_err(core)?)),
             },
             ExprKind::Bin(op, a, b) => self.eval_bin(*op, a, b, e.span),
@@ -132,7 +140,10 @@ impl Session {
         let x = self.eval_scalar(e, what)?;
         match x.as_number().and_then(|q| q.to_i64()) {
             Some(n) => Ok(n),
-            None => Err(SessionError::invalid(e.span, format!("{what} must be an integer number, got `{x}`"))),
+            None => Err(SessionError::invalid(
+                e.span,
+                format!("{what} must be an integer number, got `{x}`"),
+            )),
         }
     }
 
@@ -149,7 +160,9 @@ impl Session {
             Some(Value::Field(f)) => {
                 let mut f = f.clone();
                 if f.combo.is_none() && !f.field.0.iter().any(Expr::is_time_varying) {
-                    f.combo = Some(Combo { parts: vec![(name.to_string(), f.field.clone(), Expr::int(1))] });
+                    f.combo = Some(Combo {
+                        parts: vec![(name.to_string(), f.field.clone(), Expr::int(1))],
+                    });
                 }
                 Ok(Value::Field(f))
             }
@@ -182,14 +195,21 @@ impl Session {
             BinOp::Add | BinOp::Sub => {
                 let sign = if op == BinOp::Add { Q::ONE } else { Q::int(-1) };
                 match (&x, &y) {
-                    (Value::Scalar(p), Value::Scalar(q)) => Ok(Value::Scalar(p.add_scaled(q, &sign))),
+                    (Value::Scalar(p), Value::Scalar(q)) => {
+                        Ok(Value::Scalar(p.add_scaled(q, &sign)))
+                    }
                     (Value::Field(p), Value::Field(q)) => {
                         let field = p.field.add_scaled(&q.field, &sign).map_err(core)?;
                         let combo = match (&p.combo, &q.combo) {
                             (Some(c1), Some(c2)) => Some(merge_combo(c1, c2, &sign)),
                             _ => None,
                         };
-                        Ok(Value::Field(FieldValue { field, combo, structure: None, averaged: None }))
+                        Ok(Value::Field(FieldValue {
+                            field,
+                            combo,
+                            structure: None,
+                            averaged: None,
+                        }))
                     }
                     (Value::Matrix(p), Value::Matrix(q)) => {
                         Ok(Value::Matrix(p.add_scaled(q, &sign).map_err(core)?))
@@ -210,7 +230,9 @@ impl Session {
                     Ok(Value::Matrix(m.mul_expr(s).map_err(core)?))
                 }
                 (Value::Matrix(m), Value::Matrix(n)) => Ok(Value::Matrix(m.mul(n).map_err(core)?)),
-                (Value::Matrix(m), Value::Field(f)) => Ok(Value::field(m.apply(&f.field).map_err(core)?)),
+                (Value::Matrix(m), Value::Field(f)) => {
+                    Ok(Value::field(m.apply(&f.field).map_err(core)?))
+                }
                 _ => Err(kind_err(span, &opname, &x, Some(&y))),
             },
             BinOp::Div => {
@@ -219,7 +241,10 @@ impl Session {
                     _ => return Err(kind_err(span, &opname, &x, Some(&y))),
                 };
                 let inv = if let Some(q) = d.as_number() {
-                    Expr::num(q.recip().ok_or_else(|| SessionError::core(b.span, CoreError::DivisionByZero))?)
+                    Expr::num(
+                        q.recip()
+                            .ok_or_else(|| SessionError::core(b.span, CoreError::DivisionByZero))?,
+                    )
                 } else {
                     d.recip().map_err(|e| SessionError::core(b.span, e))?
                 };
@@ -243,7 +268,10 @@ impl Session {
         let values: Vec<Value> = items.iter().map(|i| self.eval(i)).collect::<R<_>>()?;
         if values.len() == 2 {
             if let (Value::Field(x), Value::Field(y)) = (&values[0], &values[1]) {
-                let b = x.field.bracket(&y.field, &self.states).map_err(|e| SessionError::core(span, e))?;
+                let b = x
+                    .field
+                    .bracket(&y.field, &self.states)
+                    .map_err(|e| SessionError::core(span, e))?;
                 return Ok(Value::field(b));
             }
         }
@@ -263,7 +291,10 @@ impl Session {
             }
         }
         if self.states.is_empty() {
-            return Err(SessionError::invalid(span, "declare the state first (e.g. `state q, p`)"));
+            return Err(SessionError::invalid(
+                span,
+                "declare the state first (e.g. `state q, p`)",
+            ));
         }
         if comps.len() != self.states.len() {
             return Err(SessionError::invalid(
@@ -281,7 +312,11 @@ impl Session {
 
     /// The state names joined for messages.
     pub(crate) fn state_list(&self) -> String {
-        self.states.iter().map(|s| s.name()).collect::<Vec<_>>().join(", ")
+        self.states
+            .iter()
+            .map(|s| s.name())
+            .collect::<Vec<_>>()
+            .join(", ")
     }
 
     fn apply_field(&self, target: Value, tspan: Span, args: &[Arg], span: Span) -> R<Value> {
@@ -290,37 +325,68 @@ impl Session {
             other => {
                 return Err(SessionError::invalid(
                     tspan,
-                    format!("only a field can be applied (as a Lie derivative), this is a {}", other.kind_name()),
+                    format!(
+                        "only a field can be applied (as a Lie derivative), this is a {}",
+                        other.kind_name()
+                    ),
                 ))
             }
         };
         let [Arg::Pos(h)] = args else {
-            return Err(SessionError::invalid(span, "a Lie derivative `X(h)` takes exactly one argument"));
+            return Err(SessionError::invalid(
+                span,
+                "a Lie derivative `X(h)` takes exactly one argument",
+            ));
         };
         let core = |err: CoreError| SessionError::core(span, err);
         match self.eval(h)? {
-            Value::Scalar(h) => Ok(Value::Scalar(f.field.lie_derivative(&h, &self.states).map_err(core)?)),
-            Value::Field(g) => Ok(Value::field(
-                g.field.map(|c| f.field.lie_derivative(c, &self.states)).map_err(core)?,
+            Value::Scalar(h) => Ok(Value::Scalar(
+                f.field.lie_derivative(&h, &self.states).map_err(core)?,
             )),
-            Value::Matrix(_) => Err(SessionError::invalid(h.span, "a Lie derivative applies to a scalar or a field")),
+            Value::Field(g) => Ok(Value::field(
+                g.field
+                    .map(|c| f.field.lie_derivative(c, &self.states))
+                    .map_err(core)?,
+            )),
+            Value::Matrix(_) => Err(SessionError::invalid(
+                h.span,
+                "a Lie derivative applies to a scalar or a field",
+            )),
         }
     }
 
-    fn pos_args<'a>(&self, name: &Ident, args: &'a [Arg], n: usize, usage: &str) -> R<Vec<&'a Ast>> {
+    fn pos_args<'a>(
+        &self,
+        name: &Ident,
+        args: &'a [Arg],
+        n: usize,
+        usage: &str,
+    ) -> R<Vec<&'a Ast>> {
         let mut out = Vec::new();
         for a in args {
             match a {
                 Arg::Pos(e) => out.push(e),
                 Arg::Bind(id, _) => {
-                    return Err(SessionError::invalid(id.span, format!("`{}` takes no `name = value` arguments; usage: {usage}", name.name)))
+                    return Err(SessionError::invalid(
+                        id.span,
+                        format!(
+                            "`{}` takes no `name = value` arguments; usage: {usage}",
+                            name.name
+                        ),
+                    ))
                 }
             }
         }
         if out.len() != n {
             return Err(SessionError::invalid(
                 name.span,
-                format!("`{}` takes {} argument{}, got {}; usage: {usage}", name.name, n, if n == 1 { "" } else { "s" }, out.len()),
+                format!(
+                    "`{}` takes {} argument{}, got {}; usage: {usage}",
+                    name.name,
+                    n,
+                    if n == 1 { "" } else { "s" },
+                    out.len()
+                ),
             ));
         }
         Ok(out)
@@ -352,7 +418,9 @@ impl Session {
                     "cos" => Expr::cos_of(&x, &self.states),
                     _ => Expr::exp_of(&x, &self.states),
                 };
-                Ok(Value::Scalar(r.map_err(|e| SessionError::core(a[0].span, e))?))
+                Ok(Value::Scalar(
+                    r.map_err(|e| SessionError::core(a[0].span, e))?,
+                ))
             }
             "ad" => {
                 let a = self.pos_args(name, args, 3, "ad(X, Y, k)")?;
@@ -360,10 +428,18 @@ impl Session {
                 let y = self.eval_field(a[1], "the second argument of `ad`")?;
                 let k = self.eval_count(a[2], "the power of `ad`")?;
                 if k < 0 {
-                    return Err(SessionError::invalid(a[2].span, "the power of `ad` must be non-negative"));
+                    return Err(SessionError::invalid(
+                        a[2].span,
+                        "the power of `ad` must be non-negative",
+                    ));
                 }
-                crate::core::limits::check_order(k as u64).map_err(|e| SessionError::core(a[2].span, e))?;
-                Ok(Value::field(x.field.ad_pow(&y.field, k as u64, &self.states).map_err(core)?))
+                crate::core::limits::check_order(k as u64)
+                    .map_err(|e| SessionError::core(a[2].span, e))?;
+                Ok(Value::field(
+                    x.field
+                        .ad_pow(&y.field, k as u64, &self.states)
+                        .map_err(core)?,
+                ))
             }
             "pd" => {
                 let a = self.pos_args(name, args, 2, "pd(h, q)")?;
@@ -374,8 +450,13 @@ impl Session {
                 )?;
                 match self.eval(a[0])? {
                     Value::Scalar(h) => Ok(Value::Scalar(h.pd(s))),
-                    Value::Field(f) => Ok(Value::field(Field(f.field.0.iter().map(|c| c.pd(s)).collect()))),
-                    Value::Matrix(m) => Ok(Value::Matrix(Matrix { data: m.data.iter().map(|c| c.pd(s)).collect(), ..m })),
+                    Value::Field(f) => Ok(Value::field(Field(
+                        f.field.0.iter().map(|c| c.pd(s)).collect(),
+                    ))),
+                    Value::Matrix(m) => Ok(Value::Matrix(Matrix {
+                        data: m.data.iter().map(|c| c.pd(s)).collect(),
+                        ..m
+                    })),
                 }
             }
             "jac" => {
@@ -386,7 +467,9 @@ impl Session {
             "div" => {
                 let a = self.pos_args(name, args, 1, "div(X)")?;
                 let x = self.eval_field(a[0], "the argument of `div`")?;
-                Ok(Value::Scalar(x.field.divergence(&self.states).map_err(core)?))
+                Ok(Value::Scalar(
+                    x.field.divergence(&self.states).map_err(core)?,
+                ))
             }
             f @ ("det" | "trace") => {
                 let a = self.pos_args(name, args, 1, &format!("{f}(M)"))?;
@@ -400,9 +483,14 @@ impl Session {
             "plug" => self.eval_plug(name, args, span),
             "order" => {
                 let a = self.pos_args(name, args, 3, "order(e, eps, k)")?;
-                let s = self.symbol_arg(a[1], &[SymKind::Param, SymKind::State], "the second argument of `order` must be a parameter")?;
+                let s = self.symbol_arg(
+                    a[1],
+                    &[SymKind::Param, SymKind::State],
+                    "the second argument of `order` must be a parameter",
+                )?;
                 let k = self.eval_count(a[2], "the order")?;
-                let k = i32::try_from(k).map_err(|_| SessionError::invalid(a[2].span, "the order is out of range"))?;
+                let k = i32::try_from(k)
+                    .map_err(|_| SessionError::invalid(a[2].span, "the order is out of range"))?;
                 Ok(match self.eval(a[0])? {
                     Value::Scalar(x) => Value::Scalar(x.coeff_of_power(s, k)),
                     Value::Field(f) => {
@@ -411,18 +499,26 @@ impl Session {
                                 .iter()
                                 .filter_map(|t| {
                                     let c = t.coeff.coeff_of_power(s, k);
-                                    (!c.is_zero()).then(|| super::value::BracketTerm { coeff: c, ..t.clone() })
+                                    (!c.is_zero()).then(|| super::value::BracketTerm {
+                                        coeff: c,
+                                        ..t.clone()
+                                    })
                                 })
                                 .collect()
                         });
                         Value::Field(FieldValue {
-                            field: Field(f.field.0.iter().map(|c| c.coeff_of_power(s, k)).collect()),
+                            field: Field(
+                                f.field.0.iter().map(|c| c.coeff_of_power(s, k)).collect(),
+                            ),
                             combo: None,
                             structure,
                             averaged: None,
                         })
                     }
-                    Value::Matrix(m) => Value::Matrix(Matrix { data: m.data.iter().map(|c| c.coeff_of_power(s, k)).collect(), ..m }),
+                    Value::Matrix(m) => Value::Matrix(Matrix {
+                        data: m.data.iter().map(|c| c.coeff_of_power(s, k)).collect(),
+                        ..m
+                    }),
                 })
             }
             "mean" => {
@@ -435,15 +531,26 @@ impl Session {
                 };
                 let mut freqs = Vec::new();
                 for x in &exprs {
-                    x.check_periodic().map_err(|e| SessionError::core(a[0].span, e))?;
+                    x.check_periodic()
+                        .map_err(|e| SessionError::core(a[0].span, e))?;
                     freqs.extend(x.frequencies());
                 }
-                let Some(period) = common_period(&freqs) else { return Ok(v) };
+                let Some(period) = common_period(&freqs) else {
+                    return Ok(v);
+                };
                 let m = |x: &Expr| x.mean_over(&period);
                 Ok(match v {
                     Value::Scalar(x) => Value::Scalar(m(&x).map_err(core)?),
                     Value::Field(f) => Value::field(f.field.map(m).map_err(core)?),
-                    Value::Matrix(mm) => Value::Matrix(Matrix { data: mm.data.iter().map(m).collect::<Result<_, _>>().map_err(core)?, ..mm }),
+                    Value::Matrix(mm) => Value::Matrix(Matrix {
+                        data: mm
+                            .data
+                            .iter()
+                            .map(m)
+                            .collect::<Result<_, _>>()
+                            .map_err(core)?,
+                        ..mm
+                    }),
                 })
             }
             "bch" => self.eval_bch(name, args, span),
@@ -451,15 +558,27 @@ impl Session {
                 let mut names = Vec::new();
                 for a in args {
                     match a {
-                        Arg::Pos(Ast { kind: ExprKind::Name(n), .. }) if self.sym_kind(n) == Some(SymKind::Input) => names.push(n.clone()),
-                        Arg::Pos(Ast { kind: ExprKind::Num(n), .. }) if n == "1" => names.push("1".to_string()),
+                        Arg::Pos(Ast {
+                            kind: ExprKind::Name(n),
+                            ..
+                        }) if self.sym_kind(n) == Some(SymKind::Input) => names.push(n.clone()),
+                        Arg::Pos(Ast {
+                            kind: ExprKind::Num(n),
+                            ..
+                        }) if n == "1" => names.push("1".to_string()),
                         Arg::Pos(e) | Arg::Bind(_, e) => {
-                            return Err(SessionError::invalid(e.span, "`iint` takes input names (declared with `input`) or 1"))
+                            return Err(SessionError::invalid(
+                                e.span,
+                                "`iint` takes input names (declared with `input`) or 1",
+                            ))
                         }
                     }
                 }
                 if names.is_empty() {
-                    return Err(SessionError::invalid(span, "`iint` needs at least one input"));
+                    return Err(SessionError::invalid(
+                        span,
+                        "`iint` needs at least one input",
+                    ));
                 }
                 Ok(Value::Scalar(Expr::sym(Sym::new(&iint_name(&names)))))
             }
@@ -484,17 +603,21 @@ impl Session {
         for a in args {
             match a {
                 Arg::Pos(e) if target.is_none() => target = Some(e),
-                Arg::Pos(e) => return Err(SessionError::invalid(e.span, "usage: plug(e, q = v, …)")),
+                Arg::Pos(e) => {
+                    return Err(SessionError::invalid(e.span, "usage: plug(e, q = v, …)"))
+                }
                 Arg::Bind(id, v) => {
                     let s = match id.name.as_str() {
                         "t" => Sym::T,
-                        n if matches!(self.sym_kind(n), Some(SymKind::State | SymKind::Param)) => Sym::new(n),
-                        n => {
-                            return Err(SessionError::invalid(
-                                id.span,
-                                format!("`{n}` is not a state or a parameter: only those can be plugged"),
-                            ))
+                        n if matches!(self.sym_kind(n), Some(SymKind::State | SymKind::Param)) => {
+                            Sym::new(n)
                         }
+                        n => return Err(SessionError::invalid(
+                            id.span,
+                            format!(
+                                "`{n}` is not a state or a parameter: only those can be plugged"
+                            ),
+                        )),
                     };
                     let val = self.eval_scalar(v, "a plugged value")?;
                     map.insert(s, val);
@@ -510,7 +633,12 @@ impl Session {
             Value::Scalar(x) => Value::Scalar(x.subst(&map, st).map_err(core)?),
             Value::Field(f) => Value::field(f.field.map(|c| c.subst(&map, st)).map_err(core)?),
             Value::Matrix(m) => Value::Matrix(Matrix {
-                data: m.data.iter().map(|c| c.subst(&map, st)).collect::<Result<_, _>>().map_err(core)?,
+                data: m
+                    .data
+                    .iter()
+                    .map(|c| c.subst(&map, st))
+                    .collect::<Result<_, _>>()
+                    .map_err(core)?,
                 ..m
             }),
         })
@@ -534,7 +662,12 @@ pub(crate) fn scale_field_value(f: &FieldValue, s: &Expr) -> Result<FieldValue, 
         }),
         None => None,
     };
-    Ok(FieldValue { field, combo, structure: None, averaged: None })
+    Ok(FieldValue {
+        field,
+        combo,
+        structure: None,
+        averaged: None,
+    })
 }
 
 fn merge_combo(a: &Combo, b: &Combo, sign: &Q) -> Combo {

@@ -82,9 +82,18 @@ impl Session {
                     let mut text = self.accepted.join("\n");
                     text.push('\n');
                     crate::lang::files::write_atomic(&p, text.as_bytes()).map_err(|e| {
-                        SessionError::at(path.span, ErrorKind::File { path: path.path.clone(), reason: e })
+                        SessionError::at(
+                            path.span,
+                            ErrorKind::File {
+                                path: path.path.clone(),
+                                reason: e,
+                            },
+                        )
                     })?;
-                    report.push(Style::Note, format!("saved {} lines to {}", self.accepted.len(), path.path));
+                    report.push(
+                        Style::Note,
+                        format!("saved {} lines to {}", self.accepted.len(), path.path),
+                    );
                 }
             }
             StmtKind::RunFile(path) => self.run_file(&path.path, path.span, &mut report)?,
@@ -93,15 +102,18 @@ impl Session {
                 if self.names.remove(&id.name).is_none() {
                     return Err(SessionError::at(
                         id.span,
-                        ErrorKind::UnknownName { name: id.name.clone(), suggestion: self.suggest(&id.name) },
+                        ErrorKind::UnknownName {
+                            name: id.name.clone(),
+                            suggestion: self.suggest(&id.name),
+                        },
                     ));
                 }
                 self.order.retain(|n| n != &id.name);
                 report.push(Style::Note, format!("forgot {}", id.name));
             }
             StmtKind::Help(word) => {
-                let text = super::help::help(word.as_ref().map(|w| w.name.as_str()))
-                    .ok_or_else(|| {
+                let text =
+                    super::help::help(word.as_ref().map(|w| w.name.as_str())).ok_or_else(|| {
                         let w = word.as_ref().map_or(String::new(), |w| w.name.clone());
                         SessionError::invalid(
                             word.as_ref().map_or(stmt.span, |w| w.span),
@@ -133,13 +145,25 @@ impl Session {
                 SymKind::Param => "a parameter",
                 SymKind::Input => "an input",
             };
-            return Err(SessionError::invalid(id.span, format!("`{}` is already {what}", id.name)));
+            return Err(SessionError::invalid(
+                id.span,
+                format!("`{}` is already {what}", id.name),
+            ));
         }
         if !allow_redefine_value && self.names.contains_key(&id.name) {
-            return Err(SessionError::invalid(id.span, format!("`{}` is already defined (use `forget {}` first)", id.name, id.name)));
+            return Err(SessionError::invalid(
+                id.span,
+                format!(
+                    "`{}` is already defined (use `forget {}` first)",
+                    id.name, id.name
+                ),
+            ));
         }
         if super::eval::BUILTINS.contains(&id.name.as_str()) {
-            return Err(SessionError::invalid(id.span, format!("`{}` is a built-in function", id.name)));
+            return Err(SessionError::invalid(
+                id.span,
+                format!("`{}` is a built-in function", id.name),
+            ));
         }
         Ok(())
     }
@@ -162,7 +186,10 @@ impl Session {
         }
         for (i, id) in ids.iter().enumerate() {
             if ids[..i].iter().any(|j| j.name == id.name) {
-                return Err(SessionError::invalid(id.span, format!("`{}` is listed twice", id.name)));
+                return Err(SessionError::invalid(
+                    id.span,
+                    format!("`{}` is listed twice", id.name),
+                ));
             }
             if self.symbols.get(&id.name) != Some(&SymKind::State) {
                 self.check_new_name(id, false)?;
@@ -197,7 +224,10 @@ impl Session {
         self.check_new_name(id, true)?;
         let summary = self.describe(&v);
         if self.names.insert(id.name.clone(), v).is_some() {
-            report.push(Style::Note, format!("{}: {summary} (replaces the previous {})", id.name, id.name));
+            report.push(
+                Style::Note,
+                format!("{}: {summary} (replaces the previous {})", id.name, id.name),
+            );
         } else {
             self.order.push(id.name.clone());
             report.push(Style::Note, format!("{}: {summary}", id.name));
@@ -209,8 +239,16 @@ impl Session {
     pub(crate) fn describe(&self, v: &Value) -> String {
         match v {
             Value::Scalar(e) => {
-                let tv = if e.is_time_varying() { "time-varying scalar" } else { "scalar" };
-                format!("{tv}, {} term{}", e.len(), if e.len() == 1 { "" } else { "s" })
+                let tv = if e.is_time_varying() {
+                    "time-varying scalar"
+                } else {
+                    "scalar"
+                };
+                format!(
+                    "{tv}, {} term{}",
+                    e.len(),
+                    if e.len() == 1 { "" } else { "s" }
+                )
             }
             Value::Field(f) => {
                 let tv = f.field.0.iter().any(|e| e.is_time_varying());
@@ -238,7 +276,11 @@ impl Session {
 
     fn list_names(&self, report: &mut Report) {
         let by_kind = |k: SymKind| -> Vec<String> {
-            self.symbols.iter().filter(|(_, v)| **v == k).map(|(n, _)| n.clone()).collect()
+            self.symbols
+                .iter()
+                .filter(|(_, v)| **v == k)
+                .map(|(n, _)| n.clone())
+                .collect()
         };
         if !self.states.is_empty() {
             report.push(Style::Plain, format!("state  {}", self.state_list()));
@@ -289,7 +331,11 @@ impl Session {
             _ => {
                 return Err(SessionError::at(
                     span,
-                    ErrorKind::Kind { op: "`==`".to_string(), left: a.kind_name(), right: Some(b.kind_name()) },
+                    ErrorKind::Kind {
+                        op: "`==`".to_string(),
+                        left: a.kind_name(),
+                        right: Some(b.kind_name()),
+                    },
                 ))
             }
         };
@@ -302,7 +348,10 @@ impl Session {
                     Some(o) => format!("{o}:{line}"),
                     None => format!("line {line}"),
                 };
-                report.push(Style::Fail, format!("check failed at {place}: {}", src.text.trim()));
+                report.push(
+                    Style::Fail,
+                    format!("check failed at {place}: {}", src.text.trim()),
+                );
                 report.push(Style::Fail, format!("  left:       {}", plain::value(&a)));
                 report.push(Style::Fail, format!("  right:      {}", plain::value(&b)));
                 report.push(Style::Fail, format!("  difference: {}", plain::value(&d)));
@@ -313,11 +362,21 @@ impl Session {
 
     fn run_file(&mut self, path: &str, span: super::ast::Span, report: &mut Report) -> R<()> {
         if self.run_depth >= 16 {
-            return Err(SessionError::invalid(span, "`run` is nested more than 16 deep (a script runs itself?)"));
+            return Err(SessionError::invalid(
+                span,
+                "`run` is nested more than 16 deep (a script runs itself?)",
+            ));
         }
         let p = self.resolve_path(path);
-        let text = crate::lang::files::read_script(&p)
-            .map_err(|reason| SessionError::at(span, ErrorKind::File { path: path.to_string(), reason }))?;
+        let text = crate::lang::files::read_script(&p).map_err(|reason| {
+            SessionError::at(
+                span,
+                ErrorKind::File {
+                    path: path.to_string(),
+                    reason,
+                },
+            )
+        })?;
         self.run_depth += 1;
         let mut events = Vec::new();
         let status = self.run_text(&text, Some(path), &mut |e| events.push(e));

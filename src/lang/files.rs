@@ -6,7 +6,10 @@ use std::path::Path;
 /// Writes `bytes` to `path` atomically: a temporary file in the same
 /// directory, flushed and synced, then renamed over the target.
 pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), String> {
-    let dir = path.parent().filter(|d| !d.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    let dir = path
+        .parent()
+        .filter(|d| !d.as_os_str().is_empty())
+        .unwrap_or(Path::new("."));
     let file_name = path
         .file_name()
         .ok_or_else(|| "not a file name".to_string())?
@@ -48,5 +51,6 @@ pub fn read_script(path: &Path) -> Result<String, String> {
     if bytes.contains(&0) {
         return Err("binary data (a NUL byte): not a script".to_string());
     }
-    String::from_utf8(bytes).map_err(|e| format!("not valid UTF-8 (at byte {})", e.utf8_error().valid_up_to()))
+    String::from_utf8(bytes)
+        .map_err(|e| format!("not valid UTF-8 (at byte {})", e.utf8_error().valid_up_to()))
 }

@@ -43,8 +43,8 @@ pub fn help(word: Option<&str>) -> Option<String> {
         }
         Some(w) => {
             let key = match w {
-                "sin" | "cos" | "exp" | "ad" | "pd" | "jac" | "div" | "det" | "trace" | "plug" | "order"
-                | "mean" | "bch" | "iint" => "builtins",
+                "sin" | "cos" | "exp" | "ad" | "pd" | "jac" | "div" | "det" | "trace" | "plug"
+                | "order" | "mean" | "bch" | "iint" => "builtins",
                 "budget" => "set",
                 other => other,
             };

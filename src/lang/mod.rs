@@ -11,6 +11,7 @@ pub mod eval;
 pub mod exec;
 pub mod files;
 pub mod help;
+pub mod numeric_cmds;
 pub mod parse;
 pub mod session;
 pub mod split;

@@ -2778,7 +2778,6 @@ mod tests {
         #[test]
         fn minimally_bracketed_text_parses_back_to_the_same_tree(tree in arb_expr()) {
             let text = print_min(&tree, 0);
-            eprintln!("SAMPLE {text}");
             let parsed = parse_expr(&text);
             proptest::prop_assert_eq!(parsed.map(|e| e.sexpr()), Ok(tree.sexpr()), "{}", text);
         }

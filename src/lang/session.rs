@@ -63,7 +63,10 @@ pub struct Report {
 impl Report {
     /// Adds a line.
     pub fn push(&mut self, style: Style, text: impl Into<String>) {
-        self.lines.push(Line { style, text: text.into() });
+        self.lines.push(Line {
+            style,
+            text: text.into(),
+        });
     }
 }
 
@@ -75,9 +78,16 @@ pub enum ErrorKind {
     /// An error of the exact core (limits, forms, division, …).
     Core(CoreError),
     /// A name that is not defined; with the nearest defined name.
-    UnknownName { name: String, suggestion: Option<String> },
+    UnknownName {
+        name: String,
+        suggestion: Option<String>,
+    },
     /// An operator applied to values of the wrong kinds.
-    Kind { op: String, left: &'static str, right: Option<&'static str> },
+    Kind {
+        op: String,
+        left: &'static str,
+        right: Option<&'static str>,
+    },
     /// Anything else the language refuses, with the reason.
     Invalid(String),
     /// A file could not be read or written.
@@ -98,7 +108,10 @@ pub struct SessionError {
 impl SessionError {
     /// An error at `span`.
     pub fn at(span: Span, kind: ErrorKind) -> SessionError {
-        SessionError { span: Some(span), kind }
+        SessionError {
+            span: Some(span),
+            kind,
+        }
     }
 
     /// A refusal at `span` with a message.
@@ -117,16 +130,33 @@ impl fmt::Display for ErrorKind {
         match self {
             ErrorKind::Parse(e) => write!(f, "{e}"),
             ErrorKind::Core(e) => write!(f, "{e}"),
-            ErrorKind::UnknownName { name, suggestion: Some(s) } => {
+            ErrorKind::UnknownName {
+                name,
+                suggestion: Some(s),
+            } => {
                 write!(f, "unknown name `{name}` (did you mean `{s}`?)")
             }
-            ErrorKind::UnknownName { name, suggestion: None } => {
-                write!(f, "unknown name `{name}` (declare it with `state`, `param` or define it)")
+            ErrorKind::UnknownName {
+                name,
+                suggestion: None,
+            } => {
+                write!(
+                    f,
+                    "unknown name `{name}` (declare it with `state`, `param` or define it)"
+                )
             }
-            ErrorKind::Kind { op, left, right: Some(r) } => {
+            ErrorKind::Kind {
+                op,
+                left,
+                right: Some(r),
+            } => {
                 write!(f, "cannot apply {op} to a {left} and a {r}")
             }
-            ErrorKind::Kind { op, left, right: None } => write!(f, "cannot apply {op} to a {left}"),
+            ErrorKind::Kind {
+                op,
+                left,
+                right: None,
+            } => write!(f, "cannot apply {op} to a {left}"),
             ErrorKind::Invalid(m) => write!(f, "{m}"),
             ErrorKind::File { path, reason } => write!(f, "cannot use file `{path}`: {reason}"),
             ErrorKind::Nested(m) => write!(f, "{m}"),
@@ -269,25 +299,34 @@ impl Session {
 
     /// Executes one statement. Accepted statements (all but errors) are
     /// recorded for `save`.
-    pub fn execute(&mut self, stmt: &SourceStmt, origin: Option<&str>) -> Result<Report, SessionError> {
+    pub fn execute(
+        &mut self,
+        stmt: &SourceStmt,
+        origin: Option<&str>,
+    ) -> Result<Report, SessionError> {
         limits::clear_interrupt();
-        let parsed = parse_stmt(&stmt.text)
-            .map_err(|e| SessionError::at(e.span, ErrorKind::Parse(e)))?;
+        let parsed =
+            parse_stmt(&stmt.text).map_err(|e| SessionError::at(e.span, ErrorKind::Parse(e)))?;
         let started = Instant::now();
         let mut report = self.execute_parsed(&parsed, stmt, origin, started)?;
         let is_file_op = matches!(parsed.kind, StmtKind::Save(_) | StmtKind::RunFile(_));
         if !is_file_op && !matches!(parsed.kind, StmtKind::Quit) {
-            self.accepted.push(stmt.text.clone());
+            self.accepted.push(stmt.source());
         }
         if report.journal.is_empty() && !matches!(parsed.kind, StmtKind::Quit) {
-            report.journal.push(stmt.text.clone());
+            report.journal.push(stmt.source());
         }
         Ok(report)
     }
 
     /// Runs every statement of `text` in order, reporting through `sink`.
     /// Failed checks go on; an error stops the run.
-    pub fn run_text(&mut self, text: &str, origin: Option<&str>, sink: &mut dyn FnMut(Event)) -> RunStatus {
+    pub fn run_text(
+        &mut self,
+        text: &str,
+        origin: Option<&str>,
+        sink: &mut dyn FnMut(Event),
+    ) -> RunStatus {
         let mut status = RunStatus::default();
         let stmts = match split_statements(text) {
             Ok(s) => s,

@@ -57,6 +57,14 @@ impl SourceStmt {
             .map_or("", String::as_str)
     }
 
+    /// The statement exactly as written: its original lines (comments and
+    /// continuation backslashes kept) joined with `\n`. Splitting this text
+    /// again gives back this one statement, so it is what a journal or a
+    /// saved script should hold.
+    pub fn source(&self) -> String {
+        self.lines.join("\n")
+    }
+
     /// The 1-based line number of the statement's last line.
     pub fn last_line(&self) -> usize {
         self.line + self.lines.len().saturating_sub(1)
@@ -615,6 +623,33 @@ mod tests {
                 }
             }
             let _ = needs_more(&src);
+        }
+    }
+
+    #[test]
+    fn source_keeps_the_lines_as_written_and_splits_back_to_itself() {
+        let src = "state q # coordinates\nx = a + \\\n  b\nf = [q, # first\n  1]\r\n\nquit";
+        let statements = match split_statements(src) {
+            Ok(statements) => statements,
+            Err(err) => panic!("{err:?}"),
+        };
+        let sources: Vec<String> = statements.iter().map(SourceStmt::source).collect();
+        assert_eq!(
+            sources,
+            vec![
+                "state q # coordinates",
+                "x = a + \\\n  b",
+                "f = [q, # first\n  1]",
+                "quit"
+            ]
+        );
+        for (statement, source) in statements.iter().zip(&sources) {
+            let again = match split_statements(source) {
+                Ok(again) => again,
+                Err(err) => panic!("{err:?}"),
+            };
+            let texts: Vec<&str> = again.iter().map(|s| s.text.as_str()).collect();
+            assert_eq!(texts, vec![statement.text.as_str()]);
         }
     }
 

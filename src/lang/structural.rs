@@ -11,7 +11,7 @@ use super::ast::{Arg, ExprKind, Ident, Span};
 use super::session::{Session, SessionError};
 use super::value::{BracketTerm, Combo, FieldValue, Value};
 use crate::core::calc::Period;
-use crate::core::{CoreError, CoreResult, Expr, Field, Q, Sym};
+use crate::core::{CoreError, CoreResult, Expr, Field, Sym, Q};
 use crate::render::latex;
 use crate::series::chrono;
 use crate::series::freelie::{self, Alphabet, Bracket, Coeff, FreeLieError, LiePoly, Tensor};
@@ -67,7 +67,9 @@ impl Coeff for Expr {
 }
 
 fn lie_err(e: FreeLieError) -> CoreError {
-    CoreError::Refused { reason: format!("free Lie algebra: {e}") }
+    CoreError::Refused {
+        reason: format!("free Lie algebra: {e}"),
+    }
 }
 
 fn checked<T>(r: Result<T, FreeLieError>) -> CoreResult<T> {
@@ -92,7 +94,11 @@ fn to_terms(poly: &LiePoly<Expr>, names: &[String]) -> Vec<BracketTerm> {
         .filter_map(|(w, c)| {
             let b = freelie::standard_bracketing(w)?;
             let (bracket, latex) = bracket_text(&b, names);
-            Some(BracketTerm { coeff: c.clone(), bracket, latex })
+            Some(BracketTerm {
+                coeff: c.clone(),
+                bracket,
+                latex,
+            })
         })
         .collect()
 }
@@ -106,7 +112,11 @@ pub fn show_terms(terms: &[BracketTerm]) -> String {
     for (i, t) in terms.iter().enumerate() {
         let c = t.coeff.to_string();
         let simple = t.coeff.len() == 1;
-        let (neg, body) = if simple && c.starts_with('-') { (true, c[1..].to_string()) } else { (false, c) };
+        let (neg, body) = if simple && c.starts_with('-') {
+            (true, c[1..].to_string())
+        } else {
+            (false, c)
+        };
         if i > 0 {
             s.push_str(if neg { " - " } else { " + " });
         } else if neg {
@@ -130,7 +140,10 @@ fn letter_weight(c: &Expr, eps: Option<Sym>) -> CoreResult<u32> {
     match c.power_range(eps) {
         Some((lo, _)) if lo >= 1 => Ok(lo as u32),
         _ => Err(CoreError::Refused {
-            reason: format!("the coefficient `{c}` has no positive power of {}", eps.name()),
+            reason: format!(
+                "the coefficient `{c}` has no positive power of {}",
+                eps.name()
+            ),
         }),
     }
 }
@@ -162,8 +175,11 @@ pub fn magnus_structure(
             return Ok(None);
         }
     }
-    let weights: Vec<u32> =
-        combo.parts.iter().map(|(_, _, c)| letter_weight(c, eps)).collect::<CoreResult<_>>()?;
+    let weights: Vec<u32> = combo
+        .parts
+        .iter()
+        .map(|(_, _, c)| letter_weight(c, eps))
+        .collect::<CoreResult<_>>()?;
     let alphabet = Alphabet::new(weights.clone()).map_err(lie_err)?;
     let max_w = n as u32;
     // Iterated integrals by prefix: I(w a)(t) = ∫_0^t I(w)(s) c_a(s) ds,
@@ -217,13 +233,26 @@ pub fn magnus_structure(
 
 /// The classical averaged field in bracket form, orders 1 and 2
 /// (G_1 = Σ mean(a_i) X_i, G_2 = Σ_{i<j} −mean(a_i A_j) [X_i, X_j] + Σ mean(b_i) X_i).
-pub fn classic_structure(combo: &Combo, n: usize, period: &Period, eps: Sym) -> CoreResult<Option<Vec<BracketTerm>>> {
+pub fn classic_structure(
+    combo: &Combo,
+    n: usize,
+    period: &Period,
+    eps: Sym,
+) -> CoreResult<Option<Vec<BracketTerm>>> {
     if n > 2 {
         return Ok(None);
     }
     let names: Vec<String> = combo.parts.iter().map(|(n, _, _)| n.clone()).collect();
-    let a: Vec<Expr> = combo.parts.iter().map(|(_, _, c)| c.coeff_of_power(eps, 1)).collect();
-    let b: Vec<Expr> = combo.parts.iter().map(|(_, _, c)| c.coeff_of_power(eps, 2)).collect();
+    let a: Vec<Expr> = combo
+        .parts
+        .iter()
+        .map(|(_, _, c)| c.coeff_of_power(eps, 1))
+        .collect();
+    let b: Vec<Expr> = combo
+        .parts
+        .iter()
+        .map(|(_, _, c)| c.coeff_of_power(eps, 2))
+        .collect();
     for (_, _, c) in &combo.parts {
         if let Some((lo, _)) = c.power_range(eps) {
             if lo < 1 {
@@ -257,13 +286,20 @@ pub fn classic_structure(combo: &Combo, n: usize, period: &Period, eps: Sym) -> 
         }
     }
     let alphabet = Alphabet::uniform(names.len() as u16);
-    let lp = LiePoly::from_terms(poly.into_iter().filter(|(_, c)| !c.is_zero()), &alphabet).map_err(lie_err)?;
+    let lp = LiePoly::from_terms(poly.into_iter().filter(|(_, c)| !c.is_zero()), &alphabet)
+        .map_err(lie_err)?;
     Ok(Some(to_terms(&lp, &names)))
 }
 
 /// Terms `k = 1..=n` of the Chen–Fliess series of `h` along
 /// `V = X_0 + Σ_i u_i X_i` with unspecified inputs `u_i`.
-pub fn chen_fliess_terms(v: &Field, h: &Expr, n: usize, inputs: &[Sym], states: &[Sym]) -> CoreResult<Vec<Expr>> {
+pub fn chen_fliess_terms(
+    v: &Field,
+    h: &Expr,
+    n: usize,
+    inputs: &[Sym],
+    states: &[Sym],
+) -> CoreResult<Vec<Expr>> {
     crate::core::limits::check_order(n as u64)?;
     let mut letters: Vec<(String, Field)> = Vec::new();
     let mut drift = v.clone();
@@ -273,7 +309,11 @@ pub fn chen_fliess_terms(v: &Field, h: &Expr, n: usize, inputs: &[Sym], states: 
             if let Some((lo, hi)) = c.power_range(*u) {
                 if lo < 0 || hi > 1 {
                     return Err(CoreError::Refused {
-                        reason: format!("the input `{}` must enter linearly (found a power {} in `{c}`)", u.name(), if hi > 1 { hi } else { lo }),
+                        reason: format!(
+                            "the input `{}` must enter linearly (found a power {} in `{c}`)",
+                            u.name(),
+                            if hi > 1 { hi } else { lo }
+                        ),
                     });
                 }
             }
@@ -282,7 +322,10 @@ pub fn chen_fliess_terms(v: &Field, h: &Expr, n: usize, inputs: &[Sym], states: 
         let xu = Field(xu);
         for other in inputs {
             if xu.0.iter().any(|c| c.mentions(*other)) {
-                return Err(CoreError::Refused { reason: "products of inputs are not supported: V must be X_0 + Σ u_i X_i".to_string() });
+                return Err(CoreError::Refused {
+                    reason: "products of inputs are not supported: V must be X_0 + Σ u_i X_i"
+                        .to_string(),
+                });
             }
         }
         drift = drift.sub(&xu.mul_expr(&Expr::sym(*u))?)?;
@@ -323,7 +366,12 @@ pub fn chen_fliess_terms(v: &Field, h: &Expr, n: usize, inputs: &[Sym], states: 
 
 impl Session {
     /// `bch(X, Y, N)`: log(e^X e^Y) to degree N, concrete and structural.
-    pub(crate) fn eval_bch(&self, name: &Ident, args: &[Arg], span: Span) -> Result<Value, SessionError> {
+    pub(crate) fn eval_bch(
+        &self,
+        name: &Ident,
+        args: &[Arg],
+        span: Span,
+    ) -> Result<Value, SessionError> {
         let pos: Vec<&super::ast::Expr> = args
             .iter()
             .filter_map(|a| if let Arg::Pos(e) = a { Some(e) } else { None })
@@ -335,9 +383,13 @@ impl Session {
         let y = self.eval_field(pos[1], "the second argument of `bch`")?;
         let n = self.eval_count(pos[2], "the degree of `bch`")?;
         if n < 1 {
-            return Err(SessionError::invalid(pos[2].span, "the degree of `bch` must be at least 1"));
+            return Err(SessionError::invalid(
+                pos[2].span,
+                "the degree of `bch` must be at least 1",
+            ));
         }
-        crate::core::limits::check_order(n as u64).map_err(|e| SessionError::core(pos[2].span, e))?;
+        crate::core::limits::check_order(n as u64)
+            .map_err(|e| SessionError::core(pos[2].span, e))?;
         let core = |e: CoreError| SessionError::core(span, e);
         let poly: LiePoly<Expr> = checked(freelie::bch(n as u32)).map_err(core)?;
         let label = |e: &super::ast::Expr, d: &str| match &e.kind {
@@ -364,7 +416,12 @@ impl Session {
             BchError::Lie(l) => core(lie_err(l)),
         })?
         .unwrap_or_else(|| Field::zero(states.len()));
-        Ok(Value::Field(FieldValue { field: value, combo: None, structure: Some(to_terms(&poly, &names)), averaged: None }))
+        Ok(Value::Field(FieldValue {
+            field: value,
+            combo: None,
+            structure: Some(to_terms(&poly, &names)),
+            averaged: None,
+        }))
     }
 }
 

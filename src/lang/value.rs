@@ -73,7 +73,12 @@ pub enum Value {
 impl Value {
     /// A plain field without structure.
     pub fn field(f: Field) -> Value {
-        Value::Field(FieldValue { field: f, combo: None, structure: None, averaged: None })
+        Value::Field(FieldValue {
+            field: f,
+            combo: None,
+            structure: None,
+            averaged: None,
+        })
     }
 
     /// The kind's name for messages.

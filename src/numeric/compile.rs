@@ -8,7 +8,7 @@ use std::collections::HashMap;
 use std::fmt;
 
 use crate::core::expr::{Beat, Wave};
-use crate::core::{Expr, Field, Q, Sym};
+use crate::core::{Expr, Field, Sym, Q};
 
 /// Why an expression cannot be compiled.
 #[derive(Clone, Debug, PartialEq)]
@@ -25,11 +25,17 @@ impl fmt::Display for CompileError {
             CompileError::Missing(names) => write!(
                 f,
                 "no value for {}: give {} with `with {}=…`",
-                names.iter().map(|n| format!("`{n}`")).collect::<Vec<_>>().join(", "),
+                names
+                    .iter()
+                    .map(|n| format!("`{n}`"))
+                    .collect::<Vec<_>>()
+                    .join(", "),
                 if names.len() == 1 { "it" } else { "them" },
                 names.first().map_or("", String::as_str)
             ),
-            CompileError::NotFinite(what) => write!(f, "the value of {what} is not a finite number"),
+            CompileError::NotFinite(what) => {
+                write!(f, "the value of {what} is not a finite number")
+            }
         }
     }
 }
@@ -57,13 +63,19 @@ pub struct CompiledField {
 }
 
 fn lin(l: &crate::core::expr::Lin, index: &HashMap<Sym, usize>) -> Result<Vec<(usize, f64)>, Sym> {
-    l.0.iter().map(|(s, q)| index.get(s).map(|i| (*i, q.to_f64())).ok_or(*s)).collect()
+    l.0.iter()
+        .map(|(s, q)| index.get(s).map(|i| (*i, q.to_f64())).ok_or(*s))
+        .collect()
 }
 
 impl CompiledExpr {
     /// Compiles `e` over the state `states` with numerical `values` for
     /// every other symbol (`pi` is known).
-    pub fn new(e: &Expr, states: &[Sym], values: &HashMap<Sym, f64>) -> Result<CompiledExpr, CompileError> {
+    pub fn new(
+        e: &Expr,
+        states: &[Sym],
+        values: &HashMap<Sym, f64>,
+    ) -> Result<CompiledExpr, CompileError> {
         let index: HashMap<Sym, usize> = states.iter().enumerate().map(|(i, s)| (*s, i)).collect();
         let mut missing: Vec<String> = Vec::new();
         let mut terms = Vec::with_capacity(e.len());
@@ -106,7 +118,14 @@ impl CompiledExpr {
             if !coeff.is_finite() {
                 return Err(CompileError::NotFinite(format!("a coefficient of `{e}`")));
             }
-            terms.push(Term { coeff, powers, tpow, exp, wave, beat });
+            terms.push(Term {
+                coeff,
+                powers,
+                tpow,
+                exp,
+                wave,
+                beat,
+            });
         }
         if !missing.is_empty() {
             missing.sort();
@@ -145,7 +164,11 @@ impl CompiledExpr {
 
 impl CompiledField {
     /// Compiles every component.
-    pub fn new(f: &Field, states: &[Sym], values: &HashMap<Sym, f64>) -> Result<CompiledField, CompileError> {
+    pub fn new(
+        f: &Field,
+        states: &[Sym],
+        values: &HashMap<Sym, f64>,
+    ) -> Result<CompiledField, CompileError> {
         let mut comps = Vec::with_capacity(f.dim());
         let mut missing = Vec::new();
         for c in &f.0 {
@@ -201,7 +224,10 @@ mod tests {
             .unwrap()
             .add(&Expr::sym(Sym::PI));
         let mut vals = HashMap::new();
-        assert!(matches!(CompiledExpr::new(&e, &st, &vals), Err(CompileError::Missing(_))));
+        assert!(matches!(
+            CompiledExpr::new(&e, &st, &vals),
+            Err(CompileError::Missing(_))
+        ));
         vals.insert(k, 1.5);
         let c = CompiledExpr::new(&e, &st, &vals).unwrap();
         let (tv, xv) = (0.7_f64, 0.3_f64);

@@ -26,10 +26,7 @@ pub fn loglog_slope(xs: &[f64], ys: &[f64]) -> Option<f64> {
     let mean_y = points.iter().map(|p| p.1).sum::<f64>() / count;
     // Centred sums keep the fit accurate when the logs share a large offset.
     let sxx: f64 = points.iter().map(|p| (p.0 - mean_x).powi(2)).sum();
-    let sxy: f64 = points
-        .iter()
-        .map(|p| (p.0 - mean_x) * (p.1 - mean_y))
-        .sum();
+    let sxy: f64 = points.iter().map(|p| (p.0 - mean_x) * (p.1 - mean_y)).sum();
     let spread = points
         .iter()
         .map(|p| (p.0 - mean_x).abs())

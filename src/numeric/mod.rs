@@ -8,3 +8,4 @@ pub mod eigen;
 pub mod fit;
 pub mod ode;
 pub mod plot;
+pub mod validate;

@@ -197,7 +197,7 @@ pub fn integrate_at<R: Rhs + ?Sized>(
                 return Err(OdeError::TooManySteps { t, steps: attempts });
             }
             attempts += 1;
-            if attempts % 1000 == 0 {
+            if attempts.is_multiple_of(1000) {
                 progress(t);
             }
 
@@ -418,12 +418,11 @@ fn initial_step<R: Rhs + ?Sized>(
     }
     let (first, rest) = work.k.split_at_mut(1);
     rhs.eval(t + dir * h0, &work.y_stage, &mut rest[0]);
-    let d2 = rms(
-        &mut y
-            .iter()
-            .zip(first[0].iter().zip(rest[0].iter()))
-            .map(|(&v, (&f0, &f1))| (f1 - f0) / scale(v)),
-    ) / h0;
+    let d2 = rms(&mut y
+        .iter()
+        .zip(first[0].iter().zip(rest[0].iter()))
+        .map(|(&v, (&f0, &f1))| (f1 - f0) / scale(v)))
+        / h0;
     let d12 = d1.max(d2);
     let h1 = if d12.is_finite() && d12 > 1e-15 {
         (0.01 / d12).powf(0.2)
@@ -516,7 +515,10 @@ mod tests {
     }
 
     fn max_abs_diff(a: &[f64], b: &[f64]) -> f64 {
-        a.iter().zip(b).map(|(x, y)| (x - y).abs()).fold(0.0, f64::max)
+        a.iter()
+            .zip(b)
+            .map(|(x, y)| (x - y).abs())
+            .fold(0.0, f64::max)
     }
 
     /// Observed orders `log2(e(h) / e(h/2))` for consecutive halvings.
@@ -536,7 +538,10 @@ mod tests {
             .map(|&n| (fixed(&mut exp_sin, 0.0, &[1.0], t1, n)[0] - exact).abs())
             .collect();
         for order in observed_orders(&errors) {
-            assert!((4.5..5.5).contains(&order), "order {order}, errors {errors:?}");
+            assert!(
+                (4.5..5.5).contains(&order),
+                "order {order}, errors {errors:?}"
+            );
         }
     }
 
@@ -550,7 +555,10 @@ mod tests {
             .map(|&n| max_abs_diff(&fixed(&mut oscillator, 0.0, &[1.0, 0.0], t1, n), &exact))
             .collect();
         for order in observed_orders(&errors) {
-            assert!((4.5..5.5).contains(&order), "order {order}, errors {errors:?}");
+            assert!(
+                (4.5..5.5).contains(&order),
+                "order {order}, errors {errors:?}"
+            );
         }
     }
 
@@ -572,7 +580,10 @@ mod tests {
         };
         let errors: Vec<f64> = [0.2, 0.1, 0.05].iter().map(|&h| estimate(h)).collect();
         for order in observed_orders(&errors) {
-            assert!((4.5..5.5).contains(&order), "order {order}, errors {errors:?}");
+            assert!(
+                (4.5..5.5).contains(&order),
+                "order {order}, errors {errors:?}"
+            );
         }
     }
 
@@ -590,7 +601,10 @@ mod tests {
             let out = run(&mut oscillator, 0.0, &[1.0, 0.0], &[t1], &opts).unwrap();
             let error = max_abs_diff(&out.states[0], &exact);
             assert!(error < 100.0 * rtol, "rtol {rtol}: error {error}");
-            assert!(error < previous, "rtol {rtol}: error {error} not below {previous}");
+            assert!(
+                error < previous,
+                "rtol {rtol}: error {error} not below {previous}"
+            );
             previous = error;
         }
     }
@@ -613,7 +627,10 @@ mod tests {
                 .map(|(t, y)| (y[0] - t.sin().exp()).abs() / t.sin().exp())
                 .fold(0.0, f64::max);
             assert!(error < 100.0 * rtol, "rtol {rtol}: error {error}");
-            assert!(error < previous, "rtol {rtol}: error {error} not below {previous}");
+            assert!(
+                error < previous,
+                "rtol {rtol}: error {error} not below {previous}"
+            );
             previous = error;
         }
     }
@@ -621,7 +638,14 @@ mod tests {
     #[test]
     fn default_options_are_accurate_and_count_work() {
         let t1 = 2.0 * std::f64::consts::PI;
-        let out = run(&mut oscillator, 0.0, &[1.0, 0.0], &[t1], &OdeOptions::default()).unwrap();
+        let out = run(
+            &mut oscillator,
+            0.0,
+            &[1.0, 0.0],
+            &[t1],
+            &OdeOptions::default(),
+        )
+        .unwrap();
         assert!(max_abs_diff(&out.states[0], &[1.0, 0.0]) < 1e-9);
         let stats = out.stats;
         assert!(stats.steps > 10);
@@ -673,7 +697,15 @@ mod tests {
             h_max: 1e-3,
             ..OdeOptions::default()
         };
-        let res = integrate_at(&mut oscillator, 0.0, &[1.0, 0.0], &[100.0], &opts, &cancel, &mut |_| {});
+        let res = integrate_at(
+            &mut oscillator,
+            0.0,
+            &[1.0, 0.0],
+            &[100.0],
+            &opts,
+            &cancel,
+            &mut |_| {},
+        );
         match res {
             Err(OdeError::Cancelled { t }) => assert!(t > 0.0 && t < 1.0, "t = {t}"),
             other => panic!("expected cancellation, got {other:?}"),
@@ -733,7 +765,10 @@ mod tests {
         };
         let res = run(&mut cube, 0.0, &[1.0], &[1.0], &opts);
         assert!(
-            matches!(res, Err(OdeError::NonFinite { .. }) | Err(OdeError::StepTooSmall { .. })),
+            matches!(
+                res,
+                Err(OdeError::NonFinite { .. }) | Err(OdeError::StepTooSmall { .. })
+            ),
             "{res:?}"
         );
     }
@@ -760,7 +795,10 @@ mod tests {
             ..OdeOptions::default()
         };
         let res = run(&mut oscillator, 0.0, &[1.0, 0.0], &[100.0], &opts);
-        assert!(matches!(res, Err(OdeError::TooManySteps { steps: 10, .. })), "{res:?}");
+        assert!(
+            matches!(res, Err(OdeError::TooManySteps { steps: 10, .. })),
+            "{res:?}"
+        );
     }
 
     #[test]
@@ -772,14 +810,50 @@ mod tests {
             (0.0, vec![f64::NAN], vec![1.0], opts.clone()),
             (f64::INFINITY, vec![1.0], vec![1.0], opts.clone()),
             (0.0, vec![1.0], vec![f64::NAN], opts.clone()),
-            (0.0, vec![1.0], vec![1.0], OdeOptions { rtol: 0.0, atol: 0.0, ..opts.clone() }),
-            (0.0, vec![1.0], vec![1.0], OdeOptions { rtol: -1.0, ..opts.clone() }),
-            (0.0, vec![1.0], vec![1.0], OdeOptions { h_max: 0.0, ..opts.clone() }),
-            (0.0, vec![1.0], vec![1.0], OdeOptions { h_max: f64::NAN, ..opts.clone() }),
+            (
+                0.0,
+                vec![1.0],
+                vec![1.0],
+                OdeOptions {
+                    rtol: 0.0,
+                    atol: 0.0,
+                    ..opts.clone()
+                },
+            ),
+            (
+                0.0,
+                vec![1.0],
+                vec![1.0],
+                OdeOptions {
+                    rtol: -1.0,
+                    ..opts.clone()
+                },
+            ),
+            (
+                0.0,
+                vec![1.0],
+                vec![1.0],
+                OdeOptions {
+                    h_max: 0.0,
+                    ..opts.clone()
+                },
+            ),
+            (
+                0.0,
+                vec![1.0],
+                vec![1.0],
+                OdeOptions {
+                    h_max: f64::NAN,
+                    ..opts.clone()
+                },
+            ),
         ];
         for (t0, y0, times, case_opts) in cases {
             let res = run(&mut exp_sin, t0, &y0, &times, &case_opts);
-            assert!(matches!(res, Err(OdeError::InvalidInput { .. })), "{t0} {y0:?} {times:?}");
+            assert!(
+                matches!(res, Err(OdeError::InvalidInput { .. })),
+                "{t0} {y0:?} {times:?}"
+            );
         }
     }
 

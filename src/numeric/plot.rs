@@ -365,8 +365,8 @@ fn log_range(values: impl Iterator<Item = f64>) -> Result<Range<f64>, PlotError>
     } else {
         1.5f64.log10()
     };
-    let lo = 10f64.powf((lo_log - pad).min(lo_log.floor()));
-    let hi = 10f64.powf(hi_log + pad);
+    let lo = 10f64.powf((lo_log - pad).min(lo_log.floor()).max(-305.0));
+    let hi = 10f64.powf((hi_log + pad).min(305.0));
     if lo.is_normal() && hi.is_normal() && hi > lo {
         Ok(lo..hi)
     } else {
@@ -412,10 +412,8 @@ mod tests {
 
     impl TempDir {
         fn new(tag: &str) -> TempDir {
-            let dir = std::env::temp_dir().join(format!(
-                "ordex-plot-test-{}-{tag}",
-                std::process::id()
-            ));
+            let dir =
+                std::env::temp_dir().join(format!("ordex-plot-test-{}-{tag}", std::process::id()));
             let _ = fs::remove_dir_all(&dir);
             fs::create_dir_all(&dir).unwrap();
             TempDir(dir)
@@ -463,7 +461,10 @@ mod tests {
         assert_eq!(data_lines, n_lines);
         assert!(!text.contains("NaN") && !text.contains("inf"));
         for label in labels {
-            assert!(text.contains(&format!("\n{label}\n")), "label {label} missing");
+            assert!(
+                text.contains(&format!("\n{label}\n")),
+                "label {label} missing"
+            );
         }
         text
     }
@@ -491,11 +492,18 @@ mod tests {
         let per_order = vec![
             ("order 1".to_string(), vec![4e-2, 1e-2, 2.5e-3, 6.25e-4]),
             ("order 2".to_string(), vec![8e-3, 1e-3, f64::NAN, 1.25e-4]),
-            ("order 3".to_string(), vec![0.0, -1.0, f64::NAN, f64::INFINITY]),
+            (
+                "order 3".to_string(),
+                vec![0.0, -1.0, f64::NAN, f64::INFINITY],
+            ),
         ];
         let path = dir.file("errors.svg");
         error_vs_eps_svg(&path, "error against eps", &eps, &per_order).unwrap();
-        let text = check_svg(&path, 2, &["order 1", "order 2", "order 3 (no data)", "eps"]);
+        let text = check_svg(
+            &path,
+            2,
+            &["order 1", "order 2", "order 3 (no data)", "eps"],
+        );
         // One marker per usable point: 4 + 3.
         assert_eq!(text.matches("<circle").count(), 7);
     }
@@ -505,9 +513,19 @@ mod tests {
         let dir = TempDir::new("escape");
         let path = dir.file("escape.svg");
         let labels = names(&["a<b", "x & \"y\"\u{0}"]);
-        time_series_svg(&path, "<title>", &labels, &[0.0, 1.0], &[vec![1.0, 2.0], vec![2.0, 1.0]])
-            .unwrap();
-        let text = check_svg(&path, 2, &["&lt;title&gt;", "a&lt;b", "x &amp; &quot;y&quot; "]);
+        time_series_svg(
+            &path,
+            "<title>",
+            &labels,
+            &[0.0, 1.0],
+            &[vec![1.0, 2.0], vec![2.0, 1.0]],
+        )
+        .unwrap();
+        let text = check_svg(
+            &path,
+            2,
+            &["&lt;title&gt;", "a&lt;b", "x &amp; &quot;y&quot; "],
+        );
         assert!(!text.contains("<title>") && !text.contains('\u{0}'));
     }
 
@@ -556,27 +574,47 @@ mod tests {
         let path = dir.file("never.svg");
         let one = names(&["x"]);
         let nan = f64::NAN;
-        assert_eq!(time_series_svg(&path, "t", &one, &[], &[vec![]]), Err(PlotError::NoData));
-        assert_eq!(time_series_svg(&path, "t", &[], &[1.0], &[]), Err(PlotError::NoData));
+        assert_eq!(
+            time_series_svg(&path, "t", &one, &[], &[vec![]]),
+            Err(PlotError::NoData)
+        );
+        assert_eq!(
+            time_series_svg(&path, "t", &[], &[1.0], &[]),
+            Err(PlotError::NoData)
+        );
         assert_eq!(
             time_series_svg(&path, "t", &one, &[1.0, nan], &[vec![nan, 1.0]]),
             Err(PlotError::NoData)
         );
         assert!(matches!(
             time_series_svg(&path, "t", &one, &[1.0, 2.0], &[vec![1.0]]),
-            Err(PlotError::LengthMismatch { expected: 2, found: 1, .. })
+            Err(PlotError::LengthMismatch {
+                expected: 2,
+                found: 1,
+                ..
+            })
         ));
         assert!(matches!(
             time_series_svg(&path, "t", &one, &[1.0], &[vec![1.0], vec![2.0]]),
-            Err(PlotError::LengthMismatch { expected: 1, found: 2, .. })
+            Err(PlotError::LengthMismatch {
+                expected: 1,
+                found: 2,
+                ..
+            })
         ));
         assert_eq!(
             time_series_svg(&path, "t", &one, &[0.0, 1.0], &[vec![-f64::MAX, f64::MAX]]),
             Err(PlotError::RangeTooWide)
         );
         let zeros = vec![("order 1".to_string(), vec![0.0, -1.0])];
-        assert_eq!(error_vs_eps_svg(&path, "e", &[0.1, 0.2], &zeros), Err(PlotError::NoData));
-        assert_eq!(error_vs_eps_svg(&path, "e", &[0.1, 0.2], &[]), Err(PlotError::NoData));
+        assert_eq!(
+            error_vs_eps_svg(&path, "e", &[0.1, 0.2], &zeros),
+            Err(PlotError::NoData)
+        );
+        assert_eq!(
+            error_vs_eps_svg(&path, "e", &[0.1, 0.2], &[]),
+            Err(PlotError::NoData)
+        );
         assert!(matches!(
             error_vs_eps_svg(&path, "e", &[0.1], &zeros),
             Err(PlotError::LengthMismatch { .. })

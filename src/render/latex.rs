@@ -4,19 +4,49 @@
 //! `th` → `\theta`, `omega` → `\omega`, …).
 
 use crate::core::expr::{Beat, Key, Lin, Wave};
-use crate::core::{Expr, Field, Matrix, Q, Sym};
+use crate::core::{Expr, Field, Matrix, Sym, Q};
 use crate::lang::value::Value;
 
 const GREEK: &[(&str, &str)] = &[
-    ("alpha", "\\alpha"), ("alph", "\\alpha"), ("beta", "\\beta"), ("bet", "\\beta"),
-    ("gamma", "\\gamma"), ("gam", "\\gamma"), ("delta", "\\delta"), ("del", "\\delta"),
-    ("epsilon", "\\varepsilon"), ("eps", "\\varepsilon"), ("zeta", "\\zeta"), ("eta", "\\eta"),
-    ("theta", "\\theta"), ("th", "\\theta"), ("iota", "\\iota"), ("kappa", "\\kappa"),
-    ("lambda", "\\lambda"), ("lam", "\\lambda"), ("mu", "\\mu"), ("nu", "\\nu"), ("xi", "\\xi"),
-    ("rho", "\\rho"), ("sigma", "\\sigma"), ("sig", "\\sigma"), ("tau", "\\tau"),
-    ("phi", "\\phi"), ("chi", "\\chi"), ("psi", "\\psi"), ("omega", "\\omega"), ("om", "\\omega"),
-    ("Gamma", "\\Gamma"), ("Delta", "\\Delta"), ("Theta", "\\Theta"), ("Lambda", "\\Lambda"),
-    ("Xi", "\\Xi"), ("Sigma", "\\Sigma"), ("Phi", "\\Phi"), ("Psi", "\\Psi"), ("Omega", "\\Omega"),
+    ("alpha", "\\alpha"),
+    ("alph", "\\alpha"),
+    ("beta", "\\beta"),
+    ("bet", "\\beta"),
+    ("gamma", "\\gamma"),
+    ("gam", "\\gamma"),
+    ("delta", "\\delta"),
+    ("del", "\\delta"),
+    ("epsilon", "\\varepsilon"),
+    ("eps", "\\varepsilon"),
+    ("zeta", "\\zeta"),
+    ("eta", "\\eta"),
+    ("theta", "\\theta"),
+    ("th", "\\theta"),
+    ("iota", "\\iota"),
+    ("kappa", "\\kappa"),
+    ("lambda", "\\lambda"),
+    ("lam", "\\lambda"),
+    ("mu", "\\mu"),
+    ("nu", "\\nu"),
+    ("xi", "\\xi"),
+    ("rho", "\\rho"),
+    ("sigma", "\\sigma"),
+    ("sig", "\\sigma"),
+    ("tau", "\\tau"),
+    ("phi", "\\phi"),
+    ("chi", "\\chi"),
+    ("psi", "\\psi"),
+    ("omega", "\\omega"),
+    ("om", "\\omega"),
+    ("Gamma", "\\Gamma"),
+    ("Delta", "\\Delta"),
+    ("Theta", "\\Theta"),
+    ("Lambda", "\\Lambda"),
+    ("Xi", "\\Xi"),
+    ("Sigma", "\\Sigma"),
+    ("Phi", "\\Phi"),
+    ("Psi", "\\Psi"),
+    ("Omega", "\\Omega"),
     ("pi", "\\pi"),
 ];
 
@@ -111,7 +141,11 @@ fn term(k: &Key, c: &Q) -> (bool, String) {
     let mut num: Vec<String> = Vec::new();
     let mut den: Vec<String> = Vec::new();
     for (s, e) in &k.mono.0 {
-        let n = if *s == Sym::PI { "\\pi".to_string() } else { name(&s.name()) };
+        let n = if *s == Sym::PI {
+            "\\pi".to_string()
+        } else {
+            name(&s.name())
+        };
         if *e > 0 {
             num.push(power(&n, *e as i64));
         } else {
@@ -137,12 +171,20 @@ fn term(k: &Key, c: &Q) -> (bool, String) {
     let denom = a.denom().to_string();
     let mut top = num.join(" ");
     if numer != "1" || top.is_empty() {
-        top = if top.is_empty() { numer } else { format!("{numer} {top}") };
+        top = if top.is_empty() {
+            numer
+        } else {
+            format!("{numer} {top}")
+        };
     }
     if denom != "1" {
         den.insert(0, denom);
     }
-    let body = if den.is_empty() { top } else { format!("\\frac{{{top}}}{{{}}}", den.join(" ")) };
+    let body = if den.is_empty() {
+        top
+    } else {
+        format!("\\frac{{{top}}}{{{}}}", den.join(" "))
+    };
     (neg, body)
 }
 
@@ -169,14 +211,21 @@ pub fn expr(e: &Expr) -> String {
 /// A field as a column `pmatrix`.
 pub fn field(f: &Field) -> String {
     let rows: Vec<String> = f.0.iter().map(expr).collect();
-    format!("\\begin{{pmatrix}} {} \\end{{pmatrix}}", rows.join(" \\\\ "))
+    format!(
+        "\\begin{{pmatrix}} {} \\end{{pmatrix}}",
+        rows.join(" \\\\ ")
+    )
 }
 
 /// A matrix as a `pmatrix`.
 pub fn matrix(m: &Matrix) -> String {
-    let rows: Vec<String> =
-        (0..m.rows).map(|i| m.row(i).iter().map(expr).collect::<Vec<_>>().join(" & ")).collect();
-    format!("\\begin{{pmatrix}} {} \\end{{pmatrix}}", rows.join(" \\\\ "))
+    let rows: Vec<String> = (0..m.rows)
+        .map(|i| m.row(i).iter().map(expr).collect::<Vec<_>>().join(" & "))
+        .collect();
+    format!(
+        "\\begin{{pmatrix}} {} \\end{{pmatrix}}",
+        rows.join(" \\\\ ")
+    )
 }
 
 /// Any value; a field with a bracket form also shows it.

@@ -12,7 +12,13 @@ pub fn field(f: &Field) -> String {
 /// A matrix as `{a, b; c, d}`.
 pub fn matrix(m: &Matrix) -> String {
     let rows: Vec<String> = (0..m.rows)
-        .map(|i| m.row(i).iter().map(Expr::to_string).collect::<Vec<_>>().join(", "))
+        .map(|i| {
+            m.row(i)
+                .iter()
+                .map(Expr::to_string)
+                .collect::<Vec<_>>()
+                .join(", ")
+        })
         .collect();
     format!("{{{}}}", rows.join("; "))
 }

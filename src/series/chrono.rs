@@ -13,7 +13,7 @@
 use std::collections::HashMap;
 
 use crate::core::calc::Period;
-use crate::core::{limits, CoreError, CoreResult, Expr, Field, Q, Sym};
+use crate::core::{limits, CoreError, CoreResult, Expr, Field, Sym, Q};
 
 /// A graded time-varying field: `parts[j-1]` has grade `j`.
 #[derive(Clone, Debug)]
@@ -178,7 +178,6 @@ pub fn check_periodic_field(f: &Field) -> CoreResult<()> {
 /// Refusal used when a period is needed but nothing oscillates.
 pub fn no_period_error() -> CoreError {
     CoreError::Refused {
-        reason: "no period: the field does not oscillate in t (give one with `over T`)"
-            .to_string(),
+        reason: "no period: the field does not oscillate in t (give one with `over T`)".to_string(),
     }
 }
