@@ -328,12 +328,13 @@ impl Session {
         sink: &mut dyn FnMut(Event),
     ) -> RunStatus {
         let mut status = RunStatus::default();
-        let stmts = match split_statements(text) {
-            Ok(s) => s,
+        let (stmts, split_error) = match split_statements(text) {
+            Ok(s) => (s, None),
             Err(e) => {
-                sink(Event::Error(e.render(origin)));
-                status.error = true;
-                return status;
+                // Run what comes before the broken line, then report it.
+                let prefix: String =
+                    text.split_inclusive('\n').take(e.line.saturating_sub(1)).collect();
+                (split_statements(&prefix).unwrap_or_default(), Some(e))
             }
         };
         for stmt in &stmts {
@@ -353,6 +354,10 @@ impl Session {
                     return status;
                 }
             }
+        }
+        if let Some(e) = split_error {
+            sink(Event::Error(e.render(origin)));
+            status.error = true;
         }
         status
     }
