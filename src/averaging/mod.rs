@@ -250,9 +250,7 @@ pub fn classical(
         .collect();
     // p[m][g]: (1/m!) (w̃·∇)^m f at grade g (index g, grade 0 unused).
     let mut p: Vec<Vec<Field>> = vec![vec![Field::zero(dim); n + 1]; n + 1];
-    for g in 1..=n {
-        p[0][g] = standard[g - 1].clone();
-    }
+    p[0][1..=n].clone_from_slice(&standard[..n]);
     let mut g_out: Vec<Field> = Vec::with_capacity(n);
     let mut w_out: Vec<Field> = Vec::with_capacity(n);
     let mut w_frozen: Vec<Field> = Vec::with_capacity(n);

@@ -428,6 +428,7 @@ impl Expr {
     }
 
     /// Number of terms.
+    #[allow(clippy::len_without_is_empty)] // `is_zero` is the emptiness test
     pub fn len(&self) -> usize {
         self.terms.len()
     }

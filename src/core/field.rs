@@ -420,7 +420,7 @@ impl Matrix {
     pub fn det(&self) -> CoreResult<Expr> {
         self.require_square("det")?;
         let c = self.charpoly()?;
-        let sign = if self.rows % 2 == 0 { 1 } else { -1 };
+        let sign = if self.rows.is_multiple_of(2) { 1 } else { -1 };
         Ok(c[0].scale(&Q::int(sign)))
     }
 

@@ -404,7 +404,7 @@ impl Session {
                 }
             }
         }
-        Err(SessionError::invalid(e.span, format!("{what}")))
+        Err(SessionError::invalid(e.span, what.to_string()))
     }
 
     fn eval_call(&self, name: &Ident, args: &[Arg], span: Span) -> R<Value> {

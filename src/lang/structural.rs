@@ -278,9 +278,9 @@ pub fn classic_structure(
                 osc.zero_mean_antiderivative(period)
             })
             .collect::<CoreResult<_>>()?;
-        for i in 0..a.len() {
-            for j in i + 1..a.len() {
-                let m = a[i].mul(&big_a[j])?.mean_over(period)?;
+        for (i, ai) in a.iter().enumerate() {
+            for (j, aj_int) in big_a.iter().enumerate().skip(i + 1) {
+                let m = ai.mul(aj_int)?.mean_over(period)?;
                 poly.push((vec![i as u16, j as u16], m.neg().mul(&e2)?));
             }
         }
