@@ -9,6 +9,9 @@
 //! and `ordex::lang::Session`; it must not know how the series are computed
 //! inside (free Lie algebra, recursions).
 
+// Index loops below mirror the matrix formulas entry by entry.
+#![allow(clippy::needless_range_loop)]
+
 use std::collections::HashMap;
 use std::fmt::Display;
 
@@ -20,7 +23,7 @@ use ordex::lang::value::Value;
 use ordex::lang::{Event, Session};
 use ordex::series::chrono::{at_time, field_at_period, flow_terms, magnus_generator, Graded};
 use proptest::prelude::*;
-use proptest::test_runner::TestCaseError;
+use proptest::test_runner::{FileFailurePersistence, TestCaseError};
 
 // ---------------------------------------------------------------------------
 // Helpers: exact 3×3 matrices, fields, evaluation in f64, sessions.
@@ -206,6 +209,18 @@ fn session_scalar(s: &Session, name: &str) -> Expr {
     }
 }
 
+/// Case count; failing cases are recorded for replay under
+/// `proptest-regressions/`.
+fn config(cases: u32) -> ProptestConfig {
+    ProptestConfig {
+        cases,
+        failure_persistence: Some(Box::new(FileFailurePersistence::Direct(
+            "proptest-regressions/linear_crosscheck.txt",
+        ))),
+        ..ProptestConfig::default()
+    }
+}
+
 // ---------------------------------------------------------------------------
 // 1. Brackets of linear fields.
 
@@ -218,10 +233,10 @@ fn qmat_strategy() -> impl Strategy<Value = QMat> {
 }
 
 proptest! {
-    #![proptest_config(ProptestConfig { cases: 64, ..ProptestConfig::default() })]
+    #![proptest_config(config(64))]
 
-    /// REFERENCES §0 (the convention; CONFIRMED as the project's definition,
-    /// DESIGN §2.3): `[Bx, Cx] = (CB − BC)x`. The bracket is computed by the
+    /// REFERENCES §0 (the project's bracket convention, DESIGN §2.3):
+    /// `[Bx, Cx] = (CB − BC)x`. The bracket is computed by the
     /// core; `CB − BC` by nalgebra in f64 (tolerance 1e-9 for the rational
     /// entries) and exactly with rationals here.
     #[test]
@@ -486,7 +501,7 @@ fn small_qmat() -> impl Strategy<Value = QMat> {
 }
 
 proptest! {
-    #![proptest_config(ProptestConfig { cases: 12, ..ProptestConfig::default() })]
+    #![proptest_config(config(12))]
 
     /// The chronological logarithm of `A(t)x` equals `Ω(t)x` order by order,
     /// exactly, as functions of t (REFERENCES §1: for linear fields no extra
@@ -582,7 +597,8 @@ fn magnus_command_matches_matrix_magnus() {
         ]),
     ];
     let (pc, pm) = polynomial_system();
-    let cases: Vec<(Vec<Expr>, Vec<QMat>, &str, Box<dyn Fn(&Expr) -> Expr>)> = vec![
+    type AtEnd = Box<dyn Fn(&Expr) -> Expr>;
+    let cases: Vec<(Vec<Expr>, Vec<QMat>, &str, AtEnd)> = vec![
         (
             pc,
             pm,
@@ -699,6 +715,13 @@ fn time_varying_flow_converges_to_the_fundamental_matrix() {
     let na: Vec<Matrix3<f64>> = m.iter().map(to_na).collect();
     let a_of = |s: f64| na[0] + na[1] * s.cos() + na[2] * s.sin() + na[3] * s;
     let reference = rk4(&a_of, p, t_end, 20_000);
+    // The reference is converged: halving the steps changes it by far less
+    // than the smallest series error checked below.
+    let coarse = rk4(&a_of, p, t_end, 10_000);
+    assert!(
+        (coarse - reference).abs().max() < 1e-11,
+        "RK4 reference not converged"
+    );
     let error_at = |n: usize| -> f64 {
         (0..3)
             .map(|i| (p[i] + values[i][..n].iter().sum::<f64>() - reference[i]).abs())
@@ -763,6 +786,7 @@ fn assert_solution(xs: &Expr, ys: &Expr, f: &Expr, g: &Expr) {
 ///   `x(t) = x + eps t y + eps² (1 − cos t)`;
 /// - `x' = eps·y², y' = eps·cos t`: `y(t) = y + eps sin t`,
 ///   `x(t) = x + eps (y² t + 2 eps y (1 − cos t) + eps² (t/2 − sin(2t)/4))`.
+///
 /// Each closed form is verified exactly here before use. Output
 /// `h = x² + x·y`.
 #[test]

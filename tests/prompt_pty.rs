@@ -146,7 +146,9 @@ impl Terminal {
         self.send(line);
         self.send("\r");
         let got = self.expect(reply);
-        self.expect(PROMPT);
+        if reply != PROMPT {
+            self.expect(PROMPT);
+        }
         got
     }
 

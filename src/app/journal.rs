@@ -5,9 +5,8 @@
 //! Layout: `<home>/journal.ordex` is the current (or last) session; starting
 //! a new prompt session renames it to `<home>/journal.prev.ordex` (replacing
 //! the older one) and begins an empty journal. The file is an ordinary script:
-//! a comment header, then one statement per line; a statement that spans
-//! several lines is written with a trailing `\` on every line but its last,
-//! so that the splitter cuts it back into exactly one statement.
+//! a comment header, then the statements as they were written, each cut back
+//! by the splitter into exactly that statement (see [`encode`]).
 //!
 //! This module owns the file format and the file handling. It must not know
 //! about sessions, the prompt or the command line.
@@ -16,6 +15,8 @@ use std::fs::{File, OpenOptions};
 use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 use std::time::{SystemTime, UNIX_EPOCH};
+
+use crate::lang::split::split_statements;
 
 /// File name of the current journal inside the home directory.
 pub const JOURNAL_FILE: &str = "journal.ordex";
@@ -121,11 +122,19 @@ fn header() -> String {
     format!("# ordex journal: the accepted statements of a prompt session (started at unix time {seconds})\n")
 }
 
-/// One statement as journal text: every inner line break gets a trailing
-/// continuation `\`, and the statement ends with a newline.
+/// One statement as journal text, ending with a newline. Statements come
+/// as written (`SourceStmt::source`), which split back into themselves and
+/// are kept as they are; a text that would split into several statements
+/// (a multi-line text whose continuation backslashes were removed) gets a
+/// trailing `\` on each inner line so that it stays one statement.
 pub fn encode(statement: &str) -> String {
     let body = statement.trim_end_matches(['\n', '\r']);
-    let mut text = body.replace('\n', "\\\n");
+    let one = split_statements(body).is_ok_and(|statements| statements.len() <= 1);
+    let mut text = if one {
+        body.to_string()
+    } else {
+        body.replace('\n', "\\\n")
+    };
     text.push('\n');
     text
 }
@@ -133,7 +142,6 @@ pub fn encode(statement: &str) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::lang::split::split_statements;
 
     fn temp_home(tag: &str) -> PathBuf {
         let dir =
@@ -151,6 +159,7 @@ mod tests {
 
     #[test]
     fn encoded_statements_split_back_unchanged() {
+        // Statements as the splitter cuts them (continuations removed).
         let statements = [
             "state q, p".to_string(),
             "S = eps*[p,\n  -q] + cos(t)*{1, 2;\n 3, 4}".to_string(),
@@ -160,6 +169,19 @@ mod tests {
         ];
         let text: String = statements.iter().map(|s| encode(s)).collect();
         assert_eq!(texts(&text), statements.to_vec());
+    }
+
+    #[test]
+    fn statements_as_written_are_kept_as_written() {
+        let written = ["x = a + \\\n  b # note", "f = [a, # first\n b]", "names"];
+        for statement in written {
+            assert_eq!(encode(statement), format!("{statement}\n"));
+        }
+        let text: String = written.iter().map(|s| encode(s)).collect();
+        assert_eq!(
+            texts(&text),
+            vec!["x = a + \n  b ", "f = [a, \n b]", "names"]
+        );
     }
 
     #[test]

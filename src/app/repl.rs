@@ -102,7 +102,9 @@ pub fn run_prompt(invocation: &Invocation, painter: Painter) -> u8 {
 
 /// What to do after one input.
 enum Flow {
+    /// Prompt again.
     Continue,
+    /// Leave the prompt (`quit`, or standard output is gone).
     Quit,
 }
 

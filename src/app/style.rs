@@ -33,7 +33,7 @@ impl Painter {
     /// Looks at the environment and the two output streams, and sets the
     /// `colored` crate's global switch to match.
     pub fn detect() -> Painter {
-        let allowed = std::env::var_os("NO_COLOR").map_or(true, |v| v.is_empty());
+        let allowed = std::env::var_os("NO_COLOR").is_none_or(|v| v.is_empty());
         let painter = Painter {
             stdout: allowed && std::io::stdout().is_terminal(),
             stderr: allowed && std::io::stderr().is_terminal(),

@@ -201,20 +201,79 @@ pub fn average(v: &Field, eps: Sym, opts: &Options, states: &[Sym]) -> CoreResul
     })
 }
 
-/// Stroboscopic averaging of a standard form: `F_k = W_k(T) / T`.
-pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> CoreResult<Vec<Field>> {
+/// Stroboscopic averaging of a standard form: `F_k = W_k(T) / T` with `W`
+/// the chronological logarithm (the definition; used by tests to check the
+/// faster route below).
+pub fn stroboscopic_by_logarithm(
+    standard: &[Field],
+    period: &Period,
+    states: &[Sym],
+) -> CoreResult<Vec<Field>> {
     let n = standard.len();
-    let w = magnus_generator(
-        &Graded {
-            parts: standard.to_vec(),
-        },
-        n,
-        states,
-    )?;
+    let w = magnus_generator(&Graded { parts: standard.to_vec() }, n, states)?;
     let t_expr = period.to_expr();
     w.iter()
         .map(|wk| wk.map(|e| e.at_time_pi_multiple(&period.0)?.div(&t_expr)))
         .collect()
+}
+
+/// Stroboscopic averaging of a standard form through a periodic
+/// near-identity transform `x = exp(W_t)(y)` with `W_0 = 0`: then the
+/// time-T flow of `V` is `exp(T F)`, so `F` is the stroboscopic field.
+///
+/// With operators on functions, `P_t = exp(tF) ∘ exp(W_t)` and
+/// `P_t' = P_t ∘ V_t` give `V = e^{−ad_W} F + Σ_{n≥0} (−1)^n/(n+1)! ad_W^n W'`,
+/// so order by order `W_k' + F_k = V_k − R_k` with `R_k` made of brackets of
+/// lower orders; `F_k` is the mean of `V_k − R_k` and
+/// `W_k = ∫_0^t (V_k − R_k − F_k)`. Every intermediate is periodic (no
+/// secular powers of t), which keeps it much smaller than the logarithm.
+pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> CoreResult<Vec<Field>> {
+    let n = standard.len();
+    let dim = states.len();
+    let zero = Field::zero(dim);
+    // a[p][m] = [ad_W^p F]_m, b[p][m] = [ad_W^p W']_m (grades 1..=n).
+    let mut a: Vec<Vec<Field>> = vec![vec![zero.clone(); n + 1]; n + 1];
+    let mut b: Vec<Vec<Field>> = vec![vec![zero.clone(); n + 1]; n + 1];
+    let mut w: Vec<Field> = vec![zero.clone(); n + 1];
+    let mut f_out = Vec::with_capacity(n);
+    let mut fact = vec![Q::ONE; n + 2];
+    for i in 1..n + 2 {
+        fact[i] = fact[i - 1].mul(&Q::int(i as i64));
+    }
+    for k in 1..=n {
+        let mut r = zero.clone();
+        for p in 1..k {
+            let mut acc_a = zero.clone();
+            let mut acc_b = zero.clone();
+            for j in 1..k {
+                if k - j < p || w[j].is_zero() {
+                    continue;
+                }
+                limits::poll()?;
+                if !a[p - 1][k - j].is_zero() {
+                    acc_a = acc_a.add(&w[j].bracket(&a[p - 1][k - j], states)?)?;
+                }
+                if !b[p - 1][k - j].is_zero() {
+                    acc_b = acc_b.add(&w[j].bracket(&b[p - 1][k - j], states)?)?;
+                }
+            }
+            let sign = if p % 2 == 0 { Q::ONE } else { Q::int(-1) };
+            let ca = sign.mul(&fact[p].recip().unwrap_or(Q::ZERO));
+            let cb = sign.mul(&fact[p + 1].recip().unwrap_or(Q::ZERO));
+            r = r.add_scaled(&acc_a, &ca)?.add_scaled(&acc_b, &cb)?;
+            a[p][k] = acc_a;
+            b[p][k] = acc_b;
+        }
+        let rest = standard[k - 1].sub(&r)?;
+        let fk = rest.map(|e| e.mean_over(period))?;
+        let wk_dot = rest.sub(&fk)?;
+        w[k] = wk_dot.map(|e| e.integral_from_zero())?;
+        limits::check_terms(w[k].n_terms())?;
+        a[0][k] = fk.clone();
+        b[0][k] = wk_dot;
+        f_out.push(fk);
+    }
+    Ok(f_out)
 }
 
 /// Fresh copies of the state symbols, used to freeze the generator while

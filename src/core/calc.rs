@@ -169,7 +169,7 @@ impl Expr {
 
 fn lin_value(l: &Lin, map: &HashMap<Sym, Expr>) -> Expr {
     let mut acc = Expr::zero();
-    for (s, c) in &l.0 {
+    for (s, c) in l.0.iter() {
         let v = map.get(s).cloned().unwrap_or_else(|| Expr::sym(*s));
         acc = acc.add_scaled(&v, c);
     }

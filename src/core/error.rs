@@ -108,22 +108,29 @@ impl fmt::Display for CoreError {
                 LimitKind::Terms => write!(
                     f,
                     "term budget exceeded: a result would hold more than {limit} terms \
-                     (raise it with `set budget N`)"
+                     (each 64 bits of a large coefficient count as a term); \
+                     raise it with `set budget N`"
                 ),
                 LimitKind::Digits => write!(
                     f,
-                    "integer size limit exceeded: a coefficient would have more than {limit} digits"
+                    "integer size limit exceeded: a coefficient would have more than {limit} \
+                     digits (a fixed limit; `set budget` does not change it)"
                 ),
-                LimitKind::Order => write!(f, "order limit exceeded: the highest order is {limit}"),
-                LimitKind::Depth => {
-                    write!(f, "nesting limit exceeded: at most {limit} nested brackets")
-                }
-                LimitKind::Exponent => {
-                    write!(
-                        f,
-                        "exponent out of range: at most {limit} in absolute value"
-                    )
-                }
+                LimitKind::Order => write!(
+                    f,
+                    "order limit exceeded: the highest order is {limit} \
+                     (a fixed limit; `set budget` does not change it)"
+                ),
+                LimitKind::Depth => write!(
+                    f,
+                    "nesting limit exceeded: at most {limit} nested brackets \
+                     (a fixed limit: define inner parts as names)"
+                ),
+                LimitKind::Exponent => write!(
+                    f,
+                    "exponent out of range: at most {limit} in absolute value \
+                     (a fixed limit; `set budget` does not change it)"
+                ),
             },
             Interrupted => write!(f, "interrupted"),
         }

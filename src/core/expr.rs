@@ -16,8 +16,9 @@
 //! the plain input syntax used by `Display`.
 
 use smallvec::SmallVec;
-use std::collections::HashMap;
+use rustc_hash::FxHashMap;
 use std::fmt;
+use std::sync::Arc;
 
 use super::error::{CoreError, CoreResult, LimitKind};
 use super::limits;
@@ -29,9 +30,11 @@ use super::symbol::Sym;
 pub struct Mono(pub SmallVec<[(Sym, i32); 4]>);
 
 /// A linear form without constant: sorted `(symbol, coefficient)` pairs with
-/// nonzero coefficients.
+/// nonzero coefficients. Shared (reference-counted): terms are copied far
+/// more often than their arguments change, and a small key keeps products
+/// and hashing cheap.
 #[derive(Clone, PartialEq, Eq, Hash, PartialOrd, Ord, Debug, Default)]
-pub struct Lin(pub SmallVec<[(Sym, Q); 2]>);
+pub struct Lin(pub Arc<[(Sym, Q)]>);
 
 /// The trigonometric factor in the state variables.
 #[derive(Clone, PartialEq, Eq, Hash, PartialOrd, Ord, Debug)]
@@ -123,6 +126,23 @@ impl Mono {
     }
 }
 
+/// What a coefficient adds to the term budget: its 64-bit words when it
+/// is large, nothing when it fits machine words.
+fn coeff_words(c: &Q) -> usize {
+    match c {
+        Q::Small(..) => 0,
+        Q::Big(_) => usize::try_from(c.bits() / 64).unwrap_or(usize::MAX),
+    }
+}
+
+/// log2 of the larger of |numerator| and denominator (0 for 1 and -1).
+fn log2_size(c: &Q) -> f64 {
+    match c {
+        Q::Small(n, d) => (n.unsigned_abs() as f64).log2().max((*d as f64).log2()).max(0.0),
+        Q::Big(_) => c.bits() as f64,
+    }
+}
+
 fn exp_overflow() -> CoreError {
     CoreError::Limit {
         kind: LimitKind::Exponent,
@@ -172,7 +192,7 @@ impl Lin {
         }
         out.extend(a[i..].iter().cloned());
         out.extend(b[j..].iter().map(|(s, q)| (*s, sgn(q))));
-        Lin(out)
+        Lin(out.into_iter().collect())
     }
 
     /// Negation.
@@ -325,8 +345,22 @@ impl Key {
             self.exp.add_signed(&other.exp, false)
         };
         let c = ca.mul(cb);
-        let waves = wave_mul(&self.wave, &other.wave);
-        let beats = beat_mul(&self.beat, &other.beat);
+        let mut waves = wave_mul(&self.wave, &other.wave);
+        let mut beats = beat_mul(&self.beat, &other.beat);
+        if waves.len() == 1 && beats.len() == 1 {
+            // The common case: move everything, no clones.
+            let (cw, wave) = waves.swap_remove(0);
+            let (cbt, beat) = beats.swap_remove(0);
+            let mut cc = c;
+            if !cw.is_one() {
+                cc = cc.mul(&cw);
+            }
+            if !cbt.is_one() {
+                cc = cc.mul(&cbt);
+            }
+            out(Key { mono, exp, wave, beat }, cc);
+            return Ok(());
+        }
         for (cw, w) in &waves {
             for (cbt, bt) in &beats {
                 let mut cc = c.clone();
@@ -416,7 +450,7 @@ impl Expr {
         Expr { terms: out }
     }
 
-    fn from_map(map: HashMap<Key, Q>) -> Expr {
+    fn from_map(map: FxHashMap<Key, Q>) -> Expr {
         let mut terms: Vec<(Key, Q)> = map.into_iter().filter(|(_, c)| !c.is_zero()).collect();
         terms.sort_by(|a, b| a.0.cmp(&b.0));
         Expr { terms }
@@ -568,11 +602,14 @@ impl Expr {
         if self.is_zero() || other.is_zero() {
             return Ok(Expr::zero());
         }
-        // Fast paths: multiplication by a number.
+        // Fast paths: multiplication by a number (the integer-size limit
+        // checked first, so that repeated products of huge numbers stop).
         if let Some(q) = self.as_number() {
+            limits::check_bits(q.bits().saturating_add(other.max_coeff_bits()))?;
             return Ok(other.scale(&q));
         }
         if let Some(q) = other.as_number() {
+            limits::check_bits(q.bits().saturating_add(self.max_coeff_bits()))?;
             return Ok(self.scale(&q));
         }
         let (a, b) = if self.len() <= other.len() {
@@ -581,28 +618,42 @@ impl Expr {
             (other, self)
         };
         let max_terms = limits::limits().max_terms;
-        let mut map: HashMap<Key, Q> = HashMap::with_capacity((a.len() * b.len()).min(1 << 16));
+        let mut map: FxHashMap<Key, Q> =
+            FxHashMap::with_capacity_and_hasher((a.len() * b.len()).min(1 << 16), Default::default());
         let mut budget_hit = false;
         let mut max_bits = 0u64;
+        // The budget counts terms plus the 64-bit words of large
+        // coefficients, checked after every row so that a product that
+        // would outgrow it stops early instead of running for minutes.
+        let mut big_words = 0usize;
         for (n, (ka, ca)) in a.terms.iter().enumerate() {
             if n % 64 == 0 {
                 limits::poll()?;
             }
             for (kb, cb) in &b.terms {
                 ka.mul_into(ca, kb, cb, &mut |k, c| {
-                    max_bits = max_bits.max(c.bits());
-                    match map.get_mut(&k) {
-                        Some(e) => *e = e.add(&c),
-                        None => {
-                            map.insert(k, c);
+                    if let Q::Big(_) = c {
+                        max_bits = max_bits.max(c.bits());
+                    }
+                    match map.entry(k) {
+                        std::collections::hash_map::Entry::Occupied(mut e) => {
+                            let v = e.get().add(&c);
+                            big_words = big_words.saturating_sub(coeff_words(e.get()));
+                            big_words += coeff_words(&v);
+                            *e.get_mut() = v;
+                        }
+                        std::collections::hash_map::Entry::Vacant(e) => {
+                            big_words += coeff_words(&c);
+                            e.insert(c);
                         }
                     }
                 })?;
             }
-            if map.len() > max_terms {
+            if map.len().saturating_add(big_words) > max_terms {
                 budget_hit = true;
                 break;
             }
+            limits::check_bits(max_bits)?;
         }
         if budget_hit {
             return Err(CoreError::Limit {
@@ -610,7 +661,6 @@ impl Expr {
                 limit: max_terms as u64,
             });
         }
-        limits::check_bits(max_bits)?;
         Ok(Expr::from_map(map))
     }
 
@@ -638,7 +688,10 @@ impl Expr {
                 for (s, x) in &k.mono.0 {
                     mono.0.push((*s, x.checked_mul(e32).ok_or(exp_overflow())?));
                 }
-                limits::check_bits(c.bits().saturating_mul(e as u64))?;
+                // The coefficient's size grows as e*log2|c| bits (a unit
+                // coefficient stays 1 or -1: `x^1000000000` is cheap).
+                let bits = (e as f64 * log2_size(c)).ceil();
+                limits::check_bits(if bits < u64::MAX as f64 { bits as u64 } else { u64::MAX })?;
                 let coeff = c.pow(e).ok_or(CoreError::DivisionByZero)?;
                 let exp = k.exp.scale(&Q::int(e));
                 return Ok(Expr::term(
@@ -752,9 +805,17 @@ impl Expr {
         Some(it.fold((first, first), |(lo, hi), e| (lo.min(e), hi.max(e))))
     }
 
-    /// Size measure for the budget: number of terms.
+    /// Size measure for the budget: number of terms plus the 64-bit words
+    /// of large coefficients.
     pub fn size(&self) -> usize {
-        self.terms.len()
+        self.terms
+            .iter()
+            .fold(self.terms.len(), |acc, (_, c)| acc.saturating_add(coeff_words(c)))
+    }
+
+    /// Bits of the largest coefficient (numerator or denominator).
+    pub fn max_coeff_bits(&self) -> u64 {
+        self.terms.iter().map(|(_, c)| c.bits()).max().unwrap_or(0)
     }
 }
 
@@ -764,7 +825,7 @@ impl Expr {
 /// A linear argument split into its parts: state form, time frequency and a
 /// constant (rational number and rational multiple of pi).
 struct LinearArg {
-    state: Lin,
+    state: Vec<(Sym, Q)>,
     freq: Q,
     pi_multiple: Q,
     constant: Q,
@@ -772,7 +833,7 @@ struct LinearArg {
 
 fn linear_arg(func: &'static str, arg: &Expr, states: &[Sym]) -> CoreResult<LinearArg> {
     let mut out = LinearArg {
-        state: Lin::default(),
+        state: Vec::new(),
         freq: Q::ZERO,
         pi_multiple: Q::ZERO,
         constant: Q::ZERO,
@@ -789,7 +850,7 @@ fn linear_arg(func: &'static str, arg: &Expr, states: &[Sym]) -> CoreResult<Line
             [] => out.constant = c.clone(),
             [(s, 1)] if *s == Sym::T => out.freq = c.clone(),
             [(s, 1)] if *s == Sym::PI => out.pi_multiple = c.clone(),
-            [(s, 1)] if states.contains(s) => out.state.0.push((*s, c.clone())),
+            [(s, 1)] if states.contains(s) => out.state.push((*s, c.clone())),
             _ => {
                 if let Some((p, _)) = k
                     .mono
@@ -872,7 +933,8 @@ impl Expr {
                 arg: arg.to_string(),
             });
         }
-        if la.state.is_zero() && la.freq.is_zero() {
+        let state = Lin(la.state.iter().cloned().collect());
+        if state.is_zero() && la.freq.is_zero() {
             // A pure constant c*pi.
             return match trig_at_pi_multiple(is_sin, &la.pi_multiple) {
                 Some(v) => Ok(Expr::num(v)),
@@ -889,12 +951,12 @@ impl Expr {
         // X = L + k t; cos(X + c pi) = cos X cp - sin X sp; sin(X + c pi) = sin X cp + cos X sp.
         let cos_l = Expr::term(
             Key {
-                wave: cos_wave(la.state.clone()),
+                wave: cos_wave(state.clone()),
                 ..Key::one()
             },
             Q::ONE,
         );
-        let sin_l = match sin_wave(la.state.clone()) {
+        let sin_l = match sin_wave(state) {
             Some((neg, w)) => Expr::term(
                 Key {
                     wave: w,
@@ -949,7 +1011,7 @@ impl Expr {
         }
         Ok(Expr::term(
             Key {
-                exp: la.state,
+                exp: Lin(la.state.into_iter().collect()),
                 ..Key::one()
             },
             Q::ONE,

@@ -10,6 +10,7 @@ use num_bigint::BigInt;
 use num_integer::Integer;
 use num_rational::BigRational;
 use num_traits::{One, Signed, ToPrimitive};
+use std::borrow::Cow;
 use std::cmp::Ordering;
 use std::fmt;
 
@@ -23,6 +24,28 @@ pub enum Q {
     Small(i64, i64),
     /// Arbitrary precision, only for values that do not fit `Small`.
     Big(Box<BigRational>),
+}
+
+/// Binary gcd on machine words.
+fn gcd_u64(mut a: u64, mut b: u64) -> u64 {
+    if a == 0 {
+        return b;
+    }
+    if b == 0 {
+        return a;
+    }
+    let shift = (a | b).trailing_zeros();
+    a >>= a.trailing_zeros();
+    loop {
+        b >>= b.trailing_zeros();
+        if a > b {
+            std::mem::swap(&mut a, &mut b);
+        }
+        b -= a;
+        if b == 0 {
+            return a << shift;
+        }
+    }
 }
 
 fn gcd_u128(mut a: u128, mut b: u128) -> u128 {
@@ -72,7 +95,10 @@ impl Q {
 
     /// Builds from a big rational, demoting to the small form when it fits.
     pub fn from_big(r: BigRational) -> Q {
-        let r = if r.denom().is_negative() || !r.numer().gcd(r.denom()).is_one() {
+        // An integer needs no gcd (which costs time quadratic in its size).
+        let r = if r.denom().is_one() {
+            r
+        } else if r.denom().is_negative() || !r.numer().gcd(r.denom()).is_one() {
             r.reduced()
         } else {
             r
@@ -80,6 +106,24 @@ impl Q {
         match (r.numer().to_i64(), r.denom().to_i64()) {
             (Some(n), Some(d)) => Q::Small(n, d),
             _ => Q::Big(Box::new(r)),
+        }
+    }
+
+    /// The value as a big integer when it is an integer (borrowed when it
+    /// is already big): integer arithmetic skips the gcd of rationals.
+    fn as_big_integer(&self) -> Option<Cow<'_, BigInt>> {
+        match self {
+            Q::Small(n, 1) => Some(Cow::Owned(BigInt::from(*n))),
+            Q::Big(b) if b.denom().is_one() => Some(Cow::Borrowed(b.numer())),
+            _ => None,
+        }
+    }
+
+    /// The integer `n`, small when it fits.
+    fn from_integer(n: BigInt) -> Q {
+        match n.to_i64() {
+            Some(v) => Q::Small(v, 1),
+            None => Q::Big(Box::new(BigRational::from_integer(n))),
         }
     }
 
@@ -177,13 +221,22 @@ impl Q {
                         return Q::Small(s, 1);
                     }
                 }
+                if b == d {
+                    if let Some(s) = a.checked_add(*c) {
+                        let g = gcd_u64(s.unsigned_abs(), b.unsigned_abs()) as i64;
+                        return if s == 0 { Q::ZERO } else { Q::Small(s / g, b / g) };
+                    }
+                }
                 let (a, b, c, d) = (*a as i128, *b as i128, *c as i128, *d as i128);
                 match (a * d).checked_add(c * b) {
                     Some(n) => Q::from_i128(n, b * d),
                     None => Q::from_big(self.to_big() + other.to_big()),
                 }
             }
-            _ => Q::from_big(self.to_big() + other.to_big()),
+            _ => match (self.as_big_integer(), other.as_big_integer()) {
+                (Some(a), Some(b)) => Q::from_integer(&*a + &*b),
+                _ => Q::from_big(self.to_big() + other.to_big()),
+            },
         }
     }
 
@@ -212,9 +265,22 @@ impl Q {
                         return Q::Small(p, 1);
                     }
                 }
+                // Cross-cancel first: the result is then already reduced.
+                let g1 = gcd_u64(a.unsigned_abs(), d.unsigned_abs()) as i64;
+                let g2 = gcd_u64(c.unsigned_abs(), b.unsigned_abs()) as i64;
+                if g1 > 0 && g2 > 0 {
+                    if let (Some(n), Some(m)) =
+                        ((a / g1).checked_mul(c / g2), (b / g2).checked_mul(d / g1))
+                    {
+                        return if n == 0 { Q::ZERO } else { Q::Small(n, m) };
+                    }
+                }
                 Q::from_i128(*a as i128 * *c as i128, *b as i128 * *d as i128)
             }
-            _ => Q::from_big(self.to_big() * other.to_big()),
+            _ => match (self.as_big_integer(), other.as_big_integer()) {
+                (Some(a), Some(b)) => Q::from_integer(&*a * &*b),
+                _ => Q::from_big(self.to_big() * other.to_big()),
+            },
         }
     }
 

@@ -4,10 +4,15 @@
 //! `t`, the constant `pi`) is a `Sym`, a small integer handed out in order of
 //! first use. The order of symbols fixes the canonical order of terms, so a
 //! session that declares the same names in the same order prints the same
-//! output byte for byte. The interner is global and append-only.
+//! output byte for byte.
+//!
+//! The interner is per thread: a session and everything it computes live on
+//! one thread, and the order of symbols then depends only on that thread's
+//! history (not on other sessions running in parallel, as in the test suite).
+//! A `Sym` must not be sent to another thread and named there.
 
+use std::cell::RefCell;
 use std::collections::HashMap;
-use std::sync::{Mutex, OnceLock};
 
 /// An interned name.
 #[derive(Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Debug)]
@@ -18,19 +23,19 @@ struct Interner {
     ids: HashMap<String, u32>,
 }
 
-fn interner() -> &'static Mutex<Interner> {
-    static CELL: OnceLock<Mutex<Interner>> = OnceLock::new();
-    CELL.get_or_init(|| {
-        let mut it = Interner {
-            names: Vec::new(),
-            ids: HashMap::new(),
-        };
+impl Interner {
+    fn new() -> Interner {
+        let mut it = Interner { names: Vec::new(), ids: HashMap::new() };
         for name in ["t", "pi"] {
             it.ids.insert(name.to_string(), it.names.len() as u32);
             it.names.push(name.to_string());
         }
-        Mutex::new(it)
-    })
+        it
+    }
+}
+
+thread_local! {
+    static INTERNER: RefCell<Interner> = RefCell::new(Interner::new());
 }
 
 impl Sym {
@@ -41,22 +46,22 @@ impl Sym {
 
     /// Interns `name`.
     pub fn new(name: &str) -> Sym {
-        let mut it = interner().lock().unwrap_or_else(|e| e.into_inner());
-        if let Some(id) = it.ids.get(name) {
-            return Sym(*id);
-        }
-        let id = it.names.len() as u32;
-        it.names.push(name.to_string());
-        it.ids.insert(name.to_string(), id);
-        Sym(id)
+        INTERNER.with(|cell| {
+            let mut it = cell.borrow_mut();
+            if let Some(id) = it.ids.get(name) {
+                return Sym(*id);
+            }
+            let id = it.names.len() as u32;
+            it.names.push(name.to_string());
+            it.ids.insert(name.to_string(), id);
+            Sym(id)
+        })
     }
 
     /// The symbol's name.
     pub fn name(self) -> String {
-        let it = interner().lock().unwrap_or_else(|e| e.into_inner());
-        it.names
-            .get(self.0 as usize)
-            .cloned()
-            .unwrap_or_else(|| format!("?{}", self.0))
+        INTERNER.with(|cell| {
+            cell.borrow().names.get(self.0 as usize).cloned().unwrap_or_else(|| format!("?{}", self.0))
+        })
     }
 }

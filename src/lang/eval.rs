@@ -76,7 +76,9 @@ impl Session {
         let core = |err: CoreError| SessionError::core(e.span, err);
         match &e.kind {
             ExprKind::Num(text) => {
-                let q = Q::parse_decimal(text, 100_000).ok_or_else(|| {
+                number_size_ok(text).map_err(core)?;
+                let max_digits = crate::core::limits::limits().max_digits;
+                let q = Q::parse_decimal(text, max_digits).ok_or_else(|| {
                     SessionError::invalid(
                         e.span,
                         format!("number `{text}` is malformed or too large"),
@@ -643,6 +645,35 @@ impl Session {
             }),
         })
     }
+}
+
+/// Refuses a number literal whose value would exceed the integer-size
+/// limit (digits typed plus the decimal exponent) before it is built.
+fn number_size_ok(text: &str) -> Result<(), CoreError> {
+    let max_digits = crate::core::limits::limits().max_digits;
+    let too_big = CoreError::Limit {
+        kind: crate::core::error::LimitKind::Digits,
+        limit: max_digits,
+    };
+    let (mantissa, exponent) = match text.find(['e', 'E']) {
+        Some(i) => (&text[..i], text.get(i + 1..).unwrap_or("")),
+        None => (text, ""),
+    };
+    let digits = mantissa.bytes().filter(u8::is_ascii_digit).count() as u64;
+    let exponent = exponent.trim_start_matches(['+', '-']);
+    let exponent_size = if exponent.is_empty() {
+        0
+    } else {
+        match exponent.parse::<u64>() {
+            Ok(n) => n,
+            Err(_) if exponent.bytes().all(|b| b.is_ascii_digit()) => u64::MAX,
+            Err(_) => 0,
+        }
+    };
+    if digits.saturating_add(exponent_size) > max_digits.saturating_add(1) {
+        return Err(too_big);
+    }
+    Ok(())
 }
 
 fn unreachable_pow(span: Span) -> R<Value> {

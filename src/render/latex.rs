@@ -106,7 +106,7 @@ fn lin(l: &Lin, extra: Option<&Q>) -> String {
         s.push_str(&coeff_prefix(&a));
         s.push_str(&v);
     };
-    for (sym, c) in &l.0 {
+    for (sym, c) in l.0.iter() {
         push(c, name(&sym.name()));
     }
     if let Some(k) = extra {

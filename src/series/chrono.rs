@@ -146,6 +146,7 @@ pub fn magnus_generator(v: &Graded, n: usize, states: &[Sym]) -> CoreResult<Vec<
             dw = dw.add_scaled(&a[p][m], &beta[p])?;
         }
         w[m] = dw.map(|e| e.integral_from_zero())?;
+
         limits::check_terms(w[m].n_terms())?;
     }
     w.remove(0);

@@ -1,0 +1,329 @@
+//! Throughput benchmarks of the exact core, the chronological series and
+//! averaging, driven directly through `ordex::core`, `ordex::series` and
+//! `ordex::averaging` (no language layer, no process start-up).
+//!
+//! Owns: the benchmark systems (seeded random polynomial and trigonometric
+//! fields of our own, fixed small systems), the timing loop (medians of
+//! repeated runs with `std::time::Instant`) and the printed tables. It
+//! asserts nothing about time: it prints throughputs and ratios for people
+//! to read (`cargo bench --bench core`).
+//!
+//! Must not know: the command language, printing styles or anything of the
+//! prompt.
+
+use std::hint::black_box;
+use std::time::{Duration, Instant};
+
+use ordex::averaging::{self, Method, Options};
+use ordex::core::{CoreError, CoreResult, Expr, Field, Q, Sym};
+use ordex::series::chrono::{flow_terms, magnus_generator, Graded};
+
+/// A small deterministic generator (xorshift64*), so every run benchmarks
+/// the same fields.
+struct Rng(u64);
+
+impl Rng {
+    fn next(&mut self) -> u64 {
+        self.0 ^= self.0 >> 12;
+        self.0 ^= self.0 << 25;
+        self.0 ^= self.0 >> 27;
+        self.0.wrapping_mul(0x2545_F491_4F6C_DD1D)
+    }
+
+    /// Uniform in `lo..=hi`.
+    fn range(&mut self, lo: i64, hi: i64) -> i64 {
+        let span = (hi - lo + 1) as u64;
+        lo + (self.next() % span) as i64
+    }
+}
+
+/// The rational `n/d` (d nonzero in every call here).
+fn q(n: i64, d: i64) -> Q {
+    Q::ratio(n, d).unwrap_or(Q::ONE)
+}
+
+/// A small nonzero rational coefficient.
+fn coeff(rng: &mut Rng) -> Q {
+    let mut n = rng.range(-9, 9);
+    if n == 0 {
+        n = 1;
+    }
+    q(n, rng.range(1, 6))
+}
+
+/// The monomial `Π s_i^e_i`.
+fn monomial(states: &[Sym], exps: &[i64]) -> CoreResult<Expr> {
+    let mut m = Expr::int(1);
+    for (s, e) in states.iter().zip(exps) {
+        if *e > 0 {
+            m = m.mul(&Expr::sym(*s).pow(*e)?)?;
+        }
+    }
+    Ok(m)
+}
+
+/// Random exponents of total degree at most `deg`.
+fn exponents(rng: &mut Rng, n: usize, deg: i64) -> Vec<i64> {
+    let mut out = vec![0; n];
+    for _ in 0..rng.range(0, deg) {
+        out[rng.range(0, n as i64 - 1) as usize] += 1;
+    }
+    out
+}
+
+/// A polynomial with `terms` random terms of degree at most `deg`.
+fn random_poly(rng: &mut Rng, states: &[Sym], deg: i64, terms: usize) -> CoreResult<Expr> {
+    let mut e = Expr::zero();
+    for _ in 0..terms {
+        let m = monomial(states, &exponents(rng, states.len(), deg))?;
+        e = e.add(&m.scale(&coeff(rng)));
+    }
+    Ok(e)
+}
+
+/// A random linear form `Σ a_i s_i` with small integer coefficients, not zero.
+fn random_linear(rng: &mut Rng, states: &[Sym]) -> Expr {
+    loop {
+        let mut l = Expr::zero();
+        for s in states {
+            let a = rng.range(-2, 2);
+            if a != 0 {
+                l = l.add(&Expr::sym(*s).scale(&Q::int(a)));
+            }
+        }
+        if !l.is_zero() {
+            return l;
+        }
+    }
+}
+
+/// A trigonometric expression: terms `c · monomial · sin/cos(linear form)`.
+fn random_trig(rng: &mut Rng, states: &[Sym], deg: i64, terms: usize) -> CoreResult<Expr> {
+    let mut e = Expr::zero();
+    for _ in 0..terms {
+        let m = monomial(states, &exponents(rng, states.len(), deg))?;
+        let arg = random_linear(rng, states);
+        let wave =
+            if rng.range(0, 1) == 0 { Expr::sin_of(&arg, states)? } else { Expr::cos_of(&arg, states)? };
+        e = e.add(&m.mul(&wave)?.scale(&coeff(rng)));
+    }
+    Ok(e)
+}
+
+fn field_of(
+    states: &[Sym],
+    mut comp: impl FnMut() -> CoreResult<Expr>,
+) -> CoreResult<Field> {
+    let mut out = Vec::with_capacity(states.len());
+    for _ in states {
+        out.push(comp()?);
+    }
+    Ok(Field(out))
+}
+
+/// Times `f` repeatedly (at least `min_reps` times and at least `budget`
+/// in total, at most 1000 times) and returns the median duration.
+fn median_time<T>(
+    min_reps: usize,
+    budget: Duration,
+    mut f: impl FnMut() -> CoreResult<T>,
+) -> CoreResult<(Duration, T)> {
+    let mut times = Vec::new();
+    let start = Instant::now();
+    let mut last = None;
+    while times.len() < min_reps || (start.elapsed() < budget && times.len() < 1000) {
+        let t0 = Instant::now();
+        let out = f()?;
+        times.push(t0.elapsed());
+        last = Some(black_box(out));
+    }
+    times.sort();
+    let med = times[times.len() / 2];
+    match last {
+        Some(out) => Ok((med, out)),
+        None => Err(CoreError::Refused { reason: "no run".to_string() }),
+    }
+}
+
+fn ms(d: Duration) -> String {
+    let v = d.as_secs_f64() * 1e3;
+    if v >= 100.0 {
+        format!("{v:.0}")
+    } else if v >= 1.0 {
+        format!("{v:.2}")
+    } else {
+        format!("{v:.4}")
+    }
+}
+
+fn states(names: &[&str]) -> Vec<Sym> {
+    names.iter().map(|n| Sym::new(n)).collect()
+}
+
+/// Issue "exact core": brackets per second.
+fn bench_brackets() -> CoreResult<()> {
+    println!("## exact core: Lie brackets [X, Y] of random fields in 4 variables");
+    println!();
+    println!("| fields | terms per component | pairs | median ms per bracket | brackets/s | result terms per bracket | result terms/s |");
+    println!("|---|---|---|---|---|---|---|");
+    let st = states(&["w", "x", "y", "z"]);
+    let mut rng = Rng(0x0bde_5eed_0000_0001);
+    for &(kind, deg, terms) in
+        &[("polynomial, degree 6", 6, 6usize), ("polynomial, degree 6", 6, 12), ("trigonometric, degree 2", 2, 4), ("trigonometric, degree 3", 3, 8)]
+    {
+        let n_pairs = 16;
+        let mut pairs = Vec::with_capacity(n_pairs);
+        for _ in 0..n_pairs {
+            let (x, y) = if kind.starts_with("poly") {
+                (
+                    field_of(&st, || random_poly(&mut rng, &st, deg, terms))?,
+                    field_of(&st, || random_poly(&mut rng, &st, deg, terms))?,
+                )
+            } else {
+                (
+                    field_of(&st, || random_trig(&mut rng, &st, deg, terms))?,
+                    field_of(&st, || random_trig(&mut rng, &st, deg, terms))?,
+                )
+            };
+            pairs.push((x, y));
+        }
+        let (d, out_terms) = median_time(5, Duration::from_millis(400), || {
+            let mut n = 0;
+            for (x, y) in &pairs {
+                n += x.bracket(y, &st)?.n_terms();
+            }
+            Ok(n)
+        })?;
+        let per = d / n_pairs as u32;
+        let secs = d.as_secs_f64();
+        println!(
+            "| {kind} | {terms} | {n_pairs} | {} | {:.0} | {:.0} | {:.0} |",
+            ms(per),
+            n_pairs as f64 / secs,
+            out_terms as f64 / n_pairs as f64,
+            out_terms as f64 / secs
+        );
+    }
+    println!();
+    Ok(())
+}
+
+/// `c(t) = cos(k t)` or `sin(k t)`.
+fn beat(sin: bool, k: i64, st: &[Sym]) -> CoreResult<Expr> {
+    let arg = Expr::sym(Sym::T).scale(&Q::int(k));
+    if sin {
+        Expr::sin_of(&arg, st)
+    } else {
+        Expr::cos_of(&arg, st)
+    }
+}
+
+/// Issue "series": the generator and the flow to order 6.
+fn bench_series() -> CoreResult<()> {
+    println!("## series: magnus_generator and flow_terms to order 6 (3 states, 3 fields)");
+    println!();
+    let st = states(&["x", "y", "z"]);
+    let (x, y, z) = (Expr::sym(st[0]), Expr::sym(st[1]), Expr::sym(st[2]));
+    // V(t) = cos(t) X1 + sin(t) X2 + cos(2t) X3 with quadratic X_i.
+    let x1 = Field(vec![y.mul(&z)?, x.scale(&q(-1, 2)), x.mul(&y)?]);
+    let x2 = Field(vec![z.clone(), x.mul(&z)?, y.mul(&y)?.scale(&q(1, 3))]);
+    let x3 = Field(vec![x.mul(&x)?, z.scale(&Q::int(-1)), y.clone()]);
+    let v = x1
+        .mul_expr(&beat(false, 1, &st)?)?
+        .add(&x2.mul_expr(&beat(true, 1, &st)?)?)?
+        .add(&x3.mul_expr(&beat(false, 2, &st)?)?)?;
+    println!("| what | order | median ms | result terms (all orders) | result terms/s |");
+    println!("|---|---|---|---|---|");
+    for n in [2usize, 4, 6] {
+        let g = Graded::single(v.clone());
+        let (d, w) = median_time(3, Duration::from_millis(500), || magnus_generator(&g, n, &st))?;
+        let terms: usize = w.iter().map(Field::n_terms).sum();
+        println!(
+            "| magnus_generator W(t) | {n} | {} | {terms} | {:.0} |",
+            ms(d),
+            terms as f64 / d.as_secs_f64()
+        );
+    }
+    for n in [2usize, 4, 6] {
+        let (d, terms) = median_time(3, Duration::from_millis(500), || {
+            let mut total = 0;
+            for h in [&x, &y, &z] {
+                total += flow_terms(&v, h, n, &st)?.iter().map(Expr::len).sum::<usize>();
+            }
+            Ok(total)
+        })?;
+        println!(
+            "| flow_terms, each coordinate | {n} | {} | {terms} | {:.0} |",
+            ms(d),
+            terms as f64 / d.as_secs_f64()
+        );
+    }
+    println!();
+    Ok(())
+}
+
+/// Issue "averaging": `average` for orders 2..6 on two systems.
+fn bench_averaging() -> CoreResult<()> {
+    println!("## averaging: stroboscopic `average`, orders 2..6");
+    println!();
+    let eps = Sym::new("eps");
+    // Two-state trigonometric: eps*[p*cos(t) - sin(q), -sin(q)*sin(2t) - p/2].
+    let st2 = states(&["q", "p"]);
+    let (qq, pp) = (Expr::sym(st2[0]), Expr::sym(st2[1]));
+    let sin_q = Expr::sin_of(&qq, &st2)?;
+    let trig = Field(vec![
+        pp.mul(&beat(false, 1, &st2)?)?.sub(&sin_q),
+        sin_q.mul(&beat(true, 2, &st2)?)?.neg().sub(&pp.scale(&q(1, 2))),
+    ])
+    .mul_expr(&Expr::sym(eps))?;
+    // Three-state quadratic.
+    let st3 = states(&["x", "y", "z"]);
+    let (x, y, z) = (Expr::sym(st3[0]), Expr::sym(st3[1]), Expr::sym(st3[2]));
+    let poly = Field(vec![
+        y.mul(&z)?.mul(&beat(false, 1, &st3)?)?.sub(&x.scale(&q(1, 2))),
+        x.mul(&z)?.mul(&beat(true, 1, &st3)?)?.add(&y.mul(&y)?.mul(&beat(false, 2, &st3)?)?),
+        x.mul(&y)?.sub(&z.mul(&beat(true, 1, &st3)?)?),
+    ])
+    .mul_expr(&Expr::sym(eps))?;
+    println!("| system | order | median ms | result terms | result terms/s | us per result term | time ratio to previous order |");
+    println!("|---|---|---|---|---|---|---|");
+    for (name, v, st) in [("2-state trigonometric", &trig, &st2), ("3-state quadratic", &poly, &st3)] {
+        let mut prev: Option<Duration> = None;
+        for n in 2..=6usize {
+            let opts = Options { method: Method::Strobo, order: n, depth: 8, with_transform: false };
+            let (d, terms) = median_time(3, Duration::from_millis(500), || {
+                Ok(averaging::average(v, eps, &opts, st)?.orders.iter().map(Field::n_terms).sum::<usize>())
+            })?;
+            let ratio = prev.map_or("-".to_string(), |p| format!("{:.1}", d.as_secs_f64() / p.as_secs_f64()));
+            println!(
+                "| {name} | {n} | {} | {terms} | {:.0} | {:.1} | {ratio} |",
+                ms(d),
+                terms as f64 / d.as_secs_f64(),
+                d.as_secs_f64() * 1e6 / terms.max(1) as f64
+            );
+            prev = Some(d);
+        }
+    }
+    println!();
+    Ok(())
+}
+
+fn main() {
+    // `cargo bench` passes `--bench`; a filter word selects one issue.
+    let filter: Vec<String> = std::env::args().skip(1).filter(|a| !a.starts_with("--")).collect();
+    let wants = |w: &str| filter.is_empty() || filter.iter().any(|f| w.contains(f.as_str()));
+    let mut status = Ok(());
+    if wants("core brackets") {
+        status = status.and_then(|()| bench_brackets());
+    }
+    if wants("series magnus flow") {
+        status = status.and_then(|()| bench_series());
+    }
+    if wants("averaging") {
+        status = status.and_then(|()| bench_averaging());
+    }
+    if let Err(e) = status {
+        eprintln!("benchmark failed: {e}");
+        std::process::exit(1);
+    }
+}
