@@ -429,7 +429,7 @@ impl Expr {
 
     /// Builds from unsorted terms with possible repeats (merged) and zeros (dropped).
     pub fn from_terms(mut terms: Vec<(Key, Q)>) -> Expr {
-        terms.sort_by(|a, b| a.0.cmp(&b.0));
+        terms.sort_unstable_by(|a, b| a.0.cmp(&b.0));
         let mut out: Vec<(Key, Q)> = Vec::with_capacity(terms.len());
         for (k, c) in terms {
             match out.last_mut() {
@@ -452,7 +452,7 @@ impl Expr {
 
     fn from_map(map: FxHashMap<Key, Q>) -> Expr {
         let mut terms: Vec<(Key, Q)> = map.into_iter().filter(|(_, c)| !c.is_zero()).collect();
-        terms.sort_by(|a, b| a.0.cmp(&b.0));
+        terms.sort_unstable_by(|a, b| a.0.cmp(&b.0));
         Expr { terms }
     }
 
@@ -619,7 +619,10 @@ impl Expr {
         };
         let max_terms = limits::limits().max_terms;
         let mut map: FxHashMap<Key, Q> =
-            FxHashMap::with_capacity_and_hasher((a.len() * b.len()).min(1 << 16), Default::default());
+            FxHashMap::with_capacity_and_hasher(
+                (2 * (a.len() + b.len())).min(a.len() * b.len()).min(1 << 16),
+                Default::default(),
+            );
         let mut budget_hit = false;
         let mut max_bits = 0u64;
         // The budget counts terms plus the 64-bit words of large

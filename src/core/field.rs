@@ -12,6 +12,22 @@ use super::limits;
 use super::num::Q;
 use super::symbol::Sym;
 
+/// Products of term counts above which a bracket is split over threads.
+const PARALLEL_WORK: usize = 20_000;
+
+/// Worker threads for large brackets: the machine's cores, or
+/// `ORDEX_THREADS` (1 turns parallelism off).
+fn parallelism() -> usize {
+    static CELL: std::sync::OnceLock<usize> = std::sync::OnceLock::new();
+    *CELL.get_or_init(|| {
+        std::env::var("ORDEX_THREADS")
+            .ok()
+            .and_then(|v| v.parse().ok())
+            .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get()))
+            .max(1)
+    })
+}
+
 /// A (possibly time-varying) vector field in the coordinates of a state list.
 #[derive(Clone, PartialEq, Eq, Hash, Debug, Default)]
 pub struct Field(pub Vec<Expr>);
@@ -134,13 +150,42 @@ impl Field {
     pub fn bracket(&self, other: &Field, states: &[Sym]) -> CoreResult<Field> {
         self.same_dim(other)?;
         self.check_states(states)?;
-        let mut out = Vec::with_capacity(self.dim());
-        for i in 0..self.dim() {
+        let component = |i: usize| -> CoreResult<Expr> {
             let a = self.lie_derivative(&other.0[i], states)?;
             let b = other.lie_derivative(&self.0[i], states)?;
-            out.push(a.sub(&b));
+            Ok(a.sub(&b))
+        };
+        let n = self.dim();
+        // Large brackets: the components are independent, so compute them on
+        // the available cores (each worker gets this thread's limits).
+        let work = self.n_terms().saturating_mul(other.n_terms());
+        let workers = parallelism().min(n);
+        if workers > 1 && work >= PARALLEL_WORK {
+            let lim = limits::limits();
+            let results: Vec<CoreResult<Vec<(usize, Expr)>>> = std::thread::scope(|scope| {
+                let handles: Vec<_> = (0..workers)
+                    .map(|w| {
+                        let component = &component;
+                        scope.spawn(move || {
+                            limits::set_limits(lim);
+                            (w..n).step_by(workers).map(|i| Ok((i, component(i)?))).collect()
+                        })
+                    })
+                    .collect();
+                handles
+                    .into_iter()
+                    .map(|h| h.join().unwrap_or(Err(CoreError::Interrupted)))
+                    .collect()
+            });
+            let mut out = vec![Expr::zero(); n];
+            for r in results {
+                for (i, e) in r? {
+                    out[i] = e;
+                }
+            }
+            return Ok(Field(out));
         }
-        Ok(Field(out))
+        Ok(Field((0..n).map(component).collect::<CoreResult<_>>()?))
     }
 
     /// `ad_self^k other`.

@@ -227,6 +227,21 @@ impl Q {
                         return if s == 0 { Q::ZERO } else { Q::Small(s / g, b / g) };
                     }
                 }
+                // a/b + c/d with g = gcd(b, d): (a*(d/g) + c*(b/g)) / (b*(d/g)),
+                // then only gcd(numerator, g) can still cancel.
+                let g = gcd_u64(b.unsigned_abs(), d.unsigned_abs()) as i64;
+                let (bg, dg) = (b / g, d / g);
+                if let (Some(x), Some(y), Some(den)) =
+                    (a.checked_mul(dg), c.checked_mul(bg), b.checked_mul(dg))
+                {
+                    if let Some(num) = x.checked_add(y) {
+                        if num == 0 {
+                            return Q::ZERO;
+                        }
+                        let g2 = gcd_u64(num.unsigned_abs(), g.unsigned_abs()) as i64;
+                        return Q::Small(num / g2, den / g2);
+                    }
+                }
                 let (a, b, c, d) = (*a as i128, *b as i128, *c as i128, *d as i128);
                 match (a * d).checked_add(c * b) {
                     Some(n) => Q::from_i128(n, b * d),
@@ -266,8 +281,8 @@ impl Q {
                     }
                 }
                 // Cross-cancel first: the result is then already reduced.
-                let g1 = gcd_u64(a.unsigned_abs(), d.unsigned_abs()) as i64;
-                let g2 = gcd_u64(c.unsigned_abs(), b.unsigned_abs()) as i64;
+                let g1 = if *d == 1 { 1 } else { gcd_u64(a.unsigned_abs(), d.unsigned_abs()) as i64 };
+                let g2 = if *b == 1 { 1 } else { gcd_u64(c.unsigned_abs(), b.unsigned_abs()) as i64 };
                 if g1 > 0 && g2 > 0 {
                     if let (Some(n), Some(m)) =
                         ((a / g1).checked_mul(c / g2), (b / g2).checked_mul(d / g1))
