@@ -15,7 +15,7 @@ use std::hint::black_box;
 use std::time::{Duration, Instant};
 
 use ordex::averaging::{self, Method, Options};
-use ordex::core::{CoreError, CoreResult, Expr, Field, Q, Sym};
+use ordex::core::{CoreError, CoreResult, Expr, Field, Sym, Q};
 use ordex::series::chrono::{flow_terms, magnus_generator, Graded};
 
 /// A small deterministic generator (xorshift64*), so every run benchmarks
@@ -103,17 +103,17 @@ fn random_trig(rng: &mut Rng, states: &[Sym], deg: i64, terms: usize) -> CoreRes
     for _ in 0..terms {
         let m = monomial(states, &exponents(rng, states.len(), deg))?;
         let arg = random_linear(rng, states);
-        let wave =
-            if rng.range(0, 1) == 0 { Expr::sin_of(&arg, states)? } else { Expr::cos_of(&arg, states)? };
+        let wave = if rng.range(0, 1) == 0 {
+            Expr::sin_of(&arg, states)?
+        } else {
+            Expr::cos_of(&arg, states)?
+        };
         e = e.add(&m.mul(&wave)?.scale(&coeff(rng)));
     }
     Ok(e)
 }
 
-fn field_of(
-    states: &[Sym],
-    mut comp: impl FnMut() -> CoreResult<Expr>,
-) -> CoreResult<Field> {
+fn field_of(states: &[Sym], mut comp: impl FnMut() -> CoreResult<Expr>) -> CoreResult<Field> {
     let mut out = Vec::with_capacity(states.len());
     for _ in states {
         out.push(comp()?);
@@ -141,7 +141,9 @@ fn median_time<T>(
     let med = times[times.len() / 2];
     match last {
         Some(out) => Ok((med, out)),
-        None => Err(CoreError::Refused { reason: "no run".to_string() }),
+        None => Err(CoreError::Refused {
+            reason: "no run".to_string(),
+        }),
     }
 }
 
@@ -168,9 +170,12 @@ fn bench_brackets() -> CoreResult<()> {
     println!("|---|---|---|---|---|---|---|");
     let st = states(&["w", "x", "y", "z"]);
     let mut rng = Rng(0x0bde_5eed_0000_0001);
-    for &(kind, deg, terms) in
-        &[("polynomial, degree 6", 6, 6usize), ("polynomial, degree 6", 6, 12), ("trigonometric, degree 2", 2, 4), ("trigonometric, degree 3", 3, 8)]
-    {
+    for &(kind, deg, terms) in &[
+        ("polynomial, degree 6", 6, 6usize),
+        ("polynomial, degree 6", 6, 12),
+        ("trigonometric, degree 2", 2, 4),
+        ("trigonometric, degree 3", 3, 8),
+    ] {
         let n_pairs = 16;
         let mut pairs = Vec::with_capacity(n_pairs);
         for _ in 0..n_pairs {
@@ -236,7 +241,9 @@ fn bench_series() -> CoreResult<()> {
     println!("|---|---|---|---|---|");
     for n in [2usize, 4, 6] {
         let g = Graded::single(v.clone());
-        let (d, w) = median_time(3, Duration::from_millis(500), || magnus_generator(&g, n, &st))?;
+        let (d, w) = median_time(3, Duration::from_millis(500), || {
+            magnus_generator(&g, n, &st)
+        })?;
         let terms: usize = w.iter().map(Field::n_terms).sum();
         println!(
             "| magnus_generator W(t) | {n} | {} | {terms} | {:.0} |",
@@ -248,7 +255,10 @@ fn bench_series() -> CoreResult<()> {
         let (d, terms) = median_time(3, Duration::from_millis(500), || {
             let mut total = 0;
             for h in [&x, &y, &z] {
-                total += flow_terms(&v, h, n, &st)?.iter().map(Expr::len).sum::<usize>();
+                total += flow_terms(&v, h, n, &st)?
+                    .iter()
+                    .map(Expr::len)
+                    .sum::<usize>();
             }
             Ok(total)
         })?;
@@ -273,28 +283,49 @@ fn bench_averaging() -> CoreResult<()> {
     let sin_q = Expr::sin_of(&qq, &st2)?;
     let trig = Field(vec![
         pp.mul(&beat(false, 1, &st2)?)?.sub(&sin_q),
-        sin_q.mul(&beat(true, 2, &st2)?)?.neg().sub(&pp.scale(&q(1, 2))),
+        sin_q
+            .mul(&beat(true, 2, &st2)?)?
+            .neg()
+            .sub(&pp.scale(&q(1, 2))),
     ])
     .mul_expr(&Expr::sym(eps))?;
     // Three-state quadratic.
     let st3 = states(&["x", "y", "z"]);
     let (x, y, z) = (Expr::sym(st3[0]), Expr::sym(st3[1]), Expr::sym(st3[2]));
     let poly = Field(vec![
-        y.mul(&z)?.mul(&beat(false, 1, &st3)?)?.sub(&x.scale(&q(1, 2))),
-        x.mul(&z)?.mul(&beat(true, 1, &st3)?)?.add(&y.mul(&y)?.mul(&beat(false, 2, &st3)?)?),
+        y.mul(&z)?
+            .mul(&beat(false, 1, &st3)?)?
+            .sub(&x.scale(&q(1, 2))),
+        x.mul(&z)?
+            .mul(&beat(true, 1, &st3)?)?
+            .add(&y.mul(&y)?.mul(&beat(false, 2, &st3)?)?),
         x.mul(&y)?.sub(&z.mul(&beat(true, 1, &st3)?)?),
     ])
     .mul_expr(&Expr::sym(eps))?;
     println!("| system | order | median ms | result terms | result terms/s | us per result term | time ratio to previous order |");
     println!("|---|---|---|---|---|---|---|");
-    for (name, v, st) in [("2-state trigonometric", &trig, &st2), ("3-state quadratic", &poly, &st3)] {
+    for (name, v, st) in [
+        ("2-state trigonometric", &trig, &st2),
+        ("3-state quadratic", &poly, &st3),
+    ] {
         let mut prev: Option<Duration> = None;
         for n in 2..=6usize {
-            let opts = Options { method: Method::Strobo, order: n, depth: 8, with_transform: false };
+            let opts = Options {
+                method: Method::Strobo,
+                order: n,
+                depth: 8,
+                with_transform: false,
+            };
             let (d, terms) = median_time(3, Duration::from_millis(500), || {
-                Ok(averaging::average(v, eps, &opts, st)?.orders.iter().map(Field::n_terms).sum::<usize>())
+                Ok(averaging::average(v, eps, &opts, st)?
+                    .orders
+                    .iter()
+                    .map(Field::n_terms)
+                    .sum::<usize>())
             })?;
-            let ratio = prev.map_or("-".to_string(), |p| format!("{:.1}", d.as_secs_f64() / p.as_secs_f64()));
+            let ratio = prev.map_or("-".to_string(), |p| {
+                format!("{:.1}", d.as_secs_f64() / p.as_secs_f64())
+            });
             println!(
                 "| {name} | {n} | {} | {terms} | {:.0} | {:.1} | {ratio} |",
                 ms(d),
@@ -310,7 +341,10 @@ fn bench_averaging() -> CoreResult<()> {
 
 fn main() {
     // `cargo bench` passes `--bench`; a filter word selects one issue.
-    let filter: Vec<String> = std::env::args().skip(1).filter(|a| !a.starts_with("--")).collect();
+    let filter: Vec<String> = std::env::args()
+        .skip(1)
+        .filter(|a| !a.starts_with("--"))
+        .collect();
     let wants = |w: &str| filter.is_empty() || filter.iter().any(|f| w.contains(f.as_str()));
     let mut status = Ok(());
     if wants("core brackets") {

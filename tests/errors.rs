@@ -101,7 +101,10 @@ fn bad_inputs_give_clear_messages() {
     for case in CASES {
         let (out, code, later) = run_one(case);
         assert_eq!(code, 2, "`{case}` should be an error, got:\n{out}");
-        assert!(out.contains("bad.ordex:8:"), "`{case}`: error not located on line 8:\n{out}");
+        assert!(
+            out.contains("bad.ordex:8:"),
+            "`{case}`: error not located on line 8:\n{out}"
+        );
         assert!(out.contains('^'), "`{case}`: no caret:\n{out}");
         assert!(later, "`{case}`: the session did not survive");
         all.push_str(&format!("## {case}\n{out}\n"));
@@ -113,11 +116,15 @@ fn bad_inputs_give_clear_messages() {
 fn an_unclosed_bracket_is_reported_at_the_bracket() {
     let mut session = Session::new();
     let mut out = String::new();
-    let status = session.run_text("state q, p\nX = [p,\n  -q\nY = 1\n", Some("open.ordex"), &mut |e| {
-        if let Event::Error(m) = e {
-            out.push_str(&m);
-        }
-    });
+    let status = session.run_text(
+        "state q, p\nX = [p,\n  -q\nY = 1\n",
+        Some("open.ordex"),
+        &mut |e| {
+            if let Event::Error(m) = e {
+                out.push_str(&m);
+            }
+        },
+    );
     assert_eq!(status.exit_code(), 2);
     assert!(out.starts_with("open.ordex:2:5:"), "{out}");
 }

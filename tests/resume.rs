@@ -207,3 +207,28 @@ fn resume_without_a_journal_starts_empty() {
         stdout(&out)
     );
 }
+
+#[test]
+fn lines_of_a_run_that_failed_partway_are_journalled() {
+    // `run FILE` executes the file's statements one by one; when a later
+    // one fails, the earlier ones have changed the session, so a resumed
+    // session must have them too.
+    let work = tempfile::tempdir().expect("a temporary directory");
+    let home = tempfile::tempdir().expect("a temporary directory");
+    std::fs::write(
+        work.path().join("partial.ordex"),
+        "state q, p\nX = [p, -q]\nY = nosuch + 1\nZ = [q, p]\n",
+    )
+    .expect("the script is written");
+    let first = session(work.path(), home.path(), &[], "run partial.ordex\n");
+    assert!(
+        stderr(&first).contains("unknown name `nosuch`"),
+        "{}",
+        stderr(&first)
+    );
+    let resumed = session(work.path(), home.path(), &["--resume"], "names\n");
+    let text = stdout(&resumed);
+    assert!(text.contains("resumed 2 lines"), "{text}");
+    assert!(text.contains("X: field on (q, p)"), "{text}");
+    assert!(!text.contains("Z:"), "{text}");
+}

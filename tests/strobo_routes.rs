@@ -17,17 +17,30 @@ fn standard_form(script: &str, n: usize) -> (Vec<Field>, Vec<Sym>) {
         }
     });
     assert_eq!(status.exit_code(), 0);
-    let Some(Value::Field(f)) = session.get("S") else { panic!("S is not a field") };
+    let Some(Value::Field(f)) = session.get("S") else {
+        panic!("S is not a field")
+    };
     let eps = Sym::new("eps");
     let parts = (1..=n)
-        .map(|j| Field(f.field.0.iter().map(|c| c.coeff_of_power(eps, j as i32)).collect()))
+        .map(|j| {
+            Field(
+                f.field
+                    .0
+                    .iter()
+                    .map(|c| c.coeff_of_power(eps, j as i32))
+                    .collect(),
+            )
+        })
         .collect();
     (parts, session.states().to_vec())
 }
 
 fn agree(script: &str, n: usize) {
     let (standard, states) = standard_form(script, n);
-    let freqs: Vec<_> = standard.iter().flat_map(|f| f.0.iter().flat_map(|c| c.frequencies())).collect();
+    let freqs: Vec<_> = standard
+        .iter()
+        .flat_map(|f| f.0.iter().flat_map(|c| c.frequencies()))
+        .collect();
     let period = common_period(&freqs).expect("periodic");
     let fast = stroboscopic(&standard, &period, &states).expect("transform route");
     let slow = stroboscopic_by_logarithm(&standard, &period, &states).expect("logarithm route");
@@ -52,5 +65,8 @@ fn quadratic_system_in_three_states_to_order_4() {
 
 #[test]
 fn half_frequencies_and_secular_free_forcing() {
-    agree("state x, y\nparam eps\nS = eps*[y*cos(t/2) + x^2*sin(3*t/2), -x*sin(t/2) + cos(t)]\n", 3);
+    agree(
+        "state x, y\nparam eps\nS = eps*[y*cos(t/2) + x^2*sin(3*t/2), -x*sin(t/2) + cos(t)]\n",
+        3,
+    );
 }

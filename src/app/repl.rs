@@ -142,7 +142,14 @@ fn execute_input(
                     return Flow::Quit;
                 }
             }
-            Err(rendered) => {
+            Err((rendered, ran)) => {
+                // Statements of a `run FILE` before its error changed the
+                // session: they are journalled like accepted lines.
+                if let Some(open) = journal.as_mut() {
+                    if !ran.is_empty() && open.append(&ran).is_err() {
+                        *journal = None;
+                    }
+                }
                 output.error(&rendered);
                 break;
             }
@@ -156,12 +163,17 @@ fn run_one(
     session: &mut Session,
     statement: &SourceStmt,
     origin: Option<&str>,
-) -> Result<Report, String> {
+) -> Result<Report, (String, Vec<String>)> {
     PRESSES.store(0, Ordering::SeqCst);
     RUNNING.store(true, Ordering::SeqCst);
     let result = session.execute(statement, origin);
     RUNNING.store(false, Ordering::SeqCst);
-    result.map_err(|err| render_error(statement, origin, &err))
+    result.map_err(|err| {
+        (
+            render_error(statement, origin, &err),
+            err.journal_lines().to_vec(),
+        )
+    })
 }
 
 /// Installs the Ctrl-C handler; false when it cannot be installed.
@@ -242,7 +254,8 @@ fn replay(session: &mut Session, text: &str, journal: &mut Journal, output: &Out
                 complete = false;
                 break;
             }
-            Err(rendered) => {
+            Err((rendered, ran)) => {
+                replayed.extend(ran);
                 output.error(&rendered);
                 output.warning("the lines from there on were not replayed");
                 complete = false;

@@ -210,7 +210,13 @@ pub fn stroboscopic_by_logarithm(
     states: &[Sym],
 ) -> CoreResult<Vec<Field>> {
     let n = standard.len();
-    let w = magnus_generator(&Graded { parts: standard.to_vec() }, n, states)?;
+    let w = magnus_generator(
+        &Graded {
+            parts: standard.to_vec(),
+        },
+        n,
+        states,
+    )?;
     let t_expr = period.to_expr();
     w.iter()
         .map(|wk| wk.map(|e| e.at_time_pi_multiple(&period.0)?.div(&t_expr)))

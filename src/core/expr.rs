@@ -15,8 +15,8 @@
 //! This module knows nothing of parsing, sessions or printing styles beyond
 //! the plain input syntax used by `Display`.
 
-use smallvec::SmallVec;
 use rustc_hash::FxHashMap;
+use smallvec::SmallVec;
 use std::fmt;
 use std::sync::Arc;
 
@@ -138,7 +138,10 @@ fn coeff_words(c: &Q) -> usize {
 /// log2 of the larger of |numerator| and denominator (0 for 1 and -1).
 fn log2_size(c: &Q) -> f64 {
     match c {
-        Q::Small(n, d) => (n.unsigned_abs() as f64).log2().max((*d as f64).log2()).max(0.0),
+        Q::Small(n, d) => (n.unsigned_abs() as f64)
+            .log2()
+            .max((*d as f64).log2())
+            .max(0.0),
         Q::Big(_) => c.bits() as f64,
     }
 }
@@ -358,7 +361,15 @@ impl Key {
             if !cbt.is_one() {
                 cc = cc.mul(&cbt);
             }
-            out(Key { mono, exp, wave, beat }, cc);
+            out(
+                Key {
+                    mono,
+                    exp,
+                    wave,
+                    beat,
+                },
+                cc,
+            );
             return Ok(());
         }
         for (cw, w) in &waves {
@@ -618,11 +629,12 @@ impl Expr {
             (other, self)
         };
         let max_terms = limits::limits().max_terms;
-        let mut map: FxHashMap<Key, Q> =
-            FxHashMap::with_capacity_and_hasher(
-                (2 * (a.len() + b.len())).min(a.len() * b.len()).min(1 << 16),
-                Default::default(),
-            );
+        let mut map: FxHashMap<Key, Q> = FxHashMap::with_capacity_and_hasher(
+            (2 * (a.len() + b.len()))
+                .min(a.len() * b.len())
+                .min(1 << 16),
+            Default::default(),
+        );
         let mut budget_hit = false;
         let mut max_bits = 0u64;
         // The budget counts terms plus the 64-bit words of large
@@ -694,7 +706,11 @@ impl Expr {
                 // The coefficient's size grows as e*log2|c| bits (a unit
                 // coefficient stays 1 or -1: `x^1000000000` is cheap).
                 let bits = (e as f64 * log2_size(c)).ceil();
-                limits::check_bits(if bits < u64::MAX as f64 { bits as u64 } else { u64::MAX })?;
+                limits::check_bits(if bits < u64::MAX as f64 {
+                    bits as u64
+                } else {
+                    u64::MAX
+                })?;
                 let coeff = c.pow(e).ok_or(CoreError::DivisionByZero)?;
                 let exp = k.exp.scale(&Q::int(e));
                 return Ok(Expr::term(
@@ -811,9 +827,9 @@ impl Expr {
     /// Size measure for the budget: number of terms plus the 64-bit words
     /// of large coefficients.
     pub fn size(&self) -> usize {
-        self.terms
-            .iter()
-            .fold(self.terms.len(), |acc, (_, c)| acc.saturating_add(coeff_words(c)))
+        self.terms.iter().fold(self.terms.len(), |acc, (_, c)| {
+            acc.saturating_add(coeff_words(c))
+        })
     }
 
     /// Bits of the largest coefficient (numerator or denominator).

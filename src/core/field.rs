@@ -168,7 +168,10 @@ impl Field {
                         let component = &component;
                         scope.spawn(move || {
                             limits::set_limits(lim);
-                            (w..n).step_by(workers).map(|i| Ok((i, component(i)?))).collect()
+                            (w..n)
+                                .step_by(workers)
+                                .map(|i| Ok((i, component(i)?)))
+                                .collect()
                         })
                     })
                     .collect();

@@ -224,7 +224,11 @@ impl Q {
                 if b == d {
                     if let Some(s) = a.checked_add(*c) {
                         let g = gcd_u64(s.unsigned_abs(), b.unsigned_abs()) as i64;
-                        return if s == 0 { Q::ZERO } else { Q::Small(s / g, b / g) };
+                        return if s == 0 {
+                            Q::ZERO
+                        } else {
+                            Q::Small(s / g, b / g)
+                        };
                     }
                 }
                 // a/b + c/d with g = gcd(b, d): (a*(d/g) + c*(b/g)) / (b*(d/g)),
@@ -281,8 +285,16 @@ impl Q {
                     }
                 }
                 // Cross-cancel first: the result is then already reduced.
-                let g1 = if *d == 1 { 1 } else { gcd_u64(a.unsigned_abs(), d.unsigned_abs()) as i64 };
-                let g2 = if *b == 1 { 1 } else { gcd_u64(c.unsigned_abs(), b.unsigned_abs()) as i64 };
+                let g1 = if *d == 1 {
+                    1
+                } else {
+                    gcd_u64(a.unsigned_abs(), d.unsigned_abs()) as i64
+                };
+                let g2 = if *b == 1 {
+                    1
+                } else {
+                    gcd_u64(c.unsigned_abs(), b.unsigned_abs()) as i64
+                };
                 if g1 > 0 && g2 > 0 {
                     if let (Some(n), Some(m)) =
                         ((a / g1).checked_mul(c / g2), (b / g2).checked_mul(d / g1))

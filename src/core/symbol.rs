@@ -25,7 +25,10 @@ struct Interner {
 
 impl Interner {
     fn new() -> Interner {
-        let mut it = Interner { names: Vec::new(), ids: HashMap::new() };
+        let mut it = Interner {
+            names: Vec::new(),
+            ids: HashMap::new(),
+        };
         for name in ["t", "pi"] {
             it.ids.insert(name.to_string(), it.names.len() as u32);
             it.names.push(name.to_string());
@@ -61,7 +64,11 @@ impl Sym {
     /// The symbol's name.
     pub fn name(self) -> String {
         INTERNER.with(|cell| {
-            cell.borrow().names.get(self.0 as usize).cloned().unwrap_or_else(|| format!("?{}", self.0))
+            cell.borrow()
+                .names
+                .get(self.0 as usize)
+                .cloned()
+                .unwrap_or_else(|| format!("?{}", self.0))
         })
     }
 }

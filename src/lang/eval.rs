@@ -614,12 +614,14 @@ impl Session {
                         n if matches!(self.sym_kind(n), Some(SymKind::State | SymKind::Param)) => {
                             Sym::new(n)
                         }
-                        n => return Err(SessionError::invalid(
-                            id.span,
-                            format!(
+                        n => {
+                            return Err(SessionError::invalid(
+                                id.span,
+                                format!(
                                 "`{n}` is not a state or a parameter: only those can be plugged"
                             ),
-                        )),
+                            ))
+                        }
                     };
                     let val = self.eval_scalar(v, "a plugged value")?;
                     map.insert(s, val);

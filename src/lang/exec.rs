@@ -392,8 +392,9 @@ impl Session {
                 super::session::Event::Error(msg) => nested_error = Some(msg),
             }
         }
-        if let Some(msg) = nested_error {
-            return Err(SessionError::at(span, ErrorKind::Nested(msg)));
+        if let Some(message) = nested_error {
+            let ran = std::mem::take(&mut report.journal);
+            return Err(SessionError::at(span, ErrorKind::Nested { message, ran }));
         }
         if status.quit {
             report.quit = true;

@@ -92,8 +92,10 @@ pub enum ErrorKind {
     Invalid(String),
     /// A file could not be read or written.
     File { path: String, reason: String },
-    /// An error inside a script run with `run FILE`, already rendered.
-    Nested(String),
+    /// An error inside a script run with `run FILE`, already rendered, with
+    /// the journal lines of the statements that ran before it (they changed
+    /// the session and belong in the journal).
+    Nested { message: String, ran: Vec<String> },
 }
 
 /// An error with the span of the offending input.
@@ -159,7 +161,18 @@ impl fmt::Display for ErrorKind {
             } => write!(f, "cannot apply {op} to a {left}"),
             ErrorKind::Invalid(m) => write!(f, "{m}"),
             ErrorKind::File { path, reason } => write!(f, "cannot use file `{path}`: {reason}"),
-            ErrorKind::Nested(m) => write!(f, "{m}"),
+            ErrorKind::Nested { message, .. } => write!(f, "{message}"),
+        }
+    }
+}
+
+impl SessionError {
+    /// Journal lines of statements that ran before the error (a `run FILE`
+    /// that failed partway); empty for other errors.
+    pub fn journal_lines(&self) -> &[String] {
+        match &self.kind {
+            ErrorKind::Nested { ran, .. } => ran,
+            _ => &[],
         }
     }
 }
@@ -332,8 +345,10 @@ impl Session {
             Ok(s) => (s, None),
             Err(e) => {
                 // Run what comes before the broken line, then report it.
-                let prefix: String =
-                    text.split_inclusive('\n').take(e.line.saturating_sub(1)).collect();
+                let prefix: String = text
+                    .split_inclusive('\n')
+                    .take(e.line.saturating_sub(1))
+                    .collect();
                 (split_statements(&prefix).unwrap_or_default(), Some(e))
             }
         };
@@ -365,7 +380,7 @@ impl Session {
 
 /// Renders an error of statement `stmt` with location and caret.
 pub fn render_error(stmt: &SourceStmt, origin: Option<&str>, err: &SessionError) -> String {
-    if let ErrorKind::Nested(text) = &err.kind {
+    if let ErrorKind::Nested { message: text, .. } = &err.kind {
         let (line, col) = stmt.locate(err.span.map_or(0, |s| s.start));
         let head = match origin {
             Some(o) => format!("{o}:{line}:{col}: error: in this script:"),

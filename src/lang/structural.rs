@@ -64,6 +64,17 @@ impl Coeff for Expr {
         let q = Q::ratio(num, den.get() as i64).unwrap_or(Q::ZERO);
         Expr::scale(self, &q)
     }
+    /// Stops at the term budget, on an interrupt, and as soon as a
+    /// coefficient product has failed (no point going on with zeros).
+    fn keep_going(n_terms: usize) -> bool {
+        match crate::core::limits::check_terms(n_terms) {
+            Ok(()) => COEFF_ERROR.with(|c| c.borrow().is_none()),
+            Err(e) => {
+                note_error(e);
+                false
+            }
+        }
+    }
 }
 
 fn lie_err(e: FreeLieError) -> CoreError {
@@ -73,10 +84,12 @@ fn lie_err(e: FreeLieError) -> CoreError {
 }
 
 fn checked<T>(r: Result<T, FreeLieError>) -> CoreResult<T> {
-    let v = r.map_err(lie_err)?;
-    match take_error() {
-        Some(e) => Err(e),
-        None => Ok(v),
+    // The noted error first (and always taken, so none is left behind for
+    // a later computation): it is why the computation stopped.
+    match (take_error(), r) {
+        (Some(e), _) => Err(e),
+        (None, Err(e)) => Err(lie_err(e)),
+        (None, Ok(v)) => Ok(v),
     }
 }
 
@@ -205,10 +218,13 @@ pub fn magnus_structure(
                 None => chrono::at_time(&next, horizon, states)?,
             };
             terms.push((nw.clone(), at_end));
+            crate::core::limits::check_terms(terms.len())?;
             frontier.push((nw, next, wa));
         }
     }
     let chen = Tensor::from_terms(terms);
+    // Drop any error noted by an earlier computation that did not finish.
+    let _ = take_error();
     let log = checked(freelie::chronological_log(&chen, &alphabet, max_w))?;
     let log = log.map_coeffs(|c| truncate_eps(&c, eps, n));
     let log = if eps.is_some() {
@@ -391,6 +407,7 @@ impl Session {
         crate::core::limits::check_order(n as u64)
             .map_err(|e| SessionError::core(pos[2].span, e))?;
         let core = |e: CoreError| SessionError::core(span, e);
+        let _ = take_error();
         let poly: LiePoly<Expr> = checked(freelie::bch(n as u32)).map_err(core)?;
         let label = |e: &super::ast::Expr, d: &str| match &e.kind {
             ExprKind::Name(n) => n.clone(),

@@ -73,6 +73,15 @@ pub trait Coeff: Clone + PartialEq + fmt::Debug {
     fn neg(&self) -> Self;
     /// The product of `self` with the rational number `num / den`.
     fn scale(&self, num: i64, den: NonZeroU64) -> Self;
+
+    /// Asked by the long loops of this module with the number of terms of
+    /// the series being built; `false` stops the computation with
+    /// [`FreeLieError::Stopped`]. This is how a caller imposes a size
+    /// budget or cancellation (the number of words grows exponentially
+    /// with the weight). The default never stops.
+    fn keep_going(_n_terms: usize) -> bool {
+        true
+    }
 }
 
 impl Coeff for BigRational {
@@ -153,6 +162,12 @@ pub enum FreeLieError {
         /// The Lyndon word whose expansion overflowed.
         word: Word,
     },
+    /// [`Coeff::keep_going`] asked to stop (a size budget or a
+    /// cancellation of the caller).
+    Stopped {
+        /// The number of terms when it stopped.
+        n_terms: usize,
+    },
 }
 
 impl fmt::Display for FreeLieError {
@@ -193,6 +208,9 @@ impl fmt::Display for FreeLieError {
                 "integer overflow while expanding the bracket of word '{}'",
                 WordDisplay(word)
             ),
+            FreeLieError::Stopped { n_terms } => {
+                write!(f, "stopped at {n_terms} terms by the caller's limits")
+            }
         }
     }
 }
@@ -426,6 +444,7 @@ impl<C: Coeff> Tensor<C> {
         rhs.sort_by_key(|(_, _, weight)| *weight);
         let mut terms = BTreeMap::new();
         for (left_word, left_coeff, left_weight) in &lhs {
+            keep_going::<C>(terms.len())?;
             let budget = max_weight - left_weight;
             for (right_word, right_coeff, right_weight) in &rhs {
                 if *right_weight > budget {
@@ -549,6 +568,15 @@ impl<C: Coeff> Tensor<C> {
         }
         terms.retain(|_, coeff: &mut C| !coeff.is_zero());
         Tensor { terms }
+    }
+}
+
+/// Asks [`Coeff::keep_going`] and turns a refusal into an error.
+fn keep_going<C: Coeff>(n_terms: usize) -> Result<(), FreeLieError> {
+    if C::keep_going(n_terms) {
+        Ok(())
+    } else {
+        Err(FreeLieError::Stopped { n_terms })
     }
 }
 
@@ -803,7 +831,9 @@ struct LyndonExpansions {
 }
 
 impl LyndonExpansions {
-    fn get(&mut self, word: &[Letter]) -> Result<Rc<Vec<(Word, i64)>>, FreeLieError> {
+    /// The expansion of `word`; `C` is only asked whether to keep going
+    /// (an expansion of a word of length L can hold 2^(L-1) words).
+    fn get<C: Coeff>(&mut self, word: &[Letter]) -> Result<Rc<Vec<(Word, i64)>>, FreeLieError> {
         if let Some(found) = self.cache.get(word) {
             return Ok(Rc::clone(found));
         }
@@ -814,14 +844,15 @@ impl LyndonExpansions {
                 standard_factorization(word).ok_or_else(|| FreeLieError::NotLyndon {
                     word: word.to_vec(),
                 })?;
-            let left = self.get(&left_word)?;
-            let right = self.get(&right_word)?;
+            let left = self.get::<C>(&left_word)?;
+            let right = self.get::<C>(&right_word)?;
             let overflow = || FreeLieError::Overflow {
                 word: word.to_vec(),
             };
             let mut terms: BTreeMap<Word, i64> = BTreeMap::new();
             for (first, second, sign) in [(&left, &right, 1i64), (&right, &left, -1)] {
                 for (first_word, first_coeff) in first.iter() {
+                    keep_going::<C>(terms.len())?;
                     for (second_word, second_coeff) in second.iter() {
                         let product = first_coeff
                             .checked_mul(*second_coeff)
@@ -932,7 +963,7 @@ impl<C: Coeff> LiePoly<C> {
         let mut expansions = LyndonExpansions::default();
         let mut terms = BTreeMap::new();
         for (word, coeff) in &self.terms {
-            for (expanded_word, multiple) in expansions.get(word)?.iter() {
+            for (expanded_word, multiple) in expansions.get::<C>(word)?.iter() {
                 let term = match *multiple {
                     1 => coeff.clone(),
                     -1 => coeff.neg(),
@@ -988,7 +1019,8 @@ pub fn project_lyndon<C: Coeff>(
         if !is_lyndon(&word) {
             return Err(FreeLieError::NotLieElement { word });
         }
-        let expansion = expansions.get(&word)?;
+        keep_going::<C>(remainder.len() + found.len())?;
+        let expansion = expansions.get::<C>(&word)?;
         // The first entry is `word` itself with coefficient 1: it is the
         // term just removed.
         for (expanded_word, multiple) in expansion.iter().skip(1) {
