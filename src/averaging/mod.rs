@@ -247,6 +247,7 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
         fact[i] = fact[i - 1].mul(&Q::int(i as i64));
     }
     for k in 1..=n {
+        limits::progress("stroboscopic averaging", k - 1, n);
         let mut r = zero.clone();
         for p in 1..k {
             let mut acc_a = zero.clone();
@@ -321,6 +322,7 @@ pub fn classical(
     let mut w_frozen: Vec<Field> = Vec::with_capacity(n);
     for k in 1..=n {
         limits::poll()?;
+        limits::progress("classical averaging", k - 1, n);
         // Taylor terms at grade k.
         for m in 1..k {
             let mut acc = Field::zero(dim);

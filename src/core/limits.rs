@@ -110,3 +110,27 @@ pub fn check_order(order: u64) -> Result<(), CoreError> {
     }
     Ok(())
 }
+
+/// A progress hook: `(what, done, total)`.
+pub type ProgressHook = Box<dyn FnMut(&str, usize, usize)>;
+
+thread_local! {
+    static PROGRESS: std::cell::RefCell<Option<ProgressHook>> = const { std::cell::RefCell::new(None) };
+}
+
+/// Installs (or with `None` removes) this thread's progress hook. The core
+/// only reports; the front end decides whether and how to show it.
+pub fn set_progress_hook(hook: Option<ProgressHook>) {
+    PROGRESS.with(|p| *p.borrow_mut() = hook);
+}
+
+/// Reports progress of a long computation (a no-op without a hook).
+pub fn progress(what: &str, done: usize, total: usize) {
+    PROGRESS.with(|p| {
+        if let Ok(mut slot) = p.try_borrow_mut() {
+            if let Some(hook) = slot.as_mut() {
+                hook(what, done, total);
+            }
+        }
+    });
+}

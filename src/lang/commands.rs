@@ -10,6 +10,7 @@ use super::session::{Report, Session, SessionError, Style, SymKind};
 use super::value::{AveragedInfo, FieldValue, Value};
 use crate::averaging::{self, Form, Method, Options};
 use crate::core::calc::Period;
+use crate::core::error::LimitKind;
 use crate::core::{limits, CoreError, Expr, Field, Matrix, Sym, Q};
 use crate::render::plain;
 use crate::series::chrono::{self, Graded};
@@ -22,6 +23,26 @@ fn order_arg(n: u64, span: Span) -> R<usize> {
         return Err(SessionError::invalid(span, "the order must be at least 1"));
     }
     Ok(n as usize)
+}
+
+/// The bracket form is an extra over a result already computed: when it
+/// alone would outgrow the term budget, say so and go on without it.
+fn optional_structure<T>(
+    structure: Result<Option<T>, CoreError>,
+    report: &mut Report,
+) -> Result<Option<T>, CoreError> {
+    match structure {
+        Err(
+            e @ CoreError::Limit {
+                kind: LimitKind::Terms,
+                ..
+            },
+        ) => {
+            report.push(Style::Warn, format!("no bracket form: {e}"));
+            Ok(None)
+        }
+        other => other,
+    }
 }
 
 impl Session {
@@ -279,13 +300,16 @@ impl Session {
         }
         report.push(Style::Result, format!("total    {}", plain::field(&total)));
         let structure = match &v.combo {
-            Some(combo) => super::structural::magnus_structure(
-                combo,
-                n,
-                &horizon,
-                period.as_ref(),
-                None,
-                &self.states,
+            Some(combo) => optional_structure(
+                super::structural::magnus_structure(
+                    combo,
+                    n,
+                    &horizon,
+                    period.as_ref(),
+                    None,
+                    &self.states,
+                ),
+                report,
             )
             .map_err(core)?,
             None => None,
@@ -380,13 +404,16 @@ impl Session {
         // Structural form, when the system was written over named fields.
         let structure = match (&v.combo, &res.form) {
             (Some(combo), Form::Standard) => match opts.method {
-                Method::Strobo => super::structural::magnus_structure(
-                    combo,
-                    opts.order,
-                    &res.period.to_expr(),
-                    Some(&res.period),
-                    Some(eps),
-                    &self.states,
+                Method::Strobo => optional_structure(
+                    super::structural::magnus_structure(
+                        combo,
+                        opts.order,
+                        &res.period.to_expr(),
+                        Some(&res.period),
+                        Some(eps),
+                        &self.states,
+                    ),
+                    report,
                 )
                 .map_err(core)?,
                 Method::Classic => {

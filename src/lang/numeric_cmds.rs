@@ -3,9 +3,9 @@
 //! `crate::numeric`.
 
 use std::collections::HashMap;
-use std::time::Instant;
 
 use super::ast::{Assign, Command, CommandKind, Expr as Ast, Span};
+use super::progress::Progress;
 use super::session::{ErrorKind, Report, Session, SessionError, Style, SymKind};
 use crate::core::{limits, CoreError, Expr, Sym, Q};
 use crate::numeric::compile::{CompileError, CompiledExpr, CompiledField};
@@ -37,53 +37,6 @@ fn num(v: f64) -> String {
         s.to_string()
     } else {
         format!("{v:.3e}")
-    }
-}
-
-/// A progress bar that appears only after a second, on a terminal.
-struct Progress {
-    started: Instant,
-    bar: Option<indicatif::ProgressBar>,
-    total: u64,
-    label: String,
-}
-
-impl Progress {
-    fn new(total: u64, label: &str) -> Progress {
-        Progress {
-            started: Instant::now(),
-            bar: None,
-            total,
-            label: label.to_string(),
-        }
-    }
-
-    fn set(&mut self, pos: u64) {
-        use std::io::IsTerminal;
-        if self.bar.is_none()
-            && self.started.elapsed().as_secs_f64() > 1.0
-            && std::io::stderr().is_terminal()
-        {
-            let bar = indicatif::ProgressBar::new(self.total);
-            if let Ok(style) =
-                indicatif::ProgressStyle::with_template("  {msg} [{bar:30}] {pos}/{len} {elapsed}")
-            {
-                bar.set_style(style);
-            }
-            bar.set_message(self.label.clone());
-            self.bar = Some(bar);
-        }
-        if let Some(b) = &self.bar {
-            b.set_position(pos);
-        }
-    }
-}
-
-impl Drop for Progress {
-    fn drop(&mut self) {
-        if let Some(b) = &self.bar {
-            b.finish_and_clear();
-        }
     }
 }
 

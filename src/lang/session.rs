@@ -321,7 +321,10 @@ impl Session {
         let parsed =
             parse_stmt(&stmt.text).map_err(|e| SessionError::at(e.span, ErrorKind::Parse(e)))?;
         let started = Instant::now();
-        let mut report = self.execute_parsed(&parsed, stmt, origin, started)?;
+        super::progress::install();
+        let result = self.execute_parsed(&parsed, stmt, origin, started);
+        super::progress::remove();
+        let mut report = result?;
         let is_file_op = matches!(parsed.kind, StmtKind::Save(_) | StmtKind::RunFile(_));
         if !is_file_op && !matches!(parsed.kind, StmtKind::Quit) {
             self.accepted.push(stmt.source());

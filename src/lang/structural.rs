@@ -161,6 +161,23 @@ fn letter_weight(c: &Expr, eps: Option<Sym>) -> CoreResult<u32> {
     }
 }
 
+/// The number of nonempty words of weight at most `max_w` over letters of
+/// the given weights (saturating).
+fn count_words(weights: &[u32], max_w: u32) -> usize {
+    let max_w = max_w as usize;
+    let mut by_weight = vec![0usize; max_w + 1];
+    by_weight[0] = 1;
+    for w in 1..=max_w {
+        by_weight[w] = weights
+            .iter()
+            .filter_map(|&a| w.checked_sub(a as usize).map(|rest| by_weight[rest]))
+            .fold(0usize, usize::saturating_add);
+    }
+    by_weight[1..]
+        .iter()
+        .fold(0usize, |acc, &c| acc.saturating_add(c))
+}
+
 /// Drops powers of eps above `n`.
 fn truncate_eps(e: &Expr, eps: Option<Sym>, n: usize) -> Expr {
     match eps {
@@ -195,6 +212,9 @@ pub fn magnus_structure(
         .collect::<CoreResult<_>>()?;
     let alphabet = Alphabet::new(weights.clone()).map_err(lie_err)?;
     let max_w = n as u32;
+    // The Chen series has a term for (nearly) every word of weight at most
+    // n, and their number grows exponentially: refuse before building them.
+    crate::core::limits::check_terms(count_words(&weights, max_w))?;
     // Iterated integrals by prefix: I(w a)(t) = ∫_0^t I(w)(s) c_a(s) ds,
     // the first letter at the earliest time.
     let mut terms: Vec<(Vec<u16>, Expr)> = vec![(Vec::new(), Expr::int(1))];

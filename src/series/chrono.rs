@@ -102,8 +102,9 @@ pub fn flow_terms(v: &Field, h: &Expr, n: usize, states: &[Sym]) -> CoreResult<V
     // T: Z_0 = h, Z_k(s) = ∫_s^T V_σ(Z_{k-1}(σ)) dσ; the k-th term is Z_k(0).
     let mut z = h.clone();
     let mut out = Vec::with_capacity(n);
-    for _ in 0..n {
+    for k in 0..n {
         limits::poll()?;
+        limits::progress("chronological exponential", k, n);
         let g = v.lie_derivative(&z, states)?;
         let f = g.antiderivative_t()?;
         let f_at_final = time_to_symbol(&f, big_t, states)?;
@@ -125,6 +126,7 @@ pub fn magnus_generator(v: &Graded, n: usize, states: &[Sym]) -> CoreResult<Vec<
     let mut a: Vec<Vec<Field>> = vec![vec![Field::zero(dim); n + 1]; n + 1];
     let mut w: Vec<Field> = vec![Field::zero(dim); n + 1];
     for m in 1..=n {
+        limits::progress("chronological logarithm", m - 1, n);
         a[0][m] = v.grade(m).cloned().unwrap_or_else(|| Field::zero(dim));
         for p in 1..m {
             let mut acc = Field::zero(dim);
