@@ -90,7 +90,10 @@ impl Expr {
             return Ok(self.clone());
         }
         let mut pow_cache: HashMap<(Sym, i32), Expr> = HashMap::new();
-        let mut out = Expr::zero();
+        // Collect the terms of every substituted term and normalise once:
+        // merging into a running sum would be quadratic in the size.
+        let mut out: Vec<(Key, Q)> = Vec::new();
+        let max_terms = super::limits::limits().max_terms;
         for (k, c) in self.terms() {
             super::limits::poll()?;
             // Unaffected part of the key.
@@ -153,9 +156,16 @@ impl Expr {
                 }
             }
             let term = Expr::term(rest, c.clone()).mul(&factor)?;
-            out = out.add(&term);
-            super::limits::check_terms(out.len())?;
+            out.extend(term.terms().iter().cloned());
+            if out.len() > max_terms.saturating_mul(4) {
+                // Possibly with repeats: merge, then judge.
+                let merged = Expr::from_terms(std::mem::take(&mut out));
+                super::limits::check_terms(merged.len())?;
+                out = merged.terms().to_vec();
+            }
         }
+        let out = Expr::from_terms(out);
+        super::limits::check_terms(out.len())?;
         Ok(out)
     }
 
@@ -327,6 +337,8 @@ impl Expr {
             key.mono.0.retain(|(s, _)| *s != Sym::T);
             let mut q = coeff.clone();
             if n != 0 {
+                // c^n for a power of t as high as `t^1000000000`: check its size first.
+                super::limits::check_bits(c.bits().saturating_mul(n.unsigned_abs() as u64))?;
                 q = q.mul(&c.pow(n as i64).ok_or(CoreError::DivisionByZero)?);
                 key.mono = key.mono.mul(&Mono(smallvec::smallvec![(Sym::PI, n)]))?;
             }
