@@ -23,7 +23,7 @@ use ordex::series::chrono::{flow_terms, magnus_generator, Graded};
 struct Rng(u64);
 
 impl Rng {
-    fn next(&mut self) -> u64 {
+    fn next_u64(&mut self) -> u64 {
         self.0 ^= self.0 >> 12;
         self.0 ^= self.0 << 25;
         self.0 ^= self.0 >> 27;
@@ -33,7 +33,7 @@ impl Rng {
     /// Uniform in `lo..=hi`.
     fn range(&mut self, lo: i64, hi: i64) -> i64 {
         let span = (hi - lo + 1) as u64;
-        lo + (self.next() % span) as i64
+        lo + (self.next_u64() % span) as i64
     }
 }
 
@@ -277,7 +277,7 @@ fn bench_averaging() -> CoreResult<()> {
     println!("## averaging: stroboscopic `average`, orders 2..6");
     println!();
     let eps = Sym::new("eps");
-    // Two-state trigonometric: eps*[p*cos(t) - sin(q), -sin(q)*sin(2t) - p/2].
+    // Two-state trigonometric: [p*cos(t) - sin(q), -sin(q)*sin(2t) - p/2].
     let st2 = states(&["q", "p"]);
     let (qq, pp) = (Expr::sym(st2[0]), Expr::sym(st2[1]));
     let sin_q = Expr::sin_of(&qq, &st2)?;
@@ -287,8 +287,7 @@ fn bench_averaging() -> CoreResult<()> {
             .mul(&beat(true, 2, &st2)?)?
             .neg()
             .sub(&pp.scale(&q(1, 2))),
-    ])
-    .mul_expr(&Expr::sym(eps))?;
+    ]);
     // Three-state quadratic.
     let st3 = states(&["x", "y", "z"]);
     let (x, y, z) = (Expr::sym(st3[0]), Expr::sym(st3[1]), Expr::sym(st3[2]));
@@ -300,14 +299,20 @@ fn bench_averaging() -> CoreResult<()> {
             .mul(&beat(true, 1, &st3)?)?
             .add(&y.mul(&y)?.mul(&beat(false, 2, &st3)?)?),
         x.mul(&y)?.sub(&z.mul(&beat(true, 1, &st3)?)?),
-    ])
-    .mul_expr(&Expr::sym(eps))?;
-    println!("| system | order | median ms | result terms | result terms/s | us per result term | time ratio to previous order |");
-    println!("|---|---|---|---|---|---|---|");
-    for (name, v, st) in [
+    ]);
+    println!("Systems eps*V; the last column is the size of the time-dependent generator");
+    println!("W(t) (all orders) that F_k = W_k(T)/T is read from: the work follows it.");
+    println!();
+    println!(
+        "| system | order | median ms | result terms | result terms/s | us per result term \
+         | time ratio to previous order | W(t) terms |"
+    );
+    println!("|---|---|---|---|---|---|---|---|");
+    for (name, v1, st) in [
         ("2-state trigonometric", &trig, &st2),
         ("3-state quadratic", &poly, &st3),
     ] {
+        let v = v1.mul_expr(&Expr::sym(eps))?;
         let mut prev: Option<Duration> = None;
         for n in 2..=6usize {
             let opts = Options {
@@ -317,17 +322,21 @@ fn bench_averaging() -> CoreResult<()> {
                 with_transform: false,
             };
             let (d, terms) = median_time(3, Duration::from_millis(500), || {
-                Ok(averaging::average(v, eps, &opts, st)?
+                Ok(averaging::average(&v, eps, &opts, st)?
                     .orders
                     .iter()
                     .map(Field::n_terms)
                     .sum::<usize>())
             })?;
+            let w_terms: usize = magnus_generator(&Graded::single(v1.clone()), n, st)?
+                .iter()
+                .map(Field::n_terms)
+                .sum();
             let ratio = prev.map_or("-".to_string(), |p| {
                 format!("{:.1}", d.as_secs_f64() / p.as_secs_f64())
             });
             println!(
-                "| {name} | {n} | {} | {terms} | {:.0} | {:.1} | {ratio} |",
+                "| {name} | {n} | {} | {terms} | {:.0} | {:.1} | {ratio} | {w_terms} |",
                 ms(d),
                 terms as f64 / d.as_secs_f64(),
                 d.as_secs_f64() * 1e6 / terms.max(1) as f64
