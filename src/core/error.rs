@@ -19,6 +19,9 @@ pub enum LimitKind {
     Depth,
     /// An exponent outside the machine range.
     Exponent,
+    /// A statement needing more term multiplications than the term budget
+    /// allows (`set budget N`, times `limits::WORK_PER_TERM`).
+    Work,
 }
 
 /// An error of the exact core.
@@ -125,6 +128,14 @@ impl fmt::Display for CoreError {
                     f,
                     "nesting limit exceeded: at most {limit} nested brackets \
                      (a fixed limit: define inner parts as names)"
+                ),
+                LimitKind::Work => write!(
+                    f,
+                    "term budget exceeded: the computation would need more than {} term \
+                     multiplications ({} per term of the budget of {limit}); \
+                     raise it with `set budget N`",
+                    limit.saturating_mul(super::limits::WORK_PER_TERM),
+                    super::limits::WORK_PER_TERM
                 ),
                 LimitKind::Exponent => write!(
                     f,

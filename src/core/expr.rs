@@ -613,15 +613,12 @@ impl Expr {
         if self.is_zero() || other.is_zero() {
             return Ok(Expr::zero());
         }
-        // Fast paths: multiplication by a number (the integer-size limit
-        // checked first, so that repeated products of huge numbers stop).
+        // Fast paths: multiplication by a number.
         if let Some(q) = self.as_number() {
-            limits::check_bits(q.bits().saturating_add(other.max_coeff_bits()))?;
-            return Ok(other.scale(&q));
+            return other.scale_checked(&q);
         }
         if let Some(q) = other.as_number() {
-            limits::check_bits(q.bits().saturating_add(self.max_coeff_bits()))?;
-            return Ok(self.scale(&q));
+            return self.scale_checked(&q);
         }
         let (a, b) = if self.len() <= other.len() {
             (self, other)
@@ -629,6 +626,11 @@ impl Expr {
             (other, self)
         };
         let max_terms = limits::limits().max_terms;
+        // The work: |a|·|b| term products (arithmetic on large coefficients
+        // is counted by the numbers themselves). When products collide
+        // (trigonometric factors, cancellations) the result can stay within
+        // the budget while the work grows with its square: count it too.
+        limits::add_work((a.len() as u64).saturating_mul(b.len() as u64))?;
         let mut map: FxHashMap<Key, Q> = FxHashMap::with_capacity_and_hasher(
             (2 * (a.len() + b.len()))
                 .min(a.len() * b.len())
@@ -677,6 +679,24 @@ impl Expr {
             });
         }
         Ok(Expr::from_map(map))
+    }
+
+    /// Multiplies by a number within the limits: a large number adds its
+    /// size to every term, which the term budget must allow before anything
+    /// is built; the integer-size limit is checked on the result (at most
+    /// twice the limit when both factors are within it), so that repeated
+    /// products of huge numbers stop.
+    fn scale_checked(&self, q: &Q) -> CoreResult<Expr> {
+        let q_words = coeff_words(q);
+        if q_words > 0 {
+            limits::check_terms(
+                self.size()
+                    .saturating_add(self.len().saturating_mul(q_words)),
+            )?;
+        }
+        let r = self.scale(q);
+        limits::check_bits(r.max_coeff_bits())?;
+        Ok(r)
     }
 
     /// Integer power. Negative powers only for monomials (single terms
@@ -732,17 +752,14 @@ impl Expr {
                 limit: limits::limits().max_terms as u64,
             });
         }
-        let mut acc = Expr::int(1);
-        let mut sq = self.clone();
-        let mut e = e as u64;
-        while e > 0 {
-            if e & 1 == 1 {
-                acc = acc.mul(&sq)?;
-            }
-            e >>= 1;
-            if e > 0 {
-                sq = sq.mul(&sq)?;
-            }
+        // Repeated multiplication by the base: every step multiplies by a
+        // short factor with small coefficients, far less work than squaring
+        // long powers with long coefficients ((x+y+z+w)^60: 2.4 million term
+        // products instead of 35 million), and every step checks the budget,
+        // so an oversized power stops at the first step that outgrows it.
+        let mut acc = self.clone();
+        for _ in 1..e {
+            acc = acc.mul(self)?;
         }
         Ok(acc)
     }

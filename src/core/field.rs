@@ -157,17 +157,19 @@ impl Field {
         };
         let n = self.dim();
         // Large brackets: the components are independent, so compute them on
-        // the available cores (each worker gets this thread's limits).
+        // the available cores (each worker gets this thread's limits and
+        // counts its work against this statement).
         let work = self.n_terms().saturating_mul(other.n_terms());
         let workers = parallelism().min(n);
         if workers > 1 && work >= PARALLEL_WORK {
-            let lim = limits::limits();
+            let ctx = limits::context();
             let results: Vec<CoreResult<Vec<(usize, Expr)>>> = std::thread::scope(|scope| {
                 let handles: Vec<_> = (0..workers)
                     .map(|w| {
                         let component = &component;
+                        let ctx = ctx.clone();
                         scope.spawn(move || {
-                            limits::set_limits(lim);
+                            limits::enter(ctx);
                             (w..n)
                                 .step_by(workers)
                                 .map(|i| Ok((i, component(i)?)))

@@ -5,8 +5,9 @@
 //! by the session (`set budget N`); cancellation is a process-wide flag set
 //! by the prompt's Ctrl-C handler and polled in the inner loops.
 
-use std::cell::Cell;
-use std::sync::atomic::{AtomicBool, Ordering};
+use std::cell::{Cell, RefCell};
+use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
+use std::sync::Arc;
 
 use super::error::{CoreError, LimitKind};
 
@@ -34,8 +35,37 @@ impl Default for Limits {
     }
 }
 
+/// Term products one statement may do, per unit of the term budget.
+pub const WORK_PER_TERM: u64 = 250;
+
 thread_local! {
     static LIMITS: Cell<Limits> = Cell::new(Limits::default());
+    /// Term products done by the current statement (shared with the worker
+    /// threads it starts); `None` when no statement is being counted (the
+    /// core used directly).
+    static WORK: RefCell<Option<Arc<AtomicU64>>> = const { RefCell::new(None) };
+}
+
+/// What a worker thread needs to compute on behalf of this thread: the
+/// limits and the work counter of the current statement.
+#[derive(Clone, Debug)]
+pub struct Context {
+    limits: Limits,
+    work: Option<Arc<AtomicU64>>,
+}
+
+/// This thread's limits and work counter, to hand to a worker thread.
+pub fn context() -> Context {
+    Context {
+        limits: limits(),
+        work: WORK.with(|w| w.borrow().clone()),
+    }
+}
+
+/// Installs a context taken with [`context`] on this (worker) thread.
+pub fn enter(ctx: Context) {
+    set_limits(ctx.limits);
+    WORK.with(|w| *w.borrow_mut() = ctx.work);
 }
 
 static INTERRUPTED: AtomicBool = AtomicBool::new(false);
@@ -65,13 +95,56 @@ pub fn is_interrupted() -> bool {
     INTERRUPTED.load(Ordering::Relaxed)
 }
 
-/// Fails with `Interrupted` when an interrupt is pending.
+/// Fails with `Interrupted` when an interrupt is pending, and with the
+/// work limit when the current statement has used up its work (see
+/// [`add_work`]; arithmetic on large numbers is noted with [`note_work`]
+/// and checked here).
 pub fn poll() -> Result<(), CoreError> {
     if is_interrupted() {
-        Err(CoreError::Interrupted)
-    } else {
-        Ok(())
+        return Err(CoreError::Interrupted);
     }
+    add_work(0)
+}
+
+/// Notes `units` of work done on large numbers (one unit is about the time
+/// of a term product) for the current statement, without failing: the next
+/// [`poll`] or [`add_work`] checks the total.
+pub fn note_work(units: u64) {
+    WORK.with(|w| {
+        if let Some(c) = w.borrow().as_ref() {
+            c.fetch_add(units, Ordering::Relaxed);
+        }
+    });
+}
+
+/// Starts counting the work of a new statement on this thread: from now
+/// on [`add_work`] counts against the term budget.
+pub fn start_work() {
+    WORK.with(|w| *w.borrow_mut() = Some(Arc::new(AtomicU64::new(0))));
+}
+
+/// Counts `products` term products (the work of one multiplication) for
+/// the current statement. The budget bounds the work as well as the size of
+/// results: a statement may do at most [`WORK_PER_TERM`] term products per
+/// unit of the budget, so that no statement runs for hours even when every
+/// result stays small. Not counted when no statement was started.
+pub fn add_work(products: u64) -> Result<(), CoreError> {
+    let Some(total) = WORK.with(|w| {
+        w.borrow().as_ref().map(|c| {
+            c.fetch_add(products, Ordering::Relaxed)
+                .saturating_add(products)
+        })
+    }) else {
+        return Ok(());
+    };
+    let max = limits().max_terms as u64;
+    if total > max.saturating_mul(WORK_PER_TERM) {
+        return Err(CoreError::Limit {
+            kind: LimitKind::Work,
+            limit: max,
+        });
+    }
+    Ok(())
 }
 
 /// Checks a term count against the budget.

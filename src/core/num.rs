@@ -9,10 +9,12 @@
 use num_bigint::BigInt;
 use num_integer::Integer;
 use num_rational::BigRational;
-use num_traits::{One, Signed, ToPrimitive};
+use num_traits::{One, Signed, ToPrimitive, Zero};
 use std::borrow::Cow;
 use std::cmp::Ordering;
 use std::fmt;
+
+use super::limits;
 
 /// An exact rational number.
 ///
@@ -46,6 +48,64 @@ fn gcd_u64(mut a: u64, mut b: u64) -> u64 {
             return a << shift;
         }
     }
+}
+
+/// Greatest common divisor of the magnitudes, by Lehmer's algorithm
+/// (Knuth, TAOCP vol. 2, §4.5.2, Algorithm L): the quotients of Euclid's
+/// algorithm are found from the leading 64 bits in machine words, and the
+/// big numbers are combined once per run of quotients. The binary algorithm
+/// of `num-integer` takes a step per bit (even for gcd(x, 1)), which made
+/// sums of rationals with long denominators take seconds.
+fn gcd_big(x: &BigInt, y: &BigInt) -> BigInt {
+    let (mut a, mut b) = (x.magnitude().clone(), y.magnitude().clone());
+    if a < b {
+        std::mem::swap(&mut a, &mut b);
+    }
+    loop {
+        // Here a >= b.
+        if let Some(small) = b.to_u64() {
+            if small == 0 {
+                return BigInt::from(a);
+            }
+            let rest = (&a % small).to_u64().unwrap_or(0);
+            return BigInt::from(gcd_u128(u128::from(small), u128::from(rest)));
+        }
+        let shift = a.bits().saturating_sub(63);
+        let top = |n: &num_bigint::BigUint| (n >> shift).to_i128().unwrap_or(0);
+        let (mut ah, mut bh) = (top(&a), top(&b));
+        let (mut ca, mut cb, mut cc, mut cd) = (1i128, 0i128, 0i128, 1i128);
+        while bh + cc != 0 && bh + cd != 0 {
+            let q = (ah + ca) / (bh + cc);
+            if q != (ah + cb) / (bh + cd) {
+                break;
+            }
+            (ca, cc) = (cc, ca - q * cc);
+            (cb, cd) = (cd, cb - q * cd);
+            (ah, bh) = (bh, ah - q * bh);
+        }
+        if cb == 0 {
+            // No quotient was certain: one step on the big numbers.
+            let rest = &a % &b;
+            a = b;
+            b = rest;
+        } else {
+            let (ba, bb) = (BigInt::from(a), BigInt::from(b));
+            let next_a = &ba * ca + &bb * cb;
+            let next_b = &ba * cc + &bb * cd;
+            a = next_a.magnitude().clone();
+            b = next_b.magnitude().clone();
+            if a < b {
+                std::mem::swap(&mut a, &mut b);
+            }
+        }
+    }
+}
+
+/// The work of one sum or product of rationals, in units of about the time
+/// of a term product: word products (and the gcds, quadratic in the sizes
+/// too) cost one unit per 256 products of 64-bit words.
+fn big_work(a: &Q, b: &Q) -> u64 {
+    1 + (a.bits() / 64).saturating_mul(b.bits() / 64) / 256
 }
 
 fn gcd_u128(mut a: u128, mut b: u128) -> u128 {
@@ -249,13 +309,71 @@ impl Q {
                 let (a, b, c, d) = (*a as i128, *b as i128, *c as i128, *d as i128);
                 match (a * d).checked_add(c * b) {
                     Some(n) => Q::from_i128(n, b * d),
-                    None => Q::from_big(self.to_big() + other.to_big()),
+                    None => self.add_big(other),
                 }
             }
-            _ => match (self.as_big_integer(), other.as_big_integer()) {
-                (Some(a), Some(b)) => Q::from_integer(&*a + &*b),
-                _ => Q::from_big(self.to_big() + other.to_big()),
-            },
+            _ => self.add_big(other),
+        }
+    }
+
+    /// The sum when a value is big: integers directly; else, with
+    /// g = gcd(b, d), `(a*(d/g) + c*(b/g)) / (b*(d/g))` where only
+    /// gcd(numerator, g) can cancel. Denominators are usually small, so this
+    /// avoids the gcd of the full numerator and denominator, which costs
+    /// time quadratic in their size.
+    fn add_big(&self, other: &Q) -> Q {
+        limits::note_work(big_work(self, other));
+        if let (Some(x), Some(y)) = (self.as_big_integer(), other.as_big_integer()) {
+            return Q::from_integer(&*x + &*y);
+        }
+        let (a, b) = (self.numer(), self.denom());
+        let (c, d) = (other.numer(), other.denom());
+        let g = gcd_big(&b, &d);
+        if g.is_one() {
+            return Q::from_reduced(&a * &d + &c * &b, &b * &d);
+        }
+        let (bg, dg) = (&b / &g, &d / &g);
+        let num = &a * &dg + &c * &bg;
+        let g2 = gcd_big(&num, &g);
+        if g2.is_one() {
+            Q::from_reduced(num, &b * &dg)
+        } else {
+            Q::from_reduced(&num / &g2, &b * &dg / &g2)
+        }
+    }
+
+    /// The product when a value is big: integers directly; else cross
+    /// cancellation `(a/gcd(a,d))·(c/gcd(c,b)) / ((b/gcd(c,b))·(d/gcd(a,d)))`,
+    /// already in lowest terms (cheap when one factor is small).
+    fn mul_big(&self, other: &Q) -> Q {
+        if other.is_one() {
+            return self.clone();
+        }
+        if self.is_one() {
+            return other.clone();
+        }
+        limits::note_work(big_work(self, other));
+        if let (Some(x), Some(y)) = (self.as_big_integer(), other.as_big_integer()) {
+            return Q::from_integer(&*x * &*y);
+        }
+        let (a, b) = (self.numer(), self.denom());
+        let (c, d) = (other.numer(), other.denom());
+        let g1 = gcd_big(&a, &d);
+        let g2 = gcd_big(&c, &b);
+        let divide = |x: BigInt, g: &BigInt| if g.is_one() { x } else { x / g };
+        let num = divide(a, &g1) * divide(c, &g2);
+        let den = divide(b, &g2) * divide(d, &g1);
+        Q::from_reduced(num, den)
+    }
+
+    /// `n / d` already in lowest terms with `d > 0`; small when it fits.
+    fn from_reduced(n: BigInt, d: BigInt) -> Q {
+        if n.is_zero() {
+            return Q::ZERO;
+        }
+        match (n.to_i64(), d.to_i64()) {
+            (Some(n), Some(d)) => Q::Small(n, d),
+            _ => Q::Big(Box::new(BigRational::new_raw(n, d))),
         }
     }
 
@@ -304,10 +422,7 @@ impl Q {
                 }
                 Q::from_i128(*a as i128 * *c as i128, *b as i128 * *d as i128)
             }
-            _ => match (self.as_big_integer(), other.as_big_integer()) {
-                (Some(a), Some(b)) => Q::from_integer(&*a * &*b),
-                _ => Q::from_big(self.to_big() * other.to_big()),
-            },
+            _ => self.mul_big(other),
         }
     }
 
@@ -332,6 +447,14 @@ impl Q {
     pub fn pow(&self, e: i64) -> Option<Q> {
         let base = if e < 0 { self.recip()? } else { self.clone() };
         let mut e = e.unsigned_abs();
+        if matches!(base, Q::Big(_)) || e > 32 {
+            // Numerator and denominator separately: powers of coprime
+            // numbers stay coprime, so no gcd is needed.
+            let e = usize::try_from(e).ok()?;
+            let num = num_traits::pow(base.numer(), e);
+            let den = num_traits::pow(base.denom(), e);
+            return Some(Q::from_reduced(num, den));
+        }
         let mut acc = Q::ONE;
         let mut sq = base;
         while e > 0 {
@@ -517,5 +640,64 @@ mod tests {
             let s = a.add(&b);
             prop_assert_eq!(Q::from_big(s.to_big()), s);
         }
+
+        /// The big paths (Lehmer's gcd, cross cancellation, powers without
+        /// gcd) against `num-rational`, on numbers of many words.
+        #[test]
+        fn big_paths_agree_with_big_rationals(
+            n1 in prop::collection::vec(any::<u64>(), 1..6),
+            d1 in prop::collection::vec(any::<u64>(), 1..6),
+            n2 in prop::collection::vec(any::<u64>(), 1..6),
+            d2 in prop::collection::vec(any::<u64>(), 1..6),
+            common in prop::collection::vec(1u64..u64::MAX, 0..3),
+            e in 0i64..40,
+            negative in any::<bool>(),
+        ) {
+            let big = |words: &[u64], extra: &[u64]| {
+                let mut n = BigInt::from(1u8);
+                for w in words.iter().chain(extra) {
+                    n = n * BigInt::from(*w) + BigInt::from(1u8);
+                }
+                n
+            };
+            let q1 = BigRational::new(big(&n1, &common), big(&d1, &common));
+            let q1 = if negative { -q1 } else { q1 };
+            let q2 = BigRational::new(big(&n2, &common), big(&d2, &[]));
+            let (a, b) = (Q::from_big(q1.clone()), Q::from_big(q2.clone()));
+            prop_assert_eq!(a.add(&b).to_big(), &q1 + &q2);
+            prop_assert_eq!(a.sub(&b).to_big(), &q1 - &q2);
+            prop_assert_eq!(a.mul(&b).to_big(), &q1 * &q2);
+            prop_assert_eq!(a.div(&b).map(|r| r.to_big()), Some(&q1 / &q2));
+            prop_assert_eq!(a.pow(e).map(|r| r.to_big()), Some(num_traits::pow(q1.clone(), e as usize)));
+            let (x, y) = (big(&n1, &common), big(&n2, &common));
+            prop_assert_eq!(gcd_big(&x, &y), x.gcd(&y));
+            prop_assert_eq!(gcd_big(&x, &(&x * &y)), x.gcd(&(&x * &y)));
+        }
+    }
+
+    #[test]
+    fn gcd_of_hard_cases() {
+        // Consecutive Fibonacci numbers (the most Euclid steps), powers of
+        // two, equal numbers, one and zero.
+        let (mut f0, mut f1) = (BigInt::from(0u8), BigInt::from(1u8));
+        for _ in 0..2000 {
+            let f2 = &f0 + &f1;
+            f0 = f1;
+            f1 = f2;
+        }
+        assert_eq!(gcd_big(&f1, &f0), BigInt::from(1u8));
+        let two = |k: u32| num_traits::pow(BigInt::from(2u8), k as usize);
+        assert_eq!(gcd_big(&two(300), &two(200)), two(200));
+        assert_eq!(
+            gcd_big(&(two(300) * 3u8), &(two(250) * 9u8)),
+            two(250) * 3u8
+        );
+        assert_eq!(gcd_big(&f1, &f1), f1.clone());
+        assert_eq!(gcd_big(&f1, &BigInt::from(1u8)), BigInt::from(1u8));
+        assert_eq!(gcd_big(&f1, &BigInt::from(0u8)), f1.clone());
+        assert_eq!(
+            gcd_big(&-f1.clone(), &(f0.clone() * -7)),
+            f1.gcd(&(&f0 * 7))
+        );
     }
 }

@@ -464,6 +464,15 @@ impl Session {
 
     fn carleman(&self, x: &Field, degree: u32, span: Span, report: &mut Report) -> R<Value> {
         let core = |e: CoreError| SessionError::core(span, e);
+        // The section is a dense N x N matrix on the C(n + d, d) monomials:
+        // with many states it is astronomically large, so count its entries
+        // against the term budget before building anything.
+        let n_basis = binomial(
+            self.states.len() as u64 + u64::from(degree),
+            u64::from(degree),
+        );
+        limits::check_terms(usize::try_from(n_basis.saturating_mul(n_basis)).unwrap_or(usize::MAX))
+            .map_err(core)?;
         let basis = monomial_basis(&self.states, degree);
         let index = |m: &Expr| basis.iter().position(|b| b == m);
         let mut data = vec![Expr::zero(); basis.len() * basis.len()];
@@ -506,6 +515,20 @@ impl Session {
         );
         Ok(Value::Matrix(m))
     }
+}
+
+/// The binomial coefficient `C(n, k)`, saturating.
+fn binomial(n: u64, k: u64) -> u64 {
+    let k = k.min(n.saturating_sub(k));
+    let mut acc: u128 = 1;
+    for i in 0..k {
+        // acc * (n - i) / (i + 1) stays an integer at every step.
+        acc = acc.saturating_mul(u128::from(n - i)) / u128::from(i + 1);
+        if acc > u128::from(u64::MAX) {
+            return u64::MAX;
+        }
+    }
+    acc as u64
 }
 
 /// The summary line of a series command: orders and size (the timing is

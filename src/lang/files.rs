@@ -1,6 +1,6 @@
 //! File effects of the language: atomic writes and careful script reads.
 
-use std::io::Write;
+use std::io::{Read, Write};
 use std::path::Path;
 
 /// Writes `bytes` to `path` atomically: a temporary file in the same
@@ -25,9 +25,33 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), String> {
     })();
     if let Err(e) = result {
         let _ = std::fs::remove_file(&tmp);
-        return Err(e.to_string());
+        return Err(if path.is_dir() {
+            "it is a directory".to_string()
+        } else {
+            io_reason(&e)
+        });
     }
     Ok(())
+}
+
+/// A short lowercase reason for an I/O error, without the OS error number.
+fn io_reason(e: &std::io::Error) -> String {
+    match e.kind() {
+        std::io::ErrorKind::NotFound => "no such file or directory".to_string(),
+        std::io::ErrorKind::PermissionDenied => "permission denied".to_string(),
+        _ => {
+            let text = e.to_string();
+            let text = match text.find(" (os error") {
+                Some(i) => text[..i].to_string(),
+                None => text,
+            };
+            let mut chars = text.chars();
+            match chars.next() {
+                Some(first) => first.to_lowercase().chain(chars).collect(),
+                None => text,
+            }
+        }
+    }
 }
 
 /// Reads a script: a clear message for a missing, unreadable, binary or
@@ -35,19 +59,27 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), String> {
 pub fn read_script(path: &Path) -> Result<String, String> {
     let meta = std::fs::metadata(path).map_err(|e| match e.kind() {
         std::io::ErrorKind::NotFound => "no such file".to_string(),
-        std::io::ErrorKind::PermissionDenied => "permission denied".to_string(),
-        _ => e.to_string(),
+        _ => io_reason(&e),
     })?;
     if meta.is_dir() {
         return Err("it is a directory".to_string());
     }
-    if meta.len() > 16 * 1024 * 1024 {
+    // A device or a pipe (`/dev/zero`, `/dev/stdin`) could be endless or
+    // wait forever: only regular files are scripts.
+    if !meta.is_file() {
+        return Err("not a regular file".to_string());
+    }
+    const MAX_SCRIPT: u64 = 16 * 1024 * 1024;
+    if meta.len() > MAX_SCRIPT {
         return Err("larger than 16 MiB: not a script".to_string());
     }
-    let bytes = std::fs::read(path).map_err(|e| match e.kind() {
-        std::io::ErrorKind::PermissionDenied => "permission denied".to_string(),
-        _ => e.to_string(),
-    })?;
+    let mut bytes = Vec::new();
+    std::fs::File::open(path)
+        .and_then(|f| f.take(MAX_SCRIPT + 1).read_to_end(&mut bytes))
+        .map_err(|e| io_reason(&e))?;
+    if bytes.len() as u64 > MAX_SCRIPT {
+        return Err("larger than 16 MiB: not a script".to_string());
+    }
     if bytes.contains(&0) {
         return Err("binary data (a NUL byte): not a script".to_string());
     }

@@ -318,6 +318,7 @@ impl Session {
         origin: Option<&str>,
     ) -> Result<Report, SessionError> {
         limits::clear_interrupt();
+        limits::start_work();
         let parsed =
             parse_stmt(&stmt.text).map_err(|e| SessionError::at(e.span, ErrorKind::Parse(e)))?;
         let started = Instant::now();
