@@ -677,7 +677,8 @@ fn program() -> impl Strategy<Value = Vec<String>> {
 // ---------------------------------------------------------------------------
 // Properties.
 
-/// Runs `strategy` through `PROPTEST_CASES` cases (else `default_cases`):
+/// Runs `strategy` through `PROPTEST_CASES` cases (else `default_cases`, a
+/// fifth of it in unoptimised builds):
 /// each value becomes the chunks of one case, which must come back with a
 /// working session. Prints how many inputs were tried and the deepest stack
 /// seen (`scripts/fuzz-long` adds these up); a failure panics with the
@@ -694,7 +695,12 @@ fn fuzz<S: Strategy>(
         cases: std::env::var("PROPTEST_CASES")
             .ok()
             .and_then(|s| s.parse().ok())
-            .unwrap_or(default_cases),
+            // Unoptimised builds are many times slower: fewer cases there.
+            .unwrap_or(if cfg!(debug_assertions) {
+                default_cases / 5
+            } else {
+                default_cases
+            }),
         failure_persistence: Some(Box::new(
             proptest::test_runner::FileFailurePersistence::Direct("proptest-regressions/fuzz.txt"),
         )),

@@ -309,18 +309,52 @@ fn repeated_squaring_hits_a_small_budget() {
 
 /// Caught by the fuzz tests: the budget counted terms only, so a power of
 /// a binomial with huge coefficients (`(x + y)^5000`, 5001 terms of up to
-/// 1500 digits) ran for minutes; large coefficients now count too.
+/// 1500 digits) ran for minutes; large coefficients now count too (a term
+/// per 64 bytes), here 10 terms of 20,000 digits each.
 #[test]
 fn huge_products_stop_at_the_budget_counting_coefficient_size() {
     refused(
-        "(x + y)^3000 with budget 20000",
-        "state x, y\nset budget 20000\n(x + y)^3000",
-        &["term budget exceeded", "20000", "64 bits"],
+        "10 terms times 10^20000 with budget 1000",
+        "state x, y, z\nset budget 1000\nS = (x + y + z)^3\nB = S*10^20000",
+        &["term budget exceeded", "1000", "64 bytes"],
+    );
+    refused(
+        "(x + y)^5000 with budget 20000",
+        "state x, y\nset budget 20000\n(x + y)^5000",
+        &["term budget exceeded", "20000", "set budget N"],
     );
     works(
         "(x + y)^300 with budget 20000",
         "state x, y\nset budget 20000\nA = (x + y)^300\ncheck plug(A, x = 1, y = 1) == 2^300",
         "holds",
+    );
+}
+
+/// Caught by the fuzz tests: the antiderivative of `t^n*cos(t)` has n + 1
+/// terms with coefficients up to n!, built with no limit and no way to
+/// stop (`t^1000000000`: forever; `t^20000`: gigabytes of output).
+#[test]
+fn integral_of_a_huge_power_of_time_hits_the_budget() {
+    refused(
+        "flow with t^1000000000",
+        "set budget 20000\nstate x, y, z\nparam k, a\ns2 = t^1000000000\n\
+         R = flow [k, a, z] + z*[s2, 8, 7] on sin(-3*x + 2*t) to 3",
+        &["term budget exceeded", "set budget N"],
+    );
+    refused(
+        "magnus of t^20000*cos(t)",
+        "state x\nmagnus t^20000*cos(t)*[1] to 1",
+        &["term budget exceeded", "set budget N"],
+    );
+    works(
+        "magnus of t^200*cos(t)",
+        "state x\nW = magnus t^200*cos(t)*[1] to 1",
+        "1 order",
+    );
+    refused(
+        "t^2147483647 integrated",
+        "state x\nmagnus t^2147483647*[1] to 1 over 1",
+        &["exponent out of range"],
     );
 }
 
@@ -340,6 +374,49 @@ fn bch_of_high_degree_stops_at_the_term_budget() {
     assert_eq!(runs[0].status.exit_code(), 2);
     assert_eq!(runs[1].status.exit_code(), 0, "{}", runs[1].err);
     assert!(runs[1].out.contains("holds"));
+}
+
+/// Caught by the limits tests: sums were never checked against the budget,
+/// so a sum of parts each within it (here 131072 terms each) grew without
+/// limit (30 parts: over a gigabyte).
+#[test]
+fn long_sum_of_parts_within_the_budget_hits_it() {
+    let factors: Vec<String> = (0..17).map(|k| format!("(1 + x^{})", 1u64 << k)).collect();
+    let parts: Vec<String> = (0..30).map(|i| format!("x^{}*A", 131072 * i)).collect();
+    refused(
+        "30 shifted copies of a 131072-term sum",
+        &format!(
+            "state x\nA = {}\nS = {}",
+            factors.join("*"),
+            parts.join(" + ")
+        ),
+        &["term budget exceeded", "set budget N"],
+    );
+}
+
+/// Caught by the limits tests: a Carleman section is a dense N x N matrix
+/// on the C(n + d, d) monomials, built before any check: 20 states to
+/// degree 12 took 5 GB in a minute (degree 4: 3.6 GB); its entries now
+/// count against the budget first.
+#[test]
+fn carleman_section_of_many_states_hits_the_budget() {
+    let states: Vec<String> = (0..20).map(|i| format!("x{i}")).collect();
+    let field: Vec<String> = (0..20).map(|i| format!("x{}", (i + 1) % 20)).collect();
+    let text = format!(
+        "state {}\nX = [{}]\ncarleman X degree 12",
+        states.join(", "),
+        field.join(", ")
+    );
+    refused(
+        "carleman on 20 states, degree 12",
+        &text,
+        &["term budget exceeded"],
+    );
+    works(
+        "carleman on 3 states, degree 10",
+        "state x, y, z\nX = [y, z, x^2]\ncarleman X degree 10",
+        "286x286 section",
+    );
 }
 
 /// Caught by the fuzz tests: the bracket form of `magnus`/`average` to a
@@ -471,8 +548,9 @@ fn exponent_out_of_range_is_an_error() {
 }
 
 /// Caught by the limits tests: a product with a number skipped the
-/// integer-size check, so `a*a` of a 99,999-digit `a`, and a 1x1 matrix
-/// of it to a power, grew without limit.
+/// integer-size check and the term budget, so `a*a` of a 99,999-digit `a`,
+/// and a 1x1 matrix of it to a power, grew without limit, and a long sum
+/// times a huge number was built in full.
 #[test]
 fn products_of_huge_numbers_hit_the_integer_limit() {
     refused(
@@ -489,6 +567,14 @@ fn products_of_huge_numbers_hit_the_integer_limit() {
         "x*10^99999 times 10^99999",
         "state x\nb = (x*10^99999)*10^99999",
         &["integer size limit exceeded"],
+    );
+    // 131072 terms, each to get a 99,999-digit coefficient: 5 GB unless the
+    // budget is asked first.
+    let factors: Vec<String> = (0..17).map(|k| format!("(1 + x^{})", 1u64 << k)).collect();
+    refused(
+        "131072 terms times 10^99999",
+        &format!("state x\nA = {}\nB = A*10^99999", factors.join("*")),
+        &["term budget exceeded", "set budget N"],
     );
 }
 

@@ -291,7 +291,7 @@ impl Expr {
             let mut base = k.clone();
             base.mono.0.retain(|(s, _)| *s != Sym::T);
             base.beat = Beat::One;
-            for (p, beat, q) in integrate_time_monomial(n, &k.beat) {
+            for (p, beat, q) in integrate_time_monomial(n, &k.beat)? {
                 let mut key = base.clone();
                 if p != 0 {
                     key.mono = key.mono.mul(&Mono(smallvec::smallvec![(Sym::T, p)]))?;
@@ -299,6 +299,7 @@ impl Expr {
                 key.beat = beat;
                 out.push((key, c.mul(&q)));
             }
+            super::limits::check_terms(out.len())?;
         }
         Ok(Expr::from_terms(out))
     }
@@ -395,16 +396,23 @@ fn trig_value(is_sin: bool, c: &Q) -> Option<Q> {
 }
 
 /// `∫ t^n · beat dt` as a list of `(power, beat, coefficient)`.
-fn integrate_time_monomial(n: i32, beat: &Beat) -> Vec<(i32, Beat, Q)> {
+fn integrate_time_monomial(n: i32, beat: &Beat) -> CoreResult<Vec<(i32, Beat, Q)>> {
     match beat {
-        Beat::One => vec![(
-            n + 1,
+        Beat::One => Ok(vec![(
+            n.checked_add(1).ok_or(CoreError::Limit {
+                kind: super::error::LimitKind::Exponent,
+                limit: i32::MAX as u64,
+            })?,
             Beat::One,
             Q::ratio(1, n as i64 + 1).unwrap_or(Q::ZERO),
-        )],
+        )]),
         Beat::Cos(k) | Beat::Sin(k) => {
             // I_c(n) = t^n sin/k - (n/k) I_s(n-1); I_s(n) = -t^n cos/k + (n/k) I_c(n-1).
+            // That is n + 1 terms with coefficients up to n!/k^n: ask the
+            // limits before building them (`t^1000000000*cos(t)`).
+            super::limits::check_terms(usize::try_from(n).unwrap_or(0).saturating_add(1))?;
             let mut out = Vec::new();
+            let mut size = 0usize;
             let mut is_sin = matches!(beat, Beat::Sin(_));
             let mut factor = Q::ONE;
             let mut p = n;
@@ -420,10 +428,18 @@ fn integrate_time_monomial(n: i32, beat: &Beat) -> Vec<(i32, Beat, Q)> {
                 if p == 0 {
                     break;
                 }
+                // The budget counts the coefficients' size too: n!/k^n has
+                // many digits long before n reaches the budget in terms.
+                size = size.saturating_add(1 + super::limits::coefficient_terms(factor.bits()));
+                if p % 64 == 0 {
+                    super::limits::poll()?;
+                    super::limits::check_bits(factor.bits())?;
+                    super::limits::check_terms(size)?;
+                }
                 p -= 1;
                 is_sin = !is_sin;
             }
-            out
+            Ok(out)
         }
     }
 }

@@ -111,7 +111,7 @@ impl fmt::Display for CoreError {
                 LimitKind::Terms => write!(
                     f,
                     "term budget exceeded: a result would hold more than {limit} terms \
-                     (each 64 bits of a large coefficient count as a term); \
+                     (a large coefficient counts as a term per 64 bytes); \
                      raise it with `set budget N`"
                 ),
                 LimitKind::Digits => write!(

@@ -126,12 +126,12 @@ impl Mono {
     }
 }
 
-/// What a coefficient adds to the term budget: its 64-bit words when it
-/// is large, nothing when it fits machine words.
+/// What a coefficient adds to the term budget beyond its term (see
+/// [`limits::coefficient_terms`]); nothing when it fits machine words.
 fn coeff_words(c: &Q) -> usize {
     match c {
         Q::Small(..) => 0,
-        Q::Big(_) => usize::try_from(c.bits() / 64).unwrap_or(usize::MAX),
+        Q::Big(_) => limits::coefficient_terms(c.bits()),
     }
 }
 
@@ -639,7 +639,7 @@ impl Expr {
         );
         let mut budget_hit = false;
         let mut max_bits = 0u64;
-        // The budget counts terms plus the 64-bit words of large
+        // The budget counts terms plus the size of large
         // coefficients, checked after every row so that a product that
         // would outgrow it stops early instead of running for minutes.
         let mut big_words = 0usize;
@@ -841,7 +841,7 @@ impl Expr {
         Some(it.fold((first, first), |(lo, hi), e| (lo.min(e), hi.max(e))))
     }
 
-    /// Size measure for the budget: number of terms plus the 64-bit words
+    /// Size measure for the budget: number of terms plus the size (in terms)
     /// of large coefficients.
     pub fn size(&self) -> usize {
         self.terms.iter().fold(self.terms.len(), |acc, (_, c)| {

@@ -35,6 +35,16 @@ impl Default for Limits {
     }
 }
 
+/// Bits of a large coefficient that count as one term of the budget (64
+/// bytes, about the memory of a term).
+pub const BITS_PER_TERM: u64 = 512;
+
+/// What a coefficient of `bits` bits adds to the term budget beyond its
+/// term.
+pub fn coefficient_terms(bits: u64) -> usize {
+    usize::try_from(bits / BITS_PER_TERM).unwrap_or(usize::MAX)
+}
+
 /// Term products one statement may do, per unit of the term budget.
 pub const WORK_PER_TERM: u64 = 250;
 

@@ -50,10 +50,10 @@ fn gcd_u64(mut a: u64, mut b: u64) -> u64 {
     }
 }
 
-/// Greatest common divisor of the magnitudes, by Lehmer's algorithm
-/// (Knuth, TAOCP vol. 2, §4.5.2, Algorithm L): the quotients of Euclid's
-/// algorithm are found from the leading 64 bits in machine words, and the
-/// big numbers are combined once per run of quotients. The binary algorithm
+/// Greatest common divisor of the magnitudes, by Lehmer's algorithm: the
+/// quotients of Euclid's algorithm are found from the leading 64 bits in
+/// machine words, and the big numbers are combined once per run of
+/// quotients. The binary algorithm
 /// of `num-integer` takes a step per bit (even for gcd(x, 1)), which made
 /// sums of rationals with long denominators take seconds.
 fn gcd_big(x: &BigInt, y: &BigInt) -> BigInt {

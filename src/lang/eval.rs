@@ -196,7 +196,9 @@ impl Session {
         match op {
             BinOp::Add | BinOp::Sub => {
                 let sign = if op == BinOp::Add { Q::ONE } else { Q::int(-1) };
-                match (&x, &y) {
+                // A sum is at most as large as its parts together, but a long
+                // sum of parts each within the budget is not: check it too.
+                let sum = match (&x, &y) {
                     (Value::Scalar(p), Value::Scalar(q)) => {
                         Ok(Value::Scalar(p.add_scaled(q, &sign)))
                     }
@@ -217,7 +219,9 @@ impl Session {
                         Ok(Value::Matrix(p.add_scaled(q, &sign).map_err(core)?))
                     }
                     _ => Err(kind_err(span, &opname, &x, Some(&y))),
-                }
+                }?;
+                crate::core::limits::check_terms(value_size(&sum)).map_err(core)?;
+                Ok(sum)
             }
             BinOp::Mul => match (&x, &y) {
                 (Value::Scalar(p), Value::Scalar(q)) => Ok(Value::Scalar(p.mul(q).map_err(core)?)),
@@ -646,6 +650,20 @@ impl Session {
                 ..m
             }),
         })
+    }
+}
+
+/// The size of a value in the term budget's measure (terms plus the words
+/// of large coefficients, over all entries).
+fn value_size(v: &Value) -> usize {
+    let total = |es: &[Expr]| {
+        es.iter()
+            .fold(0usize, |acc, e| acc.saturating_add(e.size()))
+    };
+    match v {
+        Value::Scalar(e) => e.size(),
+        Value::Field(f) => total(&f.field.0),
+        Value::Matrix(m) => total(&m.data),
     }
 }
 
