@@ -681,12 +681,14 @@ impl Expr {
         Ok(Expr::from_map(map))
     }
 
-    /// Multiplies by a number within the limits: a large number adds its
+    /// Multiplies by a number within the limits (one unit of work per
+    /// term, so that many small products count too): a large number adds its
     /// size to every term, which the term budget must allow before anything
     /// is built; the integer-size limit is checked on the result (at most
     /// twice the limit when both factors are within it), so that repeated
     /// products of huge numbers stop.
     fn scale_checked(&self, q: &Q) -> CoreResult<Expr> {
+        limits::add_work(self.len() as u64)?;
         let q_words = coeff_words(q);
         if q_words > 0 {
             limits::check_terms(

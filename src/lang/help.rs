@@ -25,7 +25,7 @@ const TOPICS: &[(&str, &str)] = &[
     ("run", "run FILE\n  replay a script into this session."),
     ("names", "names\n  list declarations and definitions."),
     ("forget", "forget NAME\n  remove a definition."),
-    ("set", "set budget N\n  the most terms one result may hold before the computation stops with a message."),
+    ("set", "set budget N\n  the most terms one result may hold (a large coefficient counts as a term per 64 bytes),\n  and with it the work of one statement (250*N term products), before the computation\n  stops with a message. Digits (100,000), order (40) and nesting (256) are fixed limits."),
     ("quit", "quit\n  leave the prompt (Ctrl-D too)."),
     ("builtins", "built-in functions\n  sin cos exp (of linear arguments), ad(X, Y, k), pd(h, q), jac(X), div(X), det(M), trace(M),\n  plug(e, q = v, ...), order(e, eps, k), mean(e), bch(X, Y, N), iint(u1, ...), X(h) (Lie derivative),\n  [X, Y] (Lie bracket: [X,Y](h) = X(Y(h)) - Y(X(h)))."),
 ];
