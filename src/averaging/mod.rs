@@ -17,6 +17,7 @@ use std::collections::HashMap;
 
 use crate::core::calc::{common_period, Period, TimeKey};
 use crate::core::expr::Beat;
+use crate::core::field::{bracket_sum, Prepared};
 use crate::core::{limits, CoreError, CoreResult, Expr, Field, Matrix, Sym, Q};
 use crate::series::chrono::{magnus_generator, Graded};
 
@@ -233,14 +234,22 @@ pub fn stroboscopic_by_logarithm(
 /// lower orders; `F_k` is the mean of `V_k − R_k` and
 /// `W_k = ∫_0^t (V_k − R_k − F_k)`. Every intermediate is periodic (no
 /// secular powers of t), which keeps it much smaller than the logarithm.
+///
+/// Only the averaged field is wanted: at the last order only the mean of
+/// `V_n − R_n` is used, so its brackets form only the products of equal
+/// frequencies (a product of `cos(h₁ t)` and `cos(h₂ t)` has frequencies
+/// `|h₁ − h₂|` and `h₁ + h₂`), and `W_n` is not formed. Lower orders are
+/// needed whole: `W_k` must vanish at `t = 0`, and its constant part is
+/// `Σ_h s_h / h` over every harmonic `s_h sin(h t)` of `W_k'`.
 pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> CoreResult<Vec<Field>> {
     let n = standard.len();
     let dim = states.len();
-    let zero = Field::zero(dim);
-    // a[p][m] = [ad_W^p F]_m, b[p][m] = [ad_W^p W']_m (grades 1..=n).
-    let mut a: Vec<Vec<Field>> = vec![vec![zero.clone(); n + 1]; n + 1];
-    let mut b: Vec<Vec<Field>> = vec![vec![zero.clone(); n + 1]; n + 1];
-    let mut w: Vec<Field> = vec![zero.clone(); n + 1];
+    let zero = Field::zero(dim).prepare(states)?;
+    // a[p][m] = [ad_W^p F]_m, b[p][m] = [ad_W^p W']_m (grades 1..=n), each
+    // with its derivatives: every one enters several brackets.
+    let mut a: Vec<Vec<Prepared>> = vec![vec![zero.clone(); n + 1]; n + 1];
+    let mut b: Vec<Vec<Prepared>> = vec![vec![zero.clone(); n + 1]; n + 1];
+    let mut w: Vec<Prepared> = vec![zero.clone(); n + 1];
     let mut f_out = Vec::with_capacity(n);
     let mut fact = vec![Q::ONE; n + 2];
     for i in 1..n + 2 {
@@ -248,39 +257,51 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
     }
     for k in 1..=n {
         limits::progress("stroboscopic averaging", k - 1, n);
-        let mut r = zero.clone();
+        let mut r = Field::zero(dim);
         for p in 1..k {
-            let mut acc_a = zero.clone();
-            let mut acc_b = zero.clone();
-            for j in 1..k {
-                if k - j < p || w[j].is_zero() {
-                    continue;
-                }
-                limits::poll()?;
-                if !a[p - 1][k - j].is_zero() {
-                    acc_a = acc_a.add(&w[j].bracket(&a[p - 1][k - j], states)?)?;
-                }
-                if !b[p - 1][k - j].is_zero() {
-                    acc_b = acc_b.add(&w[j].bracket(&b[p - 1][k - j], states)?)?;
-                }
-            }
+            limits::poll()?;
+            // [ad_W^p F]_k = Σ_j [W_j, [ad_W^{p-1} F]_{k-j}], likewise for W'.
+            let cap = (k == n).then_some(&Q::ZERO);
+            let acc_a = bracket_sum(&grade_pairs(&w, &a[p - 1], k, p), states, cap)?;
+            let acc_b = bracket_sum(&grade_pairs(&w, &b[p - 1], k, p), states, cap)?;
             let sign = if p % 2 == 0 { Q::ONE } else { Q::int(-1) };
             let ca = sign.mul(&fact[p].recip().unwrap_or(Q::ZERO));
             let cb = sign.mul(&fact[p + 1].recip().unwrap_or(Q::ZERO));
             r = r.add_scaled(&acc_a, &ca)?.add_scaled(&acc_b, &cb)?;
-            a[p][k] = acc_a;
-            b[p][k] = acc_b;
+            if k < n {
+                a[p][k] = acc_a.prepare(states)?;
+                b[p][k] = acc_b.prepare(states)?;
+            }
         }
         let rest = standard[k - 1].sub(&r)?;
         let fk = rest.map(|e| e.mean_over(period))?;
+        if k == n {
+            f_out.push(fk);
+            break;
+        }
         let wk_dot = rest.sub(&fk)?;
-        w[k] = wk_dot.map(|e| e.integral_from_zero())?;
-        limits::check_terms(w[k].n_terms())?;
-        a[0][k] = fk.clone();
-        b[0][k] = wk_dot;
+        let wk = wk_dot.map(|e| e.integral_from_zero())?;
+        limits::check_terms(wk.n_terms())?;
+        w[k] = wk.prepare(states)?;
+        a[0][k] = fk.prepare(states)?;
+        b[0][k] = wk_dot.prepare(states)?;
         f_out.push(fk);
     }
     Ok(f_out)
+}
+
+/// The pairs `(W_j, c_{k-j})` with nonzero members and `k - j ≥ p` (the
+/// lowest grade of `ad_W^{p-1}` terms is `p`).
+fn grade_pairs<'a>(
+    w: &'a [Prepared],
+    c: &'a [Prepared],
+    k: usize,
+    p: usize,
+) -> Vec<(&'a Prepared, &'a Prepared)> {
+    (1..k)
+        .filter(|&j| k - j >= p && !w[j].is_zero() && !c[k - j].is_zero())
+        .map(|j| (&w[j], &c[k - j]))
+        .collect()
 }
 
 /// Fresh copies of the state symbols, used to freeze the generator while

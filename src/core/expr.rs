@@ -146,6 +146,158 @@ fn log2_size(c: &Q) -> f64 {
     }
 }
 
+/// A sum of products under construction: every term product goes straight
+/// into one hash map and the normal form (sorting) is built once, by
+/// [`Acc::finish`]. Sums of many products (Lie derivatives, brackets, sums
+/// of brackets) cost the products only, not a sorted intermediate and a
+/// merge per product.
+///
+/// Limits are those of [`Expr::mul`]: each product counts `|a|·|b|` units of
+/// work, and the accumulated terms plus the size of large coefficients are
+/// checked against the term budget after every row of a product.
+#[derive(Debug, Default)]
+pub struct Acc {
+    map: FxHashMap<Key, Q>,
+    big_words: usize,
+}
+
+impl Acc {
+    /// An empty sum.
+    pub fn new() -> Acc {
+        Acc::default()
+    }
+
+    /// An empty sum with room for about `n` terms.
+    pub fn with_capacity(n: usize) -> Acc {
+        Acc {
+            map: FxHashMap::with_capacity_and_hasher(n.min(1 << 16), Default::default()),
+            big_words: 0,
+        }
+    }
+
+    /// Number of distinct terms so far (zeros included until `finish`).
+    pub fn len(&self) -> usize {
+        self.map.len()
+    }
+
+    /// True if and only if nothing was added.
+    pub fn is_empty(&self) -> bool {
+        self.map.is_empty()
+    }
+
+    fn insert(&mut self, k: Key, c: Q) {
+        match self.map.entry(k) {
+            std::collections::hash_map::Entry::Occupied(mut e) => {
+                let v = e.get().add(&c);
+                self.big_words = self.big_words.saturating_sub(coeff_words(e.get()));
+                self.big_words += coeff_words(&v);
+                *e.get_mut() = v;
+            }
+            std::collections::hash_map::Entry::Vacant(e) => {
+                self.big_words += coeff_words(&c);
+                e.insert(c);
+            }
+        }
+    }
+
+    fn check_budget(&self) -> CoreResult<()> {
+        let max_terms = limits::limits().max_terms;
+        if self.map.len().saturating_add(self.big_words) > max_terms {
+            return Err(CoreError::Limit {
+                kind: LimitKind::Terms,
+                limit: max_terms as u64,
+            });
+        }
+        Ok(())
+    }
+
+    /// `self += ±e` (one unit of work per term).
+    pub fn add_expr(&mut self, e: &Expr, negate: bool) -> CoreResult<()> {
+        limits::add_work(e.len() as u64)?;
+        for (k, c) in &e.terms {
+            self.insert(k.clone(), if negate { c.neg() } else { c.clone() });
+        }
+        self.check_budget()?;
+        limits::check_bits(e.max_coeff_bits())
+    }
+
+    /// `self += ±a·b`.
+    pub fn add_product(&mut self, a: &Expr, b: &Expr, negate: bool) -> CoreResult<()> {
+        self.product(a, b, negate, None)
+    }
+
+    /// `self += ±a·b` for expressions split by frequency, keeping only
+    /// the terms whose time frequency is at most `cap` (all when `None`).
+    /// Pairs of parts whose frequencies differ by more than `cap` cannot
+    /// give such a term (cos(h₁t)cos(h₂t) has frequencies |h₁ − h₂| and
+    /// h₁ + h₂) and are skipped without multiplying.
+    pub fn add_product_harmonics(
+        &mut self,
+        a: &[(Q, Expr)],
+        b: &[(Q, Expr)],
+        negate: bool,
+        cap: Option<&Q>,
+    ) -> CoreResult<()> {
+        for (ha, ea) in a {
+            for (hb, eb) in b {
+                match cap {
+                    None => self.product(ea, eb, negate, None)?,
+                    Some(c) => {
+                        if ha.sub(hb).abs() > *c {
+                            continue;
+                        }
+                        let all_below = ha.add(hb) <= *c;
+                        self.product(ea, eb, negate, if all_below { None } else { Some(c) })?;
+                    }
+                }
+            }
+        }
+        Ok(())
+    }
+
+    /// `self += ±a·b`, dropping product terms of time frequency above `cap`.
+    fn product(&mut self, a: &Expr, b: &Expr, negate: bool, cap: Option<&Q>) -> CoreResult<()> {
+        if a.is_zero() || b.is_zero() {
+            return Ok(());
+        }
+        let (a, b) = if a.len() <= b.len() { (a, b) } else { (b, a) };
+        // The work: |a|·|b| term products (arithmetic on large coefficients
+        // is counted by the numbers themselves). When products collide
+        // (trigonometric factors, cancellations) the result can stay within
+        // the budget while the work grows with its square: count it too.
+        limits::add_work((a.len() as u64).saturating_mul(b.len() as u64))?;
+        let mut max_bits = 0u64;
+        // The budget counts terms plus the size of large coefficients,
+        // checked after every row so that a product that would outgrow it
+        // stops early instead of running for minutes.
+        for (n, (ka, ca)) in a.terms.iter().enumerate() {
+            if n % 64 == 0 {
+                limits::poll()?;
+            }
+            let ca = if negate { ca.neg() } else { ca.clone() };
+            for (kb, cb) in &b.terms {
+                ka.mul_into(&ca, kb, cb, &mut |k, c| {
+                    if cap.is_some_and(|cap| k.beat.frequency() > *cap) {
+                        return;
+                    }
+                    if let Q::Big(_) = c {
+                        max_bits = max_bits.max(c.bits());
+                    }
+                    self.insert(k, c);
+                })?;
+            }
+            self.check_budget()?;
+            limits::check_bits(max_bits)?;
+        }
+        Ok(())
+    }
+
+    /// The sum in normal form.
+    pub fn finish(self) -> Expr {
+        Expr::from_map(self.map)
+    }
+}
+
 fn exp_overflow() -> CoreError {
     CoreError::Limit {
         kind: LimitKind::Exponent,
@@ -311,6 +463,20 @@ fn beat_mul(a: &Beat, b: &Beat) -> SmallVec<[(Q, Beat); 2]> {
     }
     out
 }
+
+impl Beat {
+    /// The frequency `k` of `cos(k t)`/`sin(k t)`; 0 for no time factor.
+    pub fn frequency(&self) -> Q {
+        match self {
+            Beat::One => Q::ZERO,
+            Beat::Cos(k) | Beat::Sin(k) => k.clone(),
+        }
+    }
+}
+
+/// An expression split by the frequency of its time factor: `(k, part)`
+/// with increasing `k`, every part nonzero (see [`Expr::by_frequency`]).
+pub type Harmonics = Vec<(Q, Expr)>;
 
 impl Key {
     /// The key of the constant 1.
@@ -620,65 +786,10 @@ impl Expr {
         if let Some(q) = other.as_number() {
             return self.scale_checked(&q);
         }
-        let (a, b) = if self.len() <= other.len() {
-            (self, other)
-        } else {
-            (other, self)
-        };
-        let max_terms = limits::limits().max_terms;
-        // The work: |a|·|b| term products (arithmetic on large coefficients
-        // is counted by the numbers themselves). When products collide
-        // (trigonometric factors, cancellations) the result can stay within
-        // the budget while the work grows with its square: count it too.
-        limits::add_work((a.len() as u64).saturating_mul(b.len() as u64))?;
-        let mut map: FxHashMap<Key, Q> = FxHashMap::with_capacity_and_hasher(
-            (2 * (a.len() + b.len()))
-                .min(a.len() * b.len())
-                .min(1 << 16),
-            Default::default(),
-        );
-        let mut budget_hit = false;
-        let mut max_bits = 0u64;
-        // The budget counts terms plus the size of large
-        // coefficients, checked after every row so that a product that
-        // would outgrow it stops early instead of running for minutes.
-        let mut big_words = 0usize;
-        for (n, (ka, ca)) in a.terms.iter().enumerate() {
-            if n % 64 == 0 {
-                limits::poll()?;
-            }
-            for (kb, cb) in &b.terms {
-                ka.mul_into(ca, kb, cb, &mut |k, c| {
-                    if let Q::Big(_) = c {
-                        max_bits = max_bits.max(c.bits());
-                    }
-                    match map.entry(k) {
-                        std::collections::hash_map::Entry::Occupied(mut e) => {
-                            let v = e.get().add(&c);
-                            big_words = big_words.saturating_sub(coeff_words(e.get()));
-                            big_words += coeff_words(&v);
-                            *e.get_mut() = v;
-                        }
-                        std::collections::hash_map::Entry::Vacant(e) => {
-                            big_words += coeff_words(&c);
-                            e.insert(c);
-                        }
-                    }
-                })?;
-            }
-            if map.len().saturating_add(big_words) > max_terms {
-                budget_hit = true;
-                break;
-            }
-            limits::check_bits(max_bits)?;
-        }
-        if budget_hit {
-            return Err(CoreError::Limit {
-                kind: LimitKind::Terms,
-                limit: max_terms as u64,
-            });
-        }
-        Ok(Expr::from_map(map))
+        let mut acc =
+            Acc::with_capacity((2 * (self.len() + other.len())).min(self.len() * other.len()));
+        acc.add_product(self, other, false)?;
+        Ok(acc.finish())
     }
 
     /// Multiplies by a number within the limits (one unit of work per
@@ -816,6 +927,23 @@ impl Expr {
                 .cloned()
                 .collect(),
         }
+    }
+
+    /// The expression split by the frequency of its time factor (0 for
+    /// none), frequencies increasing; the parts sum to `self`.
+    pub fn by_frequency(&self) -> Harmonics {
+        let mut parts: std::collections::BTreeMap<Q, Vec<(Key, Q)>> = Default::default();
+        for (k, c) in &self.terms {
+            parts
+                .entry(k.beat.frequency())
+                .or_default()
+                .push((k.clone(), c.clone()));
+        }
+        // Each part is a subsequence of sorted terms: still sorted.
+        parts
+            .into_iter()
+            .map(|(h, terms)| (h, Expr { terms }))
+            .collect()
     }
 
     /// Maps each term to a new (key, coefficient); the keys need not stay

@@ -7,7 +7,7 @@
 //! flow `(Φ^Y_s)^* X = Σ s^k/k! ad_Y^k X`.
 
 use super::error::{CoreError, CoreResult};
-use super::expr::Expr;
+use super::expr::{Acc, Expr, Harmonics};
 use super::limits;
 use super::num::Q;
 use super::symbol::Sym;
@@ -118,19 +118,14 @@ impl Field {
     /// The Lie derivative `X(h) = Σ X_i ∂h/∂x_i`.
     pub fn lie_derivative(&self, h: &Expr, states: &[Sym]) -> CoreResult<Expr> {
         self.check_states(states)?;
-        let mut acc = Expr::zero();
+        let mut acc = Acc::new();
         for (xi, s) in self.0.iter().zip(states) {
             if xi.is_zero() {
                 continue;
             }
-            let d = h.pd(*s);
-            if d.is_zero() {
-                continue;
-            }
-            acc = acc.add(&xi.mul(&d)?);
-            limits::check_terms(acc.len())?;
+            acc.add_product(xi, &h.pd(*s), false)?;
         }
-        Ok(acc)
+        Ok(acc.finish())
     }
 
     fn check_states(&self, states: &[Sym]) -> CoreResult<()> {
@@ -146,51 +141,23 @@ impl Field {
         Ok(())
     }
 
+    /// The field with its first partial derivatives, for brackets that use
+    /// it more than once (see [`bracket_sum`]).
+    pub fn prepare(&self, states: &[Sym]) -> CoreResult<Prepared> {
+        self.check_states(states)?;
+        let d = self
+            .0
+            .iter()
+            .map(|xi| states.iter().map(|s| xi.pd(*s).by_frequency()).collect())
+            .collect();
+        Ok(Prepared::new(self.clone(), d))
+    }
+
     /// The Lie bracket `[self, other] = D(other)·self − D(self)·other`.
     pub fn bracket(&self, other: &Field, states: &[Sym]) -> CoreResult<Field> {
         self.same_dim(other)?;
-        self.check_states(states)?;
-        let component = |i: usize| -> CoreResult<Expr> {
-            let a = self.lie_derivative(&other.0[i], states)?;
-            let b = other.lie_derivative(&self.0[i], states)?;
-            Ok(a.sub(&b))
-        };
-        let n = self.dim();
-        // Large brackets: the components are independent, so compute them on
-        // the available cores (each worker gets this thread's limits and
-        // counts its work against this statement).
-        let work = self.n_terms().saturating_mul(other.n_terms());
-        let workers = parallelism().min(n);
-        if workers > 1 && work >= PARALLEL_WORK {
-            let ctx = limits::context();
-            let results: Vec<CoreResult<Vec<(usize, Expr)>>> = std::thread::scope(|scope| {
-                let handles: Vec<_> = (0..workers)
-                    .map(|w| {
-                        let component = &component;
-                        let ctx = ctx.clone();
-                        scope.spawn(move || {
-                            limits::enter(ctx);
-                            (w..n)
-                                .step_by(workers)
-                                .map(|i| Ok((i, component(i)?)))
-                                .collect()
-                        })
-                    })
-                    .collect();
-                handles
-                    .into_iter()
-                    .map(|h| h.join().unwrap_or(Err(CoreError::Interrupted)))
-                    .collect()
-            });
-            let mut out = vec![Expr::zero(); n];
-            for r in results {
-                for (i, e) in r? {
-                    out[i] = e;
-                }
-            }
-            return Ok(Field(out));
-        }
-        Ok(Field((0..n).map(component).collect::<CoreResult<_>>()?))
+        let (x, y) = (self.prepare(states)?, other.prepare(states)?);
+        bracket_sum(&[(&x, &y)], states, None)
     }
 
     /// `ad_self^k other`.
@@ -249,6 +216,104 @@ impl Field {
         let ended = y.bracket(&term, states)?.is_zero();
         Ok((acc, ended))
     }
+}
+
+/// A field together with its first partial derivatives
+/// (`d[i][s] = ∂X_i/∂x_s`), computed once for fields that enter many
+/// brackets (the generators of the averaging recursions). Components and
+/// derivatives are kept split by time frequency, for brackets that only
+/// want low harmonics.
+#[derive(Clone, Debug, Default)]
+pub struct Prepared {
+    field: Field,
+    parts: Vec<Harmonics>,
+    d: Vec<Vec<Harmonics>>,
+}
+
+impl Prepared {
+    fn new(field: Field, d: Vec<Vec<Harmonics>>) -> Prepared {
+        let parts = field.0.iter().map(Expr::by_frequency).collect();
+        Prepared { field, parts, d }
+    }
+
+    /// The field.
+    pub fn field(&self) -> &Field {
+        &self.field
+    }
+
+    /// The field, giving up the derivatives.
+    pub fn into_field(self) -> Field {
+        self.field
+    }
+
+    /// True if and only if the field is zero.
+    pub fn is_zero(&self) -> bool {
+        self.field.is_zero()
+    }
+}
+
+/// `Σ_m [X_m, Y_m]` for prepared pairs, with one accumulator per component:
+/// `Σ_m Σ_s (X_m)_s ∂_s (Y_m)_i − (Y_m)_s ∂_s (X_m)_i`. Every term product
+/// goes into that accumulator, so a sum of brackets costs its products and
+/// one normal form per component. With `cap`, only the terms whose time
+/// frequency is at most `cap` are formed (products that cannot reach them
+/// are skipped). Large sums split their components over the available
+/// cores (each worker gets this thread's limits and counts its work
+/// against this statement).
+pub fn bracket_sum(
+    pairs: &[(&Prepared, &Prepared)],
+    states: &[Sym],
+    cap: Option<&Q>,
+) -> CoreResult<Field> {
+    let n = states.len();
+    for (x, y) in pairs {
+        x.field.check_states(states)?;
+        y.field.check_states(states)?;
+    }
+    let component = |i: usize| -> CoreResult<Expr> {
+        let mut acc = Acc::new();
+        for (x, y) in pairs {
+            for s in 0..n {
+                acc.add_product_harmonics(&x.parts[s], &y.d[i][s], false, cap)?;
+                acc.add_product_harmonics(&y.parts[s], &x.d[i][s], true, cap)?;
+            }
+        }
+        Ok(acc.finish())
+    };
+    let work = pairs.iter().fold(0usize, |w, (x, y)| {
+        w.saturating_add(x.field.n_terms().saturating_mul(y.field.n_terms()))
+    });
+    let workers = parallelism().min(n);
+    if workers > 1 && work >= PARALLEL_WORK {
+        let ctx = limits::context();
+        let results: Vec<CoreResult<Vec<(usize, Expr)>>> = std::thread::scope(|scope| {
+            let handles: Vec<_> = (0..workers)
+                .map(|w| {
+                    let component = &component;
+                    let ctx = ctx.clone();
+                    scope.spawn(move || {
+                        limits::enter(ctx);
+                        (w..n)
+                            .step_by(workers)
+                            .map(|i| Ok((i, component(i)?)))
+                            .collect()
+                    })
+                })
+                .collect();
+            handles
+                .into_iter()
+                .map(|h| h.join().unwrap_or(Err(CoreError::Interrupted)))
+                .collect()
+        });
+        let mut out = vec![Expr::zero(); n];
+        for r in results {
+            for (i, e) in r? {
+                out[i] = e;
+            }
+        }
+        return Ok(Field(out));
+    }
+    Ok(Field((0..n).map(component).collect::<CoreResult<_>>()?))
 }
 
 impl Matrix {
