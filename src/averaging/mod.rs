@@ -283,7 +283,7 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
         let wk = wk_dot.map(|e| e.integral_from_zero())?;
         limits::check_terms(wk.n_terms())?;
         w[k] = wk.prepare(states)?;
-        a[0][k] = fk.prepare(states)?;
+        a[0][k] = fk.clone().prepare(states)?;
         b[0][k] = wk_dot.prepare(states)?;
         f_out.push(fk);
     }

@@ -409,6 +409,16 @@ fn sin_beat(k: Q) -> Option<(bool, Beat)> {
     }
 }
 
+/// `c·f` for a factor of the product-to-sum identities (1 or ±1/2).
+fn times_factor(c: Q, f: &Q) -> Q {
+    match f {
+        Q::Small(1, 1) => c,
+        Q::Small(1, 2) => c.half(),
+        Q::Small(-1, 2) => c.half().neg(),
+        _ => c.mul(f),
+    }
+}
+
 /// Product of two waves as at most two (coefficient factor, wave) pairs.
 fn wave_mul(a: &Wave, b: &Wave) -> SmallVec<[(Q, Wave); 2]> {
     let half = Q::Small(1, 2);
@@ -475,7 +485,7 @@ impl Beat {
 }
 
 /// An expression split by the frequency of its time factor: `(k, part)`
-/// with increasing `k`, every part nonzero (see [`Expr::by_frequency`]).
+/// with increasing `k`, every part nonzero (see [`Expr::into_by_frequency`]).
 pub type Harmonics = Vec<(Q, Expr)>;
 
 impl Key {
@@ -520,13 +530,7 @@ impl Key {
             // The common case: move everything, no clones.
             let (cw, wave) = waves.swap_remove(0);
             let (cbt, beat) = beats.swap_remove(0);
-            let mut cc = c;
-            if !cw.is_one() {
-                cc = cc.mul(&cw);
-            }
-            if !cbt.is_one() {
-                cc = cc.mul(&cbt);
-            }
+            let cc = times_factor(times_factor(c, &cw), &cbt);
             out(
                 Key {
                     mono,
@@ -540,13 +544,7 @@ impl Key {
         }
         for (cw, w) in &waves {
             for (cbt, bt) in &beats {
-                let mut cc = c.clone();
-                if !cw.is_one() {
-                    cc = cc.mul(cw);
-                }
-                if !cbt.is_one() {
-                    cc = cc.mul(cbt);
-                }
+                let cc = times_factor(times_factor(c.clone(), cw), cbt);
                 out(
                     Key {
                         mono: mono.clone(),
@@ -931,19 +929,23 @@ impl Expr {
 
     /// The expression split by the frequency of its time factor (0 for
     /// none), frequencies increasing; the parts sum to `self`.
-    pub fn by_frequency(&self) -> Harmonics {
-        let mut parts: std::collections::BTreeMap<Q, Vec<(Key, Q)>> = Default::default();
-        for (k, c) in &self.terms {
-            parts
-                .entry(k.beat.frequency())
-                .or_default()
-                .push((k.clone(), c.clone()));
+    pub fn into_by_frequency(self) -> Harmonics {
+        let mut parts: Harmonics = Vec::new();
+        for (k, c) in self.terms {
+            let h = k.beat.frequency();
+            match parts.iter_mut().find(|(x, _)| *x == h) {
+                Some((_, e)) => e.terms.push((k, c)),
+                None => parts.push((
+                    h,
+                    Expr {
+                        terms: vec![(k, c)],
+                    },
+                )),
+            }
         }
         // Each part is a subsequence of sorted terms: still sorted.
+        parts.sort_by(|a, b| a.0.cmp(&b.0));
         parts
-            .into_iter()
-            .map(|(h, terms)| (h, Expr { terms }))
-            .collect()
     }
 
     /// Maps each term to a new (key, coefficient); the keys need not stay

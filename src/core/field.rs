@@ -143,20 +143,30 @@ impl Field {
 
     /// The field with its first partial derivatives, for brackets that use
     /// it more than once (see [`bracket_sum`]).
-    pub fn prepare(&self, states: &[Sym]) -> CoreResult<Prepared> {
+    pub fn prepare(self, states: &[Sym]) -> CoreResult<Prepared> {
         self.check_states(states)?;
+        let n_terms = self.n_terms();
         let d = self
             .0
             .iter()
-            .map(|xi| states.iter().map(|s| xi.pd(*s).by_frequency()).collect())
+            .map(|xi| {
+                states
+                    .iter()
+                    .map(|s| xi.pd(*s).into_by_frequency())
+                    .collect()
+            })
             .collect();
-        Ok(Prepared::new(self.clone(), d))
+        let parts = self.0.into_iter().map(Expr::into_by_frequency).collect();
+        Ok(Prepared { parts, d, n_terms })
     }
 
     /// The Lie bracket `[self, other] = D(other)·self − D(self)·other`.
     pub fn bracket(&self, other: &Field, states: &[Sym]) -> CoreResult<Field> {
         self.same_dim(other)?;
-        let (x, y) = (self.prepare(states)?, other.prepare(states)?);
+        let (x, y) = (
+            self.clone().prepare(states)?,
+            other.clone().prepare(states)?,
+        );
         bracket_sum(&[(&x, &y)], states, None)
     }
 
@@ -225,30 +235,20 @@ impl Field {
 /// want low harmonics.
 #[derive(Clone, Debug, Default)]
 pub struct Prepared {
-    field: Field,
     parts: Vec<Harmonics>,
     d: Vec<Vec<Harmonics>>,
+    n_terms: usize,
 }
 
 impl Prepared {
-    fn new(field: Field, d: Vec<Vec<Harmonics>>) -> Prepared {
-        let parts = field.0.iter().map(Expr::by_frequency).collect();
-        Prepared { field, parts, d }
-    }
-
-    /// The field.
-    pub fn field(&self) -> &Field {
-        &self.field
-    }
-
-    /// The field, giving up the derivatives.
-    pub fn into_field(self) -> Field {
-        self.field
+    /// Number of terms of the field.
+    pub fn n_terms(&self) -> usize {
+        self.n_terms
     }
 
     /// True if and only if the field is zero.
     pub fn is_zero(&self) -> bool {
-        self.field.is_zero()
+        self.n_terms == 0
     }
 }
 
@@ -267,8 +267,15 @@ pub fn bracket_sum(
 ) -> CoreResult<Field> {
     let n = states.len();
     for (x, y) in pairs {
-        x.field.check_states(states)?;
-        y.field.check_states(states)?;
+        if x.parts.len() != n || y.parts.len() != n {
+            return Err(CoreError::Dimension {
+                what: format!(
+                    "a bracket of fields of dimension {} and {} on {n} state coordinates",
+                    x.parts.len(),
+                    y.parts.len()
+                ),
+            });
+        }
     }
     let component = |i: usize| -> CoreResult<Expr> {
         let mut acc = Acc::new();
@@ -281,7 +288,7 @@ pub fn bracket_sum(
         Ok(acc.finish())
     };
     let work = pairs.iter().fold(0usize, |w, (x, y)| {
-        w.saturating_add(x.field.n_terms().saturating_mul(y.field.n_terms()))
+        w.saturating_add(x.n_terms.saturating_mul(y.n_terms))
     });
     let workers = parallelism().min(n);
     if workers > 1 && work >= PARALLEL_WORK {

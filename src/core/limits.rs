@@ -157,6 +157,12 @@ pub fn add_work(products: u64) -> Result<(), CoreError> {
     Ok(())
 }
 
+/// Term products counted so far for the current statement (`None` when no
+/// statement is being counted); benchmarks read it to report the work.
+pub fn work_done() -> Option<u64> {
+    WORK.with(|w| w.borrow().as_ref().map(|c| c.load(Ordering::Relaxed)))
+}
+
 /// Checks a term count against the budget.
 pub fn check_terms(n_terms: usize) -> Result<(), CoreError> {
     let max = limits().max_terms;

@@ -382,6 +382,20 @@ impl Q {
         self.add(&other.neg())
     }
 
+    /// Half of the value (the factor of every product-to-sum identity),
+    /// without a gcd in machine words.
+    pub fn half(&self) -> Q {
+        match self {
+            // gcd(n, d) = 1: an even n means an odd d, an odd n stays prime to 2d.
+            Q::Small(n, d) if n % 2 == 0 => Q::Small(n / 2, *d),
+            Q::Small(n, d) => match d.checked_mul(2) {
+                Some(d2) => Q::Small(*n, d2),
+                None => self.mul(&Q::Small(1, 2)),
+            },
+            Q::Big(_) => self.mul(&Q::Small(1, 2)),
+        }
+    }
+
     /// Negation.
     pub fn neg(&self) -> Q {
         match self {
