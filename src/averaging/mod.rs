@@ -230,50 +230,46 @@ pub fn stroboscopic_by_logarithm(
 ///
 /// With operators on functions, `P_t = exp(tF) ∘ exp(W_t)` and
 /// `P_t' = P_t ∘ V_t` give `V = e^{−ad_W} F + Σ_{n≥0} (−1)^n/(n+1)! ad_W^n W'`,
-/// so order by order `W_k' + F_k = V_k − R_k` with `R_k` made of brackets of
-/// lower orders; `F_k` is the mean of `V_k − R_k` and
-/// `W_k = ∫_0^t (V_k − R_k − F_k)`. Every intermediate is periodic (no
-/// secular powers of t), which keeps it much smaller than the logarithm.
+/// that is `V = Σ_{p≥0} (−1)^p ad_W^p U_p` with `U_p = F/p! + W'/(p+1)!`.
+/// The brackets are summed in Horner form, `H_p = U_p − ad_W H_{p+1}`, so
+/// that `V = F + W' − ad_W H_1`: one chain of brackets instead of one for
+/// `F` and one for `W'`. By grades, `R_k = −Σ_j [W_j, H_{1,k−j}]` uses
+/// lower orders only; `F_k` is the mean of `V_k − R_k`,
+/// `W_k = ∫_0^t (V_k − R_k − F_k)`, and then
+/// `H_{p,k} = U_{p,k} − Σ_j [W_j, H_{p+1,k−j}]` for `p + k ≤ n`. Every
+/// intermediate is periodic (no secular powers of t), which keeps it much
+/// smaller than the logarithm.
 ///
 /// Only the averaged field is wanted: at the last order only the mean of
 /// `V_n − R_n` is used, so its brackets form only the products of equal
 /// frequencies (a product of `cos(h₁ t)` and `cos(h₂ t)` has frequencies
-/// `|h₁ − h₂|` and `h₁ + h₂`), and `W_n` is not formed. Lower orders are
-/// needed whole: `W_k` must vanish at `t = 0`, and its constant part is
-/// `Σ_h s_h / h` over every harmonic `s_h sin(h t)` of `W_k'`.
+/// `|h₁ − h₂|` and `h₁ + h₂`), and `W_n` is not formed. Likewise `H_{p,k}`
+/// with `p + k = n` reaches `F_n` only through `p` brackets with `W_1` and
+/// the mean, so only its harmonics up to `p` times the highest frequency of
+/// `W_1` are formed. Other quantities are needed whole: `W_k` must vanish at
+/// `t = 0`, and its constant part is `Σ_h s_h / h` over every harmonic
+/// `s_h sin(h t)` of `W_k'`.
 pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> CoreResult<Vec<Field>> {
     let n = standard.len();
     let dim = states.len();
     let zero = Field::zero(dim).prepare(states)?;
-    // a[p][m] = [ad_W^p F]_m, b[p][m] = [ad_W^p W']_m (grades 1..=n), each
-    // with its derivatives: every one enters several brackets.
-    let mut a: Vec<Vec<Prepared>> = vec![vec![zero.clone(); n + 1]; n + 1];
-    let mut b: Vec<Vec<Prepared>> = vec![vec![zero.clone(); n + 1]; n + 1];
+    // w[j] = W_j and h[p][m] = H_{p,m} (p + m ≤ n), with their derivatives:
+    // each enters several brackets.
     let mut w: Vec<Prepared> = vec![zero.clone(); n + 1];
+    let mut h: Vec<Vec<Prepared>> = vec![vec![zero; n + 1]; n + 2];
     let mut f_out = Vec::with_capacity(n);
     let mut fact = vec![Q::ONE; n + 2];
     for i in 1..n + 2 {
         fact[i] = fact[i - 1].mul(&Q::int(i as i64));
     }
+    // The highest frequency in W_1.
+    let mut rho1 = Q::ZERO;
     for k in 1..=n {
         limits::progress("stroboscopic averaging", k - 1, n);
-        let mut r = Field::zero(dim);
-        for p in 1..k {
-            limits::poll()?;
-            // [ad_W^p F]_k = Σ_j [W_j, [ad_W^{p-1} F]_{k-j}], likewise for W'.
-            let cap = (k == n).then_some(&Q::ZERO);
-            let acc_a = bracket_sum(&grade_pairs(&w, &a[p - 1], k, p), states, cap)?;
-            let acc_b = bracket_sum(&grade_pairs(&w, &b[p - 1], k, p), states, cap)?;
-            let sign = if p % 2 == 0 { Q::ONE } else { Q::int(-1) };
-            let ca = sign.mul(&fact[p].recip().unwrap_or(Q::ZERO));
-            let cb = sign.mul(&fact[p + 1].recip().unwrap_or(Q::ZERO));
-            r = r.add_scaled(&acc_a, &ca)?.add_scaled(&acc_b, &cb)?;
-            if k < n {
-                a[p][k] = acc_a.prepare(states)?;
-                b[p][k] = acc_b.prepare(states)?;
-            }
-        }
-        let rest = standard[k - 1].sub(&r)?;
+        limits::poll()?;
+        // V_k − R_k = V_k + Σ_j [W_j, H_{1,k−j}]; at the last order only its mean.
+        let cap = (k == n).then_some(&Q::ZERO);
+        let rest = standard[k - 1].add(&bracket_sum(&grade_pairs(&w, &h[1], k), states, cap)?)?;
         let fk = rest.map(|e| e.mean_over(period))?;
         if k == n {
             f_out.push(fk);
@@ -283,23 +279,43 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
         let wk = wk_dot.map(|e| e.integral_from_zero())?;
         limits::check_terms(wk.n_terms())?;
         w[k] = wk.prepare(states)?;
-        a[0][k] = fk.clone().prepare(states)?;
-        b[0][k] = wk_dot.prepare(states)?;
+        if k == 1 {
+            rho1 = w[1]
+                .parts()
+                .iter()
+                .flat_map(|c| c.iter().map(|(h, _)| h.clone()))
+                .max()
+                .unwrap_or(Q::ZERO);
+        }
+        for p in 1..=n - k {
+            limits::poll()?;
+            // On the last diagonal (p + k = n), H_{p,k} reaches F_n only
+            // through p brackets with W_1 and the mean: frequencies above
+            // p times those of W_1 cannot get there.
+            let cap = (p + k == n).then(|| rho1.mul(&Q::int(p as i64)));
+            let u = fk
+                .scale(&fact[p].recip().unwrap_or(Q::ZERO))
+                .add_scaled(&wk_dot, &fact[p + 1].recip().unwrap_or(Q::ZERO))?;
+            let u = match &cap {
+                Some(c) => u.map(|e| Ok(e.filter(|key, _| key.beat.frequency() <= *c)))?,
+                None => u,
+            };
+            let inner = bracket_sum(&grade_pairs(&w, &h[p + 1], k), states, cap.as_ref())?;
+            h[p][k] = u.sub(&inner)?.prepare(states)?;
+        }
         f_out.push(fk);
     }
     Ok(f_out)
 }
 
-/// The pairs `(W_j, c_{k-j})` with nonzero members and `k - j ≥ p` (the
-/// lowest grade of `ad_W^{p-1}` terms is `p`).
+/// The pairs `(W_j, c_{k−j})`, `1 ≤ j < k`, with nonzero members.
 fn grade_pairs<'a>(
     w: &'a [Prepared],
     c: &'a [Prepared],
     k: usize,
-    p: usize,
 ) -> Vec<(&'a Prepared, &'a Prepared)> {
     (1..k)
-        .filter(|&j| k - j >= p && !w[j].is_zero() && !c[k - j].is_zero())
+        .filter(|&j| !w[j].is_zero() && !c[k - j].is_zero())
         .map(|j| (&w[j], &c[k - j]))
         .collect()
 }

@@ -241,6 +241,11 @@ pub struct Prepared {
 }
 
 impl Prepared {
+    /// The components, split by time frequency.
+    pub fn parts(&self) -> &[Harmonics] {
+        &self.parts
+    }
+
     /// Number of terms of the field.
     pub fn n_terms(&self) -> usize {
         self.n_terms
