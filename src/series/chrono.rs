@@ -13,6 +13,7 @@
 use std::collections::HashMap;
 
 use crate::core::calc::Period;
+use crate::core::field::{bracket_sum, Prepared};
 use crate::core::{limits, CoreError, CoreResult, Expr, Field, Sym, Q};
 
 /// A graded time-varying field: `parts[j-1]` has grade `j`.
@@ -122,34 +123,37 @@ pub fn magnus_generator(v: &Graded, n: usize, states: &[Sym]) -> CoreResult<Vec<
     limits::check_order(n as u64)?;
     let dim = states.len();
     let beta = beta_coefficients(n);
-    // a[p][m]: Σ over ad_{W_k1}…ad_{W_kp} V_j with k1+…+kp+j = m.
-    let mut a: Vec<Vec<Field>> = vec![vec![Field::zero(dim); n + 1]; n + 1];
+    let zero = Field::zero(dim).prepare(states)?;
+    // a[p][m]: Σ over ad_{W_k1}…ad_{W_kp} V_j with k1+…+kp+j = m, and the
+    // generator's grades, with their derivatives (each enters several
+    // brackets); a sum of brackets goes into one accumulator.
+    let mut a: Vec<Vec<Prepared>> = vec![vec![zero.clone(); n + 1]; n + 1];
+    let mut wp: Vec<Prepared> = vec![zero; n + 1];
     let mut w: Vec<Field> = vec![Field::zero(dim); n + 1];
     for m in 1..=n {
         limits::progress("chronological logarithm", m - 1, n);
-        a[0][m] = v.grade(m).cloned().unwrap_or_else(|| Field::zero(dim));
+        let vm = v.grade(m).cloned().unwrap_or_else(|| Field::zero(dim));
+        let mut dw = vm.scale(&beta[0]);
+        a[0][m] = vm.prepare(states)?;
         for p in 1..m {
-            let mut acc = Field::zero(dim);
-            for k in 1..m {
-                if m - k < p || w[k].is_zero() || a[p - 1][m - k].is_zero() {
-                    continue;
-                }
-                limits::poll()?;
-                let b = w[k].bracket(&a[p - 1][m - k], states)?;
-                acc = acc.add(&b)?;
+            limits::poll()?;
+            let pairs: Vec<_> = (1..m)
+                .filter(|&k| m - k >= p && !wp[k].is_zero() && !a[p - 1][m - k].is_zero())
+                .map(|k| (&wp[k], &a[p - 1][m - k]))
+                .collect();
+            let acc = bracket_sum(&pairs, states, None)?;
+            if !beta[p].is_zero() {
+                dw = dw.add_scaled(&acc, &beta[p])?;
             }
-            a[p][m] = acc;
-        }
-        let mut dw = Field::zero(dim);
-        for p in 0..m {
-            if beta[p].is_zero() || a[p][m].is_zero() {
-                continue;
+            if m < n {
+                a[p][m] = acc.prepare(states)?;
             }
-            dw = dw.add_scaled(&a[p][m], &beta[p])?;
         }
         w[m] = dw.map(|e| e.integral_from_zero())?;
-
         limits::check_terms(w[m].n_terms())?;
+        if m < n {
+            wp[m] = w[m].clone().prepare(states)?;
+        }
     }
     w.remove(0);
     Ok(w)
