@@ -507,8 +507,9 @@ impl Key {
             && self.beat == Beat::One
     }
 
-    /// Multiplies two terms, pushing up to four resulting terms.
-    fn mul_into(
+    /// Multiplies two terms `ca·self` and `cb·other`, pushing up to four
+    /// resulting terms (product-to-sum of the trigonometric factors).
+    pub fn mul_into(
         &self,
         ca: &Q,
         other: &Key,

@@ -11,8 +11,10 @@
 //! `j` (the power of eps, or 1 for the plain degree in `V`).
 
 use std::collections::HashMap;
+use std::sync::Arc;
 
 use crate::core::calc::Period;
+use crate::core::expr::{Beat, Key, Lin, Mono, Wave};
 use crate::core::field::{bracket_sum, Prepared};
 use crate::core::{limits, CoreError, CoreResult, Expr, Field, Sym, Q};
 
@@ -65,21 +67,107 @@ fn time_symbol() -> Sym {
     Sym::new("t'")
 }
 
-/// Replaces time `t` by the symbol `to` (kept as an ordinary symbol, its
-/// oscillations as trigonometric factors of that symbol).
+/// Replaces time `t` by the symbol `to`, treated as a state coordinate
+/// (`cos(k t)` becomes `cos(k to)`, multiplied into the term's
+/// trigonometric factor by the product-to-sum rules). Terms with `t` in an
+/// exponential go through `subst`.
 fn time_to_symbol(e: &Expr, to: Sym, states: &[Sym]) -> CoreResult<Expr> {
     let mut ext = states.to_vec();
     ext.push(to);
     let mut map = HashMap::new();
     map.insert(Sym::T, Expr::sym(to));
-    e.subst(&map, &ext)
+    let mut out: Vec<(Key, Q)> = Vec::with_capacity(e.len());
+    for (k, c) in e.terms() {
+        if k.exp.0.iter().any(|(x, _)| *x == Sym::T || *x == to) {
+            let slow = Expr::term(k.clone(), c.clone()).subst(&map, &ext)?;
+            out.extend(slow.terms().iter().cloned());
+            continue;
+        }
+        let mut key = k.clone();
+        key.mono = move_power(&k.mono, Sym::T, to)?;
+        key.beat = Beat::One;
+        let wave = match &k.beat {
+            Beat::One => {
+                out.push((key, c.clone()));
+                continue;
+            }
+            Beat::Cos(w) => Wave::Cos(Lin(Arc::from(vec![(to, w.clone())]))),
+            Beat::Sin(w) => Wave::Sin(Lin(Arc::from(vec![(to, w.clone())]))),
+        };
+        let factor = Key { wave, ..Key::one() };
+        key.mul_into(c, &factor, &Q::ONE, &mut |k, c| out.push((k, c)))?;
+    }
+    Ok(Expr::from_terms(out))
 }
 
-/// Replaces the symbol `from` by time `t`.
+/// Replaces the symbol `from` by time `t` (the inverse of
+/// [`time_to_symbol`]), renaming in place where the normal form allows.
 fn symbol_to_time(e: &Expr, from: Sym, states: &[Sym]) -> CoreResult<Expr> {
     let mut map = HashMap::new();
     map.insert(from, Expr::sym(Sym::T));
-    e.subst(&map, states)
+    rename_terms(
+        e,
+        |k| {
+            if k.beat != Beat::One || k.exp.0.iter().any(|(x, _)| *x == from) {
+                return Ok(None);
+            }
+            let beat = match &k.wave {
+                Wave::One => Beat::One,
+                Wave::Cos(l) | Wave::Sin(l) => match &l.0[..] {
+                    [(x, w)] if *x == from => {
+                        if matches!(k.wave, Wave::Cos(_)) {
+                            Beat::Cos(w.clone())
+                        } else {
+                            Beat::Sin(w.clone())
+                        }
+                    }
+                    _ if l.0.iter().all(|(x, _)| *x != from) => Beat::One,
+                    _ => return Ok(None),
+                },
+            };
+            let mut key = k.clone();
+            key.mono = move_power(&k.mono, from, Sym::T)?;
+            if beat != Beat::One {
+                key.wave = Wave::One;
+            }
+            key.beat = beat;
+            Ok(Some(key))
+        },
+        |e| e.subst(&map, states),
+    )
+}
+
+/// The monomial with the power of `from` moved onto `to`.
+fn move_power(m: &Mono, from: Sym, to: Sym) -> CoreResult<Mono> {
+    let e = m.exp_of(from);
+    if e == 0 {
+        return Ok(m.clone());
+    }
+    let mut rest = m.clone();
+    rest.0.retain(|(x, _)| *x != from);
+    rest.mul(&Mono([(to, e)].into_iter().collect()))
+}
+
+/// Rewrites every term's key with `fast` (same coefficient), or, where it
+/// declines, the term through `slow`; the result is normalised once.
+fn rename_terms(
+    e: &Expr,
+    mut fast: impl FnMut(&Key) -> CoreResult<Option<Key>>,
+    slow: impl Fn(&Expr) -> CoreResult<Expr>,
+) -> CoreResult<Expr> {
+    let mut out: Vec<(Key, Q)> = Vec::with_capacity(e.len());
+    for (k, c) in e.terms() {
+        match fast(k)? {
+            Some(key) => out.push((key, c.clone())),
+            None => out.extend(
+                slow(&Expr::term(k.clone(), c.clone()))?
+                    .terms()
+                    .iter()
+                    .cloned(),
+            ),
+        }
+    }
+    Ok(Expr::from_terms(out))
 }
 
 /// The value of a time-varying expression at `t = value`.
@@ -186,5 +274,59 @@ pub fn check_periodic_field(f: &Field) -> CoreResult<()> {
 pub fn no_period_error() -> CoreError {
     CoreError::Refused {
         reason: "no period: the field does not oscillate in t (give one with `over T`)".to_string(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn subst_one(e: &Expr, from: Sym, to: Sym, states: &[Sym]) -> Expr {
+        let mut map = HashMap::new();
+        map.insert(from, Expr::sym(to));
+        e.subst(&map, states).expect("subst")
+    }
+
+    /// The in-place renaming agrees with the general substitution, both
+    /// ways, on terms with and without trigonometric factors in the state.
+    #[test]
+    fn time_renaming_agrees_with_substitution() {
+        let (q, p) = (Sym::new("q"), Sym::new("p"));
+        let states = [q, p];
+        let to = time_symbol();
+        let mut ext = states.to_vec();
+        ext.push(to);
+        let (eq, ep, et) = (Expr::sym(q), Expr::sym(p), Expr::sym(Sym::T));
+        let cos = |e: &Expr| Expr::cos_of(e, &states).expect("cos");
+        let sin = |e: &Expr| Expr::sin_of(e, &states).expect("sin");
+        let three_t = et.scale(&Q::int(3));
+        let samples = [
+            eq.mul(&eq)
+                .unwrap()
+                .mul(&et.pow(2).unwrap())
+                .unwrap()
+                .mul(&cos(&three_t))
+                .unwrap(),
+            ep.mul(&sin(&et.scale(&Q::int(2))))
+                .unwrap()
+                .add(&et.pow(3).unwrap()),
+            sin(&eq).mul(&cos(&et)).unwrap().mul(&et).unwrap(),
+            cos(&eq.add(&ep))
+                .mul(&et)
+                .unwrap()
+                .add(&sin(&three_t.add(&eq))),
+            Expr::int(7).add(&ep.mul(&et.pow(5).unwrap()).unwrap()),
+        ];
+        for e in &samples {
+            let fast = time_to_symbol(e, to, &states).expect("fast");
+            assert_eq!(fast, subst_one(e, Sym::T, to, &ext), "t -> t' of {e}");
+            let back = symbol_to_time(&fast, to, &states).expect("back");
+            assert_eq!(
+                back,
+                subst_one(&fast, to, Sym::T, &states),
+                "t' -> t of {fast}"
+            );
+            assert_eq!(&back, e, "round trip of {e}");
+        }
     }
 }
