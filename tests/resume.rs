@@ -232,3 +232,54 @@ fn lines_of_a_run_that_failed_partway_are_journalled() {
     assert!(text.contains("X: field on (q, p)"), "{text}");
     assert!(!text.contains("Z:"), "{text}");
 }
+
+#[test]
+fn a_second_prompt_leaves_the_journal_in_use_alone() {
+    let work = tempfile::tempdir().expect("a temporary directory");
+    let home = tempfile::tempdir().expect("a temporary directory");
+    let (work, home) = (work.path(), home.path());
+
+    let mut first = prompt(work, home, &[]).spawn().expect("ordex runs");
+    let lines = lines_of(&mut first);
+    let mut stdin = first.stdin.take().expect("a pipe");
+    stdin
+        .write_all(b"state q, p\nX = [p, -q]\ncheck X(q) == p\n")
+        .expect("input is written");
+    stdin.flush().expect("input is written");
+    wait_for(&lines, "holds");
+
+    // A second prompt on the same home while the first runs: it says so
+    // and runs without a journal, and neither rotates nor appends to the
+    // first one's.
+    let second = session(work, home, &[], "Y = [q, q]\n");
+    assert_eq!(second.status.code(), Some(0), "{}", stderr(&second));
+    assert!(
+        stderr(&second).contains("another ordex prompt is using it"),
+        "{}",
+        stderr(&second)
+    );
+    let resumed = session(work, home, &["--resume"], "names\n");
+    assert!(
+        stderr(&resumed).contains("another ordex prompt is using it"),
+        "{}",
+        stderr(&resumed)
+    );
+
+    stdin
+        .write_all(b"Z = [q, 0]\nquit\n")
+        .expect("input is written");
+    drop(stdin);
+    assert!(first.wait().expect("ordex ends").success());
+    let journal = std::fs::read_to_string(home.join("journal.ordex")).expect("the journal");
+    assert!(
+        journal.contains("X = [p, -q]") && journal.contains("Z = [q, 0]"),
+        "{journal}"
+    );
+    assert!(!journal.contains("Y = [q, q]"), "{journal}");
+    assert!(!home.join("journal.prev.ordex").exists());
+
+    // Once the first prompt has ended, the journal is free again.
+    let out = session(work, home, &["--resume"], "names\n");
+    assert!(stdout(&out).contains("resumed 4 lines"), "{}", stdout(&out));
+    assert_eq!(stderr(&out), "");
+}

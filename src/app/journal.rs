@@ -22,12 +22,35 @@ use crate::lang::split::split_statements;
 pub const JOURNAL_FILE: &str = "journal.ordex";
 /// File name of the previous session's journal.
 pub const PREVIOUS_FILE: &str = "journal.prev.ordex";
+/// File whose lock marks the journal as in use by a prompt.
+pub const LOCK_FILE: &str = "journal.lock";
 
-/// An open journal, appending.
+/// An open journal, appending. It holds an exclusive lock on
+/// `<home>/journal.lock` for its lifetime, so that a second prompt on the
+/// same home neither rotates nor appends to a journal in use.
 #[derive(Debug)]
 pub struct Journal {
     file: File,
     path: PathBuf,
+    _lock: File,
+}
+
+/// Takes the journal lock of `home` (released when the file is closed,
+/// also when the process is killed).
+fn lock(home: &Path) -> io::Result<File> {
+    let file = OpenOptions::new()
+        .create(true)
+        .truncate(false)
+        .write(true)
+        .open(home.join(LOCK_FILE))?;
+    match file.try_lock() {
+        Ok(()) => Ok(file),
+        Err(std::fs::TryLockError::WouldBlock) => Err(io::Error::new(
+            io::ErrorKind::WouldBlock,
+            "another ordex prompt is using it",
+        )),
+        Err(std::fs::TryLockError::Error(e)) => Err(e),
+    }
 }
 
 impl Journal {
@@ -35,11 +58,12 @@ impl Journal {
     /// if any, becomes the previous one.
     pub fn start_new(home: &Path) -> io::Result<Journal> {
         std::fs::create_dir_all(home)?;
+        let lock = lock(home)?;
         let path = home.join(JOURNAL_FILE);
         if path.exists() {
             std::fs::rename(&path, home.join(PREVIOUS_FILE))?;
         }
-        let mut journal = Journal::open_append(path)?;
+        let mut journal = Journal::open_append(path, lock)?;
         journal.write_header()?;
         Ok(journal)
     }
@@ -48,13 +72,14 @@ impl Journal {
     /// is none) and the journal, appending to the same file.
     pub fn resume(home: &Path) -> io::Result<(Journal, String)> {
         std::fs::create_dir_all(home)?;
+        let lock = lock(home)?;
         let path = home.join(JOURNAL_FILE);
         let text = match std::fs::read(&path) {
             Ok(bytes) => String::from_utf8_lossy(&bytes).into_owned(),
             Err(e) if e.kind() == io::ErrorKind::NotFound => String::new(),
             Err(e) => return Err(e),
         };
-        let mut journal = Journal::open_append(path)?;
+        let mut journal = Journal::open_append(path, lock)?;
         if text.is_empty() {
             journal.write_header()?;
         } else if !text.ends_with('\n') {
@@ -103,9 +128,13 @@ impl Journal {
         &self.path
     }
 
-    fn open_append(path: PathBuf) -> io::Result<Journal> {
+    fn open_append(path: PathBuf, lock: File) -> io::Result<Journal> {
         let file = OpenOptions::new().create(true).append(true).open(&path)?;
-        Ok(Journal { file, path })
+        Ok(Journal {
+            file,
+            path,
+            _lock: lock,
+        })
     }
 
     fn write_header(&mut self) -> io::Result<()> {
