@@ -13,7 +13,7 @@ use super::num::Q;
 use super::symbol::Sym;
 
 /// Products of term counts above which a bracket is split over threads.
-const PARALLEL_WORK: usize = 20_000;
+const PARALLEL_WORK: usize = 2_000;
 
 /// Worker threads for large brackets: the machine's cores, or
 /// `ORDEX_THREADS` (1 turns parallelism off).
