@@ -17,7 +17,8 @@ use std::collections::HashMap;
 
 use crate::core::calc::{common_period, Period, TimeKey};
 use crate::core::expr::Beat;
-use crate::core::field::{bracket_sum, Prepared};
+use crate::core::expr::{Keep, Key};
+use crate::core::field::{bracket_sum, bracket_sum_with_sines, Prepared};
 use crate::core::{limits, CoreError, CoreResult, Expr, Field, Matrix, Sym, Q};
 use crate::series::chrono::{magnus_generator, Graded};
 
@@ -246,9 +247,13 @@ pub fn stroboscopic_by_logarithm(
 /// `|h₁ − h₂|` and `h₁ + h₂`), and `W_n` is not formed. Likewise `H_{p,k}`
 /// with `p + k = n` reaches `F_n` only through `p` brackets with `W_1` and
 /// the mean, so only its harmonics up to `p` times the highest frequency of
-/// `W_1` are formed. Other quantities are needed whole: `W_k` must vanish at
-/// `t = 0`, and its constant part is `Σ_h s_h / h` over every harmonic
-/// `s_h sin(h t)` of `W_k'`.
+/// `W_1` are formed. `W_{n−1}` reaches `F_n` only through the mean of
+/// `[W_{n−1}, H_{1,1}]` and `W'_{n−1}` only through `H_{1,n−1}`, so order
+/// `n − 1` keeps the harmonics up to those of `W_1`, plus the constant that
+/// the others give to `W_{n−1}`: it must vanish at `t = 0`, and
+/// `∫_0^t sin(h s) ds = (1 − cos(h t))/h`, so each dropped `s_h sin(h t)`
+/// of `W'_{n−1}` adds `s_h / h` (only sine-times-cosine products can give
+/// one). Other quantities are needed whole.
 pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> CoreResult<Vec<Field>> {
     let n = standard.len();
     let dim = states.len();
@@ -267,23 +272,41 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
     for k in 1..=n {
         limits::progress("stroboscopic averaging", k - 1, n);
         limits::poll()?;
-        // V_k − R_k = V_k + Σ_j [W_j, H_{1,k−j}]; at the last order only its mean.
-        let cap = (k == n).then_some(&Q::ZERO);
-        let rest = standard[k - 1].add(&bracket_sum(&grade_pairs(&w, &h[1], k), states, cap)?)?;
+        // V_k − R_k = V_k + Σ_j [W_j, H_{1,k−j}]: at the last order only its
+        // mean; at order n − 1 (from 2) its harmonics up to those of W_1 and
+        // the constant its higher sines give to W_k.
+        let low = k + 1 == n && k >= 2;
+        let cap = if k == n {
+            Keep::UpTo(&Q::ZERO)
+        } else if low {
+            Keep::UpToWithSines(&rho1)
+        } else {
+            Keep::All
+        };
+        let pairs = grade_pairs(&w, &h[1], k);
+        let (brackets, sines) = bracket_sum_with_sines(&pairs, states, cap)?;
+        let (vk, v_sines) = match cap {
+            Keep::UpToWithSines(c) => split_at_frequency(&standard[k - 1], c)?,
+            _ => (standard[k - 1].clone(), Field::zero(dim)),
+        };
+        let rest = vk.add(&brackets)?;
         let fk = rest.map(|e| e.mean_over(period))?;
         if k == n {
             f_out.push(fk);
             break;
         }
         let wk_dot = rest.sub(&fk)?;
-        let wk = wk_dot.map(|e| e.integral_from_zero())?;
+        let mut wk = wk_dot.map(|e| e.integral_from_zero())?;
+        if low {
+            wk = wk.add(&sines)?.add(&v_sines)?;
+        }
         limits::check_terms(wk.n_terms())?;
         w[k] = wk.prepare(states)?;
         if k == 1 {
             rho1 = w[1]
                 .parts()
                 .iter()
-                .flat_map(|c| c.iter().map(|(h, _)| h.clone()))
+                .flat_map(|c| c.iter().map(|part| part.freq.clone()))
                 .max()
                 .unwrap_or(Q::ZERO);
         }
@@ -296,16 +319,38 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
             let u = fk
                 .scale(&fact[p].recip().unwrap_or(Q::ZERO))
                 .add_scaled(&wk_dot, &fact[p + 1].recip().unwrap_or(Q::ZERO))?;
-            let u = match &cap {
-                Some(c) => u.map(|e| Ok(e.filter(|key, _| key.beat.frequency() <= *c)))?,
-                None => u,
+            let (u, keep) = match &cap {
+                Some(c) => (
+                    u.map(|e| Ok(e.filter(|key, _| key.beat.frequency() <= *c)))?,
+                    Keep::UpTo(c),
+                ),
+                None => (u, Keep::All),
             };
-            let inner = bracket_sum(&grade_pairs(&w, &h[p + 1], k), states, cap.as_ref())?;
+            let inner = bracket_sum(&grade_pairs(&w, &h[p + 1], k), states, keep)?;
             h[p][k] = u.sub(&inner)?.prepare(states)?;
         }
         f_out.push(fk);
     }
     Ok(f_out)
+}
+
+/// The terms of `v` with time frequency at most `cap`, and the constant
+/// `Σ c/h` that its other terms `c·sin(h t)` give to an integral from 0.
+fn split_at_frequency(v: &Field, cap: &Q) -> CoreResult<(Field, Field)> {
+    let kept = v.map(|e| Ok(e.filter(|key, _| key.beat.frequency() <= *cap)))?;
+    let sines = v.map(|e| {
+        Ok(e.map_terms(|key, c| match &key.beat {
+            Beat::Sin(h) if h > cap => Some((
+                Key {
+                    beat: Beat::One,
+                    ..key.clone()
+                },
+                c.div(h).unwrap_or(Q::ZERO),
+            )),
+            _ => None,
+        }))
+    })?;
+    Ok((kept, sines))
 }
 
 /// The pairs `(W_j, c_{k−j})`, `1 ≤ j < k`, with nonzero members.

@@ -159,6 +159,44 @@ fn log2_size(c: &Q) -> f64 {
 pub struct Acc {
     map: FxHashMap<Key, Q>,
     big_words: usize,
+    /// With [`Keep::UpToWithSines`]: `Σ c/h` over the dropped terms
+    /// `c·sin(h t)`, keyed without their time factor.
+    sines: FxHashMap<Key, Q>,
+}
+
+/// Which terms of a product an accumulator keeps, by time frequency.
+#[derive(Clone, Copy, Debug)]
+pub enum Keep<'a> {
+    /// Every term.
+    All,
+    /// The terms of frequency at most the cap.
+    UpTo(&'a Q),
+    /// The terms of frequency at most the cap; of the others, the
+    /// constant `Σ c/h` that the terms `c·sin(h t)` give to an integral
+    /// from 0 (`∫_0^t sin(h s) ds = (1 − cos(h t))/h`), see
+    /// [`Acc::finish_with_sines`].
+    UpToWithSines(&'a Q),
+}
+
+impl Keep<'_> {
+    fn cap(&self) -> Option<&Q> {
+        match self {
+            Keep::All => None,
+            Keep::UpTo(c) | Keep::UpToWithSines(c) => Some(c),
+        }
+    }
+}
+
+/// One part of an expression split by time factor: the terms with
+/// `cos(h t)` (or none, for `h = 0`) or with `sin(h t)` (`odd`).
+#[derive(Clone, Debug, Default)]
+pub struct Part {
+    /// The frequency `h` (0 for terms without a time factor).
+    pub freq: Q,
+    /// True for the `sin(h t)` terms.
+    pub odd: bool,
+    /// The terms.
+    pub expr: Expr,
 }
 
 impl Acc {
@@ -172,6 +210,7 @@ impl Acc {
         Acc {
             map: FxHashMap::with_capacity_and_hasher(n.min(1 << 16), Default::default()),
             big_words: 0,
+            sines: FxHashMap::default(),
         }
     }
 
@@ -223,40 +262,47 @@ impl Acc {
 
     /// `self += ±a·b`.
     pub fn add_product(&mut self, a: &Expr, b: &Expr, negate: bool) -> CoreResult<()> {
-        self.product(a, b, negate, None)
+        self.product(a, b, negate, Keep::All)
     }
 
-    /// `self += ±a·b` for expressions split by frequency, keeping only
-    /// the terms whose time frequency is at most `cap` (all when `None`).
-    /// Pairs of parts whose frequencies differ by more than `cap` cannot
-    /// give such a term (cos(h₁t)cos(h₂t) has frequencies |h₁ − h₂| and
-    /// h₁ + h₂) and are skipped without multiplying.
+    /// `self += ±a·b` for expressions split by time factor, keeping the
+    /// terms `keep` asks for. Pairs of parts that cannot give such a term
+    /// are skipped without multiplying: `cos(h₁t)cos(h₂t)` and
+    /// `sin(h₁t)sin(h₂t)` have frequencies `|h₁ − h₂|` and `h₁ + h₂` (cosines),
+    /// `sin(h₁t)cos(h₂t)` the same frequencies as sines, and `sin(0) = 0`.
     pub fn add_product_harmonics(
         &mut self,
-        a: &[(Q, Expr)],
-        b: &[(Q, Expr)],
+        a: &[Part],
+        b: &[Part],
         negate: bool,
-        cap: Option<&Q>,
+        keep: Keep,
     ) -> CoreResult<()> {
-        for (ha, ea) in a {
-            for (hb, eb) in b {
-                match cap {
-                    None => self.product(ea, eb, negate, None)?,
-                    Some(c) => {
-                        if ha.sub(hb).abs() > *c {
-                            continue;
-                        }
-                        let all_below = ha.add(hb) <= *c;
-                        self.product(ea, eb, negate, if all_below { None } else { Some(c) })?;
-                    }
+        for pa in a {
+            for pb in b {
+                let Some(cap) = keep.cap() else {
+                    self.product(&pa.expr, &pb.expr, negate, keep)?;
+                    continue;
+                };
+                let odd = pa.odd != pb.odd;
+                let sum = pa.freq.add(&pb.freq);
+                let diff = pa.freq.sub(&pb.freq).abs();
+                let kept = sum <= *cap || (diff <= *cap && (!odd || !diff.is_zero()));
+                let sines = matches!(keep, Keep::UpToWithSines(_)) && odd && sum > *cap;
+                if !kept && !sines {
+                    continue;
+                }
+                if sum <= *cap {
+                    self.product(&pa.expr, &pb.expr, negate, Keep::All)?;
+                } else {
+                    self.product(&pa.expr, &pb.expr, negate, keep)?;
                 }
             }
         }
         Ok(())
     }
 
-    /// `self += ±a·b`, dropping product terms of time frequency above `cap`.
-    fn product(&mut self, a: &Expr, b: &Expr, negate: bool, cap: Option<&Q>) -> CoreResult<()> {
+    /// `self += ±a·b`, keeping the terms `keep` asks for.
+    fn product(&mut self, a: &Expr, b: &Expr, negate: bool, keep: Keep) -> CoreResult<()> {
         if a.is_zero() || b.is_zero() {
             return Ok(());
         }
@@ -267,6 +313,8 @@ impl Acc {
         // the budget while the work grows with its square: count it too.
         limits::add_work((a.len() as u64).saturating_mul(b.len() as u64))?;
         let mut max_bits = 0u64;
+        let cap = keep.cap();
+        let with_sines = matches!(keep, Keep::UpToWithSines(_));
         // The budget counts terms plus the size of large coefficients,
         // checked after every row so that a product that would outgrow it
         // stops early instead of running for minutes.
@@ -276,20 +324,48 @@ impl Acc {
             }
             let ca = if negate { ca.neg() } else { ca.clone() };
             for (kb, cb) in &b.terms {
-                ka.mul_into(&ca, kb, cb, &mut |k, c| {
-                    if cap.is_some_and(|cap| k.beat.frequency() > *cap) {
-                        return;
-                    }
+                ka.mul_into(&ca, kb, cb, &mut |mut k, c| {
                     if let Q::Big(_) = c {
                         max_bits = max_bits.max(c.bits());
                     }
+                    if let Some(cap) = cap {
+                        let h = k.beat.frequency();
+                        if h > *cap {
+                            if with_sines && matches!(k.beat, Beat::Sin(_)) {
+                                k.beat = Beat::One;
+                                let v = c.div(&h).unwrap_or(Q::ZERO);
+                                match self.sines.entry(k) {
+                                    std::collections::hash_map::Entry::Occupied(mut e) => {
+                                        let s = e.get().add(&v);
+                                        *e.get_mut() = s;
+                                    }
+                                    std::collections::hash_map::Entry::Vacant(e) => {
+                                        e.insert(v);
+                                    }
+                                }
+                            }
+                            return;
+                        }
+                    }
                     self.insert(k, c);
                 })?;
+            }
+            if self.map.len().saturating_add(self.sines.len()) > limits::limits().max_terms {
+                return Err(CoreError::Limit {
+                    kind: LimitKind::Terms,
+                    limit: limits::limits().max_terms as u64,
+                });
             }
             self.check_budget()?;
             limits::check_bits(max_bits)?;
         }
         Ok(())
+    }
+
+    /// The kept terms and, with [`Keep::UpToWithSines`], the constant
+    /// `Σ c/h` of the dropped sine terms, both in normal form.
+    pub fn finish_with_sines(self) -> (Expr, Expr) {
+        (Expr::from_map(self.map), Expr::from_map(self.sines))
     }
 
     /// The sum in normal form.
@@ -484,9 +560,10 @@ impl Beat {
     }
 }
 
-/// An expression split by the frequency of its time factor: `(k, part)`
-/// with increasing `k`, every part nonzero (see [`Expr::into_by_frequency`]).
-pub type Harmonics = Vec<(Q, Expr)>;
+/// An expression split by its time factor into nonzero [`Part`]s, by
+/// increasing frequency, cosines before sines (see
+/// [`Expr::into_by_frequency`]).
+pub type Harmonics = Vec<Part>;
 
 impl Key {
     /// The key of the constant 1.
@@ -928,24 +1005,30 @@ impl Expr {
         }
     }
 
-    /// The expression split by the frequency of its time factor (0 for
-    /// none), frequencies increasing; the parts sum to `self`.
+    /// The expression split by its time factor: the terms with `cos(h t)`
+    /// (or none, `h = 0`) and those with `sin(h t)` for each frequency `h`;
+    /// the parts sum to `self`.
     pub fn into_by_frequency(self) -> Harmonics {
         let mut parts: Harmonics = Vec::new();
         for (k, c) in self.terms {
-            let h = k.beat.frequency();
-            match parts.iter_mut().find(|(x, _)| *x == h) {
-                Some((_, e)) => e.terms.push((k, c)),
-                None => parts.push((
-                    h,
-                    Expr {
+            let (h, odd) = match &k.beat {
+                Beat::One => (Q::ZERO, false),
+                Beat::Cos(w) => (w.clone(), false),
+                Beat::Sin(w) => (w.clone(), true),
+            };
+            match parts.iter_mut().find(|p| p.odd == odd && p.freq == h) {
+                Some(p) => p.expr.terms.push((k, c)),
+                None => parts.push(Part {
+                    freq: h,
+                    odd,
+                    expr: Expr {
                         terms: vec![(k, c)],
                     },
-                )),
+                }),
             }
         }
         // Each part is a subsequence of sorted terms: still sorted.
-        parts.sort_by(|a, b| a.0.cmp(&b.0));
+        parts.sort_by(|a, b| a.freq.cmp(&b.freq).then(a.odd.cmp(&b.odd)));
         parts
     }
 
@@ -1279,5 +1362,55 @@ impl fmt::Display for Expr {
 impl fmt::Debug for Expr {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         write!(f, "{self}")
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn t_times(k: i64) -> Expr {
+        Expr::sym(Sym::T).scale(&Q::int(k))
+    }
+
+    /// Keeping low frequencies, and the constant of the dropped sines, on
+    /// a product worked by hand: sin(3t)·(cos t + cos 3t) =
+    /// (sin 4t + sin 2t)/2 + (sin 6t)/2 (+ sin 0 = 0).
+    #[test]
+    fn kept_terms_and_sine_constants_of_a_product() {
+        let states: [Sym; 0] = [];
+        let a = Expr::sin_of(&t_times(3), &states).unwrap();
+        let b = Expr::cos_of(&t_times(1), &states)
+            .unwrap()
+            .add(&Expr::cos_of(&t_times(3), &states).unwrap());
+        let full = a.mul(&b).unwrap();
+        let (pa, pb) = (a.into_by_frequency(), b.into_by_frequency());
+
+        let mut acc = Acc::new();
+        acc.add_product_harmonics(&pa, &pb, false, Keep::All)
+            .unwrap();
+        assert_eq!(acc.finish(), full);
+
+        // Up to frequency 2: only sin(2t)/2 is kept; the constants are
+        // 1/2·(1/4) + 1/2·(1/6) = 5/24.
+        let mut acc = Acc::new();
+        acc.add_product_harmonics(&pa, &pb, false, Keep::UpToWithSines(&Q::int(2)))
+            .unwrap();
+        let (kept, sines) = acc.finish_with_sines();
+        assert_eq!(
+            kept,
+            Expr::sin_of(&t_times(2), &states)
+                .unwrap()
+                .scale(&Q::Small(1, 2))
+        );
+        assert_eq!(sines, Expr::num(Q::Small(5, 24)));
+
+        // The mean (cap 0): sine times cosine has none, and is not formed.
+        limits::start_work();
+        let mut acc = Acc::new();
+        acc.add_product_harmonics(&pa, &pb, false, Keep::UpTo(&Q::ZERO))
+            .unwrap();
+        assert!(acc.finish().is_zero());
+        assert_eq!(limits::work_done(), Some(0));
     }
 }

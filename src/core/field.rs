@@ -7,7 +7,7 @@
 //! flow `(Φ^Y_s)^* X = Σ s^k/k! ad_Y^k X`.
 
 use super::error::{CoreError, CoreResult};
-use super::expr::{Acc, Expr, Harmonics};
+use super::expr::{Acc, Expr, Harmonics, Keep};
 use super::limits;
 use super::num::Q;
 use super::symbol::Sym;
@@ -167,7 +167,7 @@ impl Field {
             self.clone().prepare(states)?,
             other.clone().prepare(states)?,
         );
-        bracket_sum(&[(&x, &y)], states, None)
+        bracket_sum(&[(&x, &y)], states, Keep::All)
     }
 
     /// `ad_self^k other`.
@@ -260,16 +260,25 @@ impl Prepared {
 /// `Σ_m [X_m, Y_m]` for prepared pairs, with one accumulator per component:
 /// `Σ_m Σ_s (X_m)_s ∂_s (Y_m)_i − (Y_m)_s ∂_s (X_m)_i`. Every term product
 /// goes into that accumulator, so a sum of brackets costs its products and
-/// one normal form per component. With `cap`, only the terms whose time
-/// frequency is at most `cap` are formed (products that cannot reach them
-/// are skipped). Large sums split their components over the available
-/// cores (each worker gets this thread's limits and counts its work
-/// against this statement).
+/// one normal form per component. `keep` selects terms by time frequency
+/// (products that cannot reach them are skipped). Large sums split their
+/// components over the available cores (each worker gets this thread's
+/// limits and counts its work against this statement).
 pub fn bracket_sum(
     pairs: &[(&Prepared, &Prepared)],
     states: &[Sym],
-    cap: Option<&Q>,
+    keep: Keep,
 ) -> CoreResult<Field> {
+    Ok(bracket_sum_with_sines(pairs, states, keep)?.0)
+}
+
+/// [`bracket_sum`], with the constant of the dropped sine terms (see
+/// [`Keep::UpToWithSines`]) as a second, autonomous field.
+pub fn bracket_sum_with_sines(
+    pairs: &[(&Prepared, &Prepared)],
+    states: &[Sym],
+    keep: Keep,
+) -> CoreResult<(Field, Field)> {
     let n = states.len();
     for (x, y) in pairs {
         if x.parts.len() != n || y.parts.len() != n {
@@ -282,23 +291,25 @@ pub fn bracket_sum(
             });
         }
     }
-    let component = |i: usize| -> CoreResult<Expr> {
+    let component = |i: usize| -> CoreResult<(Expr, Expr)> {
         let mut acc = Acc::new();
         for (x, y) in pairs {
             for s in 0..n {
-                acc.add_product_harmonics(&x.parts[s], &y.d[i][s], false, cap)?;
-                acc.add_product_harmonics(&y.parts[s], &x.d[i][s], true, cap)?;
+                acc.add_product_harmonics(&x.parts[s], &y.d[i][s], false, keep)?;
+                acc.add_product_harmonics(&y.parts[s], &x.d[i][s], true, keep)?;
             }
         }
-        Ok(acc.finish())
+        Ok(acc.finish_with_sines())
     };
     let work = pairs.iter().fold(0usize, |w, (x, y)| {
         w.saturating_add(x.n_terms.saturating_mul(y.n_terms))
     });
     let workers = parallelism().min(n);
+    let mut kept = vec![Expr::zero(); n];
+    let mut sines = vec![Expr::zero(); n];
     if workers > 1 && work >= PARALLEL_WORK {
         let ctx = limits::context();
-        let results: Vec<CoreResult<Vec<(usize, Expr)>>> = std::thread::scope(|scope| {
+        let results: Vec<CoreResult<Vec<(usize, (Expr, Expr))>>> = std::thread::scope(|scope| {
             let handles: Vec<_> = (0..workers)
                 .map(|w| {
                     let component = &component;
@@ -317,15 +328,18 @@ pub fn bracket_sum(
                 .map(|h| h.join().unwrap_or(Err(CoreError::Interrupted)))
                 .collect()
         });
-        let mut out = vec![Expr::zero(); n];
         for r in results {
-            for (i, e) in r? {
-                out[i] = e;
+            for (i, (k, s)) in r? {
+                kept[i] = k;
+                sines[i] = s;
             }
         }
-        return Ok(Field(out));
+    } else {
+        for i in 0..n {
+            (kept[i], sines[i]) = component(i)?;
+        }
     }
-    Ok(Field((0..n).map(component).collect::<CoreResult<_>>()?))
+    Ok((Field(kept), Field(sines)))
 }
 
 impl Matrix {

@@ -14,7 +14,7 @@ use std::collections::HashMap;
 use std::sync::Arc;
 
 use crate::core::calc::Period;
-use crate::core::expr::{Beat, Key, Lin, Mono, Wave};
+use crate::core::expr::{Beat, Keep, Key, Lin, Mono, Wave};
 use crate::core::field::{bracket_sum, Prepared};
 use crate::core::{limits, CoreError, CoreResult, Expr, Field, Sym, Q};
 
@@ -229,7 +229,7 @@ pub fn magnus_generator(v: &Graded, n: usize, states: &[Sym]) -> CoreResult<Vec<
                 .filter(|&k| m - k >= p && !wp[k].is_zero() && !a[p - 1][m - k].is_zero())
                 .map(|k| (&wp[k], &a[p - 1][m - k]))
                 .collect();
-            let acc = bracket_sum(&pairs, states, None)?;
+            let acc = bracket_sum(&pairs, states, Keep::All)?;
             if !beta[p].is_zero() {
                 dw = dw.add_scaled(&acc, &beta[p])?;
             }
