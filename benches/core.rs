@@ -300,13 +300,13 @@ fn bench_averaging() -> CoreResult<()> {
             .add(&y.mul(&y)?.mul(&beat(false, 2, &st3)?)?),
         x.mul(&y)?.sub(&z.mul(&beat(true, 1, &st3)?)?),
     ]);
-    println!("Systems eps*V. Term products are the work counted by the core (one per pair");
-    println!("of terms multiplied); ns per term product staying level means the growth with");
-    println!("the order is the recursion's work, not overhead.");
+    println!("Systems eps*V. Work is what the core counts: one unit per pair of terms");
+    println!("multiplied and per pair of time-factor parts tested; ns per unit staying level");
+    println!("means the growth with the order is the recursion's work, not overhead.");
     println!();
     println!(
         "| system | order | median ms | result terms | us per result term \
-         | time ratio to previous order | term products | ns per term product |"
+         | time ratio to previous order | work units | ns per work unit |"
     );
     println!("|---|---|---|---|---|---|---|---|");
     for (name, v1, st) in [
