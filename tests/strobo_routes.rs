@@ -89,3 +89,22 @@ fn three_mode_exchange_system_to_order_5() {
         5,
     );
 }
+
+#[test]
+fn grades_with_different_harmonics() {
+    // W_1 oscillates at 2 only while the eps^2 part brings frequencies 1
+    // and 3: the truncations keyed to W_1's harmonics must still be exact.
+    agree(
+        "state x, y\nparam eps\nS = eps*[y*cos(2*t), x - y^2*sin(2*t)] + eps^2*[x*sin(t), y*cos(3*t) + x^2]\n",
+        4,
+    );
+}
+
+#[test]
+fn autonomous_first_grade() {
+    // V_1 without time: W_1 = 0, and only the eps^2 part oscillates.
+    agree(
+        "state x, y\nparam eps\nS = eps*[y, -x + x*y] + eps^2*[x*cos(t), y^2*sin(2*t)]\n",
+        4,
+    );
+}
