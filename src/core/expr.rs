@@ -323,7 +323,8 @@ impl Acc {
         // checked after every row so that a product that would outgrow it
         // stops early instead of running for minutes.
         for (n, (ka, ca)) in a.terms.iter().enumerate() {
-            if n % 64 == 0 {
+            // Rows with large coefficients can take long: check every one.
+            if n % 64 == 0 || max_bits > 0 {
                 limits::poll()?;
             }
             let ca = if negate { ca.neg() } else { ca.clone() };
