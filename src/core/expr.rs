@@ -214,16 +214,6 @@ impl Acc {
         }
     }
 
-    /// Number of distinct terms so far (zeros included until `finish`).
-    pub fn len(&self) -> usize {
-        self.map.len()
-    }
-
-    /// True if and only if nothing was added.
-    pub fn is_empty(&self) -> bool {
-        self.map.is_empty()
-    }
-
     fn insert(&mut self, k: Key, c: Q) {
         match self.map.entry(k) {
             std::collections::hash_map::Entry::Occupied(mut e) => {
@@ -248,16 +238,6 @@ impl Acc {
             });
         }
         Ok(())
-    }
-
-    /// `self += ±e` (one unit of work per term).
-    pub fn add_expr(&mut self, e: &Expr, negate: bool) -> CoreResult<()> {
-        limits::add_work(e.len() as u64)?;
-        for (k, c) in &e.terms {
-            self.insert(k.clone(), if negate { c.neg() } else { c.clone() });
-        }
-        self.check_budget()?;
-        limits::check_bits(e.max_coeff_bits())
     }
 
     /// `self += ±a·b`.

@@ -309,7 +309,8 @@ pub fn bracket_sum_with_sines(
     let mut sines = vec![Expr::zero(); n];
     if workers > 1 && work >= PARALLEL_WORK {
         let ctx = limits::context();
-        let results: Vec<CoreResult<Vec<(usize, (Expr, Expr))>>> = std::thread::scope(|scope| {
+        type Components = Vec<(usize, (Expr, Expr))>;
+        let results: Vec<CoreResult<Components>> = std::thread::scope(|scope| {
             let handles: Vec<_> = (0..workers)
                 .map(|w| {
                     let component = &component;

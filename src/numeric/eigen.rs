@@ -148,7 +148,7 @@ fn schur_form(a: DMatrix<f64>) -> Option<DMatrix<f64>> {
             g[(i + 1, i + 1)] = c;
             g[(i, i + 1)] = -s;
             g[(i + 1, i)] = s;
-            q = q * g;
+            q *= g;
         }
         attempt(q.transpose() * &balanced * &q)
     })
