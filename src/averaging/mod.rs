@@ -320,10 +320,7 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
                 .scale(&fact[p].recip().unwrap_or(Q::ZERO))
                 .add_scaled(&wk_dot, &fact[p + 1].recip().unwrap_or(Q::ZERO))?;
             let (u, keep) = match &cap {
-                Some(c) => (
-                    u.map(|e| Ok(e.filter(|key, _| key.beat.frequency() <= *c)))?,
-                    Keep::UpTo(c),
-                ),
+                Some(c) => (up_to_frequency(&u, c)?, Keep::UpTo(c)),
                 None => (u, Keep::All),
             };
             let inner = bracket_sum(&grade_pairs(&w, &h[p + 1], k), states, keep)?;
@@ -334,10 +331,15 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
     Ok(f_out)
 }
 
+/// The terms of `v` with time frequency at most `cap`.
+fn up_to_frequency(v: &Field, cap: &Q) -> CoreResult<Field> {
+    v.map(|e| Ok(e.filter(|key, _| key.beat.frequency() <= *cap)))
+}
+
 /// The terms of `v` with time frequency at most `cap`, and the constant
 /// `Σ c/h` that its other terms `c·sin(h t)` give to an integral from 0.
 fn split_at_frequency(v: &Field, cap: &Q) -> CoreResult<(Field, Field)> {
-    let kept = v.map(|e| Ok(e.filter(|key, _| key.beat.frequency() <= *cap)))?;
+    let kept = up_to_frequency(v, cap)?;
     let sines = v.map(|e| {
         Ok(e.map_terms(|key, c| match &key.beat {
             Beat::Sin(h) if h > cap => Some((

@@ -233,7 +233,7 @@ impl Field {
 /// brackets (the generators of the averaging recursions). Components and
 /// derivatives are kept split by time frequency, for brackets that only
 /// want low harmonics.
-#[derive(Clone, Debug, Default)]
+#[derive(Clone, Debug)]
 pub struct Prepared {
     parts: Vec<Harmonics>,
     d: Vec<Vec<Harmonics>>,
@@ -244,11 +244,6 @@ impl Prepared {
     /// The components, split by time frequency.
     pub fn parts(&self) -> &[Harmonics] {
         &self.parts
-    }
-
-    /// Number of terms of the field.
-    pub fn n_terms(&self) -> usize {
-        self.n_terms
     }
 
     /// True if and only if the field is zero.
