@@ -20,7 +20,8 @@
 use std::collections::HashMap;
 use std::fmt::Display;
 
-use ordex::core::expr::{Beat, Wave};
+use ordex::core::calc::Period;
+use ordex::core::expr::{Acc, Beat, Keep, Key, Wave};
 use ordex::core::{Expr, Field, Sym, Q};
 use ordex::lang::value::Value;
 use ordex::lang::{Event, Session, Style};
@@ -222,6 +223,22 @@ fn polynomial_specs(specs: &[TermSpec]) -> Vec<TermSpec> {
         .iter()
         .map(|s| TermSpec {
             exps: s.exps.map(|e| e.max(0)),
+            ..s.clone()
+        })
+        .collect()
+}
+
+/// Plain polynomial terms in the states, parameter and time with integer
+/// time frequencies (no state-trigonometric or exponential factor): the
+/// terms that products multiply in packed form.
+fn plain_specs(specs: &[TermSpec]) -> Vec<TermSpec> {
+    specs
+        .iter()
+        .map(|s| TermSpec {
+            exps: s.exps.map(|e| e.max(0)),
+            wave: 0,
+            has_exp: false,
+            freq: 2 * (1 + s.freq % 2),
             ..s.clone()
         })
         .collect()
@@ -466,6 +483,90 @@ proptest! {
         prop_assert_eq!(big.at_time_zero(), Expr::zero(), "integral at t = 0");
         let anti = e.antiderivative_t().or_fail("antiderivative")?;
         prop_assert_eq!(anti.pd(Sym::T), e.clone(), "d/dt of the antiderivative");
+    }
+
+    /// The short routes for time integrals of trigonometric polynomials
+    /// (no power of t) agree with the general one through the
+    /// antiderivative: `∫_0^t e = F(t) − F(0)` and the mean over a period
+    /// `(F(T) − F(0))/T`, for periods that hold whole cycles of every
+    /// frequency or not.
+    #[test]
+    fn short_time_integrals_agree_with_the_antiderivative(
+        dim in dim_strategy(),
+        sa in expr_spec(5),
+        no_t in any::<bool>(),
+        period in 1i64..=4,
+    ) {
+        let specs: Vec<TermSpec> = if no_t {
+            sa.iter().map(|s| TermSpec { t_pow: 0, ..s.clone() }).collect()
+        } else {
+            sa
+        };
+        let e = build_expr(&specs, dim)?;
+        let anti = e.antiderivative_t().or_fail("antiderivative")?;
+        prop_assert_eq!(
+            e.integral_from_zero().or_fail("integral")?,
+            anti.sub(&anti.at_time_zero()),
+            "integral from 0 of {}", e
+        );
+        let per = Period(Q::int(period));
+        let general = e
+            .integral_over(&per)
+            .or_fail("integral over the period")?
+            .div(&per.to_expr())
+            .or_fail("division by the period")?;
+        prop_assert_eq!(e.mean_over(&per).or_fail("mean")?, general, "mean of {}", e);
+    }
+
+    /// Sums of products of expressions split by time factor (the inner
+    /// loop of brackets, packed for plain polynomial parts with integer
+    /// frequencies) equal the product; keeping frequencies up to a cap
+    /// keeps exactly the product's terms up to it, with `Σ c/h` over the
+    /// dropped `c·sin(h t)` apart (`∫_0^t sin(h s) ds = (1 − cos(h t))/h`).
+    #[test]
+    fn split_products_agree_with_the_product(
+        dim in dim_strategy(),
+        sa in expr_spec(5),
+        sb in expr_spec(5),
+        sc in expr_spec(3),
+        plain in 0u8..8,
+        cap in 0i64..=8,
+    ) {
+        let pick = |specs: &[TermSpec], bit: u8| {
+            if plain & bit != 0 { plain_specs(specs) } else { specs.to_vec() }
+        };
+        let a = build_expr(&pick(&sa, 1), dim)?;
+        let b = build_expr(&pick(&sb, 2), dim)?;
+        let c = build_expr(&pick(&sc, 4), dim)?;
+        // a·b − b·c, as two sums into one accumulator.
+        let full = a.mul(&b).or_fail("ab")?.sub(&b.mul(&c).or_fail("bc")?);
+        let (pa, pb, pc) = (
+            a.into_by_frequency(),
+            b.into_by_frequency(),
+            c.into_by_frequency(),
+        );
+        let sum = |keep: Keep| -> Result<(Expr, Expr), TestCaseError> {
+            let mut acc = Acc::new();
+            acc.add_product_harmonics(&pa, &pb, false, keep).or_fail("ab")?;
+            acc.add_product_harmonics(&pb, &pc, true, keep).or_fail("bc")?;
+            Ok(acc.finish_with_sines())
+        };
+        prop_assert_eq!(sum(Keep::All)?.0, full.clone(), "whole product");
+        let capq = q(cap, 2);
+        let kept = full.filter(|k, _| k.beat.frequency() <= capq);
+        let sines = full.map_terms(|k, c| match &k.beat {
+            Beat::Sin(h) if *h > capq => Some((
+                Key { beat: Beat::One, ..k.clone() },
+                c.div(h).unwrap_or(Q::ZERO),
+            )),
+            _ => None,
+        });
+        let (k1, s1) = sum(Keep::UpTo(&capq))?;
+        prop_assert_eq!(k1, kept.clone(), "kept up to {}", capq);
+        prop_assert!(s1.is_zero());
+        let (k2, s2) = sum(Keep::UpToWithSines(&capq))?;
+        prop_assert_eq!(k2, kept, "kept up to {} with sines", capq);
+        prop_assert_eq!(s2, sines, "sine constants above {}", capq);
     }
 
     /// The Lie derivative is a derivation: `X(fg) = X(f) g + f X(g)`.

@@ -306,9 +306,65 @@ impl Expr {
 
     /// `∫_0^t self dτ` (as a function of `t`).
     pub fn integral_from_zero(&self) -> CoreResult<Expr> {
+        if let Some(f) = self.integral_from_zero_of_harmonics() {
+            return Ok(f);
+        }
         let f = self.antiderivative_t()?;
         let f0 = f.at_time_zero();
         Ok(f.sub(&f0))
+    }
+
+    /// `∫_0^t self dτ` term by term when no term has a power of `t`:
+    /// `1 → t`, `cos(h t) → sin(h t)/h`, `sin(h t) → (1 − cos(h t))/h`
+    /// (the same result as the general route, without building the
+    /// antiderivative and its value at 0 apart). `None` otherwise.
+    fn integral_from_zero_of_harmonics(&self) -> Option<Expr> {
+        let mut out: Vec<(Key, Q)> = Vec::with_capacity(self.len() + self.len() / 2);
+        for (k, c) in self.terms() {
+            if k.mono.exp_of(Sym::T) != 0 {
+                return None;
+            }
+            match &k.beat {
+                Beat::One => {
+                    let mut key = k.clone();
+                    key.mono = key.mono.mul(&Mono(smallvec::smallvec![(Sym::T, 1)])).ok()?;
+                    out.push((key, c.clone()));
+                }
+                Beat::Cos(h) => {
+                    let mut key = k.clone();
+                    key.beat = Beat::Sin(h.clone());
+                    out.push((key, c.div(h)?));
+                }
+                Beat::Sin(h) => {
+                    let v = c.div(h)?;
+                    let mut key = k.clone();
+                    key.beat = Beat::Cos(h.clone());
+                    out.push((key, v.neg()));
+                    let mut key = k.clone();
+                    key.beat = Beat::One;
+                    out.push((key, v));
+                }
+            }
+        }
+        Some(Expr::from_terms(out))
+    }
+
+    /// The mean over `period` when no term has a power of `t` and every
+    /// frequency `h` completes whole cycles in it (`h·T/(2π)` an integer):
+    /// the terms without time factor. `None` otherwise.
+    fn mean_of_harmonics(&self, period: &Period) -> Option<Expr> {
+        let half = period.0.half();
+        for (k, _) in self.terms() {
+            if k.mono.exp_of(Sym::T) != 0 {
+                return None;
+            }
+            if let Beat::Cos(h) | Beat::Sin(h) = &k.beat {
+                if !h.mul(&half).is_integer() {
+                    return None;
+                }
+            }
+        }
+        Some(self.filter(|k, _| k.beat == Beat::One))
     }
 
     /// The value at `t = 0`.
@@ -368,6 +424,9 @@ impl Expr {
 
     /// Mean over the period: `(1/T) ∫_0^T self dt`.
     pub fn mean_over(&self, period: &Period) -> CoreResult<Expr> {
+        if let Some(m) = self.mean_of_harmonics(period) {
+            return Ok(m);
+        }
         let integral = self.integral_over(period)?;
         integral.div(&period.to_expr())
     }

@@ -23,6 +23,7 @@ use std::sync::Arc;
 use super::error::{CoreError, CoreResult, LimitKind};
 use super::limits;
 use super::num::Q;
+use super::packed::{self, Cut, Packed, PackedSum};
 use super::symbol::Sym;
 
 /// A monomial: sorted `(symbol, exponent)` pairs with nonzero exponents.
@@ -162,6 +163,8 @@ pub struct Acc {
     /// With [`Keep::UpToWithSines`]: `Σ c/h` over the dropped terms
     /// `c·sin(h t)`, keyed without their time factor.
     sines: FxHashMap<Key, Q>,
+    /// Products of packed parts (see [`super::packed`]), merged at the end.
+    packed: PackedSum,
 }
 
 /// Which terms of a product an accumulator keeps, by time frequency.
@@ -195,8 +198,54 @@ pub struct Part {
     pub freq: Q,
     /// True for the `sin(h t)` terms.
     pub odd: bool,
+    /// The terms (made from the packed copy when first asked for, for
+    /// parts computed packed).
+    expr: std::sync::OnceLock<Expr>,
+    /// The terms packed for fast products, when they fit.
+    packed: Option<Packed>,
+}
+
+impl Part {
     /// The terms.
-    pub expr: Expr,
+    pub fn expr(&self) -> &Expr {
+        self.expr
+            .get_or_init(|| self.packed.as_ref().map_or_else(Expr::zero, Packed::unpack))
+    }
+
+    /// `∂/∂s` of the part (the same time factor), `None` when zero.
+    pub fn derivative(&self, s: Sym) -> Option<Part> {
+        if let Some(dp) = self.packed.as_ref().and_then(|p| p.derivative(s)) {
+            return (!dp.is_empty()).then(|| Part {
+                freq: self.freq.clone(),
+                odd: self.odd,
+                expr: std::sync::OnceLock::new(),
+                packed: Some(dp),
+            });
+        }
+        let e = self.expr().pd(s);
+        (!e.is_zero()).then(|| Part {
+            freq: self.freq.clone(),
+            odd: self.odd,
+            packed: Packed::pack(e.terms(), &self.freq, self.odd),
+            expr: std::sync::OnceLock::from(e),
+        })
+    }
+
+    /// True when the part has a packed copy (see [`super::packed`]).
+    pub fn is_packed(&self) -> bool {
+        self.packed.is_some()
+    }
+
+    /// The time factor of the part's terms.
+    pub fn beat(&self) -> Beat {
+        if self.freq.is_zero() {
+            Beat::One
+        } else if self.odd {
+            Beat::Sin(self.freq.clone())
+        } else {
+            Beat::Cos(self.freq.clone())
+        }
+    }
 }
 
 impl Acc {
@@ -211,6 +260,7 @@ impl Acc {
             map: FxHashMap::with_capacity_and_hasher(n.min(1 << 16), Default::default()),
             big_words: 0,
             sines: FxHashMap::default(),
+            packed: PackedSum::default(),
         }
     }
 
@@ -231,7 +281,8 @@ impl Acc {
 
     fn check_budget(&self) -> CoreResult<()> {
         let max_terms = limits::limits().max_terms;
-        if self.map.len().saturating_add(self.big_words) > max_terms {
+        let held = self.map.len() + self.sines.len() + self.packed.held();
+        if held.saturating_add(self.big_words) > max_terms {
             return Err(CoreError::Limit {
                 kind: LimitKind::Terms,
                 limit: max_terms as u64,
@@ -257,14 +308,25 @@ impl Acc {
         negate: bool,
         keep: Keep,
     ) -> CoreResult<()> {
+        limits::poll()?;
         if keep.cap().is_some() {
             // Skipped pairs cost a test each: count them as work too.
             limits::add_work((a.len() as u64).saturating_mul(b.len() as u64))?;
         }
+        // The cut for packed parts (integer frequencies: at most the floor).
+        let cut = Cut {
+            cap: keep.cap().map(|c| c.floor().to_i64().unwrap_or(i64::MAX)),
+            sines: matches!(keep, Keep::UpToWithSines(_)),
+        };
         for pa in a {
             for pb in b {
+                if let (Some(qa), Some(qb)) = (&pa.packed, &pb.packed) {
+                    if self.packed_product(qa, qb, negate, cut)? {
+                        continue;
+                    }
+                }
                 let Some(cap) = keep.cap() else {
-                    self.product(&pa.expr, &pb.expr, negate, keep)?;
+                    self.product(pa.expr(), pb.expr(), negate, keep)?;
                     continue;
                 };
                 let odd = pa.odd != pb.odd;
@@ -275,14 +337,45 @@ impl Acc {
                 if !kept && !sines {
                     continue;
                 }
-                if sum <= *cap {
-                    self.product(&pa.expr, &pb.expr, negate, Keep::All)?;
-                } else {
-                    self.product(&pa.expr, &pb.expr, negate, keep)?;
-                }
+                let keep = if sum <= *cap { Keep::All } else { keep };
+                self.product(pa.expr(), pb.expr(), negate, keep)?;
             }
         }
         Ok(())
+    }
+
+    /// `self += ±a·b` for two packed parts, with every pair of terms routed
+    /// once by its time factors (product-to-sum, then keep, drop or take
+    /// the sine constant). False when the product must go the general way
+    /// (nothing added then).
+    fn packed_product(
+        &mut self,
+        a: &Packed,
+        b: &Packed,
+        negate: bool,
+        cut: Cut,
+    ) -> CoreResult<bool> {
+        let Some(routes) = packed::routes(a, b, cut) else {
+            return Ok(false);
+        };
+        if routes.is_empty() || a.is_empty() || b.is_empty() {
+            return Ok(true);
+        }
+        limits::add_work((a.len() as u64).saturating_mul(b.len() as u64))?;
+        let (map, sines, big_words) = (&mut self.map, &mut self.sines, &mut self.big_words);
+        let mut spill = |k: Key, c: Q, to_sines: bool| {
+            if to_sines {
+                add_into(sines, k, c);
+            } else {
+                *big_words += coeff_words(&c);
+                add_into(map, k, c);
+            }
+        };
+        if !self.packed.add_product(a, b, negate, &routes, &mut spill) {
+            return Ok(false);
+        }
+        self.check_budget()?;
+        Ok(true)
     }
 
     /// `self += ±a·b`, keeping the terms `keep` asks for.
@@ -318,16 +411,7 @@ impl Acc {
                         if h > *cap {
                             if with_sines && matches!(k.beat, Beat::Sin(_)) {
                                 k.beat = Beat::One;
-                                let v = c.div(&h).unwrap_or(Q::ZERO);
-                                match self.sines.entry(k) {
-                                    std::collections::hash_map::Entry::Occupied(mut e) => {
-                                        let s = e.get().add(&v);
-                                        *e.get_mut() = s;
-                                    }
-                                    std::collections::hash_map::Entry::Vacant(e) => {
-                                        e.insert(v);
-                                    }
-                                }
+                                add_into(&mut self.sines, k, c.div(&h).unwrap_or(Q::ZERO));
                             }
                             return;
                         }
@@ -350,12 +434,37 @@ impl Acc {
     /// The kept terms and, with [`Keep::UpToWithSines`], the constant
     /// `Σ c/h` of the dropped sine terms, both in normal form.
     pub fn finish_with_sines(self) -> (Expr, Expr) {
-        (Expr::from_map(self.map), Expr::from_map(self.sines))
+        if self.map.is_empty() && self.sines.is_empty() {
+            // Only packed sums: their keys are distinct, no merging needed.
+            let (mut kept, mut sines) = (Vec::new(), Vec::new());
+            self.packed.drain(&mut |k, c, to_sines| {
+                if to_sines { &mut sines } else { &mut kept }.push((k, c))
+            });
+            return (Expr::from_distinct(kept), Expr::from_distinct(sines));
+        }
+        let (mut map, mut sines) = (self.map, self.sines);
+        self.packed.drain(&mut |k, c, to_sines| {
+            add_into(if to_sines { &mut sines } else { &mut map }, k, c)
+        });
+        (Expr::from_map(map), Expr::from_map(sines))
     }
 
     /// The sum in normal form.
     pub fn finish(self) -> Expr {
-        Expr::from_map(self.map)
+        self.finish_with_sines().0
+    }
+}
+
+/// `map[k] += c`.
+fn add_into(map: &mut FxHashMap<Key, Q>, k: Key, c: Q) {
+    match map.entry(k) {
+        std::collections::hash_map::Entry::Occupied(mut e) => {
+            let s = e.get().add(&c);
+            *e.get_mut() = s;
+        }
+        std::collections::hash_map::Entry::Vacant(e) => {
+            e.insert(c);
+        }
     }
 }
 
@@ -688,6 +797,12 @@ impl Expr {
         Expr { terms: out }
     }
 
+    /// From nonzero terms with distinct keys, in any order.
+    fn from_distinct(mut terms: Vec<(Key, Q)>) -> Expr {
+        terms.sort_unstable_by(|a, b| a.0.cmp(&b.0));
+        Expr { terms }
+    }
+
     fn from_map(map: FxHashMap<Key, Q>) -> Expr {
         let mut terms: Vec<(Key, Q)> = map.into_iter().filter(|(_, c)| !c.is_zero()).collect();
         terms.sort_unstable_by(|a, b| a.0.cmp(&b.0));
@@ -1007,9 +1122,10 @@ impl Expr {
         parts
             .into_iter()
             .map(|((freq, odd), terms)| Part {
+                packed: Packed::pack(&terms, &freq, odd),
                 freq,
                 odd,
-                expr: Expr { terms },
+                expr: std::sync::OnceLock::from(Expr { terms }),
             })
             .collect()
     }

@@ -9,6 +9,7 @@ pub mod expr;
 pub mod field;
 pub mod limits;
 pub mod num;
+pub mod packed;
 pub mod symbol;
 #[cfg(test)]
 mod tests;

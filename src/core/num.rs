@@ -140,7 +140,8 @@ impl Q {
         Some(Q::from_i128(n as i128, d as i128))
     }
 
-    fn from_i128(n: i128, d: i128) -> Q {
+    /// `n/d` reduced (`d` nonzero).
+    pub fn from_i128(n: i128, d: i128) -> Q {
         debug_assert!(d != 0);
         let (mut n, mut d) = if d < 0 { (-n, -d) } else { (n, d) };
         let g = gcd_u128(n.unsigned_abs(), d.unsigned_abs());

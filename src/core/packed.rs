@@ -1,0 +1,508 @@
+//! Packed products of plain polynomial parts: the inner loop of brackets.
+//!
+//! Owns: a compact copy of the terms of one time part (see
+//! [`super::expr::Part`]) when every term is a plain monomial (no
+//! exponential or state-trigonometric factor) in the first [`SLOTS`]
+//! symbols, with exponents from 0 to 127 and word-sized coefficients. Each
+//! monomial is one `u128`, eight bits per symbol, so the monomial of a
+//! product is one addition (two exponents of at most 127 cannot carry into
+//! the next symbol); the coefficients are integer numerators over one
+//! common denominator, so products and their sums need no gcd.
+//! [`PackedSum`] accumulates products of packed parts by the time factor
+//! of the result and gives back exact terms at the end; whatever does not
+//! fit its machine integers is handed to the caller as an exact term
+//! instead (the caller adds it to its general sum).
+//!
+//! Must not know: fields, brackets, budgets or the recursions that use it.
+
+use rustc_hash::FxHashMap;
+use smallvec::SmallVec;
+
+use super::expr::{Beat, Expr, Key, Lin, Mono, Wave};
+use super::num::Q;
+use super::symbol::Sym;
+
+/// Symbols that fit a packed monomial (those numbered below this).
+pub const SLOTS: u32 = 16;
+/// Largest exponent of a packed factor: the sum of two stays below 256.
+const MAX_EXP: i32 = 127;
+
+/// The terms of one part, packed: `Σ terms[i].1 · x^terms[i].0 / denom`
+/// times `cos(freq·t)` (`sin(freq·t)` when `odd`; 1 when `freq = 0`).
+#[derive(Clone, Debug, Default)]
+pub struct Packed {
+    /// The time frequency (an integer: parts with other frequencies are
+    /// not packed).
+    freq: i64,
+    /// True for `sin(freq·t)`.
+    odd: bool,
+    /// Positive common denominator.
+    denom: i64,
+    /// Packed monomial and integer numerator.
+    terms: Vec<(u128, i64)>,
+}
+
+impl Packed {
+    /// The packed copy of `terms` (all with time factor `cos(freq·t)`, or
+    /// `sin(freq·t)` when `odd`), or `None` when some term does not fit.
+    pub fn pack(terms: &[(Key, Q)], freq: &Q, odd: bool) -> Option<Packed> {
+        let freq = if freq.is_integer() {
+            freq.to_i64()?
+        } else {
+            return None;
+        };
+        let mut denom: i64 = 1;
+        for (k, c) in terms {
+            if !k.exp.is_zero() || k.wave != Wave::One {
+                return None;
+            }
+            let Q::Small(_, d) = c else {
+                return None;
+            };
+            denom = lcm_i64(denom, *d)?;
+        }
+        let mut out = Vec::with_capacity(terms.len());
+        for (k, c) in terms {
+            let Q::Small(n, d) = c else {
+                return None;
+            };
+            out.push((pack_mono(&k.mono)?, n.checked_mul(denom / d)?));
+        }
+        Some(Packed {
+            freq,
+            odd,
+            denom,
+            terms: out,
+        })
+    }
+
+    /// `∂/∂s`, `None` when a coefficient overflows.
+    pub fn derivative(&self, s: Sym) -> Option<Packed> {
+        let mut terms = Vec::new();
+        if s.0 < SLOTS {
+            let shift = 8 * s.0;
+            terms.reserve(self.terms.len());
+            for (m, n) in &self.terms {
+                let e = ((m >> shift) & 0xff) as i64;
+                if e != 0 {
+                    terms.push((m - (1u128 << shift), n.checked_mul(e)?));
+                }
+            }
+        }
+        Some(Packed { terms, ..*self })
+    }
+
+    /// The terms as an expression.
+    pub fn unpack(&self) -> Expr {
+        let beat = beat_of(self.freq, self.odd);
+        Expr::from_terms(
+            self.terms
+                .iter()
+                .map(|(m, n)| {
+                    (
+                        key_of(*m, &beat),
+                        Q::from_i128(*n as i128, self.denom as i128),
+                    )
+                })
+                .collect(),
+        )
+    }
+
+    /// The largest numerator in absolute value.
+    fn max_abs(&self) -> u64 {
+        self.terms
+            .iter()
+            .map(|(_, n)| n.unsigned_abs())
+            .max()
+            .unwrap_or(0)
+    }
+
+    /// Number of terms.
+    pub fn len(&self) -> usize {
+        self.terms.len()
+    }
+
+    /// True when there are no terms.
+    pub fn is_empty(&self) -> bool {
+        self.terms.is_empty()
+    }
+}
+
+fn gcd_u128(mut a: u128, mut b: u128) -> u128 {
+    while b != 0 {
+        (a, b) = (b, a % b);
+    }
+    a
+}
+
+fn lcm_i64(a: i64, b: i64) -> Option<i64> {
+    let g = gcd_u128(a.unsigned_abs() as u128, b.unsigned_abs() as u128) as i64;
+    (a / g).checked_mul(b)
+}
+
+fn lcm_i128(a: i128, b: i128) -> Option<i128> {
+    let g = gcd_u128(a.unsigned_abs(), b.unsigned_abs()) as i128;
+    (a / g).checked_mul(b)
+}
+
+fn pack_mono(m: &Mono) -> Option<u128> {
+    let mut out = 0u128;
+    for (s, e) in &m.0 {
+        if s.0 >= SLOTS || !(0..=MAX_EXP).contains(e) {
+            return None;
+        }
+        out |= (*e as u128) << (8 * s.0);
+    }
+    Some(out)
+}
+
+fn unpack_mono(mut m: u128) -> Mono {
+    let mut out = SmallVec::new();
+    let mut s = 0u32;
+    while m != 0 {
+        let e = (m & 0xff) as i32;
+        if e != 0 {
+            out.push((Sym(s), e));
+        }
+        m >>= 8;
+        s += 1;
+    }
+    Mono(out)
+}
+
+/// The time factor `cos(f t)` (`sin(f t)` when `odd`, 1 when `f = 0`).
+fn beat_of(freq: i64, odd: bool) -> Beat {
+    if freq == 0 {
+        Beat::One
+    } else if odd {
+        Beat::Sin(Q::int(freq))
+    } else {
+        Beat::Cos(Q::int(freq))
+    }
+}
+
+/// The key of a packed monomial with time factor `beat`.
+fn key_of(m: u128, beat: &Beat) -> Key {
+    Key {
+        mono: unpack_mono(m),
+        exp: Lin::default(),
+        wave: Wave::One,
+        beat: beat.clone(),
+    }
+}
+
+/// Which products a [`PackedSum`] keeps, by time frequency of the result
+/// (the integer form of [`super::expr::Keep`]).
+#[derive(Clone, Copy, Debug)]
+pub struct Cut {
+    /// Highest frequency kept (`None`: all).
+    pub cap: Option<i64>,
+    /// Of the dropped `c·sin(h t)`, keep the constant `c/h` apart.
+    pub sines: bool,
+}
+
+/// Where the products of one pair of parts go: the sum of terms with time
+/// factor `(freq, odd)` or, with `sines`, the constants of dropped sines;
+/// each product takes the factor `p/q` on the way.
+#[derive(Clone, Copy, Debug)]
+pub struct Route {
+    freq: i64,
+    odd: bool,
+    sines: bool,
+    p: i64,
+    q: i64,
+}
+
+/// The routes of the products of parts `a` and `b` (product-to-sum:
+/// `cos a cos b = (cos(a−b) + cos(a+b))/2`, `sin a sin b = (cos(a−b) −
+/// cos(a+b))/2`, `sin a cos b = (sin(a+b) + sin(a−b))/2`), after `cut`
+/// (`∫_0^t sin(h s) ds = (1 − cos(h t))/h` for the sine constants).
+/// `None` when a frequency overflows.
+pub fn routes(a: &Packed, b: &Packed, cut: Cut) -> Option<SmallVec<[Route; 2]>> {
+    let mut out: SmallVec<[Route; 2]> = SmallVec::new();
+    let mut push = |f: Option<i64>, odd: bool, p: i64, q: i64| -> Option<()> {
+        let f = f?;
+        // sin(−h t) = −sin(h t), cos(−h t) = cos(h t), sin(0) = 0.
+        let (f, p) = if f < 0 {
+            (f.checked_neg()?, if odd { -p } else { p })
+        } else {
+            (f, p)
+        };
+        if odd && f == 0 {
+            return Some(());
+        }
+        match cut.cap {
+            Some(c) if f > c => {
+                if cut.sines && odd {
+                    out.push(Route {
+                        freq: 0,
+                        odd: false,
+                        sines: true,
+                        p,
+                        q: q.checked_mul(f)?,
+                    });
+                }
+            }
+            _ => out.push(Route {
+                freq: f,
+                odd,
+                sines: false,
+                p,
+                q,
+            }),
+        }
+        Some(())
+    };
+    let (fa, fb) = (a.freq, b.freq);
+    if fa == 0 {
+        push(Some(fb), b.odd, 1, 1)?;
+    } else if fb == 0 {
+        push(Some(fa), a.odd, 1, 1)?;
+    } else {
+        let (sum, diff) = (fa.checked_add(fb), fa.checked_sub(fb));
+        match (a.odd, b.odd) {
+            (false, false) => {
+                push(diff, false, 1, 2)?;
+                push(sum, false, 1, 2)?;
+            }
+            (true, true) => {
+                push(diff, false, 1, 2)?;
+                push(sum, false, -1, 2)?;
+            }
+            (true, false) => {
+                push(sum, true, 1, 2)?;
+                push(diff, true, 1, 2)?;
+            }
+            (false, true) => {
+                push(sum, true, 1, 2)?;
+                push(diff.and_then(i64::checked_neg), true, 1, 2)?;
+            }
+        }
+    }
+    Some(out)
+}
+
+/// One sum of packed terms with a common time factor: numerators over
+/// `denom`.
+#[derive(Debug)]
+struct Target {
+    freq: i64,
+    odd: bool,
+    sines: bool,
+    denom: i128,
+    map: FxHashMap<u128, i128>,
+}
+
+impl Target {
+    fn beat(&self) -> Beat {
+        beat_of(self.freq, self.odd)
+    }
+}
+
+/// A sum of products of packed parts, by time factor of the result.
+#[derive(Debug, Default)]
+pub struct PackedSum {
+    targets: Vec<Target>,
+    index: FxHashMap<(i64, bool, bool), usize>,
+}
+
+impl PackedSum {
+    /// Number of terms held (before cancellation).
+    pub fn held(&self) -> usize {
+        self.targets.iter().map(|t| t.map.len()).sum()
+    }
+
+    /// The target of `r` whose denominator is a multiple of `d`, created
+    /// or rescaled as needed; what cannot be rescaled in machine integers
+    /// is spilled as exact terms.
+    fn target(&mut self, r: &Route, d: i128, spill: &mut impl FnMut(Key, Q, bool)) -> usize {
+        let i = match self.index.get(&(r.freq, r.odd, r.sines)) {
+            Some(i) => *i,
+            None => {
+                self.targets.push(Target {
+                    freq: r.freq,
+                    odd: r.odd,
+                    sines: r.sines,
+                    denom: d,
+                    map: FxHashMap::default(),
+                });
+                let i = self.targets.len() - 1;
+                self.index.insert((r.freq, r.odd, r.sines), i);
+                return i;
+            }
+        };
+        let t = &mut self.targets[i];
+        if t.denom % d == 0 {
+            return i;
+        }
+        let rescaled = lcm_i128(t.denom, d).and_then(|l| {
+            let f = l / t.denom;
+            let mut out = FxHashMap::with_capacity_and_hasher(t.map.len(), Default::default());
+            for (m, n) in &t.map {
+                out.insert(*m, n.checked_mul(f)?);
+            }
+            Some((l, out))
+        });
+        match rescaled {
+            Some((l, map)) => {
+                t.denom = l;
+                t.map = map;
+            }
+            None => {
+                let beat = t.beat();
+                for (m, n) in t.map.drain() {
+                    spill(key_of(m, &beat), Q::from_i128(n, t.denom), t.sines);
+                }
+                t.denom = d;
+            }
+        }
+        i
+    }
+
+    /// `self += ±a·b` along `routes` (see [`routes`]). Returns false,
+    /// doing nothing that changes the sum, when a factor does not fit
+    /// machine integers: the caller then multiplies the general way.
+    /// Products that overflow are spilled exactly.
+    pub fn add_product(
+        &mut self,
+        a: &Packed,
+        b: &Packed,
+        negate: bool,
+        routes: &[Route],
+        spill: &mut impl FnMut(Key, Q, bool),
+    ) -> bool {
+        // The targets of every route first (a later one may rescale an
+        // earlier one), then the scales.
+        let mut plan: SmallVec<[(usize, i128, i128); 2]> = SmallVec::new();
+        for r in routes {
+            let Some(d) = (a.denom as i128)
+                .checked_mul(b.denom as i128)
+                .and_then(|d| d.checked_mul(r.q as i128))
+            else {
+                return false;
+            };
+            plan.push((self.target(r, d, spill), r.p as i128, d));
+        }
+        let mut scales: SmallVec<[(usize, i128); 2]> = SmallVec::new();
+        for (ti, p, d) in plan {
+            let denom = self.targets[ti].denom;
+            if denom % d != 0 {
+                return false;
+            }
+            let Some(scale) = p.checked_mul(denom / d) else {
+                return false;
+            };
+            scales.push((ti, if negate { -scale } else { scale }));
+        }
+        // When no product of numerators times the scale can overflow, the
+        // loop multiplies unchecked (only the sums are checked).
+        let bits = |n: u128| 128 - n.leading_zeros();
+        let product_bits = bits(a.max_abs() as u128) + bits(b.max_abs() as u128);
+        for (ti, scale) in scales {
+            let t = &mut self.targets[ti];
+            if product_bits + bits(scale.unsigned_abs()) <= 126 {
+                for (ma, na) in &a.terms {
+                    for (mb, nb) in &b.terms {
+                        let v = (*na as i128) * (*nb as i128) * scale;
+                        let e = t.map.entry(ma + mb).or_insert(0);
+                        match e.checked_add(v) {
+                            Some(s) => *e = s,
+                            None => {
+                                let c = Q::from_i128(v, t.denom);
+                                spill(key_of(ma + mb, &t.beat()), c, t.sines);
+                            }
+                        }
+                    }
+                }
+                continue;
+            }
+            for (ma, na) in &a.terms {
+                for (mb, nb) in &b.terms {
+                    let m = ma + mb;
+                    let v = (*na as i128) * (*nb as i128);
+                    let added = v.checked_mul(scale).and_then(|v| {
+                        let e = t.map.entry(m).or_insert(0);
+                        *e = e.checked_add(v)?;
+                        Some(())
+                    });
+                    if added.is_none() {
+                        // Exact: v·scale/denom, through rationals.
+                        let c = Q::from_i128(v, 1).mul(&Q::from_i128(scale, t.denom));
+                        spill(key_of(m, &t.beat()), c, t.sines);
+                    }
+                }
+            }
+        }
+        true
+    }
+
+    /// Hands every nonzero term to `out` as (key, coefficient, sines).
+    pub fn drain(self, out: &mut impl FnMut(Key, Q, bool)) {
+        for t in self.targets {
+            let beat = t.beat();
+            for (m, n) in t.map {
+                if n != 0 {
+                    out(key_of(m, &beat), Q::from_i128(n, t.denom), t.sines);
+                }
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::core::expr::{Acc, Keep};
+
+    #[test]
+    fn sums_beyond_machine_integers_stay_exact() {
+        let (x, y) = (Expr::sym(Sym::new("px")), Expr::sym(Sym::new("py")));
+        let cos_t = Expr::cos_of(&Expr::sym(Sym::T), &[]).expect("cos t");
+        let big = Q::int(i64::MAX / 2);
+        let a = x.mul(&cos_t).expect("product").scale(&big);
+        let b = y
+            .mul(&cos_t)
+            .expect("product")
+            .scale(&big)
+            .add(&y.scale(&Q::Small(1, 3)));
+        let c = x.scale(&Q::Small(1, 7));
+        let (pa, pb, pc) = (
+            a.clone().into_by_frequency(),
+            b.clone().into_by_frequency(),
+            c.clone().into_by_frequency(),
+        );
+        assert!(pa.iter().chain(&pb).chain(&pc).all(|p| p.is_packed()));
+        // 40 products of about 2^124 each overflow an i128 sum; then a
+        // denominator 7 asks to rescale the sums that hold them.
+        let mut acc = Acc::new();
+        for _ in 0..40 {
+            acc.add_product_harmonics(&pa, &pb, false, Keep::All)
+                .expect("product");
+        }
+        acc.add_product_harmonics(&pc, &pb, true, Keep::All)
+            .expect("product");
+        let expected = a
+            .mul(&b)
+            .expect("ab")
+            .scale(&Q::int(40))
+            .sub(&c.mul(&b).expect("cb"));
+        assert!(expected.max_coeff_bits() > 127);
+        assert_eq!(acc.finish(), expected);
+    }
+
+    #[test]
+    fn monomials_round_trip_and_multiply_by_addition() {
+        let m = Mono(SmallVec::from_vec(vec![
+            (Sym(0), 3),
+            (Sym(5), 127),
+            (Sym(15), 1),
+        ]));
+        let p = pack_mono(&m).expect("fits");
+        assert_eq!(unpack_mono(p), m);
+        let sq = unpack_mono(p + p);
+        assert_eq!(sq.0.as_slice(), &[(Sym(0), 6), (Sym(5), 254), (Sym(15), 2)]);
+        assert!(pack_mono(&Mono(SmallVec::from_vec(vec![(Sym(16), 1)]))).is_none());
+        assert!(pack_mono(&Mono(SmallVec::from_vec(vec![(Sym(2), 128)]))).is_none());
+        assert!(pack_mono(&Mono(SmallVec::from_vec(vec![(Sym(2), -1)]))).is_none());
+    }
+}
