@@ -518,9 +518,9 @@ proptest! {
         prop_assert_eq!(e.mean_over(&per).or_fail("mean")?, general, "mean of {}", e);
     }
 
-    /// Sums of products of expressions split by time factor (the inner
-    /// loop of brackets, packed for plain polynomial parts with integer
-    /// frequencies) equal the product; keeping frequencies up to a cap
+    /// Sums of an expression and products of expressions split by time
+    /// factor (the inner loop of brackets, packed for plain polynomial
+    /// parts with integer frequencies) equal the sum of the product; keeping frequencies up to a cap
     /// keeps exactly the product's terms up to it, with `Σ c/h` over the
     /// dropped `c·sin(h t)` apart (`∫_0^t sin(h s) ds = (1 − cos(h t))/h`).
     #[test]
@@ -538,15 +538,21 @@ proptest! {
         let a = build_expr(&pick(&sa, 1), dim)?;
         let b = build_expr(&pick(&sb, 2), dim)?;
         let c = build_expr(&pick(&sc, 4), dim)?;
-        // a·b − b·c, as two sums into one accumulator.
-        let full = a.mul(&b).or_fail("ab")?.sub(&b.mul(&c).or_fail("bc")?);
+        // c/3 + a·b − b·c, as one scaled expression and two sums of
+        // products into one accumulator.
+        let third = q(1, 3);
+        let full = c
+            .scale(&third)
+            .add(&a.mul(&b).or_fail("ab")?)
+            .sub(&b.mul(&c).or_fail("bc")?);
         let (pa, pb, pc) = (
             a.into_by_frequency(),
             b.into_by_frequency(),
-            c.into_by_frequency(),
+            c.clone().into_by_frequency(),
         );
         let sum = |keep: Keep| -> Result<(Expr, Expr), TestCaseError> {
             let mut acc = Acc::new();
+            acc.add_scaled(&c, &third, keep).or_fail("c/3")?;
             acc.add_product_harmonics(&pa, &pb, false, keep).or_fail("ab")?;
             acc.add_product_harmonics(&pb, &pc, true, keep).or_fail("bc")?;
             Ok(acc.finish_with_sines())

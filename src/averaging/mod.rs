@@ -17,8 +17,8 @@ use std::collections::HashMap;
 
 use crate::core::calc::{common_period, Period, TimeKey};
 use crate::core::expr::Beat;
-use crate::core::expr::{Keep, Key};
-use crate::core::field::{bracket_sum, bracket_sum_with_sines, Prepared};
+use crate::core::expr::Keep;
+use crate::core::field::{bracket_sum_onto, Prepared};
 use crate::core::{limits, CoreError, CoreResult, Expr, Field, Matrix, Sym, Q};
 use crate::series::chrono::{magnus_generator, Graded};
 
@@ -284,12 +284,8 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
             Keep::All
         };
         let pairs = grade_pairs(&w, &h[1], k);
-        let (brackets, sines) = bracket_sum_with_sines(&pairs, states, cap)?;
-        let (vk, v_sines) = match cap {
-            Keep::UpToWithSines(c) => split_at_frequency(&standard[k - 1], c)?,
-            _ => (standard[k - 1].clone(), Field::zero(dim)),
-        };
-        let rest = vk.add(&brackets)?;
+        let (rest, sines) =
+            bracket_sum_onto(&[(&standard[k - 1], Q::ONE)], &pairs, false, states, cap)?;
         let fk = rest.map(|e| e.mean_over(period))?;
         if k == n {
             f_out.push(fk);
@@ -298,7 +294,7 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
         let wk_dot = rest.sub(&fk)?;
         let mut wk = wk_dot.map(|e| e.integral_from_zero())?;
         if low {
-            wk = wk.add(&sines)?.add(&v_sines)?;
+            wk = wk.add(&sines)?;
         }
         limits::check_terms(wk.n_terms())?;
         w[k] = wk.prepare(states)?;
@@ -316,43 +312,19 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
             // through p brackets with W_1 and the mean: frequencies above
             // p times those of W_1 cannot get there.
             let cap = (p + k == n).then(|| rho1.mul(&Q::int(p as i64)));
-            let u = fk
-                .scale(&fact[p].recip().unwrap_or(Q::ZERO))
-                .add_scaled(&wk_dot, &fact[p + 1].recip().unwrap_or(Q::ZERO))?;
-            let (u, keep) = match &cap {
-                Some(c) => (up_to_frequency(&u, c)?, Keep::UpTo(c)),
-                None => (u, Keep::All),
-            };
-            let inner = bracket_sum(&grade_pairs(&w, &h[p + 1], k), states, keep)?;
-            h[p][k] = u.sub(&inner)?.prepare(states)?;
+            let keep = cap.as_ref().map_or(Keep::All, Keep::UpTo);
+            let u = [
+                (&fk, fact[p].recip().unwrap_or(Q::ZERO)),
+                (&wk_dot, fact[p + 1].recip().unwrap_or(Q::ZERO)),
+            ];
+            let pairs = grade_pairs(&w, &h[p + 1], k);
+            h[p][k] = bracket_sum_onto(&u, &pairs, true, states, keep)?
+                .0
+                .prepare(states)?;
         }
         f_out.push(fk);
     }
     Ok(f_out)
-}
-
-/// The terms of `v` with time frequency at most `cap`.
-fn up_to_frequency(v: &Field, cap: &Q) -> CoreResult<Field> {
-    v.map(|e| Ok(e.filter(|key, _| key.beat.frequency() <= *cap)))
-}
-
-/// The terms of `v` with time frequency at most `cap`, and the constant
-/// `Σ c/h` that its other terms `c·sin(h t)` give to an integral from 0.
-fn split_at_frequency(v: &Field, cap: &Q) -> CoreResult<(Field, Field)> {
-    let kept = up_to_frequency(v, cap)?;
-    let sines = v.map(|e| {
-        Ok(e.map_terms(|key, c| match &key.beat {
-            Beat::Sin(h) if h > cap => Some((
-                Key {
-                    beat: Beat::One,
-                    ..key.clone()
-                },
-                c.div(h).unwrap_or(Q::ZERO),
-            )),
-            _ => None,
-        }))
-    })?;
-    Ok((kept, sines))
 }
 
 /// The pairs `(W_j, c_{k−j})`, `1 ≤ j < k`, with nonzero members.

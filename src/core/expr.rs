@@ -296,6 +296,58 @@ impl Acc {
         self.product(a, b, negate, Keep::All)
     }
 
+    /// `self += q·e`, keeping the terms `keep` asks for (with
+    /// [`Keep::UpToWithSines`], each dropped `c·sin(h t)` adds `c/h` to the
+    /// sine constants).
+    pub fn add_scaled(&mut self, e: &Expr, q: &Q, keep: Keep) -> CoreResult<()> {
+        if q.is_zero() {
+            return Ok(());
+        }
+        let with_sines = matches!(keep, Keep::UpToWithSines(_));
+        for (k, c) in e.terms() {
+            let mut c = c.mul(q);
+            let mut to_sines = false;
+            if let Some(cap) = keep.cap() {
+                let h = k.beat.frequency();
+                if h > *cap {
+                    if !(with_sines && matches!(k.beat, Beat::Sin(_))) {
+                        continue;
+                    }
+                    c = c.div(&h).unwrap_or(Q::ZERO);
+                    to_sines = true;
+                }
+            }
+            let packed_key = packed::pack_key(k);
+            if let (Some((m, freq, odd)), Q::Small(n, d)) = (packed_key, &c) {
+                let (freq, odd) = if to_sines { (0, false) } else { (freq, odd) };
+                let (map, sines, big_words) = (&mut self.map, &mut self.sines, &mut self.big_words);
+                let mut spill = |k: Key, c: Q, to_sines: bool| {
+                    if to_sines {
+                        add_into(sines, k, c);
+                    } else {
+                        *big_words += coeff_words(&c);
+                        add_into(map, k, c);
+                    }
+                };
+                if self
+                    .packed
+                    .add_term(m, freq, odd, to_sines, *n, *d, &mut spill)
+                {
+                    continue;
+                }
+            }
+            let mut key = k.clone();
+            if to_sines {
+                key.beat = Beat::One;
+                add_into(&mut self.sines, key, c);
+            } else {
+                self.big_words += coeff_words(&c);
+                add_into(&mut self.map, key, c);
+            }
+        }
+        self.check_budget()
+    }
+
     /// `self += ±a·b` for expressions split by time factor, keeping the
     /// terms `keep` asks for. Pairs of parts that cannot give such a term
     /// are skipped without multiplying: `cos(h₁t)cos(h₂t)` and
@@ -1109,6 +1161,8 @@ impl Expr {
     /// (or none, `h = 0`) and those with `sin(h t)` for each frequency `h`;
     /// the parts sum to `self`.
     pub fn into_by_frequency(self) -> Harmonics {
+        // One denominator for all packed parts (when it fits a word).
+        let denom = packed::common_denominator(&self.terms);
         let mut parts: std::collections::BTreeMap<(Q, bool), Vec<(Key, Q)>> = Default::default();
         for (k, c) in self.terms {
             let slot = match &k.beat {
@@ -1122,7 +1176,9 @@ impl Expr {
         parts
             .into_iter()
             .map(|((freq, odd), terms)| Part {
-                packed: Packed::pack(&terms, &freq, odd),
+                packed: denom
+                    .and_then(|d| Packed::pack_over(&terms, &freq, odd, d))
+                    .or_else(|| Packed::pack(&terms, &freq, odd)),
                 freq,
                 odd,
                 expr: std::sync::OnceLock::from(Expr { terms }),

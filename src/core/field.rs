@@ -278,7 +278,28 @@ pub fn bracket_sum_with_sines(
     states: &[Sym],
     keep: Keep,
 ) -> CoreResult<(Field, Field)> {
+    bracket_sum_onto(&[], pairs, false, states, keep)
+}
+
+/// `Σ_i q_i·F_i ± Σ_m [X_m, Y_m]` (minus when `negate`) in one sum per
+/// component, keeping the terms `keep` asks for, with the constant of the
+/// dropped sine terms (see [`Keep::UpToWithSines`]) as a second field.
+pub fn bracket_sum_onto(
+    init: &[(&Field, Q)],
+    pairs: &[(&Prepared, &Prepared)],
+    negate: bool,
+    states: &[Sym],
+    keep: Keep,
+) -> CoreResult<(Field, Field)> {
     let n = states.len();
+    if let Some((f, _)) = init.iter().find(|(f, _)| f.dim() != n) {
+        return Err(CoreError::Dimension {
+            what: format!(
+                "a field of dimension {} in a sum on {n} state coordinates",
+                f.dim()
+            ),
+        });
+    }
     for (x, y) in pairs {
         if x.parts.len() != n || y.parts.len() != n {
             return Err(CoreError::Dimension {
@@ -292,10 +313,13 @@ pub fn bracket_sum_with_sines(
     }
     let component = |i: usize| -> CoreResult<(Expr, Expr)> {
         let mut acc = Acc::new();
+        for (f, q) in init {
+            acc.add_scaled(&f.0[i], q, keep)?;
+        }
         for (x, y) in pairs {
             for s in 0..n {
-                acc.add_product_harmonics(&x.parts[s], &y.d[i][s], false, keep)?;
-                acc.add_product_harmonics(&y.parts[s], &x.d[i][s], true, keep)?;
+                acc.add_product_harmonics(&x.parts[s], &y.d[i][s], negate, keep)?;
+                acc.add_product_harmonics(&y.parts[s], &x.d[i][s], !negate, keep)?;
             }
         }
         Ok(acc.finish_with_sines())

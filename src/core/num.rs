@@ -144,6 +144,17 @@ impl Q {
     pub fn from_i128(n: i128, d: i128) -> Q {
         debug_assert!(d != 0);
         let (mut n, mut d) = if d < 0 { (-n, -d) } else { (n, d) };
+        if let (Ok(a), Ok(b)) = (u64::try_from(n.unsigned_abs()), u64::try_from(d)) {
+            // Both fit a word: the binary gcd of words.
+            let g = gcd_u64(a, b) as i128;
+            if g > 1 {
+                n /= g;
+                d /= g;
+            }
+            if let (Ok(n), Ok(d)) = (i64::try_from(n), i64::try_from(d)) {
+                return Q::Small(n, d);
+            }
+        }
         let g = gcd_u128(n.unsigned_abs(), d.unsigned_abs());
         if g > 1 {
             n /= g as i128;

@@ -24,6 +24,8 @@ use super::symbol::Sym;
 
 /// Symbols that fit a packed monomial (those numbered below this).
 pub const SLOTS: u32 = 16;
+/// Frequencies below this find their sums by direct indexing.
+const SMALL_FREQ: usize = 1024;
 /// Largest exponent of a packed factor: the sum of two stays below 256.
 const MAX_EXP: i32 = 127;
 
@@ -46,26 +48,30 @@ impl Packed {
     /// The packed copy of `terms` (all with time factor `cos(freq·t)`, or
     /// `sin(freq·t)` when `odd`), or `None` when some term does not fit.
     pub fn pack(terms: &[(Key, Q)], freq: &Q, odd: bool) -> Option<Packed> {
+        Packed::pack_over(terms, freq, odd, common_denominator(terms)?)
+    }
+
+    /// [`Packed::pack`] over a given common denominator (a multiple of
+    /// every coefficient's denominator, see [`common_denominator`]): the
+    /// parts of one expression share one, so that their products land on
+    /// sums with equal denominators.
+    pub fn pack_over(terms: &[(Key, Q)], freq: &Q, odd: bool, denom: i64) -> Option<Packed> {
         let freq = if freq.is_integer() {
             freq.to_i64()?
         } else {
             return None;
         };
-        let mut denom: i64 = 1;
+        let mut out = Vec::with_capacity(terms.len());
         for (k, c) in terms {
             if !k.exp.is_zero() || k.wave != Wave::One {
                 return None;
             }
-            let Q::Small(_, d) = c else {
-                return None;
-            };
-            denom = lcm_i64(denom, *d)?;
-        }
-        let mut out = Vec::with_capacity(terms.len());
-        for (k, c) in terms {
             let Q::Small(n, d) = c else {
                 return None;
             };
+            if denom % d != 0 {
+                return None;
+            }
             out.push((pack_mono(&k.mono)?, n.checked_mul(denom / d)?));
         }
         Some(Packed {
@@ -126,6 +132,33 @@ impl Packed {
     pub fn is_empty(&self) -> bool {
         self.terms.is_empty()
     }
+}
+
+/// The least common denominator of the coefficients, when they all fit
+/// machine words and it does too.
+pub fn common_denominator(terms: &[(Key, Q)]) -> Option<i64> {
+    let mut denom: i64 = 1;
+    for (_, c) in terms {
+        let Q::Small(_, d) = c else {
+            return None;
+        };
+        denom = lcm_i64(denom, *d)?;
+    }
+    Some(denom)
+}
+
+/// The packed monomial, frequency and parity of a term's key, when it is
+/// plain (see [`Packed`]).
+pub fn pack_key(k: &Key) -> Option<(u128, i64, bool)> {
+    if !k.exp.is_zero() || k.wave != Wave::One {
+        return None;
+    }
+    let (freq, odd) = match &k.beat {
+        Beat::One => (0, false),
+        Beat::Cos(h) => (h.is_integer().then(|| h.to_i64())??, false),
+        Beat::Sin(h) => (h.is_integer().then(|| h.to_i64())??, true),
+    };
+    Some((pack_mono(&k.mono)?, freq, odd))
 }
 
 fn gcd_u128(mut a: u128, mut b: u128) -> u128 {
@@ -290,6 +323,8 @@ struct Target {
     odd: bool,
     sines: bool,
     denom: i128,
+    /// The last `d` that divided `denom`, with `denom / d`.
+    last: (i128, i128),
     map: FxHashMap<u128, i128>,
 }
 
@@ -303,7 +338,11 @@ impl Target {
 #[derive(Debug, Default)]
 pub struct PackedSum {
     targets: Vec<Target>,
-    index: FxHashMap<(i64, bool, bool), usize>,
+    /// Target by (frequency, kind) for small frequencies: kind 0 for
+    /// `cos`/1, 1 for `sin`, 2 for sine constants; `usize::MAX` for none.
+    small: Vec<[usize; 3]>,
+    /// Target by (frequency, kind) for the others.
+    index: FxHashMap<(i64, u8), usize>,
 }
 
 impl PackedSum {
@@ -316,37 +355,64 @@ impl PackedSum {
     /// or rescaled as needed; what cannot be rescaled in machine integers
     /// is spilled as exact terms.
     fn target(&mut self, r: &Route, d: i128, spill: &mut impl FnMut(Key, Q, bool)) -> usize {
-        let i = match self.index.get(&(r.freq, r.odd, r.sines)) {
-            Some(i) => *i,
+        let kind = if r.sines { 2 } else { r.odd as u8 };
+        let found = match usize::try_from(r.freq) {
+            Ok(f) if f < SMALL_FREQ => self
+                .small
+                .get(f)
+                .map(|k| k[kind as usize])
+                .filter(|i| *i != usize::MAX),
+            _ => self.index.get(&(r.freq, kind)).copied(),
+        };
+        let i = match found {
+            Some(i) => i,
             None => {
                 self.targets.push(Target {
                     freq: r.freq,
                     odd: r.odd,
                     sines: r.sines,
                     denom: d,
+                    last: (d, 1),
                     map: FxHashMap::default(),
                 });
                 let i = self.targets.len() - 1;
-                self.index.insert((r.freq, r.odd, r.sines), i);
+                match usize::try_from(r.freq) {
+                    Ok(f) if f < SMALL_FREQ => {
+                        if self.small.len() <= f {
+                            self.small.resize(f + 1, [usize::MAX; 3]);
+                        }
+                        self.small[f][kind as usize] = i;
+                    }
+                    _ => {
+                        self.index.insert((r.freq, kind), i);
+                    }
+                }
                 return i;
             }
         };
         let t = &mut self.targets[i];
-        if t.denom % d == 0 {
+        if t.last.0 == d {
             return i;
         }
-        let rescaled = lcm_i128(t.denom, d).and_then(|l| {
-            let f = l / t.denom;
-            let mut out = FxHashMap::with_capacity_and_hasher(t.map.len(), Default::default());
-            for (m, n) in &t.map {
-                out.insert(*m, n.checked_mul(f)?);
-            }
-            Some((l, out))
-        });
-        match rescaled {
-            Some((l, map)) => {
+        if t.denom % d == 0 {
+            t.last = (d, t.denom / d);
+            return i;
+        }
+        // Rescale in place when every numerator times the factor fits.
+        let max = t.map.values().map(|n| n.unsigned_abs()).max().unwrap_or(0);
+        let factor = lcm_i128(t.denom, d)
+            .map(|l| (l, l / t.denom))
+            .filter(|(_, f)| {
+                max.checked_mul(f.unsigned_abs())
+                    .is_some_and(|m| m <= i128::MAX as u128)
+            });
+        match factor {
+            Some((l, f)) => {
+                for n in t.map.values_mut() {
+                    *n *= f;
+                }
                 t.denom = l;
-                t.map = map;
+                t.last = (d, l / d);
             }
             None => {
                 let beat = t.beat();
@@ -354,6 +420,7 @@ impl PackedSum {
                     spill(key_of(m, &beat), Q::from_i128(n, t.denom), t.sines);
                 }
                 t.denom = d;
+                t.last = (d, 1);
             }
         }
         i
@@ -385,11 +452,17 @@ impl PackedSum {
         }
         let mut scales: SmallVec<[(usize, i128); 2]> = SmallVec::new();
         for (ti, p, d) in plan {
-            let denom = self.targets[ti].denom;
-            if denom % d != 0 {
+            let t = &self.targets[ti];
+            let quotient = if t.last.0 == d {
+                t.last.1
+            } else if t.denom % d == 0 {
+                // A later route rescaled this target.
+                t.denom / d
+            } else {
+                // A later route spilled and restarted this target.
                 return false;
-            }
-            let Some(scale) = p.checked_mul(denom / d) else {
+            };
+            let Some(scale) = p.checked_mul(quotient) else {
                 return false;
             };
             scales.push((ti, if negate { -scale } else { scale }));
@@ -432,6 +505,51 @@ impl PackedSum {
                     }
                 }
             }
+        }
+        true
+    }
+
+    /// `self += n/d · m` on the sum of time factor `(freq, odd)` (or of
+    /// sine constants); `d > 0`. False, doing nothing, when the sum's
+    /// denominator cannot take `d` in machine integers.
+    #[allow(clippy::too_many_arguments)]
+    pub fn add_term(
+        &mut self,
+        m: u128,
+        freq: i64,
+        odd: bool,
+        sines: bool,
+        n: i64,
+        d: i64,
+        spill: &mut impl FnMut(Key, Q, bool),
+    ) -> bool {
+        let r = Route {
+            freq,
+            odd,
+            sines,
+            p: 1,
+            q: 1,
+        };
+        let ti = self.target(&r, d as i128, spill);
+        let t = &mut self.targets[ti];
+        let quotient = if t.last.0 == d as i128 {
+            t.last.1
+        } else if t.denom % d as i128 == 0 {
+            t.denom / d as i128
+        } else {
+            return false;
+        };
+        let added = (n as i128).checked_mul(quotient).and_then(|v| {
+            let e = t.map.entry(m).or_insert(0);
+            *e = e.checked_add(v)?;
+            Some(())
+        });
+        if added.is_none() {
+            spill(
+                key_of(m, &t.beat()),
+                Q::from_i128(n as i128, d as i128),
+                t.sines,
+            );
         }
         true
     }
