@@ -487,12 +487,9 @@ impl Acc {
     /// `Σ c/h` of the dropped sine terms, both in normal form.
     pub fn finish_with_sines(self) -> (Expr, Expr) {
         if self.map.is_empty() && self.sines.is_empty() {
-            // Only packed sums: their keys are distinct, no merging needed.
-            let (mut kept, mut sines) = (Vec::new(), Vec::new());
-            self.packed.drain(&mut |k, c, to_sines| {
-                if to_sines { &mut sines } else { &mut kept }.push((k, c))
-            });
-            return (Expr::from_distinct(kept), Expr::from_distinct(sines));
+            // Only packed sums: their keys are distinct and sorted there.
+            let (kept, sines) = self.packed.into_sorted();
+            return (Expr { terms: kept }, Expr { terms: sines });
         }
         let (mut map, mut sines) = (self.map, self.sines);
         self.packed.drain(&mut |k, c, to_sines| {
@@ -847,12 +844,6 @@ impl Expr {
             out.pop();
         }
         Expr { terms: out }
-    }
-
-    /// From nonzero terms with distinct keys, in any order.
-    fn from_distinct(mut terms: Vec<(Key, Q)>) -> Expr {
-        terms.sort_unstable_by(|a, b| a.0.cmp(&b.0));
-        Expr { terms }
     }
 
     fn from_map(map: FxHashMap<Key, Q>) -> Expr {

@@ -203,6 +203,35 @@ fn unpack_mono(mut m: u128) -> Mono {
     Mono(out)
 }
 
+/// The order of [`Mono`] (its sorted `(symbol, exponent)` pairs compared
+/// lexicographically) on packed monomials: at the lowest symbol where they
+/// differ, two nonzero exponents compare as numbers; where one is zero,
+/// that one's next pair has a later symbol (it is greater) unless it has
+/// none left (it is a prefix, so smaller).
+fn cmp_mono(a: u128, b: u128) -> std::cmp::Ordering {
+    use std::cmp::Ordering;
+    let x = a ^ b;
+    if x == 0 {
+        return Ordering::Equal;
+    }
+    let shift = x.trailing_zeros() / 8 * 8;
+    let (ea, eb) = ((a >> shift) & 0xff, (b >> shift) & 0xff);
+    let rest = |m: u128| shift + 8 < 128 && m >> (shift + 8) != 0;
+    if ea != 0 && eb != 0 {
+        ea.cmp(&eb)
+    } else if ea == 0 {
+        if rest(a) {
+            Ordering::Greater
+        } else {
+            Ordering::Less
+        }
+    } else if rest(b) {
+        Ordering::Less
+    } else {
+        Ordering::Greater
+    }
+}
+
 /// The time factor `cos(f t)` (`sin(f t)` when `odd`, 1 when `f = 0`).
 fn beat_of(freq: i64, odd: bool) -> Beat {
     if freq == 0 {
@@ -554,6 +583,39 @@ impl PackedSum {
         true
     }
 
+    /// The nonzero terms as (kept, sine constants), each sorted by key:
+    /// the order of [`Key`] (monomial, then time factor) computed on the
+    /// packed form, which is much cheaper than comparing keys.
+    pub fn into_sorted(self) -> (Vec<(Key, Q)>, Vec<(Key, Q)>) {
+        let mut kept: Vec<(u128, u8, i64, i128, i128)> = Vec::new();
+        let mut sines: Vec<(u128, u8, i64, i128, i128)> = Vec::new();
+        for t in self.targets {
+            let kind = if t.freq == 0 {
+                0
+            } else if t.odd {
+                2
+            } else {
+                1
+            };
+            let out = if t.sines { &mut sines } else { &mut kept };
+            out.extend(
+                t.map
+                    .into_iter()
+                    .filter(|(_, n)| *n != 0)
+                    .map(|(m, n)| (m, kind, t.freq, n, t.denom)),
+            );
+        }
+        let build = |mut v: Vec<(u128, u8, i64, i128, i128)>| -> Vec<(Key, Q)> {
+            v.sort_unstable_by(|a, b| cmp_mono(a.0, b.0).then(a.1.cmp(&b.1)).then(a.2.cmp(&b.2)));
+            v.into_iter()
+                .map(|(m, kind, freq, n, d)| {
+                    (key_of(m, &beat_of(freq, kind == 2)), Q::from_i128(n, d))
+                })
+                .collect()
+        };
+        (build(kept), build(sines))
+    }
+
     /// Hands every nonzero term to `out` as (key, coefficient, sines).
     pub fn drain(self, out: &mut impl FnMut(Key, Q, bool)) {
         for t in self.targets {
@@ -606,6 +668,28 @@ mod tests {
             .sub(&c.mul(&b).expect("cb"));
         assert!(expected.max_coeff_bits() > 127);
         assert_eq!(acc.finish(), expected);
+    }
+
+    #[test]
+    fn packed_order_is_the_order_of_monomials() {
+        // Every monomial in slots 0, 1, 2 and 15 with exponents up to 2.
+        let mut all = Vec::new();
+        for code in 0..81u32 {
+            let e = [code % 3, code / 3 % 3, code / 9 % 3, code / 27 % 3];
+            let mut pairs = Vec::new();
+            for (slot, e) in [0u32, 1, 2, 15].into_iter().zip(e) {
+                if e > 0 {
+                    pairs.push((Sym(slot), e as i32));
+                }
+            }
+            all.push(Mono(SmallVec::from_vec(pairs)));
+        }
+        for a in &all {
+            for b in &all {
+                let (pa, pb) = (pack_mono(a).expect("fits"), pack_mono(b).expect("fits"));
+                assert_eq!(cmp_mono(pa, pb), a.cmp(b), "{a:?} vs {b:?}");
+            }
+        }
     }
 
     #[test]
