@@ -363,6 +363,13 @@ impl Target {
     }
 }
 
+/// Terms of an expression: keys and coefficients.
+pub type Terms = Vec<(Key, Q)>;
+
+/// A drained term: monomial, time factor kind (0: 1, 1: cos, 2: sin),
+/// frequency, numerator, denominator.
+type Drained = (u128, u8, i64, i128, i128);
+
 /// A sum of products of packed parts, by time factor of the result.
 #[derive(Debug, Default)]
 pub struct PackedSum {
@@ -586,9 +593,9 @@ impl PackedSum {
     /// The nonzero terms as (kept, sine constants), each sorted by key:
     /// the order of [`Key`] (monomial, then time factor) computed on the
     /// packed form, which is much cheaper than comparing keys.
-    pub fn into_sorted(self) -> (Vec<(Key, Q)>, Vec<(Key, Q)>) {
-        let mut kept: Vec<(u128, u8, i64, i128, i128)> = Vec::new();
-        let mut sines: Vec<(u128, u8, i64, i128, i128)> = Vec::new();
+    pub fn into_sorted(self) -> (Terms, Terms) {
+        let mut kept: Vec<Drained> = Vec::new();
+        let mut sines: Vec<Drained> = Vec::new();
         for t in self.targets {
             let kind = if t.freq == 0 {
                 0
@@ -605,7 +612,7 @@ impl PackedSum {
                     .map(|(m, n)| (m, kind, t.freq, n, t.denom)),
             );
         }
-        let build = |mut v: Vec<(u128, u8, i64, i128, i128)>| -> Vec<(Key, Q)> {
+        let build = |mut v: Vec<Drained>| -> Terms {
             v.sort_unstable_by(|a, b| cmp_mono(a.0, b.0).then(a.1.cmp(&b.1)).then(a.2.cmp(&b.2)));
             v.into_iter()
                 .map(|(m, kind, freq, n, d)| {
