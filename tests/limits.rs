@@ -294,6 +294,22 @@ fn product_blowup_hits_a_small_budget() {
     );
 }
 
+/// A bracket whose one product of two parts holds far more terms than the
+/// budget (products of sums in disjoint variables: every pair of terms is
+/// a new monomial) stops while it multiplies: the packed inner loop of
+/// brackets watches the budget every 64 rows, not only after the product.
+#[test]
+fn one_large_bracket_product_stops_at_the_term_budget() {
+    refused(
+        "bracket with a 69300-term product, budget 20000",
+        "state a, b, c, d, e, f, g, h\nset budget 20000\n\
+         X = [(a + b + c + d + 1)^7, 0, 0, 0, 0, 0, 0, 0]\n\
+         Y = [(e + f + g + h + 1)^7, 0, 0, 0, 0, 0, 0, 0]\n\
+         [X, Y]",
+        &["term budget exceeded", "20000", "set budget N"],
+    );
+}
+
 #[test]
 fn repeated_squaring_hits_a_small_budget() {
     let mut text = String::from("state x, y, z\nset budget 1000\nA = x + y + z + 1");

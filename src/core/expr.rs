@@ -414,7 +414,9 @@ impl Acc {
             return Ok(true);
         }
         limits::add_work((a.len() as u64).saturating_mul(b.len() as u64))?;
+        let max_terms = limits::limits().max_terms;
         let (map, sines, big_words) = (&mut self.map, &mut self.sines, &mut self.big_words);
+        let general = map.len() + sines.len() + *big_words;
         let mut spill = |k: Key, c: Q, to_sines: bool| {
             if to_sines {
                 add_into(sines, k, c);
@@ -423,7 +425,21 @@ impl Acc {
                 add_into(map, k, c);
             }
         };
-        if !self.packed.add_product(a, b, negate, &routes, &mut spill) {
+        // Large products poll and watch the term budget as they go.
+        let mut check = |held: usize| -> CoreResult<()> {
+            limits::poll()?;
+            if general.saturating_add(held) > max_terms {
+                return Err(CoreError::Limit {
+                    kind: LimitKind::Terms,
+                    limit: max_terms as u64,
+                });
+            }
+            Ok(())
+        };
+        if !self
+            .packed
+            .add_product(a, b, negate, &routes, &mut spill, &mut check)?
+        {
             return Ok(false);
         }
         self.check_budget()?;

@@ -465,15 +465,19 @@ impl PackedSum {
     /// `self += ±a·b` along `routes` (see [`routes`]). Returns false,
     /// doing nothing that changes the sum, when a factor does not fit
     /// machine integers: the caller then multiplies the general way.
-    /// Products that overflow are spilled exactly.
-    pub fn add_product(
+    /// Products that overflow are spilled exactly. Every 64 rows (terms of
+    /// `a`), `check` is given the number of terms held and may stop the
+    /// product with an error (budgets, interruption: the caller's
+    /// business); the sum is then incomplete and must be dropped.
+    pub fn add_product<E>(
         &mut self,
         a: &Packed,
         b: &Packed,
         negate: bool,
         routes: &[Route],
         spill: &mut impl FnMut(Key, Q, bool),
-    ) -> bool {
+        check: &mut impl FnMut(usize) -> Result<(), E>,
+    ) -> Result<bool, E> {
         // The targets of every route first (a later one may rescale an
         // earlier one), then the scales.
         let mut plan: SmallVec<[(usize, i128, i128); 2]> = SmallVec::new();
@@ -482,7 +486,7 @@ impl PackedSum {
                 .checked_mul(b.denom as i128)
                 .and_then(|d| d.checked_mul(r.q as i128))
             else {
-                return false;
+                return Ok(false);
             };
             plan.push((self.target(r, d, spill), r.p as i128, d));
         }
@@ -496,10 +500,10 @@ impl PackedSum {
                 t.denom / d
             } else {
                 // A later route spilled and restarted this target.
-                return false;
+                return Ok(false);
             };
             let Some(scale) = p.checked_mul(quotient) else {
-                return false;
+                return Ok(false);
             };
             scales.push((ti, if negate { -scale } else { scale }));
         }
@@ -508,9 +512,13 @@ impl PackedSum {
         let bits = |n: u128| 128 - n.leading_zeros();
         let product_bits = bits(a.max_abs() as u128) + bits(b.max_abs() as u128);
         for (ti, scale) in scales {
+            let others = self.held() - self.targets[ti].map.len();
             let t = &mut self.targets[ti];
             if product_bits + bits(scale.unsigned_abs()) <= 126 {
-                for (ma, na) in &a.terms {
+                for (row, (ma, na)) in a.terms.iter().enumerate() {
+                    if row % 64 == 63 {
+                        check(others + t.map.len())?;
+                    }
                     for (mb, nb) in &b.terms {
                         let v = (*na as i128) * (*nb as i128) * scale;
                         let e = t.map.entry(ma + mb).or_insert(0);
@@ -525,7 +533,10 @@ impl PackedSum {
                 }
                 continue;
             }
-            for (ma, na) in &a.terms {
+            for (row, (ma, na)) in a.terms.iter().enumerate() {
+                if row % 64 == 63 {
+                    check(others + t.map.len())?;
+                }
                 for (mb, nb) in &b.terms {
                     let m = ma + mb;
                     let v = (*na as i128) * (*nb as i128);
@@ -542,7 +553,7 @@ impl PackedSum {
                 }
             }
         }
-        true
+        Ok(true)
     }
 
     /// `self += n/d · m` on the sum of time factor `(freq, odd)` (or of
