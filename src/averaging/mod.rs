@@ -18,7 +18,7 @@ use std::collections::HashMap;
 use crate::core::calc::{common_period, Period, TimeKey};
 use crate::core::expr::Beat;
 use crate::core::expr::Keep;
-use crate::core::field::{bracket_sum_onto, Prepared};
+use crate::core::field::{bracket_sum_onto, bracket_sum_onto_prepared, Prepared};
 use crate::core::{limits, CoreError, CoreResult, Expr, Field, Matrix, Sym, Q};
 use crate::series::chrono::{magnus_generator, Graded};
 
@@ -318,9 +318,7 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
                 (&wk_dot, fact[p + 1].recip().unwrap_or(Q::ZERO)),
             ];
             let pairs = grade_pairs(&w, &h[p + 1], k);
-            h[p][k] = bracket_sum_onto(&u, &pairs, true, states, keep)?
-                .0
-                .prepare(states)?;
+            h[p][k] = bracket_sum_onto_prepared(&u, &pairs, true, states, keep)?;
         }
         f_out.push(fk);
     }

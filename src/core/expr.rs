@@ -231,6 +231,14 @@ impl Part {
         })
     }
 
+    /// Number of terms.
+    pub fn len(&self) -> usize {
+        match &self.packed {
+            Some(p) => p.len(),
+            None => self.expr().len(),
+        }
+    }
+
     /// True when the part has a packed copy (see [`super::packed`]).
     pub fn is_packed(&self) -> bool {
         self.packed.is_some()
@@ -517,6 +525,27 @@ impl Acc {
     /// The sum in normal form.
     pub fn finish(self) -> Expr {
         self.finish_with_sines().0
+    }
+
+    /// The kept terms split by time factor, as
+    /// [`Expr::into_by_frequency`] would give them (the sine constants are
+    /// dropped). When everything was packed the parts stay packed: no
+    /// normal form is built until a part's terms are asked for.
+    pub fn finish_parts(self) -> Harmonics {
+        if self.map.is_empty() && self.sines.is_empty() {
+            if let Some(parts) = self.packed.to_parts() {
+                return parts
+                    .into_iter()
+                    .map(|p| Part {
+                        freq: Q::int(p.freq()),
+                        odd: p.odd(),
+                        expr: std::sync::OnceLock::new(),
+                        packed: Some(p),
+                    })
+                    .collect();
+            }
+        }
+        self.finish().into_by_frequency()
     }
 }
 

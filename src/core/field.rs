@@ -7,7 +7,7 @@
 //! flow `(Φ^Y_s)^* X = Σ s^k/k! ad_Y^k X`.
 
 use super::error::{CoreError, CoreResult};
-use super::expr::{Acc, Expr, Harmonics, Keep};
+use super::expr::{Acc, Expr, Harmonics, Keep, Part};
 use super::limits;
 use super::num::Q;
 use super::symbol::Sym;
@@ -149,19 +149,8 @@ impl Field {
     /// it more than once (see [`bracket_sum`]).
     pub fn prepare(self, states: &[Sym]) -> CoreResult<Prepared> {
         self.check_states(states)?;
-        let n_terms = self.n_terms();
         let parts: Vec<Harmonics> = self.0.into_iter().map(Expr::into_by_frequency).collect();
-        // A part's derivative keeps its time factor: derive part by part.
-        let d = parts
-            .iter()
-            .map(|xi| {
-                states
-                    .iter()
-                    .map(|s| xi.iter().filter_map(|p| p.derivative(*s)).collect())
-                    .collect()
-            })
-            .collect();
-        Ok(Prepared { parts, d, n_terms })
+        Ok(Prepared::from_parts(parts, states))
     }
 
     /// The Lie bracket `[self, other] = D(other)·self − D(self)·other`.
@@ -245,6 +234,22 @@ pub struct Prepared {
 }
 
 impl Prepared {
+    /// From components split by time frequency (their derivatives are
+    /// taken part by part: a part's derivative keeps its time factor).
+    fn from_parts(parts: Vec<Harmonics>, states: &[Sym]) -> Prepared {
+        let n_terms = parts.iter().flatten().map(Part::len).sum();
+        let d = parts
+            .iter()
+            .map(|xi| {
+                states
+                    .iter()
+                    .map(|s| xi.iter().filter_map(|p| p.derivative(*s)).collect())
+                    .collect()
+            })
+            .collect();
+        Prepared { parts, d, n_terms }
+    }
+
     /// The components, split by time frequency.
     pub fn parts(&self) -> &[Harmonics] {
         &self.parts
@@ -291,6 +296,37 @@ pub fn bracket_sum_onto(
     states: &[Sym],
     keep: Keep,
 ) -> CoreResult<(Field, Field)> {
+    let sums = component_sums(init, pairs, negate, states, keep, Acc::finish_with_sines)?;
+    let (kept, sines) = sums.into_iter().unzip();
+    Ok((Field(kept), Field(sines)))
+}
+
+/// [`bracket_sum_onto`] (without sine constants) as a prepared field for
+/// further brackets: when every product was packed, its parts stay packed
+/// and no normal form is built.
+pub fn bracket_sum_onto_prepared(
+    init: &[(&Field, Q)],
+    pairs: &[(&Prepared, &Prepared)],
+    negate: bool,
+    states: &[Sym],
+    keep: Keep,
+) -> CoreResult<Prepared> {
+    let parts = component_sums(init, pairs, negate, states, keep, Acc::finish_parts)?;
+    Ok(Prepared::from_parts(parts, states))
+}
+
+/// The sum of [`bracket_sum_onto`] for every component, each accumulator
+/// handed to `finish`. Large sums split their components over the
+/// available cores (each worker gets this thread's limits and counts its
+/// work against this statement).
+fn component_sums<T: Send>(
+    init: &[(&Field, Q)],
+    pairs: &[(&Prepared, &Prepared)],
+    negate: bool,
+    states: &[Sym],
+    keep: Keep,
+    finish: impl Fn(Acc) -> T + Sync,
+) -> CoreResult<Vec<T>> {
     let n = states.len();
     if let Some((f, _)) = init.iter().find(|(f, _)| f.dim() != n) {
         return Err(CoreError::Dimension {
@@ -311,7 +347,7 @@ pub fn bracket_sum_onto(
             });
         }
     }
-    let component = |i: usize| -> CoreResult<(Expr, Expr)> {
+    let component = |i: usize| -> CoreResult<T> {
         let mut acc = Acc::new();
         for (f, q) in init {
             acc.add_scaled(&f.0[i], q, keep)?;
@@ -322,18 +358,15 @@ pub fn bracket_sum_onto(
                 acc.add_product_harmonics(&y.parts[s], &x.d[i][s], !negate, keep)?;
             }
         }
-        Ok(acc.finish_with_sines())
+        Ok(finish(acc))
     };
     let work = pairs.iter().fold(0usize, |w, (x, y)| {
         w.saturating_add(x.n_terms.saturating_mul(y.n_terms))
     });
     let workers = parallelism().min(n);
-    let mut kept = vec![Expr::zero(); n];
-    let mut sines = vec![Expr::zero(); n];
     if workers > 1 && work >= PARALLEL_WORK {
         let ctx = limits::context();
-        type Components = Vec<(usize, (Expr, Expr))>;
-        let results: Vec<CoreResult<Components>> = std::thread::scope(|scope| {
+        let results: Vec<CoreResult<Vec<(usize, T)>>> = std::thread::scope(|scope| {
             let handles: Vec<_> = (0..workers)
                 .map(|w| {
                     let component = &component;
@@ -352,18 +385,15 @@ pub fn bracket_sum_onto(
                 .map(|h| h.join().unwrap_or(Err(CoreError::Interrupted)))
                 .collect()
         });
+        let mut out: Vec<(usize, T)> = Vec::with_capacity(n);
         for r in results {
-            for (i, (k, s)) in r? {
-                kept[i] = k;
-                sines[i] = s;
-            }
+            out.extend(r?);
         }
+        out.sort_by_key(|(i, _)| *i);
+        Ok(out.into_iter().map(|(_, t)| t).collect())
     } else {
-        for i in 0..n {
-            (kept[i], sines[i]) = component(i)?;
-        }
+        (0..n).map(component).collect()
     }
-    Ok((Field(kept), Field(sines)))
 }
 
 impl Matrix {

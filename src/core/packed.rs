@@ -128,6 +128,16 @@ impl Packed {
         self.terms.len()
     }
 
+    /// The time frequency.
+    pub fn freq(&self) -> i64 {
+        self.freq
+    }
+
+    /// True for `sin(freq·t)`.
+    pub fn odd(&self) -> bool {
+        self.odd
+    }
+
     /// True when there are no terms.
     pub fn is_empty(&self) -> bool {
         self.terms.is_empty()
@@ -599,6 +609,43 @@ impl PackedSum {
             );
         }
         true
+    }
+
+    /// The kept sums as packed parts `(frequency, odd, part)` sorted by
+    /// frequency, cosines first (the order of
+    /// [`super::expr::Expr::into_by_frequency`]), without the sine
+    /// constants; `None` when a numerator or denominator does not fit a
+    /// word even after reduction (nothing is consumed then).
+    pub fn to_parts(&self) -> Option<Vec<Packed>> {
+        let mut out = Vec::with_capacity(self.targets.len());
+        for t in self.targets.iter().filter(|t| !t.sines) {
+            let fits = |n: i128| i64::try_from(n).is_ok();
+            let g = if fits(t.denom) && t.map.values().all(|n| fits(*n)) {
+                1
+            } else {
+                t.map
+                    .values()
+                    .fold(t.denom.unsigned_abs(), |g, n| gcd_u128(g, n.unsigned_abs()))
+                    as i128
+            };
+            let denom = i64::try_from(t.denom / g).ok()?;
+            let mut terms = Vec::with_capacity(t.map.len());
+            for (m, n) in &t.map {
+                if *n != 0 {
+                    terms.push((*m, i64::try_from(n / g).ok()?));
+                }
+            }
+            if !terms.is_empty() {
+                out.push(Packed {
+                    freq: t.freq,
+                    odd: t.odd,
+                    denom,
+                    terms,
+                });
+            }
+        }
+        out.sort_unstable_by_key(|p| (p.freq, p.odd));
+        Some(out)
     }
 
     /// The nonzero terms as (kept, sine constants), each sorted by key:
