@@ -232,6 +232,7 @@ impl Part {
     }
 
     /// Number of terms.
+    #[allow(clippy::len_without_is_empty)] // parts are never empty
     pub fn len(&self) -> usize {
         match &self.packed {
             Some(p) => p.len(),
