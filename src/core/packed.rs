@@ -632,7 +632,8 @@ impl PackedSum {
             let mut terms = Vec::with_capacity(t.map.len());
             for (m, n) in &t.map {
                 if *n != 0 {
-                    terms.push((*m, i64::try_from(n / g).ok()?));
+                    let n = if g == 1 { *n } else { n / g };
+                    terms.push((*m, i64::try_from(n).ok()?));
                 }
             }
             if !terms.is_empty() {
