@@ -18,7 +18,8 @@ use std::collections::HashMap;
 use crate::core::calc::{common_period, Period, TimeKey};
 use crate::core::expr::Beat;
 use crate::core::expr::Keep;
-use crate::core::field::{bracket_sum_onto, bracket_sum_onto_prepared, Prepared};
+use crate::core::expr::{Harmonics, Part};
+use crate::core::field::{bracket_sum_onto_parts, bracket_sum_onto_prepared, Prepared, Start};
 use crate::core::{limits, CoreError, CoreResult, Expr, Field, Matrix, Sym, Q};
 use crate::series::chrono::{magnus_generator, Graded};
 
@@ -284,20 +285,16 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
             Keep::All
         };
         let pairs = grade_pairs(&w, &h[1], k);
-        let (rest, sines) =
-            bracket_sum_onto(&[(&standard[k - 1], Q::ONE)], &pairs, false, states, cap)?;
-        let fk = rest.map(|e| e.mean_over(period))?;
+        let start = [(Start::Field(&standard[k - 1]), Q::ONE)];
+        let (rest, sines) = bracket_sum_onto_parts(&start, &pairs, false, states, cap)?;
+        let step = split_and_integrate(rest, &sines, period, states)?;
+        let fk = step.mean;
         if k == n {
             f_out.push(fk);
             break;
         }
-        let wk_dot = rest.sub(&fk)?;
-        let mut wk = wk_dot.map(|e| e.integral_from_zero())?;
-        if low {
-            wk = wk.add(&sines)?;
-        }
-        limits::check_terms(wk.n_terms())?;
-        w[k] = wk.prepare(states)?;
+        let wk_dot = step.oscillating;
+        w[k] = step.integral;
         if k == 1 {
             rho1 = w[1]
                 .parts()
@@ -314,8 +311,11 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
             let cap = (p + k == n).then(|| rho1.mul(&Q::int(p as i64)));
             let keep = cap.as_ref().map_or(Keep::All, Keep::UpTo);
             let u = [
-                (&fk, fact[p].recip().unwrap_or(Q::ZERO)),
-                (&wk_dot, fact[p + 1].recip().unwrap_or(Q::ZERO)),
+                (Start::Field(&fk), fact[p].recip().unwrap_or(Q::ZERO)),
+                (
+                    Start::Parts(&wk_dot),
+                    fact[p + 1].recip().unwrap_or(Q::ZERO),
+                ),
             ];
             let pairs = grade_pairs(&w, &h[p + 1], k);
             h[p][k] = bracket_sum_onto_prepared(&u, &pairs, true, states, keep)?;
@@ -323,6 +323,84 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
         f_out.push(fk);
     }
     Ok(f_out)
+}
+
+/// One order of the stroboscopic recursion after its sum: the mean `F_k`,
+/// the oscillating part `W'_k` (split by time factor) and the prepared
+/// `W_k = ∫_0^t W'_k` plus the sine constants.
+struct Step {
+    mean: Field,
+    oscillating: Vec<Harmonics>,
+    integral: Prepared,
+}
+
+/// Splits `V_k − R_k` (by time parts) into its mean and oscillating part
+/// and integrates the latter from 0, adding `sines`. Part by part (packed
+/// parts stay packed) when no part has a power of t and every frequency
+/// completes whole cycles in the period (then the mean is the part without
+/// time factor); through the normal forms otherwise.
+fn split_and_integrate(
+    rest: Vec<Harmonics>,
+    sines: &Field,
+    period: &Period,
+    states: &[Sym],
+) -> CoreResult<Step> {
+    let half = period.0.half();
+    let by_parts = rest
+        .iter()
+        .flatten()
+        .all(|part| !part.has_time_power() && part.freq.mul(&half).is_integer());
+    if !by_parts {
+        let whole = Field(
+            rest.iter()
+                .map(|parts| parts.iter().fold(Expr::zero(), |acc, p| acc.add(p.expr())))
+                .collect(),
+        );
+        let mean = whole.map(|e| e.mean_over(period))?;
+        let osc = whole.sub(&mean)?;
+        let integral = osc.map(|e| e.integral_from_zero())?.add(sines)?;
+        limits::check_terms(integral.n_terms())?;
+        return Ok(Step {
+            mean,
+            oscillating: osc.0.into_iter().map(Expr::into_by_frequency).collect(),
+            integral: integral.prepare(states)?,
+        });
+    }
+    let mut mean = Vec::with_capacity(rest.len());
+    let mut oscillating = Vec::with_capacity(rest.len());
+    let mut integral = Vec::with_capacity(rest.len());
+    for (parts, s) in rest.into_iter().zip(&sines.0) {
+        let (constant, osc): (Vec<Part>, Vec<Part>) =
+            parts.into_iter().partition(|p| p.freq.is_zero());
+        // The constant part has no sine (sin 0 = 0): it is the mean.
+        let m = constant
+            .first()
+            .map_or_else(Expr::zero, |p| p.expr().clone());
+        let mut c = s.clone();
+        let mut waves: Harmonics = Vec::with_capacity(osc.len());
+        for p in &osc {
+            for q in p.integral_from_zero()? {
+                if q.freq.is_zero() {
+                    c = c.add(q.expr());
+                } else {
+                    waves.push(q);
+                }
+            }
+        }
+        let mut w_parts = c.into_by_frequency();
+        w_parts.extend(waves);
+        w_parts.sort_by(|a, b| (&a.freq, a.odd).cmp(&(&b.freq, b.odd)));
+        mean.push(m);
+        oscillating.push(osc);
+        integral.push(w_parts);
+    }
+    let terms: usize = integral.iter().flatten().map(Part::len).sum();
+    limits::check_terms(terms)?;
+    Ok(Step {
+        mean: Field(mean),
+        oscillating,
+        integral: Prepared::from_parts(integral, states),
+    })
 }
 
 /// The pairs `(W_j, c_{k−j})`, `1 ≤ j < k`, with nonzero members.

@@ -231,6 +231,41 @@ impl Part {
         })
     }
 
+    /// A part from its packed terms.
+    pub fn from_packed(p: Packed) -> Part {
+        Part {
+            freq: Q::int(p.freq()),
+            odd: p.odd(),
+            expr: std::sync::OnceLock::new(),
+            packed: Some(p),
+        }
+    }
+
+    /// True when some term has a power of `t`.
+    pub fn has_time_power(&self) -> bool {
+        match &self.packed {
+            Some(p) => p.has_time_power(),
+            None => self
+                .expr()
+                .terms
+                .iter()
+                .any(|(k, _)| k.mono.exp_of(Sym::T) != 0),
+        }
+    }
+
+    /// `∫_0^t` of a part with a time factor and no power of `t`, as parts
+    /// (see [`Packed::integral_from_zero`]); computed packed when the part
+    /// is, through the normal form otherwise.
+    pub fn integral_from_zero(&self) -> CoreResult<Harmonics> {
+        if let Some((osc, constant)) = self.packed.as_ref().and_then(Packed::integral_from_zero) {
+            let mut out = Vec::with_capacity(2);
+            out.extend(constant.map(Part::from_packed));
+            out.push(Part::from_packed(osc));
+            return Ok(out);
+        }
+        Ok(self.expr().integral_from_zero()?.into_by_frequency())
+    }
+
     /// Number of terms.
     #[allow(clippy::len_without_is_empty)] // parts are never empty
     pub fn len(&self) -> usize {
@@ -533,20 +568,65 @@ impl Acc {
     /// dropped). When everything was packed the parts stay packed: no
     /// normal form is built until a part's terms are asked for.
     pub fn finish_parts(self) -> Harmonics {
+        self.finish_parts_with_sines().0
+    }
+
+    /// [`Acc::finish_parts`], with the sine constants (see
+    /// [`Keep::UpToWithSines`]) in normal form.
+    pub fn finish_parts_with_sines(self) -> (Harmonics, Expr) {
         if self.map.is_empty() && self.sines.is_empty() {
             if let Some(parts) = self.packed.to_parts() {
-                return parts
-                    .into_iter()
-                    .map(|p| Part {
-                        freq: Q::int(p.freq()),
-                        odd: p.odd(),
-                        expr: std::sync::OnceLock::new(),
-                        packed: Some(p),
-                    })
-                    .collect();
+                let parts = parts.into_iter().map(Part::from_packed).collect();
+                let sines = self.packed.into_sorted_sines();
+                return (parts, Expr { terms: sines });
             }
         }
-        self.finish().into_by_frequency()
+        let (kept, sines) = self.finish_with_sines();
+        (kept.into_by_frequency(), sines)
+    }
+
+    /// `self += q·Σ parts`, keeping the terms `keep` asks for (as
+    /// [`Acc::add_scaled`]); packed parts go in whole.
+    pub fn add_parts(&mut self, parts: &[Part], q: &Q, keep: Keep) -> CoreResult<()> {
+        if q.is_zero() {
+            return Ok(());
+        }
+        let with_sines = matches!(keep, Keep::UpToWithSines(_));
+        for part in parts {
+            if let (Some(p), Q::Small(qn, qd)) = (&part.packed, q) {
+                // The route of the whole part: kept, dropped or a sine
+                // constant (factor 1/h).
+                let route = match keep.cap() {
+                    Some(cap) if part.freq > *cap => {
+                        if !(with_sines && part.odd) {
+                            continue;
+                        }
+                        qd.checked_mul(p.freq()).map(|d| (0, false, true, *qn, d))
+                    }
+                    _ => Some((p.freq(), p.odd(), false, *qn, *qd)),
+                };
+                if let Some((freq, odd, to_sines, num, den)) = route {
+                    let (map, sines, big_words) =
+                        (&mut self.map, &mut self.sines, &mut self.big_words);
+                    let mut spill = |k: Key, c: Q, to_sines: bool| {
+                        if to_sines {
+                            add_into(sines, k, c);
+                        } else {
+                            *big_words += coeff_words(&c);
+                            add_into(map, k, c);
+                        }
+                    };
+                    if self
+                        .packed
+                        .add_packed(p, freq, odd, to_sines, num, den, &mut spill)
+                    {
+                        continue;
+                    }
+                }
+            }
+            self.add_scaled(part.expr(), q, keep)?;
+        }
+        self.check_budget()
     }
 }
 

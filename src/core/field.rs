@@ -236,7 +236,7 @@ pub struct Prepared {
 impl Prepared {
     /// From components split by time frequency (their derivatives are
     /// taken part by part: a part's derivative keeps its time factor).
-    fn from_parts(parts: Vec<Harmonics>, states: &[Sym]) -> Prepared {
+    pub fn from_parts(parts: Vec<Harmonics>, states: &[Sym]) -> Prepared {
         let n_terms = parts.iter().flatten().map(Part::len).sum();
         let d = parts
             .iter()
@@ -296,16 +296,61 @@ pub fn bracket_sum_onto(
     states: &[Sym],
     keep: Keep,
 ) -> CoreResult<(Field, Field)> {
-    let sums = component_sums(init, pairs, negate, states, keep, Acc::finish_with_sines)?;
+    let init: Vec<(Start, Q)> = init
+        .iter()
+        .map(|(f, q)| (Start::Field(f), q.clone()))
+        .collect();
+    let sums = component_sums(&init, pairs, negate, states, keep, Acc::finish_with_sines)?;
     let (kept, sines) = sums.into_iter().unzip();
     Ok((Field(kept), Field(sines)))
+}
+
+/// The start of a sum of brackets (see [`bracket_sum_onto`]): a field, or
+/// a field split by time factor (one list of parts per component).
+#[derive(Clone, Copy, Debug)]
+pub enum Start<'a> {
+    /// A field.
+    Field(&'a Field),
+    /// A field split by time factor.
+    Parts(&'a [Harmonics]),
+}
+
+impl Start<'_> {
+    fn dim(&self) -> usize {
+        match self {
+            Start::Field(f) => f.dim(),
+            Start::Parts(p) => p.len(),
+        }
+    }
+}
+
+/// [`bracket_sum_onto`] from starts of either kind, by time parts: the
+/// kept terms split by time factor (packed when every product was) and the
+/// sine constants.
+pub fn bracket_sum_onto_parts(
+    init: &[(Start, Q)],
+    pairs: &[(&Prepared, &Prepared)],
+    negate: bool,
+    states: &[Sym],
+    keep: Keep,
+) -> CoreResult<(Vec<Harmonics>, Field)> {
+    let sums = component_sums(
+        init,
+        pairs,
+        negate,
+        states,
+        keep,
+        Acc::finish_parts_with_sines,
+    )?;
+    let (parts, sines) = sums.into_iter().unzip();
+    Ok((parts, Field(sines)))
 }
 
 /// [`bracket_sum_onto`] (without sine constants) as a prepared field for
 /// further brackets: when every product was packed, its parts stay packed
 /// and no normal form is built.
 pub fn bracket_sum_onto_prepared(
-    init: &[(&Field, Q)],
+    init: &[(Start, Q)],
     pairs: &[(&Prepared, &Prepared)],
     negate: bool,
     states: &[Sym],
@@ -320,7 +365,7 @@ pub fn bracket_sum_onto_prepared(
 /// available cores (each worker gets this thread's limits and counts its
 /// work against this statement).
 fn component_sums<T: Send>(
-    init: &[(&Field, Q)],
+    init: &[(Start, Q)],
     pairs: &[(&Prepared, &Prepared)],
     negate: bool,
     states: &[Sym],
@@ -349,8 +394,11 @@ fn component_sums<T: Send>(
     }
     let component = |i: usize| -> CoreResult<T> {
         let mut acc = Acc::new();
-        for (f, q) in init {
-            acc.add_scaled(&f.0[i], q, keep)?;
+        for (start, q) in init {
+            match start {
+                Start::Field(f) => acc.add_scaled(&f.0[i], q, keep)?,
+                Start::Parts(p) => acc.add_parts(&p[i], q, keep)?,
+            }
         }
         for (x, y) in pairs {
             for s in 0..n {

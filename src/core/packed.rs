@@ -128,6 +128,52 @@ impl Packed {
         self.terms.len()
     }
 
+    /// True when some term has a power of `t` (symbol 0).
+    pub fn has_time_power(&self) -> bool {
+        debug_assert_eq!(Sym::T.0, 0);
+        self.terms.iter().any(|(m, _)| m & 0xff != 0)
+    }
+
+    /// `∫_0^t` of a part with a time factor and no power of `t`:
+    /// `cos(h t) → sin(h t)/h` and `sin(h t) → (1 − cos(h t))/h`, as the
+    /// oscillating part and, for sines, the constant part. `None` when the
+    /// part has no time factor or a power of `t`, or a number overflows.
+    pub fn integral_from_zero(&self) -> Option<(Packed, Option<Packed>)> {
+        if self.freq == 0 || self.has_time_power() {
+            return None;
+        }
+        let denom = self.denom.checked_mul(self.freq)?;
+        if !self.odd {
+            return Some((
+                Packed {
+                    odd: true,
+                    denom,
+                    terms: self.terms.clone(),
+                    ..*self
+                },
+                None,
+            ));
+        }
+        let mut negated = Vec::with_capacity(self.terms.len());
+        for (m, n) in &self.terms {
+            negated.push((*m, n.checked_neg()?));
+        }
+        Some((
+            Packed {
+                odd: false,
+                denom,
+                terms: negated,
+                ..*self
+            },
+            Some(Packed {
+                freq: 0,
+                odd: false,
+                denom,
+                terms: self.terms.clone(),
+            }),
+        ))
+    }
+
     /// The time frequency.
     pub fn freq(&self) -> i64 {
         self.freq
@@ -647,6 +693,62 @@ impl PackedSum {
         }
         out.sort_unstable_by_key(|p| (p.freq, p.odd));
         Some(out)
+    }
+
+    /// `self += (p/q)·a` into the sum of time factor `(freq, odd)` (or of
+    /// sine constants); `q > 0`. False, doing nothing, when the sum's
+    /// denominator cannot take `a`'s in machine integers.
+    #[allow(clippy::too_many_arguments)]
+    pub fn add_packed(
+        &mut self,
+        a: &Packed,
+        freq: i64,
+        odd: bool,
+        sines: bool,
+        p: i64,
+        q: i64,
+        spill: &mut impl FnMut(Key, Q, bool),
+    ) -> bool {
+        let r = Route {
+            freq,
+            odd,
+            sines,
+            p,
+            q,
+        };
+        let Some(d) = (a.denom as i128).checked_mul(q as i128) else {
+            return false;
+        };
+        let ti = self.target(&r, d, spill);
+        let t = &mut self.targets[ti];
+        let quotient = if t.last.0 == d {
+            t.last.1
+        } else if t.denom % d == 0 {
+            t.denom / d
+        } else {
+            return false;
+        };
+        let Some(scale) = (p as i128).checked_mul(quotient) else {
+            return false;
+        };
+        for (m, n) in &a.terms {
+            let added = (*n as i128).checked_mul(scale).and_then(|v| {
+                let e = t.map.entry(*m).or_insert(0);
+                *e = e.checked_add(v)?;
+                Some(())
+            });
+            if added.is_none() {
+                let c = Q::from_i128(*n as i128, 1).mul(&Q::from_i128(scale, t.denom));
+                spill(key_of(*m, &t.beat()), c, t.sines);
+            }
+        }
+        true
+    }
+
+    /// The sine constants, sorted by key (see [`PackedSum::into_sorted`]).
+    pub fn into_sorted_sines(mut self) -> Terms {
+        self.targets.retain(|t| t.sines);
+        self.into_sorted().1
     }
 
     /// The nonzero terms as (kept, sine constants), each sorted by key:
