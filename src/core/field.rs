@@ -273,39 +273,10 @@ pub fn bracket_sum(
     states: &[Sym],
     keep: Keep,
 ) -> CoreResult<Field> {
-    Ok(bracket_sum_with_sines(pairs, states, keep)?.0)
+    Ok(Field(component_sums(&[], pairs, false, states, keep, Acc::finish)?))
 }
 
-/// [`bracket_sum`], with the constant of the dropped sine terms (see
-/// [`Keep::UpToWithSines`]) as a second, autonomous field.
-pub fn bracket_sum_with_sines(
-    pairs: &[(&Prepared, &Prepared)],
-    states: &[Sym],
-    keep: Keep,
-) -> CoreResult<(Field, Field)> {
-    bracket_sum_onto(&[], pairs, false, states, keep)
-}
-
-/// `Σ_i q_i·F_i ± Σ_m [X_m, Y_m]` (minus when `negate`) in one sum per
-/// component, keeping the terms `keep` asks for, with the constant of the
-/// dropped sine terms (see [`Keep::UpToWithSines`]) as a second field.
-pub fn bracket_sum_onto(
-    init: &[(&Field, Q)],
-    pairs: &[(&Prepared, &Prepared)],
-    negate: bool,
-    states: &[Sym],
-    keep: Keep,
-) -> CoreResult<(Field, Field)> {
-    let init: Vec<(Start, Q)> = init
-        .iter()
-        .map(|(f, q)| (Start::Field(f), q.clone()))
-        .collect();
-    let sums = component_sums(&init, pairs, negate, states, keep, Acc::finish_with_sines)?;
-    let (kept, sines) = sums.into_iter().unzip();
-    Ok((Field(kept), Field(sines)))
-}
-
-/// The start of a sum of brackets (see [`bracket_sum_onto`]): a field, or
+/// The start of a sum of brackets (see [`bracket_sum_onto_parts`]): a field, or
 /// a field split by time factor (one list of parts per component).
 #[derive(Clone, Copy, Debug)]
 pub enum Start<'a> {
@@ -324,9 +295,11 @@ impl Start<'_> {
     }
 }
 
-/// [`bracket_sum_onto`] from starts of either kind, by time parts: the
-/// kept terms split by time factor (packed when every product was) and the
-/// sine constants.
+/// `Σ_i q_i·F_i ± Σ_m [X_m, Y_m]` (minus when `negate`) in one sum per
+/// component, keeping the terms `keep` asks for, by time parts: the kept
+/// terms split by time factor (packed when every product was) and the
+/// constant of the dropped sine terms (see [`Keep::UpToWithSines`]) as an
+/// autonomous field.
 pub fn bracket_sum_onto_parts(
     init: &[(Start, Q)],
     pairs: &[(&Prepared, &Prepared)],
@@ -346,7 +319,7 @@ pub fn bracket_sum_onto_parts(
     Ok((parts, Field(sines)))
 }
 
-/// [`bracket_sum_onto`] (without sine constants) as a prepared field for
+/// [`bracket_sum_onto_parts`] (without sine constants) as a prepared field for
 /// further brackets: when every product was packed, its parts stay packed
 /// and no normal form is built.
 pub fn bracket_sum_onto_prepared(
@@ -360,7 +333,7 @@ pub fn bracket_sum_onto_prepared(
     Ok(Prepared::from_parts(parts, states))
 }
 
-/// The sum of [`bracket_sum_onto`] for every component, each accumulator
+/// The sum of [`bracket_sum_onto_parts`] for every component, each accumulator
 /// handed to `finish`. Large sums split their components over the
 /// available cores (each worker gets this thread's limits and counts its
 /// work against this statement).
