@@ -273,7 +273,14 @@ pub fn bracket_sum(
     states: &[Sym],
     keep: Keep,
 ) -> CoreResult<Field> {
-    Ok(Field(component_sums(&[], pairs, false, states, keep, Acc::finish)?))
+    Ok(Field(component_sums(
+        &[],
+        pairs,
+        false,
+        states,
+        keep,
+        Acc::finish,
+    )?))
 }
 
 /// The start of a sum of brackets (see [`bracket_sum_onto_parts`]): a field, or
