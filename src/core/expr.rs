@@ -280,16 +280,6 @@ impl Part {
         self.packed.is_some()
     }
 
-    /// The time factor of the part's terms.
-    pub fn beat(&self) -> Beat {
-        if self.freq.is_zero() {
-            Beat::One
-        } else if self.odd {
-            Beat::Sin(self.freq.clone())
-        } else {
-            Beat::Cos(self.freq.clone())
-        }
-    }
 }
 
 impl Acc {
