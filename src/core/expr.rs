@@ -279,7 +279,6 @@ impl Part {
     pub fn is_packed(&self) -> bool {
         self.packed.is_some()
     }
-
 }
 
 impl Acc {
