@@ -42,9 +42,26 @@ pub struct Packed {
     denom: i64,
     /// Packed monomial and integer numerator.
     terms: Vec<(u128, i64)>,
+    /// The largest numerator in absolute value (bounds products).
+    max_abs: u64,
 }
 
 impl Packed {
+    fn new(freq: i64, odd: bool, denom: i64, terms: Vec<(u128, i64)>) -> Packed {
+        let max_abs = terms
+            .iter()
+            .map(|(_, n)| n.unsigned_abs())
+            .max()
+            .unwrap_or(0);
+        Packed {
+            freq,
+            odd,
+            denom,
+            terms,
+            max_abs,
+        }
+    }
+
     /// The packed copy of `terms` (all with time factor `cos(freq·t)`, or
     /// `sin(freq·t)` when `odd`), or `None` when some term does not fit.
     pub fn pack(terms: &[(Key, Q)], freq: &Q, odd: bool) -> Option<Packed> {
@@ -74,12 +91,7 @@ impl Packed {
             }
             out.push((pack_mono(&k.mono)?, n.checked_mul(denom / d)?));
         }
-        Some(Packed {
-            freq,
-            odd,
-            denom,
-            terms: out,
-        })
+        Some(Packed::new(freq, odd, denom, out))
     }
 
     /// `∂/∂s`, `None` when a coefficient overflows.
@@ -95,7 +107,7 @@ impl Packed {
                 }
             }
         }
-        Some(Packed { terms, ..*self })
+        Some(Packed::new(self.freq, self.odd, self.denom, terms))
     }
 
     /// The terms as an expression.
@@ -116,11 +128,7 @@ impl Packed {
 
     /// The largest numerator in absolute value.
     fn max_abs(&self) -> u64 {
-        self.terms
-            .iter()
-            .map(|(_, n)| n.unsigned_abs())
-            .max()
-            .unwrap_or(0)
+        self.max_abs
     }
 
     /// Number of terms.
@@ -145,12 +153,7 @@ impl Packed {
         let denom = self.denom.checked_mul(self.freq)?;
         if !self.odd {
             return Some((
-                Packed {
-                    odd: true,
-                    denom,
-                    terms: self.terms.clone(),
-                    ..*self
-                },
+                Packed::new(self.freq, true, denom, self.terms.clone()),
                 None,
             ));
         }
@@ -159,18 +162,8 @@ impl Packed {
             negated.push((*m, n.checked_neg()?));
         }
         Some((
-            Packed {
-                odd: false,
-                denom,
-                terms: negated,
-                ..*self
-            },
-            Some(Packed {
-                freq: 0,
-                odd: false,
-                denom,
-                terms: self.terms.clone(),
-            }),
+            Packed::new(self.freq, false, denom, negated),
+            Some(Packed::new(0, false, denom, self.terms.clone())),
         ))
     }
 
@@ -683,12 +676,7 @@ impl PackedSum {
                 }
             }
             if !terms.is_empty() {
-                out.push(Packed {
-                    freq: t.freq,
-                    odd: t.odd,
-                    denom,
-                    terms,
-                });
+                out.push(Packed::new(t.freq, t.odd, denom, terms));
             }
         }
         out.sort_unstable_by_key(|p| (p.freq, p.odd));
