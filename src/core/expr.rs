@@ -147,6 +147,11 @@ fn log2_size(c: &Q) -> f64 {
     }
 }
 
+/// Term-count products from which [`Expr::mul`] splits its factors by time
+/// factor to multiply plain parts packed (below, splitting costs more than
+/// it saves).
+const PACKED_PRODUCT: usize = 256;
+
 /// A sum of products under construction: every term product goes straight
 /// into one hash map and the normal form (sorting) is built once, by
 /// [`Acc::finish`]. Sums of many products (Lie derivatives, brackets, sums
@@ -1122,7 +1127,17 @@ impl Expr {
         }
         let mut acc =
             Acc::with_capacity((2 * (self.len() + other.len())).min(self.len() * other.len()));
-        acc.add_product(self, other, false)?;
+        if self.len().saturating_mul(other.len()) >= PACKED_PRODUCT {
+            // Large products split both sides by time factor, so that plain
+            // polynomial parts multiply packed (the rest term by term).
+            let (a, b) = (
+                self.clone().into_by_frequency(),
+                other.clone().into_by_frequency(),
+            );
+            acc.add_product_harmonics(&a, &b, false, Keep::All)?;
+        } else {
+            acc.add_product(self, other, false)?;
+        }
         Ok(acc.finish())
     }
 
