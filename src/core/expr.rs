@@ -317,6 +317,21 @@ impl Acc {
         }
     }
 
+    /// The packed sums and the way terms that leave them come back: exact
+    /// terms into the general sum (or the sine constants).
+    fn packed_and_spill(&mut self) -> (&mut PackedSum, impl FnMut(Key, Q, bool) + '_) {
+        let (map, sines, big_words) = (&mut self.map, &mut self.sines, &mut self.big_words);
+        let spill = move |k: Key, c: Q, to_sines: bool| {
+            if to_sines {
+                add_into(sines, k, c);
+            } else {
+                *big_words += coeff_words(&c);
+                add_into(map, k, c);
+            }
+        };
+        (&mut self.packed, spill)
+    }
+
     fn check_budget(&self) -> CoreResult<()> {
         let max_terms = limits::limits().max_terms;
         let held = self.map.len() + self.sines.len() + self.packed.held();
@@ -358,19 +373,8 @@ impl Acc {
             let packed_key = packed::pack_key(k);
             if let (Some((m, freq, odd)), Q::Small(n, d)) = (packed_key, &c) {
                 let (freq, odd) = if to_sines { (0, false) } else { (freq, odd) };
-                let (map, sines, big_words) = (&mut self.map, &mut self.sines, &mut self.big_words);
-                let mut spill = |k: Key, c: Q, to_sines: bool| {
-                    if to_sines {
-                        add_into(sines, k, c);
-                    } else {
-                        *big_words += coeff_words(&c);
-                        add_into(map, k, c);
-                    }
-                };
-                if self
-                    .packed
-                    .add_term(m, freq, odd, to_sines, *n, *d, &mut spill)
-                {
+                let (packed, mut spill) = self.packed_and_spill();
+                if packed.add_term(m, freq, odd, to_sines, *n, *d, &mut spill) {
                     continue;
                 }
             }
@@ -453,16 +457,7 @@ impl Acc {
         }
         limits::add_work((a.len() as u64).saturating_mul(b.len() as u64))?;
         let max_terms = limits::limits().max_terms;
-        let (map, sines, big_words) = (&mut self.map, &mut self.sines, &mut self.big_words);
-        let general = map.len() + sines.len() + *big_words;
-        let mut spill = |k: Key, c: Q, to_sines: bool| {
-            if to_sines {
-                add_into(sines, k, c);
-            } else {
-                *big_words += coeff_words(&c);
-                add_into(map, k, c);
-            }
-        };
+        let general = self.map.len() + self.sines.len() + self.big_words;
         // Large products poll and watch the term budget as they go.
         let mut check = |held: usize| -> CoreResult<()> {
             limits::poll()?;
@@ -474,10 +469,11 @@ impl Acc {
             }
             Ok(())
         };
-        if !self
-            .packed
-            .add_product(a, b, negate, &routes, &mut spill, &mut check)?
-        {
+        let done = {
+            let (packed, mut spill) = self.packed_and_spill();
+            packed.add_product(a, b, negate, &routes, &mut spill, &mut check)?
+        };
+        if !done {
             return Ok(false);
         }
         self.check_budget()?;
@@ -600,20 +596,8 @@ impl Acc {
                     _ => Some((p.freq(), p.odd(), false, *qn, *qd)),
                 };
                 if let Some((freq, odd, to_sines, num, den)) = route {
-                    let (map, sines, big_words) =
-                        (&mut self.map, &mut self.sines, &mut self.big_words);
-                    let mut spill = |k: Key, c: Q, to_sines: bool| {
-                        if to_sines {
-                            add_into(sines, k, c);
-                        } else {
-                            *big_words += coeff_words(&c);
-                            add_into(map, k, c);
-                        }
-                    };
-                    if self
-                        .packed
-                        .add_packed(p, freq, odd, to_sines, num, den, &mut spill)
-                    {
+                    let (packed, mut spill) = self.packed_and_spill();
+                    if packed.add_packed(p, freq, odd, to_sines, num, den, &mut spill) {
                         continue;
                     }
                 }

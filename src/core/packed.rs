@@ -605,51 +605,6 @@ impl PackedSum {
         Ok(true)
     }
 
-    /// `self += n/d · m` on the sum of time factor `(freq, odd)` (or of
-    /// sine constants); `d > 0`. False, doing nothing, when the sum's
-    /// denominator cannot take `d` in machine integers.
-    #[allow(clippy::too_many_arguments)]
-    pub fn add_term(
-        &mut self,
-        m: u128,
-        freq: i64,
-        odd: bool,
-        sines: bool,
-        n: i64,
-        d: i64,
-        spill: &mut impl FnMut(Key, Q, bool),
-    ) -> bool {
-        let r = Route {
-            freq,
-            odd,
-            sines,
-            p: 1,
-            q: 1,
-        };
-        let ti = self.target(&r, d as i128, spill);
-        let t = &mut self.targets[ti];
-        let quotient = if t.last.0 == d as i128 {
-            t.last.1
-        } else if t.denom % d as i128 == 0 {
-            t.denom / d as i128
-        } else {
-            return false;
-        };
-        let added = (n as i128).checked_mul(quotient).and_then(|v| {
-            let e = t.map.entry(m).or_insert(0);
-            *e = e.checked_add(v)?;
-            Some(())
-        });
-        if added.is_none() {
-            spill(
-                key_of(m, &t.beat()),
-                Q::from_i128(n as i128, d as i128),
-                t.sines,
-            );
-        }
-        true
-    }
-
     /// The kept sums as packed parts `(frequency, odd, part)` sorted by
     /// frequency, cosines first (the order of
     /// [`super::expr::Expr::into_by_frequency`]), without the sine
@@ -704,10 +659,45 @@ impl PackedSum {
             p,
             q,
         };
-        let Some(d) = (a.denom as i128).checked_mul(q as i128) else {
+        self.add_terms(&a.terms, a.denom, &r, spill)
+    }
+
+    /// `self += n/d · m` into the sum of time factor `(freq, odd)` (or of
+    /// sine constants); `d > 0`. False, doing nothing, when the sum's
+    /// denominator cannot take `d` in machine integers.
+    #[allow(clippy::too_many_arguments)]
+    pub fn add_term(
+        &mut self,
+        m: u128,
+        freq: i64,
+        odd: bool,
+        sines: bool,
+        n: i64,
+        d: i64,
+        spill: &mut impl FnMut(Key, Q, bool),
+    ) -> bool {
+        let r = Route {
+            freq,
+            odd,
+            sines,
+            p: 1,
+            q: 1,
+        };
+        self.add_terms(&[(m, n)], d, &r, spill)
+    }
+
+    /// `self += (p/q)·Σ n/denom · m` along route `r`.
+    fn add_terms(
+        &mut self,
+        terms: &[(u128, i64)],
+        denom: i64,
+        r: &Route,
+        spill: &mut impl FnMut(Key, Q, bool),
+    ) -> bool {
+        let Some(d) = (denom as i128).checked_mul(r.q as i128) else {
             return false;
         };
-        let ti = self.target(&r, d, spill);
+        let ti = self.target(r, d, spill);
         let t = &mut self.targets[ti];
         let quotient = if t.last.0 == d {
             t.last.1
@@ -716,10 +706,10 @@ impl PackedSum {
         } else {
             return false;
         };
-        let Some(scale) = (p as i128).checked_mul(quotient) else {
+        let Some(scale) = (r.p as i128).checked_mul(quotient) else {
             return false;
         };
-        for (m, n) in &a.terms {
+        for (m, n) in terms {
             let added = (*n as i128).checked_mul(scale).and_then(|v| {
                 let e = t.map.entry(*m).or_insert(0);
                 *e = e.checked_add(v)?;
