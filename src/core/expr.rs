@@ -170,6 +170,8 @@ pub struct Acc {
     sines: FxHashMap<Key, Q>,
     /// Products of packed parts (see [`super::packed`]), merged at the end.
     packed: PackedSum,
+    /// Small packed products since the last check of the term budget.
+    unchecked: u32,
 }
 
 /// Which terms of a product an accumulator keeps, by time frequency.
@@ -299,6 +301,7 @@ impl Acc {
             big_words: 0,
             sines: FxHashMap::default(),
             packed: PackedSum::default(),
+            unchecked: 0,
         }
     }
 
@@ -476,7 +479,14 @@ impl Acc {
         if !done {
             return Ok(false);
         }
-        self.check_budget()?;
+        // The sums' size is checked after large products and every 16
+        // small ones (counting the terms of every sum costs a pass over
+        // them).
+        self.unchecked += 1;
+        if self.unchecked >= 16 || a.len().saturating_mul(b.len()) >= 256 {
+            self.unchecked = 0;
+            self.check_budget()?;
+        }
         Ok(true)
     }
 

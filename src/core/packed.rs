@@ -210,6 +210,15 @@ pub fn pack_key(k: &Key) -> Option<(u128, i64, bool)> {
     Some((pack_mono(&k.mono)?, freq, odd))
 }
 
+/// `n / d` when `d` (positive) divides `n` (positive), in machine words
+/// when both fit (a division of 128-bit integers is a slow library call).
+fn exact_quotient(n: i128, d: i128) -> Option<i128> {
+    if let (Ok(n), Ok(d)) = (u64::try_from(n), u64::try_from(d)) {
+        return (n % d == 0).then(|| (n / d) as i128);
+    }
+    (n % d == 0).then(|| n / d)
+}
+
 fn gcd_u128(mut a: u128, mut b: u128) -> u128 {
     while b != 0 {
         (a, b) = (b, a % b);
@@ -479,8 +488,8 @@ impl PackedSum {
         if t.last.0 == d {
             return i;
         }
-        if t.denom % d == 0 {
-            t.last = (d, t.denom / d);
+        if let Some(quotient) = exact_quotient(t.denom, d) {
+            t.last = (d, quotient);
             return i;
         }
         // Rescale in place when every numerator times the factor fits.
@@ -544,9 +553,9 @@ impl PackedSum {
             let t = &self.targets[ti];
             let quotient = if t.last.0 == d {
                 t.last.1
-            } else if t.denom % d == 0 {
+            } else if let Some(quotient) = exact_quotient(t.denom, d) {
                 // A later route rescaled this target.
-                t.denom / d
+                quotient
             } else {
                 // A later route spilled and restarted this target.
                 return Ok(false);
@@ -561,7 +570,12 @@ impl PackedSum {
         let bits = |n: u128| 128 - n.leading_zeros();
         let product_bits = bits(a.max_abs() as u128) + bits(b.max_abs() as u128);
         for (ti, scale) in scales {
-            let others = self.held() - self.targets[ti].map.len();
+            // Rows are checked only in products of 64 rows or more.
+            let others = if a.terms.len() >= 64 {
+                self.held() - self.targets[ti].map.len()
+            } else {
+                0
+            };
             let t = &mut self.targets[ti];
             if product_bits + bits(scale.unsigned_abs()) <= 126 {
                 for (row, (ma, na)) in a.terms.iter().enumerate() {
@@ -701,8 +715,8 @@ impl PackedSum {
         let t = &mut self.targets[ti];
         let quotient = if t.last.0 == d {
             t.last.1
-        } else if t.denom % d == 0 {
-            t.denom / d
+        } else if let Some(quotient) = exact_quotient(t.denom, d) {
+            quotient
         } else {
             return false;
         };
