@@ -23,7 +23,7 @@ use std::sync::Arc;
 use super::error::{CoreError, CoreResult, LimitKind};
 use super::limits;
 use super::num::Q;
-use super::packed::{self, Cut, Packed, PackedSum};
+use super::packed::{self, Cut, Packed, PackedSum, Route};
 use super::symbol::Sym;
 
 /// A monomial: sorted `(symbol, exponent)` pairs with nonzero exponents.
@@ -222,12 +222,7 @@ impl Part {
     /// `∂/∂s` of the part (the same time factor), `None` when zero.
     pub fn derivative(&self, s: Sym) -> Option<Part> {
         if let Some(dp) = self.packed.as_ref().and_then(|p| p.derivative(s)) {
-            return (!dp.is_empty()).then(|| Part {
-                freq: self.freq.clone(),
-                odd: self.odd,
-                expr: std::sync::OnceLock::new(),
-                packed: Some(dp),
-            });
+            return (!dp.is_empty()).then(|| Part::from_packed(dp));
         }
         let e = self.expr().pd(s);
         (!e.is_zero()).then(|| Part {
@@ -377,7 +372,12 @@ impl Acc {
             if let (Some((m, freq, odd)), Q::Small(n, d)) = (packed_key, &c) {
                 let (freq, odd) = if to_sines { (0, false) } else { (freq, odd) };
                 let (packed, mut spill) = self.packed_and_spill();
-                if packed.add_term(m, freq, odd, to_sines, *n, *d, &mut spill) {
+                if packed.add_terms(
+                    &[(m, *n)],
+                    *d,
+                    &Route::new(freq, odd, to_sines, 1, 1),
+                    &mut spill,
+                ) {
                     continue;
                 }
             }
@@ -607,7 +607,8 @@ impl Acc {
                 };
                 if let Some((freq, odd, to_sines, num, den)) = route {
                     let (packed, mut spill) = self.packed_and_spill();
-                    if packed.add_packed(p, freq, odd, to_sines, num, den, &mut spill) {
+                    if packed.add_packed(p, &Route::new(freq, odd, to_sines, num, den), &mut spill)
+                    {
                         continue;
                     }
                 }

@@ -333,6 +333,20 @@ pub struct Route {
     q: i64,
 }
 
+impl Route {
+    /// The route to the sum of time factor `(freq, odd)` (or, with
+    /// `sines`, of sine constants) with the factor `p/q` (`q > 0`).
+    pub fn new(freq: i64, odd: bool, sines: bool, p: i64, q: i64) -> Route {
+        Route {
+            freq,
+            odd,
+            sines,
+            p,
+            q,
+        }
+    }
+}
+
 /// The routes of the products of parts `a` and `b` (product-to-sum:
 /// `cos a cos b = (cos(a−b) + cos(a+b))/2`, `sin a sin b = (cos(a−b) −
 /// cos(a+b))/2`, `sin a cos b = (sin(a+b) + sin(a−b))/2`), after `cut`
@@ -652,56 +666,20 @@ impl PackedSum {
         Some(out)
     }
 
-    /// `self += (p/q)·a` into the sum of time factor `(freq, odd)` (or of
-    /// sine constants); `q > 0`. False, doing nothing, when the sum's
-    /// denominator cannot take `a`'s in machine integers.
-    #[allow(clippy::too_many_arguments)]
+    /// `self += a` along route `r` (see [`PackedSum::add_terms`]).
     pub fn add_packed(
         &mut self,
         a: &Packed,
-        freq: i64,
-        odd: bool,
-        sines: bool,
-        p: i64,
-        q: i64,
+        r: &Route,
         spill: &mut impl FnMut(Key, Q, bool),
     ) -> bool {
-        let r = Route {
-            freq,
-            odd,
-            sines,
-            p,
-            q,
-        };
-        self.add_terms(&a.terms, a.denom, &r, spill)
+        self.add_terms(&a.terms, a.denom, r, spill)
     }
 
-    /// `self += n/d · m` into the sum of time factor `(freq, odd)` (or of
-    /// sine constants); `d > 0`. False, doing nothing, when the sum's
-    /// denominator cannot take `d` in machine integers.
-    #[allow(clippy::too_many_arguments)]
-    pub fn add_term(
-        &mut self,
-        m: u128,
-        freq: i64,
-        odd: bool,
-        sines: bool,
-        n: i64,
-        d: i64,
-        spill: &mut impl FnMut(Key, Q, bool),
-    ) -> bool {
-        let r = Route {
-            freq,
-            odd,
-            sines,
-            p: 1,
-            q: 1,
-        };
-        self.add_terms(&[(m, n)], d, &r, spill)
-    }
-
-    /// `self += (p/q)·Σ n/denom · m` along route `r`.
-    fn add_terms(
+    /// `self += (p/q)·Σ n/denom · m` along route `r` (`denom`, `q` > 0).
+    /// False, doing nothing, when the route's sum cannot take the
+    /// denominator in machine integers; sums that overflow are spilled.
+    pub fn add_terms(
         &mut self,
         terms: &[(u128, i64)],
         denom: i64,
