@@ -415,10 +415,36 @@ impl Acc {
             cap: keep.cap().map(|c| c.floor().to_i64().unwrap_or(i64::MAX)),
             sines: matches!(keep, Keep::UpToWithSines(_)),
         };
+        let max_terms = limits::limits().max_terms;
+        let mut work = 0u64;
+        let result = self.product_parts(a, b, negate, keep, cut, max_terms, &mut work);
+        limits::add_work(work)?;
+        result
+    }
+
+    /// The loop of [`Acc::add_product_harmonics`]: packed products add their
+    /// work to `work`.
+    #[allow(clippy::too_many_arguments)]
+    fn product_parts(
+        &mut self,
+        a: &[Part],
+        b: &[Part],
+        negate: bool,
+        keep: Keep,
+        cut: Cut,
+        max_terms: usize,
+        work: &mut u64,
+    ) -> CoreResult<()> {
         for pa in a {
             for pb in b {
                 if let (Some(qa), Some(qb)) = (&pa.packed, &pb.packed) {
-                    if self.packed_product(qa, qb, negate, cut)? {
+                    let done = self.packed_product(qa, qb, negate, cut, max_terms, work)?;
+                    // Long runs of packed products count their work as they
+                    // go, so that the work budget stops them in time.
+                    if *work >= 1 << 16 {
+                        limits::add_work(std::mem::take(work))?;
+                    }
+                    if done {
                         continue;
                     }
                 }
@@ -451,6 +477,8 @@ impl Acc {
         b: &Packed,
         negate: bool,
         cut: Cut,
+        max_terms: usize,
+        work: &mut u64,
     ) -> CoreResult<bool> {
         let Some(routes) = packed::routes(a, b, cut) else {
             return Ok(false);
@@ -458,8 +486,10 @@ impl Acc {
         if routes.is_empty() || a.is_empty() || b.is_empty() {
             return Ok(true);
         }
-        limits::add_work((a.len() as u64).saturating_mul(b.len() as u64))?;
-        let max_terms = limits::limits().max_terms;
+        // The work is counted by the caller, in one call per sum of
+        // products (small products would otherwise pay more for counting
+        // than for multiplying).
+        *work = work.saturating_add((a.len() as u64).saturating_mul(b.len() as u64));
         let general = self.map.len() + self.sines.len() + self.big_words;
         // Large products poll and watch the term budget as they go.
         let mut check = |held: usize| -> CoreResult<()> {
@@ -474,7 +504,7 @@ impl Acc {
         };
         let done = {
             let (packed, mut spill) = self.packed_and_spill();
-            packed.add_product(a, b, negate, &routes, &mut spill, &mut check)?
+            packed.add_product(a, b, negate, routes.as_slice(), &mut spill, &mut check)?
         };
         if !done {
             return Ok(false);

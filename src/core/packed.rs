@@ -324,7 +324,7 @@ pub struct Cut {
 /// Where the products of one pair of parts go: the sum of terms with time
 /// factor `(freq, odd)` or, with `sines`, the constants of dropped sines;
 /// each product takes the factor `p/q` on the way.
-#[derive(Clone, Copy, Debug)]
+#[derive(Clone, Copy, Debug, Default)]
 pub struct Route {
     freq: i64,
     odd: bool,
@@ -352,8 +352,8 @@ impl Route {
 /// cos(a+b))/2`, `sin a cos b = (sin(a+b) + sin(a−b))/2`), after `cut`
 /// (`∫_0^t sin(h s) ds = (1 − cos(h t))/h` for the sine constants).
 /// `None` when a frequency overflows.
-pub fn routes(a: &Packed, b: &Packed, cut: Cut) -> Option<SmallVec<[Route; 2]>> {
-    let mut out: SmallVec<[Route; 2]> = SmallVec::new();
+pub fn routes(a: &Packed, b: &Packed, cut: Cut) -> Option<Routes> {
+    let mut out = Routes::default();
     let mut push = |f: Option<i64>, odd: bool, p: i64, q: i64| -> Option<()> {
         let f = f?;
         // sin(−h t) = −sin(h t), cos(−h t) = cos(h t), sin(0) = 0.
@@ -416,6 +416,115 @@ pub fn routes(a: &Packed, b: &Packed, cut: Cut) -> Option<SmallVec<[Route; 2]>> 
     Some(out)
 }
 
+/// The at most two routes of a pair of parts (a fixed array: no length
+/// checks or spills in the product's setup).
+#[derive(Clone, Copy, Debug, Default)]
+pub struct Routes {
+    routes: [Route; 2],
+    len: usize,
+}
+
+impl Routes {
+    fn push(&mut self, r: Route) {
+        if let Some(slot) = self.routes.get_mut(self.len) {
+            *slot = r;
+            self.len += 1;
+        }
+    }
+
+    /// The routes, in order.
+    pub fn as_slice(&self) -> &[Route] {
+        &self.routes[..self.len]
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.len == 0
+    }
+}
+
+/// No packed monomial: every lane holds an exponent of at most 127.
+const VACANT: u128 = u128::MAX;
+
+/// Numerators by packed monomial: an open-addressing table with linear
+/// probing, made for this loop (one multiply to hash a key, one compare of
+/// two words to find it; the general hash map costs several times that per
+/// product of terms). Entries are never removed; sums that cancel stay as
+/// zeros until the terms are taken out.
+#[derive(Debug, Default)]
+struct MonoMap {
+    slots: Vec<(u128, i128)>,
+    len: usize,
+}
+
+impl MonoMap {
+    fn len(&self) -> usize {
+        self.len
+    }
+
+    fn index(m: u128, mask: usize) -> usize {
+        let x = (m as u64) ^ ((m >> 64) as u64).rotate_left(32);
+        (x.wrapping_mul(0x9E37_79B9_7F4A_7C15) >> 40) as usize & mask
+    }
+
+    /// The numerator of `m`, inserted as 0 when absent.
+    fn slot(&mut self, m: u128) -> &mut i128 {
+        if (self.len + 1) * 2 > self.slots.len() {
+            self.grow();
+        }
+        let mask = self.slots.len() - 1;
+        let mut i = Self::index(m, mask);
+        loop {
+            let k = self.slots[i].0;
+            if k == m {
+                break;
+            }
+            if k == VACANT {
+                self.slots[i].0 = m;
+                self.len += 1;
+                break;
+            }
+            i = (i + 1) & mask;
+        }
+        &mut self.slots[i].1
+    }
+
+    fn grow(&mut self) {
+        let size = (self.slots.len() * 2).max(16);
+        let old = std::mem::replace(&mut self.slots, vec![(VACANT, 0); size]);
+        let mask = size - 1;
+        for (m, n) in old.into_iter().filter(|(m, _)| *m != VACANT) {
+            let mut i = Self::index(m, mask);
+            while self.slots[i].0 != VACANT {
+                i = (i + 1) & mask;
+            }
+            self.slots[i] = (m, n);
+        }
+    }
+
+    fn iter(&self) -> impl Iterator<Item = (u128, i128)> + '_ {
+        self.slots.iter().copied().filter(|(m, _)| *m != VACANT)
+    }
+
+    fn values(&self) -> impl Iterator<Item = i128> + '_ {
+        self.iter().map(|(_, n)| n)
+    }
+
+    fn values_mut(&mut self) -> impl Iterator<Item = &mut i128> + '_ {
+        self.slots
+            .iter_mut()
+            .filter(|(m, _)| *m != VACANT)
+            .map(|(_, n)| n)
+    }
+
+    /// Empties the table, handing back its entries.
+    fn take(&mut self) -> Vec<(u128, i128)> {
+        self.len = 0;
+        let mut out = std::mem::take(&mut self.slots);
+        out.retain(|(m, _)| *m != VACANT);
+        out
+    }
+}
+
 /// One sum of packed terms with a common time factor: numerators over
 /// `denom`.
 #[derive(Debug)]
@@ -426,7 +535,7 @@ struct Target {
     denom: i128,
     /// The last `d` that divided `denom`, with `denom / d`.
     last: (i128, i128),
-    map: FxHashMap<u128, i128>,
+    map: MonoMap,
 }
 
 impl Target {
@@ -481,7 +590,7 @@ impl PackedSum {
                     sines: r.sines,
                     denom: d,
                     last: (d, 1),
-                    map: FxHashMap::default(),
+                    map: MonoMap::default(),
                 });
                 let i = self.targets.len() - 1;
                 match usize::try_from(r.freq) {
@@ -524,7 +633,7 @@ impl PackedSum {
             }
             None => {
                 let beat = t.beat();
-                for (m, n) in t.map.drain() {
+                for (m, n) in t.map.take() {
                     spill(key_of(m, &beat), Q::from_i128(n, t.denom), t.sines);
                 }
                 t.denom = d;
@@ -552,18 +661,18 @@ impl PackedSum {
     ) -> Result<bool, E> {
         // The targets of every route first (a later one may rescale an
         // earlier one), then the scales.
-        let mut plan: SmallVec<[(usize, i128, i128); 2]> = SmallVec::new();
-        for r in routes {
+        let mut plan = [(0usize, 0i128, 0i128); 2];
+        for (slot, r) in plan.iter_mut().zip(routes) {
             let Some(d) = (a.denom as i128)
                 .checked_mul(b.denom as i128)
                 .and_then(|d| d.checked_mul(r.q as i128))
             else {
                 return Ok(false);
             };
-            plan.push((self.target(r, d, spill), r.p as i128, d));
+            *slot = (self.target(r, d, spill), r.p as i128, d);
         }
-        let mut scales: SmallVec<[(usize, i128); 2]> = SmallVec::new();
-        for (ti, p, d) in plan {
+        let mut scales = [(0usize, 0i128); 2];
+        for (slot, &(ti, p, d)) in scales.iter_mut().zip(&plan[..routes.len()]) {
             let t = &self.targets[ti];
             let quotient = if t.last.0 == d {
                 t.last.1
@@ -577,13 +686,13 @@ impl PackedSum {
             let Some(scale) = p.checked_mul(quotient) else {
                 return Ok(false);
             };
-            scales.push((ti, if negate { -scale } else { scale }));
+            *slot = (ti, if negate { -scale } else { scale });
         }
         // When no product of numerators times the scale can overflow, the
         // loop multiplies unchecked (only the sums are checked).
         let bits = |n: u128| 128 - n.leading_zeros();
         let product_bits = bits(a.max_abs() as u128) + bits(b.max_abs() as u128);
-        for (ti, scale) in scales {
+        for &(ti, scale) in &scales[..routes.len()] {
             // Rows are checked only in products of 64 rows or more.
             let others = if a.terms.len() >= 64 {
                 self.held() - self.targets[ti].map.len()
@@ -592,19 +701,32 @@ impl PackedSum {
             };
             let t = &mut self.targets[ti];
             if product_bits + bits(scale.unsigned_abs()) <= 126 {
+                let small = bits(a.max_abs() as u128) + bits(scale.unsigned_abs()) <= 63;
                 for (row, (ma, na)) in a.terms.iter().enumerate() {
                     if row % 64 == 63 {
                         check(others + t.map.len())?;
                     }
-                    for (mb, nb) in &b.terms {
-                        let v = (*na as i128) * (*nb as i128) * scale;
-                        let e = t.map.entry(ma + mb).or_insert(0);
+                    // The row's numerator times the scale, in a word when
+                    // it fits: one widening multiply per product then.
+                    let row_n = *na as i128 * scale;
+                    let mut add = |mb: &u128, v: i128| {
+                        let e = t.map.slot(ma + mb);
                         match e.checked_add(v) {
                             Some(s) => *e = s,
                             None => {
                                 let c = Q::from_i128(v, t.denom);
                                 spill(key_of(ma + mb, &t.beat()), c, t.sines);
                             }
+                        }
+                    };
+                    if small {
+                        let row_n = row_n as i64;
+                        for (mb, nb) in &b.terms {
+                            add(mb, (row_n as i128) * (*nb as i128));
+                        }
+                    } else {
+                        for (mb, nb) in &b.terms {
+                            add(mb, row_n * (*nb as i128));
                         }
                     }
                 }
@@ -618,7 +740,7 @@ impl PackedSum {
                     let m = ma + mb;
                     let v = (*na as i128) * (*nb as i128);
                     let added = v.checked_mul(scale).and_then(|v| {
-                        let e = t.map.entry(m).or_insert(0);
+                        let e = t.map.slot(m);
                         *e = e.checked_add(v)?;
                         Some(())
                     });
@@ -642,7 +764,7 @@ impl PackedSum {
         let mut out = Vec::with_capacity(self.targets.len());
         for t in self.targets.iter().filter(|t| !t.sines) {
             let fits = |n: i128| i64::try_from(n).is_ok();
-            let g = if fits(t.denom) && t.map.values().all(|n| fits(*n)) {
+            let g = if fits(t.denom) && t.map.values().all(fits) {
                 1
             } else {
                 t.map
@@ -652,10 +774,10 @@ impl PackedSum {
             };
             let denom = i64::try_from(t.denom / g).ok()?;
             let mut terms = Vec::with_capacity(t.map.len());
-            for (m, n) in &t.map {
-                if *n != 0 {
-                    let n = if g == 1 { *n } else { n / g };
-                    terms.push((*m, i64::try_from(n).ok()?));
+            for (m, n) in t.map.iter() {
+                if n != 0 {
+                    let n = if g == 1 { n } else { n / g };
+                    terms.push((m, i64::try_from(n).ok()?));
                 }
             }
             if !terms.is_empty() {
@@ -703,7 +825,7 @@ impl PackedSum {
         };
         for (m, n) in terms {
             let added = (*n as i128).checked_mul(scale).and_then(|v| {
-                let e = t.map.entry(*m).or_insert(0);
+                let e = t.map.slot(*m);
                 *e = e.checked_add(v)?;
                 Some(())
             });
@@ -727,7 +849,7 @@ impl PackedSum {
     pub fn into_sorted(self) -> (Terms, Terms) {
         let mut kept: Vec<Drained> = Vec::new();
         let mut sines: Vec<Drained> = Vec::new();
-        for t in self.targets {
+        for mut t in self.targets {
             let kind = if t.freq == 0 {
                 0
             } else if t.odd {
@@ -738,6 +860,7 @@ impl PackedSum {
             let out = if t.sines { &mut sines } else { &mut kept };
             out.extend(
                 t.map
+                    .take()
                     .into_iter()
                     .filter(|(_, n)| *n != 0)
                     .map(|(m, n)| (m, kind, t.freq, n, t.denom)),
@@ -756,9 +879,9 @@ impl PackedSum {
 
     /// Hands every nonzero term to `out` as (key, coefficient, sines).
     pub fn drain(self, out: &mut impl FnMut(Key, Q, bool)) {
-        for t in self.targets {
+        for mut t in self.targets {
             let beat = t.beat();
-            for (m, n) in t.map {
+            for (m, n) in t.map.take() {
                 if n != 0 {
                     out(key_of(m, &beat), Q::from_i128(n, t.denom), t.sines);
                 }
@@ -844,5 +967,34 @@ mod tests {
         assert!(pack_mono(&Mono(SmallVec::from_vec(vec![(Sym(16), 1)]))).is_none());
         assert!(pack_mono(&Mono(SmallVec::from_vec(vec![(Sym(2), 128)]))).is_none());
         assert!(pack_mono(&Mono(SmallVec::from_vec(vec![(Sym(2), -1)]))).is_none());
+    }
+
+    #[test]
+    fn the_monomial_table_sums_like_an_ordered_map() {
+        // Keys that share low lanes (collisions after masking), the
+        // constant monomial 0 and keys in the high word; sums that cancel.
+        let mut table = MonoMap::default();
+        let mut reference = std::collections::BTreeMap::new();
+        let mut x = 0x9e37_79b9_7f4a_7c15u64;
+        for i in 0..5000u64 {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            let lane = |v: u64| u128::from(v % 128);
+            let m = lane(x) | lane(x >> 8) << 16 | lane(x >> 16) << 120;
+            let m = if i % 97 == 0 { 0 } else { m };
+            let n = (x % 19) as i128 - 9;
+            *table.slot(m) += n;
+            *reference.entry(m).or_insert(0i128) += n;
+        }
+        assert_eq!(table.len(), reference.len());
+        let mut got: Vec<(u128, i128)> = table.iter().collect();
+        got.sort_unstable();
+        let want: Vec<(u128, i128)> = reference.into_iter().collect();
+        assert_eq!(got, want);
+        let taken = table.take();
+        assert_eq!(taken.len(), want.len());
+        assert_eq!(table.len(), 0);
+        assert_eq!(table.iter().count(), 0);
     }
 }
