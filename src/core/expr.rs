@@ -438,6 +438,17 @@ impl Acc {
         for pa in a {
             for pb in b {
                 if let (Some(qa), Some(qb)) = (&pa.packed, &pb.packed) {
+                    let fast = {
+                        let (packed, mut spill) = self.packed_and_spill();
+                        packed.add_small_product(qa, qb, negate, cut, &mut spill)
+                    };
+                    if let Some(routes) = fast {
+                        if routes > 0 {
+                            *work = work.saturating_add((qa.len() * qb.len()) as u64);
+                            self.count_small_product()?;
+                        }
+                        continue;
+                    }
                     let done = self.packed_product(qa, qb, negate, cut, max_terms, work)?;
                     // Long runs of packed products count their work as they
                     // go, so that the work budget stops them in time.
@@ -509,15 +520,24 @@ impl Acc {
         if !done {
             return Ok(false);
         }
-        // The sums' size is checked after large products and every 16
-        // small ones (counting the terms of every sum costs a pass over
-        // them).
+        if a.len().saturating_mul(b.len()) >= 256 {
+            self.unchecked = 0;
+            self.check_budget()?;
+        } else {
+            self.count_small_product()?;
+        }
+        Ok(true)
+    }
+
+    /// The sums' size is checked after large products and every 16 small
+    /// ones (counting the terms of every sum costs a pass over them).
+    fn count_small_product(&mut self) -> CoreResult<()> {
         self.unchecked += 1;
-        if self.unchecked >= 16 || a.len().saturating_mul(b.len()) >= 256 {
+        if self.unchecked >= 16 {
             self.unchecked = 0;
             self.check_budget()?;
         }
-        Ok(true)
+        Ok(())
     }
 
     /// `self += ±a·b`, keeping the terms `keep` asks for.

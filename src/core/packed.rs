@@ -388,10 +388,13 @@ pub fn routes(a: &Packed, b: &Packed, cut: Cut) -> Option<Routes> {
         Some(())
     };
     let (fa, fb) = (a.freq, b.freq);
+    // Every route scales by halves (1 = 2/2): one denominator for the
+    // products of two parts, whatever their frequencies, so that the
+    // targets' last quotient serves again.
     if fa == 0 {
-        push(Some(fb), b.odd, 1, 1)?;
+        push(Some(fb), b.odd, 2, 2)?;
     } else if fb == 0 {
-        push(Some(fa), a.odd, 1, 1)?;
+        push(Some(fa), a.odd, 2, 2)?;
     } else {
         let (sum, diff) = (fa.checked_add(fb), fa.checked_sub(fb));
         match (a.odd, b.odd) {
@@ -439,6 +442,40 @@ impl Routes {
 
     pub fn is_empty(&self) -> bool {
         self.len == 0
+    }
+}
+
+/// Puts `parts` over one denominator when every numerator still fits a
+/// word: products of two such lists then share one denominator, and the
+/// sums they feed find it again without dividing.
+fn common_denominator_of_parts(parts: &mut [Packed]) {
+    let Some(first) = parts.first().map(|p| p.denom) else {
+        return;
+    };
+    if parts.iter().all(|p| p.denom == first) {
+        return;
+    }
+    let Some(l) = parts.iter().try_fold(1i64, |l, p| lcm_i64(l, p.denom)) else {
+        return;
+    };
+    let fits = parts.iter().all(|p| {
+        let f = (l / p.denom).unsigned_abs();
+        p.max_abs
+            .checked_mul(f)
+            .is_some_and(|m| m <= i64::MAX as u64)
+    });
+    if !fits {
+        return;
+    }
+    for p in parts.iter_mut() {
+        let f = l / p.denom;
+        if f != 1 {
+            for (_, n) in &mut p.terms {
+                *n *= f;
+            }
+            p.max_abs *= f.unsigned_abs();
+            p.denom = l;
+        }
     }
 }
 
@@ -755,6 +792,118 @@ impl PackedSum {
         Ok(true)
     }
 
+    /// The common case of [`PackedSum::add_product`], with its set-up cut
+    /// to a few instructions: a product of fewer than 64 rows whose routes
+    /// all go to existing sums that already take its denominator, with no
+    /// product or sum leaving 127 bits. Returns the routes taken (0 when
+    /// every term was cut), or `None` having added nothing: the caller
+    /// then takes the general path.
+    #[inline]
+    pub fn add_small_product(
+        &mut self,
+        a: &Packed,
+        b: &Packed,
+        negate: bool,
+        cut: Cut,
+        spill: &mut impl FnMut(Key, Q, bool),
+    ) -> Option<usize> {
+        if a.terms.len() >= 64 {
+            return None;
+        }
+        // The routes (see [`routes`]) as (frequency, kind, p) over the
+        // common q = 2.
+        let mut plan = [(0i64, 0usize, 0i64); 2];
+        let mut len = 0;
+        let (fa, fb) = (a.freq, b.freq);
+        let mut push = |f: i64, odd: bool, p: i64| -> bool {
+            let (f, p) = if f < 0 {
+                (-f, if odd { -p } else { p })
+            } else {
+                (f, p)
+            };
+            if odd && f == 0 {
+                return true;
+            }
+            if cut.cap.is_some_and(|c| f > c) {
+                // Dropped, or a sine constant: the general path.
+                return !(cut.sines && odd);
+            }
+            plan[len] = (f, odd as usize, p);
+            len += 1;
+            true
+        };
+        // Frequencies are far below i64::MAX / 2 here: packing keeps them
+        // small (see `Packed::pack`); the general path checks them.
+        if fa.unsigned_abs() >= 1 << 40 || fb.unsigned_abs() >= 1 << 40 {
+            return None;
+        }
+        let ok = if fa == 0 {
+            push(fb, b.odd, 2)
+        } else if fb == 0 {
+            push(fa, a.odd, 2)
+        } else {
+            let (sum, diff) = (fa + fb, fa - fb);
+            match (a.odd, b.odd) {
+                (false, false) => push(diff, false, 1) && push(sum, false, 1),
+                (true, true) => push(diff, false, 1) && push(sum, false, -1),
+                (true, false) => push(sum, true, 1) && push(diff, true, 1),
+                (false, true) => push(sum, true, 1) && push(-diff, true, 1),
+            }
+        };
+        if !ok {
+            return None;
+        }
+        let d = (a.denom as i128) * (b.denom as i128) * 2;
+        let bits = |n: u128| 128 - n.leading_zeros();
+        let (bits_a, bits_b) = (bits(a.max_abs() as u128), bits(b.max_abs() as u128));
+        // Every route's target and scale first: nothing is added unless all
+        // are ready.
+        let mut scales = [(0usize, 0i128); 2];
+        for (slot, &(f, kind, p)) in scales.iter_mut().zip(&plan[..len]) {
+            let ti = *self.small.get(f as usize)?.get(kind)?;
+            let t = self.targets.get_mut(ti)?;
+            if t.last.0 != d {
+                t.last = (d, exact_quotient(t.denom, d)?);
+            }
+            let scale = (p as i128) * t.last.1;
+            let scale = if negate { -scale } else { scale };
+            if bits_a + bits_b + bits(scale.unsigned_abs()) > 126 {
+                return None;
+            }
+            *slot = (ti, scale);
+        }
+        for &(ti, scale) in &scales[..len] {
+            let t = &mut self.targets[ti];
+            let small = bits_a + bits(scale.unsigned_abs()) <= 63;
+            for (ma, na) in &a.terms {
+                let row_n = *na as i128 * scale;
+                // A sum that would leave i128 takes the product apart,
+                // exactly (as in `add_product`).
+                let mut add = |mb: &u128, v: i128| {
+                    let e = t.map.slot(ma + mb);
+                    match e.checked_add(v) {
+                        Some(s) => *e = s,
+                        None => {
+                            let c = Q::from_i128(v, t.denom);
+                            spill(key_of(ma + mb, &beat_of(t.freq, t.odd)), c, t.sines);
+                        }
+                    }
+                };
+                if small {
+                    let row_n = row_n as i64;
+                    for (mb, nb) in &b.terms {
+                        add(mb, (row_n as i128) * (*nb as i128));
+                    }
+                } else {
+                    for (mb, nb) in &b.terms {
+                        add(mb, row_n * (*nb as i128));
+                    }
+                }
+            }
+        }
+        Some(len)
+    }
+
     /// The kept sums as packed parts `(frequency, odd, part)` sorted by
     /// frequency, cosines first (the order of
     /// [`super::expr::Expr::into_by_frequency`]), without the sine
@@ -785,6 +934,7 @@ impl PackedSum {
             }
         }
         out.sort_unstable_by_key(|p| (p.freq, p.odd));
+        common_denominator_of_parts(&mut out);
         Some(out)
     }
 
