@@ -1011,6 +1011,15 @@ impl Expr {
         Expr { terms: out }
     }
 
+    /// The expression of terms already in key order, with distinct keys
+    /// and nonzero coefficients (the packed forms sort on their own, much
+    /// more cheaply than keys compare).
+    pub(super) fn from_sorted_terms(terms: Vec<(Key, Q)>) -> Expr {
+        debug_assert!(terms.windows(2).all(|w| w[0].0 < w[1].0));
+        debug_assert!(terms.iter().all(|(_, c)| !c.is_zero()));
+        Expr { terms }
+    }
+
     fn from_map(map: FxHashMap<Key, Q>) -> Expr {
         let mut terms: Vec<(Key, Q)> = map.into_iter().filter(|(_, c)| !c.is_zero()).collect();
         terms.sort_unstable_by(|a, b| a.0.cmp(&b.0));

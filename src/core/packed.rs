@@ -99,7 +99,9 @@ impl Packed {
         let mut terms = Vec::new();
         if s.0 < SLOTS {
             let shift = 8 * s.0;
-            terms.reserve(self.terms.len());
+            let has = |m: &u128| (m >> shift) & 0xff != 0;
+            // Counted first: no allocation when `s` is absent.
+            terms.reserve_exact(self.terms.iter().filter(|(m, _)| has(m)).count());
             for (m, n) in &self.terms {
                 let e = ((m >> shift) & 0xff) as i64;
                 if e != 0 {
@@ -113,13 +115,21 @@ impl Packed {
     /// The terms as an expression.
     pub fn unpack(&self) -> Expr {
         let beat = beat_of(self.freq, self.odd);
-        Expr::from_terms(
-            self.terms
-                .iter()
+        // One time factor: the order of keys is the order of monomials.
+        let mut terms: Vec<(u128, i64)> = self
+            .terms
+            .iter()
+            .copied()
+            .filter(|(_, n)| *n != 0)
+            .collect();
+        terms.sort_unstable_by(|a, b| cmp_mono(a.0, b.0));
+        Expr::from_sorted_terms(
+            terms
+                .into_iter()
                 .map(|(m, n)| {
                     (
-                        key_of(*m, &beat),
-                        Q::from_i128(*n as i128, self.denom as i128),
+                        key_of(m, &beat),
+                        Q::from_i128(n as i128, self.denom as i128),
                     )
                 })
                 .collect(),
