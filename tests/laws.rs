@@ -538,23 +538,28 @@ proptest! {
         let a = build_expr(&pick(&sa, 1), dim)?;
         let b = build_expr(&pick(&sb, 2), dim)?;
         let c = build_expr(&pick(&sc, 4), dim)?;
-        // c/3 + a·b − b·c, as one scaled expression and two sums of
-        // products into one accumulator.
+        // c/3 + a·b − b·c + (2^50 + 1)a·c, as one scaled expression and
+        // three sums of products into one accumulator (the last with
+        // numerators whose products need two words).
         let third = q(1, 3);
+        let big = a.scale(&Q::int((1i64 << 50) + 1));
         let full = c
             .scale(&third)
             .add(&a.mul(&b).or_fail("ab")?)
-            .sub(&b.mul(&c).or_fail("bc")?);
-        let (pa, pb, pc) = (
+            .sub(&b.mul(&c).or_fail("bc")?)
+            .add(&big.mul(&c).or_fail("big c")?);
+        let (pa, pb, pc, pbig) = (
             a.into_by_frequency(),
             b.into_by_frequency(),
             c.clone().into_by_frequency(),
+            big.into_by_frequency(),
         );
         let sum = |keep: Keep| -> Result<(Expr, Expr), TestCaseError> {
             let mut acc = Acc::new();
             acc.add_scaled(&c, &third, keep).or_fail("c/3")?;
             acc.add_product_harmonics(&pa, &pb, false, keep).or_fail("ab")?;
             acc.add_product_harmonics(&pb, &pc, true, keep).or_fail("bc")?;
+            acc.add_product_harmonics(&pbig, &pc, false, keep).or_fail("big c")?;
             Ok(acc.finish_with_sines())
         };
         prop_assert_eq!(sum(Keep::All)?.0, full.clone(), "whole product");
