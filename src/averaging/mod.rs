@@ -293,6 +293,7 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
             f_out.push(fk);
             break;
         }
+        let fk_parts = step.mean_parts;
         let wk_dot = step.oscillating;
         w[k] = step.integral;
         if k == 1 {
@@ -311,7 +312,7 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
             let cap = (p + k == n).then(|| rho1.mul(&Q::int(p as i64)));
             let keep = cap.as_ref().map_or(Keep::All, Keep::UpTo);
             let u = [
-                (Start::Field(&fk), fact[p].recip().unwrap_or(Q::ZERO)),
+                (Start::Parts(&fk_parts), fact[p].recip().unwrap_or(Q::ZERO)),
                 (
                     Start::Parts(&wk_dot),
                     fact[p + 1].recip().unwrap_or(Q::ZERO),
@@ -330,6 +331,9 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
 /// `W_k = ∫_0^t W'_k` plus the sine constants.
 struct Step {
     mean: Field,
+    /// The mean split by time factor (packed when it was): the sums
+    /// `H_{p,k}` start from it without packing `F_k` again for each `p`.
+    mean_parts: Vec<Harmonics>,
     oscillating: Vec<Harmonics>,
     integral: Prepared,
 }
@@ -361,12 +365,19 @@ fn split_and_integrate(
         let integral = osc.map(|e| e.integral_from_zero())?.add(sines)?;
         limits::check_terms(integral.n_terms())?;
         return Ok(Step {
+            mean_parts: mean
+                .0
+                .iter()
+                .cloned()
+                .map(Expr::into_by_frequency)
+                .collect(),
             mean,
             oscillating: osc.0.into_iter().map(Expr::into_by_frequency).collect(),
             integral: integral.prepare(states)?,
         });
     }
     let mut mean = Vec::with_capacity(rest.len());
+    let mut mean_parts = Vec::with_capacity(rest.len());
     let mut oscillating = Vec::with_capacity(rest.len());
     let mut integral = Vec::with_capacity(rest.len());
     for (parts, s) in rest.into_iter().zip(&sines.0) {
@@ -391,6 +402,7 @@ fn split_and_integrate(
         w_parts.extend(waves);
         w_parts.sort_by(|a, b| (&a.freq, a.odd).cmp(&(&b.freq, b.odd)));
         mean.push(m);
+        mean_parts.push(constant);
         oscillating.push(osc);
         integral.push(w_parts);
     }
@@ -398,6 +410,7 @@ fn split_and_integrate(
     limits::check_terms(terms)?;
     Ok(Step {
         mean: Field(mean),
+        mean_parts,
         oscillating,
         integral: Prepared::from_parts(integral, states),
     })
