@@ -612,6 +612,41 @@ impl Target {
     fn beat(&self) -> Beat {
         beat_of(self.freq, self.odd)
     }
+
+    /// `self += m_a·row_n · b`: one row of a product, `row_n` the row's
+    /// numerator times the route's scale (a word when `small`, so that each
+    /// product is one widening multiply). Every product must fit 127 bits;
+    /// a sum that would leave i128 takes the product apart, exactly.
+    #[inline]
+    fn add_row(
+        &mut self,
+        ma: u128,
+        row_n: i128,
+        small: bool,
+        b: &[(u128, i64)],
+        spill: &mut impl FnMut(Key, Q, bool),
+    ) {
+        let mut add = |mb: &u128, v: i128| {
+            let e = self.map.slot(ma + mb);
+            match e.checked_add(v) {
+                Some(s) => *e = s,
+                None => {
+                    let c = Q::from_i128(v, self.denom);
+                    spill(key_of(ma + mb, &self.beat()), c, self.sines);
+                }
+            }
+        };
+        if small {
+            let row_n = row_n as i64;
+            for (mb, nb) in b {
+                add(mb, (row_n as i128) * (*nb as i128));
+            }
+        } else {
+            for (mb, nb) in b {
+                add(mb, row_n * (*nb as i128));
+            }
+        }
+    }
 }
 
 /// Terms of an expression: keys and coefficients.
@@ -776,29 +811,7 @@ impl PackedSum {
                     if row % 64 == 63 {
                         check(others + t.map.len())?;
                     }
-                    // The row's numerator times the scale, in a word when
-                    // it fits: one widening multiply per product then.
-                    let row_n = *na as i128 * scale;
-                    let mut add = |mb: &u128, v: i128| {
-                        let e = t.map.slot(ma + mb);
-                        match e.checked_add(v) {
-                            Some(s) => *e = s,
-                            None => {
-                                let c = Q::from_i128(v, t.denom);
-                                spill(key_of(ma + mb, &t.beat()), c, t.sines);
-                            }
-                        }
-                    };
-                    if small {
-                        let row_n = row_n as i64;
-                        for (mb, nb) in &b.terms {
-                            add(mb, (row_n as i128) * (*nb as i128));
-                        }
-                    } else {
-                        for (mb, nb) in &b.terms {
-                            add(mb, row_n * (*nb as i128));
-                        }
-                    }
+                    t.add_row(*ma, *na as i128 * scale, small, &b.terms, spill);
                 }
                 continue;
             }
@@ -909,29 +922,7 @@ impl PackedSum {
             let t = &mut self.targets[ti];
             let small = bits_a + bits(scale.unsigned_abs()) <= 63;
             for (ma, na) in &a.terms {
-                let row_n = *na as i128 * scale;
-                // A sum that would leave i128 takes the product apart,
-                // exactly (as in `add_product`).
-                let mut add = |mb: &u128, v: i128| {
-                    let e = t.map.slot(ma + mb);
-                    match e.checked_add(v) {
-                        Some(s) => *e = s,
-                        None => {
-                            let c = Q::from_i128(v, t.denom);
-                            spill(key_of(ma + mb, &beat_of(t.freq, t.odd)), c, t.sines);
-                        }
-                    }
-                };
-                if small {
-                    let row_n = row_n as i64;
-                    for (mb, nb) in &b.terms {
-                        add(mb, (row_n as i128) * (*nb as i128));
-                    }
-                } else {
-                    for (mb, nb) in &b.terms {
-                        add(mb, row_n * (*nb as i128));
-                    }
-                }
+                t.add_row(*ma, *na as i128 * scale, small, &b.terms, spill);
             }
         }
         Some(len)
