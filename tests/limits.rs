@@ -310,6 +310,25 @@ fn one_large_bracket_product_stops_at_the_term_budget() {
     );
 }
 
+/// Averaging at a high order does many small packed products (a handful
+/// of terms per pair of time parts) whose results stay small: the work
+/// they do is counted as they go, so the budget's bound on term
+/// multiplications stops the statement, not only its bound on terms.
+#[test]
+fn many_small_packed_products_stop_at_the_work_bound() {
+    refused(
+        "averaging to order 12 with budget 1500",
+        "state x, y, z\nparam eps\nset budget 1500\n\
+         S = eps*[y*z*cos(t) - 1/2*x, x*z*sin(t) + y^2*cos(2*t), x*y - z*sin(t)]\n\
+         A = average S to 12 in eps",
+        &[
+            "term budget exceeded",
+            "375000 term multiplications",
+            "set budget N",
+        ],
+    );
+}
+
 #[test]
 fn repeated_squaring_hits_a_small_budget() {
     let mut text = String::from("state x, y, z\nset budget 1000\nA = x + y + z + 1");

@@ -442,14 +442,16 @@ impl Acc {
                         let (packed, mut spill) = self.packed_and_spill();
                         packed.add_small_product(qa, qb, negate, cut, &mut spill)
                     };
-                    if let Some(routes) = fast {
-                        if routes > 0 {
-                            *work = work.saturating_add((qa.len() * qb.len()) as u64);
-                            self.count_small_product()?;
+                    let done = match fast {
+                        Some(routes) => {
+                            if routes > 0 {
+                                *work = work.saturating_add((qa.len() * qb.len()) as u64);
+                                self.count_small_product()?;
+                            }
+                            true
                         }
-                        continue;
-                    }
-                    let done = self.packed_product(qa, qb, negate, cut, max_terms, work)?;
+                        None => self.packed_product(qa, qb, negate, cut, max_terms, work)?,
+                    };
                     // Long runs of packed products count their work as they
                     // go, so that the work budget stops them in time.
                     if *work >= 1 << 16 {
