@@ -791,7 +791,14 @@ impl PackedSum {
             let Some(scale) = p.checked_mul(quotient) else {
                 return Ok(false);
             };
-            *slot = (ti, if negate { -scale } else { scale });
+            let Some(scale) = (if negate {
+                scale.checked_neg()
+            } else {
+                Some(scale)
+            }) else {
+                return Ok(false);
+            };
+            *slot = (ti, scale);
         }
         // When no product of numerators times the scale can overflow, the
         // loop multiplies unchecked (only the sums are checked).
@@ -899,7 +906,9 @@ impl PackedSum {
         if !ok {
             return None;
         }
-        let d = (a.denom as i128) * (b.denom as i128) * 2;
+        let d = (a.denom as i128)
+            .checked_mul(b.denom as i128)?
+            .checked_mul(2)?;
         let bits = |n: u128| 128 - n.leading_zeros();
         let (bits_a, bits_b) = (bits(a.max_abs() as u128), bits(b.max_abs() as u128));
         // Every route's target and scale first: nothing is added unless all
@@ -911,8 +920,8 @@ impl PackedSum {
             if t.last.0 != d {
                 t.last = (d, exact_quotient(t.denom, d)?);
             }
-            let scale = (p as i128) * t.last.1;
-            let scale = if negate { -scale } else { scale };
+            let scale = (p as i128).checked_mul(t.last.1)?;
+            let scale = if negate { scale.checked_neg()? } else { scale };
             if bits_a + bits_b + bits(scale.unsigned_abs()) > 126 {
                 return None;
             }
@@ -1068,6 +1077,36 @@ impl PackedSum {
 mod tests {
     use super::*;
     use crate::core::expr::{Acc, Keep};
+
+    #[test]
+    fn products_of_parts_with_denominators_near_a_word_stay_exact() {
+        // Denominators just under 2^63: the routes' common denominator (the
+        // product of two of them times 2) sits near the top of i128, the
+        // sums' denominators cannot take the lcm of two such routes, and
+        // the scales of small products are near their limit; repeated
+        // products, some negated, into the same sums.
+        let (x, y) = (Expr::sym(Sym::new("qx")), Expr::sym(Sym::new("qy")));
+        let cos_t = Expr::cos_of(&Expr::sym(Sym::T), &[]).expect("cos t");
+        let sin_2t = Expr::sin_of(&Expr::sym(Sym::T).scale(&Q::int(2)), &[]).expect("sin 2t");
+        let d1 = Q::Small(1, i64::MAX - 24);
+        let d2 = Q::Small(3, i64::MAX - 26);
+        let a = x.mul(&cos_t).expect("a").scale(&d1).add(&y.scale(&d2));
+        let b = y
+            .mul(&sin_2t)
+            .expect("b")
+            .scale(&d2)
+            .add(&x.mul(&cos_t).expect("x cos t").scale(&d1))
+            .add(&x.scale(&Q::Small(2, 5)));
+        let (pa, pb) = (a.clone().into_by_frequency(), b.clone().into_by_frequency());
+        assert!(pa.iter().chain(&pb).all(|p| p.is_packed()));
+        let mut acc = Acc::new();
+        for negate in [false, false, true, false] {
+            acc.add_product_harmonics(&pa, &pb, negate, Keep::All)
+                .expect("product");
+        }
+        let expected = a.mul(&b).expect("ab").scale(&Q::int(2));
+        assert_eq!(acc.finish(), expected);
+    }
 
     #[test]
     fn sums_beyond_machine_integers_stay_exact() {
