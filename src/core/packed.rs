@@ -846,11 +846,13 @@ impl PackedSum {
     }
 
     /// The common case of [`PackedSum::add_product`], with its set-up cut
-    /// to a few instructions: a product of fewer than 64 rows whose routes
-    /// all go to existing sums that already take its denominator, with no
-    /// product or sum leaving 127 bits. Returns the routes taken (0 when
-    /// every term was cut), or `None` having added nothing: the caller
-    /// then takes the general path.
+    /// to a few instructions: a product of fewer than 64 rows, without sine
+    /// constants, whose routes all go to existing sums with denominators
+    /// that are multiples of its own, and whose products of terms fit 127
+    /// bits (a sum that would leave i128 takes its product apart, exactly,
+    /// as in `add_product`). Returns the routes taken (0 when every term
+    /// was cut), or `None` having added nothing: the caller then takes the
+    /// general path.
     #[inline]
     pub fn add_small_product(
         &mut self,
