@@ -415,16 +415,14 @@ impl Acc {
             cap: keep.cap().map(|c| c.floor().to_i64().unwrap_or(i64::MAX)),
             sines: matches!(keep, Keep::UpToWithSines(_)),
         };
-        let max_terms = limits::limits().max_terms;
         let mut work = 0u64;
-        let result = self.product_parts(a, b, negate, keep, cut, max_terms, &mut work);
+        let result = self.product_parts(a, b, negate, keep, cut, &mut work);
         limits::add_work(work)?;
         result
     }
 
     /// The loop of [`Acc::add_product_harmonics`]: packed products add their
     /// work to `work`.
-    #[allow(clippy::too_many_arguments)]
     fn product_parts(
         &mut self,
         a: &[Part],
@@ -432,7 +430,6 @@ impl Acc {
         negate: bool,
         keep: Keep,
         cut: Cut,
-        max_terms: usize,
         work: &mut u64,
     ) -> CoreResult<()> {
         for pa in a {
@@ -450,7 +447,7 @@ impl Acc {
                             }
                             true
                         }
-                        None => self.packed_product(qa, qb, negate, cut, max_terms, work)?,
+                        None => self.packed_product(qa, qb, negate, cut, work)?,
                     };
                     // Long runs of packed products count their work as they
                     // go, so that the work budget stops them in time.
@@ -490,7 +487,6 @@ impl Acc {
         b: &Packed,
         negate: bool,
         cut: Cut,
-        max_terms: usize,
         work: &mut u64,
     ) -> CoreResult<bool> {
         let Some(routes) = packed::routes(a, b, cut) else {
@@ -503,6 +499,7 @@ impl Acc {
         // products (small products would otherwise pay more for counting
         // than for multiplying).
         *work = work.saturating_add((a.len() as u64).saturating_mul(b.len() as u64));
+        let max_terms = limits::limits().max_terms;
         let general = self.map.len() + self.sines.len() + self.big_words;
         // Large products poll and watch the term budget as they go.
         let mut check = |held: usize| -> CoreResult<()> {
