@@ -244,11 +244,29 @@ fn plain_specs(specs: &[TermSpec]) -> Vec<TermSpec> {
         .collect()
 }
 
-/// Case count; failing cases are recorded for replay under
-/// `proptest-regressions/`.
+/// Polynomial terms times a state-trigonometric factor with integer
+/// coefficients (from −2 to 2), integer time frequencies and no
+/// exponential factor: the terms that products multiply packed, grouped by
+/// trigonometric factor.
+fn trig_specs(specs: &[TermSpec]) -> Vec<TermSpec> {
+    specs
+        .iter()
+        .map(|s| TermSpec {
+            wave_lin: s.wave_lin.map(|c| c - c % 2),
+            wave: s.wave,
+            ..plain_specs(std::slice::from_ref(s))[0].clone()
+        })
+        .collect()
+}
+
+/// Case count (`PROPTEST_CASES` overrides it for longer runs); failing
+/// cases are recorded for replay under `proptest-regressions/`.
 fn config(cases: u32) -> ProptestConfig {
     ProptestConfig {
-        cases,
+        cases: std::env::var("PROPTEST_CASES")
+            .ok()
+            .and_then(|v| v.parse().ok())
+            .unwrap_or(cases),
         max_shrink_iters: 256,
         failure_persistence: Some(Box::new(FileFailurePersistence::Direct(
             "proptest-regressions/laws.txt",
@@ -519,8 +537,9 @@ proptest! {
     }
 
     /// Sums of an expression and products of expressions split by time
-    /// factor (the inner loop of brackets, packed for plain polynomial
-    /// parts with integer frequencies) equal the sum of the product; keeping frequencies up to a cap
+    /// factor (the inner loop of brackets, packed for polynomial parts
+    /// with integer frequencies and integer state-trigonometric factors)
+    /// equal the sum of the product; keeping frequencies up to a cap
     /// keeps exactly the product's terms up to it, with `Σ c/h` over the
     /// dropped `c·sin(h t)` apart (`∫_0^t sin(h s) ds = (1 − cos(h t))/h`).
     #[test]
@@ -529,15 +548,29 @@ proptest! {
         sa in expr_spec(5),
         sb in expr_spec(5),
         sc in expr_spec(3),
-        plain in 0u8..8,
+        kinds in 0u8..27,
         cap in 0i64..=8,
     ) {
-        let pick = |specs: &[TermSpec], bit: u8| {
-            if plain & bit != 0 { plain_specs(specs) } else { specs.to_vec() }
+        // Each of a, b, c: general (0), plain polynomial (1) or polynomial
+        // times integer state-trigonometric factors (2); the last two are
+        // packed.
+        let kind = |i: u32| kinds / 3u8.pow(i) % 3;
+        let pick = |specs: &[TermSpec], i: u32| match kind(i) {
+            1 => plain_specs(specs),
+            2 => trig_specs(specs),
+            _ => specs.to_vec(),
         };
-        let a = build_expr(&pick(&sa, 1), dim)?;
-        let b = build_expr(&pick(&sb, 2), dim)?;
-        let c = build_expr(&pick(&sc, 4), dim)?;
+        let a = build_expr(&pick(&sa, 0), dim)?;
+        let b = build_expr(&pick(&sb, 1), dim)?;
+        let c = build_expr(&pick(&sc, 2), dim)?;
+        for (i, e) in [&a, &b, &c].into_iter().enumerate() {
+            if kind(i as u32) != 0 {
+                prop_assert!(
+                    e.clone().into_by_frequency().iter().all(|p| p.is_packed()),
+                    "{} is packed", e
+                );
+            }
+        }
         // c/3 + a·b − b·c + (2^50 + 1)a·c, as one scaled expression and
         // three sums of products into one accumulator (the last with
         // numerators whose products need two words).

@@ -281,6 +281,11 @@ impl Part {
     pub fn is_packed(&self) -> bool {
         self.packed.is_some()
     }
+
+    /// The packed copy, when there is one.
+    pub fn packed(&self) -> Option<&Packed> {
+        self.packed.as_ref()
+    }
 }
 
 impl Acc {
@@ -369,13 +374,14 @@ impl Acc {
                 }
             }
             let packed_key = packed::pack_key(k);
-            if let (Some((m, freq, odd)), Q::Small(n, d)) = (packed_key, &c) {
+            if let (Some((m, wave, freq, odd)), Q::Small(n, d)) = (packed_key, &c) {
                 let (freq, odd) = if to_sines { (0, false) } else { (freq, odd) };
                 let (packed, mut spill) = self.packed_and_spill();
                 if packed.add_terms(
                     &[(m, *n)],
                     *d,
                     &Route::new(freq, odd, to_sines, 1, 1),
+                    wave,
                     &mut spill,
                 ) {
                     continue;

@@ -1,19 +1,28 @@
-//! Packed products of plain polynomial parts: the inner loop of brackets.
+//! Packed products of polynomial and state-trigonometric parts: the inner
+//! loop of brackets.
 //!
 //! Owns: a compact copy of the terms of one time part (see
-//! [`super::expr::Part`]) when every term is a plain monomial (no
-//! exponential or state-trigonometric factor) in the first [`SLOTS`]
-//! symbols, with exponents from 0 to 127 and word-sized coefficients. Each
-//! monomial is one `u128`, eight bits per symbol, so the monomial of a
-//! product is one addition (two exponents of at most 127 cannot carry into
-//! the next symbol); the coefficients are integer numerators over one
-//! common denominator, so products and their sums need no gcd.
-//! [`PackedSum`] accumulates products of packed parts by the time factor
-//! of the result and gives back exact terms at the end; whatever does not
-//! fit its machine integers is handed to the caller as an exact term
-//! instead (the caller adds it to its general sum).
+//! [`super::expr::Part`]) when every term is a monomial in the first
+//! [`SLOTS`] symbols, with exponents from 0 to 127 and word-sized
+//! coefficients, times at most a state-trigonometric factor `cos L` or
+//! `sin L` whose linear form has integer coefficients from −127 to 127 in
+//! those symbols (no exponential factor). Each monomial is one `u128`,
+//! eight bits per symbol, so the monomial of a product is one addition (two
+//! exponents of at most 127 cannot carry into the next symbol); the terms
+//! are grouped by trigonometric factor ([`PWave`], the linear form in signed
+//! byte lanes), so that product-to-sum runs once per pair of groups and the
+//! loop over pairs of terms only adds monomials; the coefficients are
+//! integer numerators over one common denominator, so products and their
+//! sums need no gcd. [`PackedSum`] accumulates products of packed parts by
+//! the time and trigonometric factor of the result and gives back exact
+//! terms at the end; whatever does not fit its machine integers is handed
+//! to the caller as an exact term instead (the caller adds it to its
+//! general sum).
 //!
 //! Must not know: fields, brackets, budgets or the recursions that use it.
+
+use std::cmp::Ordering;
+use std::sync::Arc;
 
 use rustc_hash::FxHashMap;
 use smallvec::SmallVec;
@@ -28,9 +37,239 @@ pub const SLOTS: u32 = 16;
 const SMALL_FREQ: usize = 1024;
 /// Largest exponent of a packed factor: the sum of two stays below 256.
 const MAX_EXP: i32 = 127;
+/// Largest coefficient of a packed linear form in absolute value (a lane
+/// is a signed byte; −128 is left out so that every lane can be negated).
+const MAX_LANE: i16 = 127;
+
+/// A packed state-trigonometric factor (see [`Wave`]): none, `cos L` or
+/// `sin L`, with `L`'s integer coefficients in signed byte lanes (symbol
+/// `s` in byte `s`) and its first nonzero lane positive (the normal form's
+/// canonical sign).
+#[derive(Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Debug, Default)]
+pub struct PWave {
+    /// 0: none, 1: `cos`, 2: `sin` (the order of [`Wave`]'s variants).
+    kind: u8,
+    /// The linear form (0 for none).
+    lanes: u128,
+}
+
+impl PWave {
+    /// No trigonometric factor.
+    pub const ONE: PWave = PWave { kind: 0, lanes: 0 };
+
+    /// The packed copy of `w`, `None` when it does not fit.
+    pub fn pack(w: &Wave) -> Option<PWave> {
+        let (kind, l) = match w {
+            Wave::One => return Some(PWave::ONE),
+            Wave::Cos(l) => (1, l),
+            Wave::Sin(l) => (2, l),
+        };
+        let mut lanes = 0u128;
+        for (s, c) in l.0.iter() {
+            let Q::Small(n, 1) = c else {
+                return None;
+            };
+            if s.0 >= SLOTS || n.unsigned_abs() > MAX_LANE as u64 {
+                return None;
+            }
+            lanes |= u128::from(*n as i8 as u8) << (8 * s.0);
+        }
+        Some(PWave { kind, lanes })
+    }
+
+    /// The factor in normal form.
+    pub fn unpack(self) -> Wave {
+        if self.kind == 0 {
+            return Wave::One;
+        }
+        let mut pairs = Vec::new();
+        let (mut rest, mut s) = (self.lanes, 0u32);
+        while rest != 0 {
+            let c = lane(rest, 0);
+            if c != 0 {
+                pairs.push((Sym(s), Q::int(i64::from(c))));
+            }
+            rest >>= 8;
+            s += 1;
+        }
+        let l = Lin(Arc::from(pairs));
+        if self.kind == 1 {
+            Wave::Cos(l)
+        } else {
+            Wave::Sin(l)
+        }
+    }
+
+    /// The coefficient of `s` in the linear form.
+    fn coeff(self, s: Sym) -> i64 {
+        if s.0 >= SLOTS {
+            0
+        } else {
+            i64::from(lane(self.lanes, 8 * s.0))
+        }
+    }
+
+    /// True for a trigonometric factor (not 1).
+    fn is_wave(self) -> bool {
+        self.kind != 0
+    }
+}
+
+/// The signed lane of `lanes` at bit `shift`.
+fn lane(lanes: u128, shift: u32) -> i8 {
+    (lanes >> shift) as u8 as i8
+}
+
+/// The largest coefficient of a packed linear form in absolute value.
+fn max_lane(lanes: u128) -> u8 {
+    (0..16).map(|i| lane(lanes, 8 * i).unsigned_abs()).max().unwrap_or(0)
+}
+
+/// The low seven bits of every lane.
+const LOW7: u128 = u128::from_ne_bytes([0x7f; 16]);
+/// The sign bit of every lane.
+const SIGNS: u128 = u128::from_ne_bytes([0x80; 16]);
+/// One in every lane.
+const ONES: u128 = u128::from_ne_bytes([0x01; 16]);
+
+/// Lane-wise wrapping addition (no carry between lanes).
+fn wrapping_add_lanes(a: u128, b: u128) -> u128 {
+    ((a & LOW7) + (b & LOW7)) ^ ((a ^ b) & SIGNS)
+}
+
+/// Lane-wise negation (`−x = !x + 1` in every lane; zero lanes stay 0).
+fn negate_lanes(a: u128) -> u128 {
+    wrapping_add_lanes(!a, ONES)
+}
+
+/// `a + b` (`a − b` when `negate`) lane by lane, for forms whose largest
+/// coefficients sum to at most 127 (see [`Packed::lanes_fit`]): then no
+/// lane wraps.
+fn add_lanes(a: u128, b: u128, negate: bool) -> u128 {
+    wrapping_add_lanes(a, if negate { negate_lanes(b) } else { b })
+}
+
+/// The linear form with its first nonzero lane made positive, and whether
+/// it was negated.
+fn canonical_lanes(l: u128) -> (u128, bool) {
+    if l == 0 || lane(l, l.trailing_zeros() / 8 * 8) > 0 {
+        return (l, false);
+    }
+    (negate_lanes(l), true)
+}
+
+/// The trigonometric factors of a product of two groups with their
+/// factors `p/2` (product-to-sum: `cos a cos b = (cos(a−b) + cos(a+b))/2`,
+/// `sin a sin b = (cos(a−b) − cos(a+b))/2`, `sin a cos b = (sin(a+b) +
+/// sin(a−b))/2`, `cos a sin b = (sin(a+b) − sin(a−b))/2`; 1 as `2/2`),
+/// in canonical form (`cos(−L) = cos L`, `sin(−L) = −sin L`, `cos 0 = 1`,
+/// `sin 0 = 0`). The factors' largest coefficients must sum to at most 127
+/// (see [`Packed::lanes_fit`]).
+fn wave_routes(a: PWave, b: PWave) -> WaveRoutes {
+    let mut out = WaveRoutes::default();
+    if !a.is_wave() {
+        out.push(b, 2);
+        return out;
+    }
+    if !b.is_wave() {
+        out.push(a, 2);
+        return out;
+    }
+    let diff = add_lanes(a.lanes, b.lanes, true);
+    let sum = add_lanes(a.lanes, b.lanes, false);
+    let mut push = |kind: u8, lanes: u128, p: i64| {
+        let (lanes, negated) = canonical_lanes(lanes);
+        if lanes == 0 {
+            if kind == 1 {
+                out.push(PWave::ONE, p);
+            }
+            return;
+        }
+        let p = if negated && kind == 2 { -p } else { p };
+        out.push(PWave { kind, lanes }, p);
+    };
+    match (a.kind, b.kind) {
+        (1, 1) => {
+            push(1, diff, 1);
+            push(1, sum, 1);
+        }
+        (2, 2) => {
+            push(1, diff, 1);
+            push(1, sum, -1);
+        }
+        (2, _) => {
+            push(2, sum, 1);
+            push(2, diff, 1);
+        }
+        _ => {
+            push(2, sum, 1);
+            push(2, diff, -1);
+        }
+    }
+    out
+}
+
+/// The at most two trigonometric factors of a product of two groups, each
+/// with its factor `p/2`.
+#[derive(Clone, Copy, Debug, Default)]
+struct WaveRoutes {
+    routes: [(PWave, i64); 2],
+    len: usize,
+}
+
+impl WaveRoutes {
+    fn push(&mut self, w: PWave, p: i64) {
+        if let Some(slot) = self.routes.get_mut(self.len) {
+            *slot = (w, p);
+            self.len += 1;
+        }
+    }
+
+    fn as_slice(&self) -> &[(PWave, i64)] {
+        &self.routes[..self.len]
+    }
+}
+
+/// The order of [`Lin`] (sorted `(symbol, coefficient)` pairs compared
+/// lexicographically) on packed linear forms: as [`cmp_mono`], with the
+/// lanes compared as signed numbers.
+fn cmp_lanes(a: u128, b: u128) -> Ordering {
+    let x = a ^ b;
+    if x == 0 {
+        return Ordering::Equal;
+    }
+    let shift = x.trailing_zeros() / 8 * 8;
+    let (ea, eb) = (lane(a, shift), lane(b, shift));
+    let rest = |m: u128| shift + 8 < 128 && m >> (shift + 8) != 0;
+    if ea != 0 && eb != 0 {
+        ea.cmp(&eb)
+    } else if ea == 0 {
+        if rest(a) {
+            Ordering::Greater
+        } else {
+            Ordering::Less
+        }
+    } else if rest(b) {
+        Ordering::Less
+    } else {
+        Ordering::Greater
+    }
+}
+
+/// The order of [`Wave`] on packed factors: none, then `cos`, then `sin`,
+/// each by linear form.
+fn cmp_wave(a: PWave, b: PWave) -> Ordering {
+    a.kind
+        .cmp(&b.kind)
+        .then_with(|| cmp_lanes(a.lanes, b.lanes))
+}
+
+/// A packed term with its trigonometric factor (before grouping).
+type WaveTerm = (PWave, u128, i64);
 
 /// The terms of one part, packed: `Σ terms[i].1 · x^terms[i].0 / denom`
-/// times `cos(freq·t)` (`sin(freq·t)` when `odd`; 1 when `freq = 0`).
+/// times the group's trigonometric factor, times `cos(freq·t)`
+/// (`sin(freq·t)` when `odd`; 1 when `freq = 0`).
 #[derive(Clone, Debug, Default)]
 pub struct Packed {
     /// The time frequency (an integer: parts with other frequencies are
@@ -40,26 +279,108 @@ pub struct Packed {
     odd: bool,
     /// Positive common denominator.
     denom: i64,
-    /// Packed monomial and integer numerator.
+    /// Packed monomial and integer numerator, group after group.
     terms: Vec<(u128, i64)>,
+    /// The groups: trigonometric factor and the end of its terms (those
+    /// from the previous group's end); distinct factors, monomials distinct
+    /// within a group.
+    groups: SmallVec<[(PWave, usize); 1]>,
+    /// True when some group has a trigonometric factor.
+    waves: bool,
+    /// The largest coefficient of the groups' linear forms in absolute
+    /// value.
+    max_lane: u8,
     /// The largest numerator in absolute value (bounds products).
     max_abs: u64,
 }
 
 impl Packed {
+    /// Terms without trigonometric factor.
     fn new(freq: i64, odd: bool, denom: i64, terms: Vec<(u128, i64)>) -> Packed {
+        let groups = if terms.is_empty() {
+            SmallVec::new()
+        } else {
+            SmallVec::from_elem((PWave::ONE, terms.len()), 1)
+        };
+        Packed::with_groups(freq, odd, denom, terms, groups)
+    }
+
+    fn with_groups(
+        freq: i64,
+        odd: bool,
+        denom: i64,
+        terms: Vec<(u128, i64)>,
+        groups: SmallVec<[(PWave, usize); 1]>,
+    ) -> Packed {
         let max_abs = terms
             .iter()
             .map(|(_, n)| n.unsigned_abs())
             .max()
             .unwrap_or(0);
+        let waves = groups.iter().any(|(w, _)| w.is_wave());
+        let max_lane = groups.iter().map(|(w, _)| max_lane(w.lanes)).max().unwrap_or(0);
         Packed {
             freq,
             odd,
             denom,
             terms,
+            groups,
+            waves,
+            max_lane,
             max_abs,
         }
+    }
+
+    /// True when the linear forms of every product of a group of `a` and
+    /// one of `b` fit the lanes (`|x ± y| ≤ |x| + |y|`).
+    fn lanes_fit(a: &Packed, b: &Packed) -> bool {
+        i16::from(a.max_lane) + i16::from(b.max_lane) <= MAX_LANE
+    }
+
+    /// Terms with their factors, grouped (sorted by factor and monomial;
+    /// with `merge`, equal pairs are summed and zeros dropped). `None` when
+    /// a sum overflows.
+    fn from_wave_terms(
+        freq: i64,
+        odd: bool,
+        denom: i64,
+        mut v: Vec<WaveTerm>,
+        merge: bool,
+    ) -> Option<Packed> {
+        v.sort_unstable_by_key(|&(w, m, _)| (w, m));
+        if merge {
+            let mut merged: Vec<WaveTerm> = Vec::with_capacity(v.len());
+            for (w, m, n) in v {
+                match merged.last_mut() {
+                    Some(last) if last.0 == w && last.1 == m => last.2 = last.2.checked_add(n)?,
+                    _ => merged.push((w, m, n)),
+                }
+            }
+            merged.retain(|t| t.2 != 0);
+            v = merged;
+        }
+        let mut terms: Vec<(u128, i64)> = Vec::with_capacity(v.len());
+        let mut groups: SmallVec<[(PWave, usize); 1]> = SmallVec::new();
+        for (w, m, n) in v {
+            if groups.last().map(|g| g.0) != Some(w) {
+                groups.push((w, 0));
+            }
+            terms.push((m, n));
+            if let Some(g) = groups.last_mut() {
+                g.1 = terms.len();
+            }
+        }
+        Some(Packed::with_groups(freq, odd, denom, terms, groups))
+    }
+
+    /// The groups: trigonometric factor and terms.
+    fn groups(&self) -> impl Iterator<Item = (PWave, &[(u128, i64)])> + '_ {
+        let mut start = 0;
+        self.groups.iter().map(move |&(w, end)| {
+            let g = &self.terms[start..end];
+            start = end;
+            (w, g)
+        })
     }
 
     /// The packed copy of `terms` (all with time factor `cos(freq·t)`, or
@@ -78,9 +399,10 @@ impl Packed {
         } else {
             return None;
         };
-        let mut out = Vec::with_capacity(terms.len());
+        let mut plain = Vec::with_capacity(terms.len());
+        let mut waves: Vec<WaveTerm> = Vec::new();
         for (k, c) in terms {
-            if !k.exp.is_zero() || k.wave != Wave::One {
+            if !k.exp.is_zero() {
                 return None;
             }
             let Q::Small(n, d) = c else {
@@ -89,17 +411,33 @@ impl Packed {
             if denom % d != 0 {
                 return None;
             }
-            out.push((pack_mono(&k.mono)?, n.checked_mul(denom / d)?));
+            let term = (pack_mono(&k.mono)?, n.checked_mul(denom / d)?);
+            if k.wave == Wave::One && waves.is_empty() {
+                plain.push(term);
+            } else {
+                if waves.is_empty() {
+                    waves.extend(plain.drain(..).map(|(m, n)| (PWave::ONE, m, n)));
+                }
+                waves.push((PWave::pack(&k.wave)?, term.0, term.1));
+            }
         }
-        Some(Packed::new(freq, odd, denom, out))
+        if waves.is_empty() {
+            Some(Packed::new(freq, odd, denom, plain))
+        } else {
+            Packed::from_wave_terms(freq, odd, denom, waves, false)
+        }
     }
 
-    /// `∂/∂s`, `None` when a coefficient overflows.
+    /// `∂/∂s`, `None` when a coefficient overflows: `∂(m cos L) = ∂m cos L
+    /// − L_s m sin L`, `∂(m sin L) = ∂m sin L + L_s m cos L`.
     pub fn derivative(&self, s: Sym) -> Option<Packed> {
-        let mut terms = Vec::new();
-        if s.0 < SLOTS {
-            let shift = 8 * s.0;
-            let has = |m: &u128| (m >> shift) & 0xff != 0;
+        if s.0 >= SLOTS {
+            return Some(Packed::new(self.freq, self.odd, self.denom, Vec::new()));
+        }
+        let shift = 8 * s.0;
+        let has = |m: &u128| (m >> shift) & 0xff != 0;
+        if !self.waves {
+            let mut terms = Vec::new();
             // Counted first: no allocation when `s` is absent.
             terms.reserve_exact(self.terms.iter().filter(|(m, _)| has(m)).count());
             for (m, n) in &self.terms {
@@ -108,27 +446,64 @@ impl Packed {
                     terms.push((m - (1u128 << shift), n.checked_mul(e)?));
                 }
             }
+            return Some(Packed::new(self.freq, self.odd, self.denom, terms));
         }
-        Some(Packed::new(self.freq, self.odd, self.denom, terms))
+        let mut v: Vec<WaveTerm> = Vec::new();
+        for (w, g) in self.groups() {
+            let c = w.coeff(s);
+            for (m, n) in g {
+                let e = ((m >> shift) & 0xff) as i64;
+                if e != 0 {
+                    v.push((w, m - (1u128 << shift), n.checked_mul(e)?));
+                }
+                if c != 0 {
+                    let (kind, f) = if w.kind == 1 { (2, -c) } else { (1, c) };
+                    v.push((PWave { kind, ..w }, *m, n.checked_mul(f)?));
+                }
+            }
+        }
+        Packed::from_wave_terms(self.freq, self.odd, self.denom, v, true)
     }
 
     /// The terms as an expression.
     pub fn unpack(&self) -> Expr {
         let beat = beat_of(self.freq, self.odd);
-        // One time factor: the order of keys is the order of monomials.
-        let mut terms: Vec<(u128, i64)> = self
-            .terms
-            .iter()
-            .copied()
-            .filter(|(_, n)| *n != 0)
-            .collect();
-        terms.sort_unstable_by(|a, b| cmp_mono(a.0, b.0));
+        if !self.waves {
+            // One time factor: the order of keys is the order of monomials.
+            let mut terms: Vec<(u128, i64)> = self
+                .terms
+                .iter()
+                .copied()
+                .filter(|(_, n)| *n != 0)
+                .collect();
+            terms.sort_unstable_by(|a, b| cmp_mono(a.0, b.0));
+            return Expr::from_sorted_terms(
+                terms
+                    .into_iter()
+                    .map(|(m, n)| {
+                        (
+                            key_of(m, Wave::One, &beat),
+                            Q::from_i128(n as i128, self.denom as i128),
+                        )
+                    })
+                    .collect(),
+            );
+        }
+        // By monomial, then trigonometric factor (the order of keys).
+        let waves: Vec<(PWave, Wave)> = self.groups.iter().map(|(w, _)| (*w, w.unpack())).collect();
+        let mut terms: Vec<(u128, usize, i64)> = Vec::with_capacity(self.terms.len());
+        for (i, (_, g)) in self.groups().enumerate() {
+            terms.extend(g.iter().filter(|(_, n)| *n != 0).map(|&(m, n)| (m, i, n)));
+        }
+        terms.sort_unstable_by(|a, b| {
+            cmp_mono(a.0, b.0).then_with(|| cmp_wave(waves[a.1].0, waves[b.1].0))
+        });
         Expr::from_sorted_terms(
             terms
                 .into_iter()
-                .map(|(m, n)| {
+                .map(|(m, i, n)| {
                     (
-                        key_of(m, &beat),
+                        key_of(m, waves[i].1.clone(), &beat),
                         Q::from_i128(n as i128, self.denom as i128),
                     )
                 })
@@ -154,26 +529,27 @@ impl Packed {
 
     /// `∫_0^t` of a part with a time factor and no power of `t`:
     /// `cos(h t) → sin(h t)/h` and `sin(h t) → (1 − cos(h t))/h`, as the
-    /// oscillating part and, for sines, the constant part. `None` when the
-    /// part has no time factor or a power of `t`, or a number overflows.
+    /// oscillating part and, for sines, the constant part (the state
+    /// factors do not depend on `t`). `None` when the part has no time
+    /// factor or a power of `t`, or a number overflows.
     pub fn integral_from_zero(&self) -> Option<(Packed, Option<Packed>)> {
         if self.freq == 0 || self.has_time_power() {
             return None;
         }
         let denom = self.denom.checked_mul(self.freq)?;
+        let like = |odd: bool, freq: i64, terms: Vec<(u128, i64)>| {
+            Packed::with_groups(freq, odd, denom, terms, self.groups.clone())
+        };
         if !self.odd {
-            return Some((
-                Packed::new(self.freq, true, denom, self.terms.clone()),
-                None,
-            ));
+            return Some((like(true, self.freq, self.terms.clone()), None));
         }
         let mut negated = Vec::with_capacity(self.terms.len());
         for (m, n) in &self.terms {
             negated.push((*m, n.checked_neg()?));
         }
         Some((
-            Packed::new(self.freq, false, denom, negated),
-            Some(Packed::new(0, false, denom, self.terms.clone())),
+            like(false, self.freq, negated),
+            Some(like(false, 0, self.terms.clone())),
         ))
     }
 
@@ -206,18 +582,19 @@ pub fn common_denominator(terms: &[(Key, Q)]) -> Option<i64> {
     Some(denom)
 }
 
-/// The packed monomial, frequency and parity of a term's key, when it is
-/// plain (see [`Packed`]).
-pub fn pack_key(k: &Key) -> Option<(u128, i64, bool)> {
-    if !k.exp.is_zero() || k.wave != Wave::One {
+/// The packed monomial, trigonometric factor, frequency and parity of a
+/// term's key, when it fits (see [`Packed`]).
+pub fn pack_key(k: &Key) -> Option<(u128, PWave, i64, bool)> {
+    if !k.exp.is_zero() {
         return None;
     }
+    let wave = PWave::pack(&k.wave)?;
     let (freq, odd) = match &k.beat {
         Beat::One => (0, false),
         Beat::Cos(h) => (h.is_integer().then(|| h.to_i64())??, false),
         Beat::Sin(h) => (h.is_integer().then(|| h.to_i64())??, true),
     };
-    Some((pack_mono(&k.mono)?, freq, odd))
+    Some((pack_mono(&k.mono)?, wave, freq, odd))
 }
 
 /// `n / d` when `d` (positive) divides `n` (positive), in machine words
@@ -277,7 +654,6 @@ fn unpack_mono(mut m: u128) -> Mono {
 /// that one's next pair has a later symbol (it is greater) unless it has
 /// none left (it is a prefix, so smaller).
 fn cmp_mono(a: u128, b: u128) -> std::cmp::Ordering {
-    use std::cmp::Ordering;
     let x = a ^ b;
     if x == 0 {
         return Ordering::Equal;
@@ -311,12 +687,12 @@ fn beat_of(freq: i64, odd: bool) -> Beat {
     }
 }
 
-/// The key of a packed monomial with time factor `beat`.
-fn key_of(m: u128, beat: &Beat) -> Key {
+/// The key of a packed monomial with factors `wave` and `beat`.
+fn key_of(m: u128, wave: Wave, beat: &Beat) -> Key {
     Key {
         mono: unpack_mono(m),
         exp: Lin::default(),
-        wave: Wave::One,
+        wave,
         beat: beat.clone(),
     }
 }
@@ -595,13 +971,14 @@ impl MonoMap {
     }
 }
 
-/// One sum of packed terms with a common time factor: numerators over
-/// `denom`.
+/// One sum of packed terms with a common time and trigonometric factor:
+/// numerators over `denom`.
 #[derive(Debug)]
 struct Target {
     freq: i64,
     odd: bool,
     sines: bool,
+    wave: PWave,
     denom: i128,
     /// The last `d` that divided `denom`, with `denom / d`.
     last: (i128, i128),
@@ -611,6 +988,11 @@ struct Target {
 impl Target {
     fn beat(&self) -> Beat {
         beat_of(self.freq, self.odd)
+    }
+
+    /// The key of monomial `m` in this sum.
+    fn key(&self, m: u128) -> Key {
+        key_of(m, self.wave.unpack(), &self.beat())
     }
 
     /// `self += m_a·row_n · b`: one row of a product, `row_n` the row's
@@ -632,7 +1014,7 @@ impl Target {
                 Some(s) => *e = s,
                 None => {
                     let c = Q::from_i128(v, self.denom);
-                    spill(key_of(ma + mb, &self.beat()), c, self.sines);
+                    spill(self.key(ma + mb), c, self.sines);
                 }
             }
         };
@@ -652,19 +1034,22 @@ impl Target {
 /// Terms of an expression: keys and coefficients.
 pub type Terms = Vec<(Key, Q)>;
 
-/// A drained term: monomial, time factor kind (0: 1, 1: cos, 2: sin),
-/// frequency, numerator, denominator.
-type Drained = (u128, u8, i64, i128, i128);
+/// A drained term: monomial, trigonometric factor, time factor kind (0:
+/// 1, 1: cos, 2: sin), frequency, numerator, denominator, and the index of
+/// its sum (which holds the factor in normal form).
+type Drained = (u128, PWave, u8, i64, i128, i128, usize);
 
-/// A sum of products of packed parts, by time factor of the result.
+/// A sum of products of packed parts, by time and trigonometric factor of
+/// the result.
 #[derive(Debug, Default)]
 pub struct PackedSum {
     targets: Vec<Target>,
-    /// Target by (frequency, kind) for small frequencies: kind 0 for
-    /// `cos`/1, 1 for `sin`, 2 for sine constants; `usize::MAX` for none.
+    /// Target without trigonometric factor by (frequency, kind) for small
+    /// frequencies: kind 0 for `cos`/1, 1 for `sin`, 2 for sine constants;
+    /// `usize::MAX` for none.
     small: Vec<[usize; 3]>,
-    /// Target by (frequency, kind) for the others.
-    index: FxHashMap<(i64, u8), usize>,
+    /// Target by (frequency, kind, trigonometric factor) for the others.
+    index: FxHashMap<(i64, u8, PWave), usize>,
 }
 
 impl PackedSum {
@@ -676,15 +1061,24 @@ impl PackedSum {
     /// The target of `r` whose denominator is a multiple of `d`, created
     /// or rescaled as needed; what cannot be rescaled in machine integers
     /// is spilled as exact terms.
-    fn target(&mut self, r: &Route, d: i128, spill: &mut impl FnMut(Key, Q, bool)) -> usize {
+    fn target(
+        &mut self,
+        r: &Route,
+        wave: PWave,
+        d: i128,
+        spill: &mut impl FnMut(Key, Q, bool),
+    ) -> usize {
         let kind = if r.sines { 2 } else { r.odd as u8 };
-        let found = match usize::try_from(r.freq) {
-            Ok(f) if f < SMALL_FREQ => self
+        let small = usize::try_from(r.freq)
+            .ok()
+            .filter(|f| *f < SMALL_FREQ && wave == PWave::ONE);
+        let found = match small {
+            Some(f) => self
                 .small
                 .get(f)
                 .map(|k| k[kind as usize])
                 .filter(|i| *i != usize::MAX),
-            _ => self.index.get(&(r.freq, kind)).copied(),
+            None => self.index.get(&(r.freq, kind, wave)).copied(),
         };
         let i = match found {
             Some(i) => i,
@@ -693,20 +1087,21 @@ impl PackedSum {
                     freq: r.freq,
                     odd: r.odd,
                     sines: r.sines,
+                    wave,
                     denom: d,
                     last: (d, 1),
                     map: MonoMap::default(),
                 });
                 let i = self.targets.len() - 1;
-                match usize::try_from(r.freq) {
-                    Ok(f) if f < SMALL_FREQ => {
+                match small {
+                    Some(f) => {
                         if self.small.len() <= f {
                             self.small.resize(f + 1, [usize::MAX; 3]);
                         }
                         self.small[f][kind as usize] = i;
                     }
-                    _ => {
-                        self.index.insert((r.freq, kind), i);
+                    None => {
+                        self.index.insert((r.freq, kind, wave), i);
                     }
                 }
                 return i;
@@ -737,9 +1132,8 @@ impl PackedSum {
                 t.last = (d, l / d);
             }
             None => {
-                let beat = t.beat();
                 for (m, n) in t.map.take() {
-                    spill(key_of(m, &beat), Q::from_i128(n, t.denom), t.sines);
+                    spill(t.key(m), Q::from_i128(n, t.denom), t.sines);
                 }
                 t.denom = d;
                 t.last = (d, 1);
@@ -748,13 +1142,14 @@ impl PackedSum {
         i
     }
 
-    /// `self += ±a·b` along `routes` (see [`routes`]). Returns false,
-    /// doing nothing that changes the sum, when a factor does not fit
-    /// machine integers: the caller then multiplies the general way.
-    /// Products that overflow are spilled exactly. Every 64 rows (terms of
-    /// `a`), `check` is given the number of terms held and may stop the
-    /// product with an error (budgets, interruption: the caller's
-    /// business); the sum is then incomplete and must be dropped.
+    /// `self += ±a·b` along `routes` (see [`routes`]), group by group
+    /// (see [`wave_routes`]). Returns false, doing nothing, when a
+    /// denominator or a trigonometric factor does not fit machine integers:
+    /// the caller then multiplies the general way. Products that overflow
+    /// are spilled exactly. Every 64 rows (terms of a group of `a`),
+    /// `check` is given the number of terms held and may stop the product
+    /// with an error (budgets, interruption: the caller's business); the
+    /// sum is then incomplete and must be dropped.
     pub fn add_product<E>(
         &mut self,
         a: &Packed,
@@ -764,80 +1159,105 @@ impl PackedSum {
         spill: &mut impl FnMut(Key, Q, bool),
         check: &mut impl FnMut(usize) -> Result<(), E>,
     ) -> Result<bool, E> {
-        // The targets of every route first (a later one may rescale an
-        // earlier one), then the scales.
-        let mut plan = [(0usize, 0i128, 0i128); 2];
-        for (slot, r) in plan.iter_mut().zip(routes) {
-            let Some(d) = (a.denom as i128)
+        // One denominator per route for every pair of groups: the parts'
+        // denominators, the route's (halves for the time factors) and
+        // halves again for the trigonometric factors when there are any.
+        let q_wave: i128 = if a.waves || b.waves { 2 } else { 1 };
+        let mut ds = [0i128; 2];
+        for (d, r) in ds.iter_mut().zip(routes) {
+            let Some(x) = (a.denom as i128)
                 .checked_mul(b.denom as i128)
+                .and_then(|d| d.checked_mul(q_wave))
                 .and_then(|d| d.checked_mul(r.q as i128))
             else {
                 return Ok(false);
             };
-            *slot = (self.target(r, d, spill), r.p as i128, d);
+            *d = x;
         }
-        let mut scales = [(0usize, 0i128); 2];
-        for (slot, &(ti, p, d)) in scales.iter_mut().zip(&plan[..routes.len()]) {
-            let t = &self.targets[ti];
-            let quotient = if t.last.0 == d {
-                t.last.1
-            } else if let Some(quotient) = exact_quotient(t.denom, d) {
-                // A later route rescaled this target.
-                quotient
-            } else {
-                // A later route spilled and restarted this target.
-                return Ok(false);
-            };
-            let Some(scale) = p.checked_mul(quotient) else {
-                return Ok(false);
-            };
-            let Some(scale) = (if negate {
-                scale.checked_neg()
-            } else {
-                Some(scale)
-            }) else {
-                return Ok(false);
-            };
-            *slot = (ti, scale);
+        if !Packed::lanes_fit(a, b) {
+            return Ok(false);
         }
-        // When no product of numerators times the scale can overflow, the
-        // loop multiplies unchecked (only the sums are checked).
         let bits = |n: u128| 128 - n.leading_zeros();
         let product_bits = bits(a.max_abs() as u128) + bits(b.max_abs() as u128);
-        for &(ti, scale) in &scales[..routes.len()] {
-            // Rows are checked only in products of 64 rows or more.
-            let others = if a.terms.len() >= 64 {
-                self.held() - self.targets[ti].map.len()
+        for ((wa, ga), (wb, gb)) in a
+            .groups()
+            .flat_map(|ga| b.groups().map(move |gb| (ga, gb)))
+        {
+            let waves = if q_wave == 1 {
+                let mut one = WaveRoutes::default();
+                one.push(PWave::ONE, 1);
+                one
             } else {
-                0
+                wave_routes(wa, wb)
             };
-            let t = &mut self.targets[ti];
-            if product_bits + bits(scale.unsigned_abs()) <= 126 {
-                let small = bits(a.max_abs() as u128) + bits(scale.unsigned_abs()) <= 63;
-                for (row, (ma, na)) in a.terms.iter().enumerate() {
+            // The targets of every route first (a later one may rescale an
+            // earlier one), then the scales.
+            let mut plan = [(0usize, 0i128, 0i128); 4];
+            let mut len = 0;
+            for &(w, pw) in waves.as_slice() {
+                for (r, &d) in routes.iter().zip(&ds) {
+                    plan[len] = (self.target(r, w, d, spill), pw as i128 * r.p as i128, d);
+                    len += 1;
+                }
+            }
+            for &(ti, p, d) in &plan[..len] {
+                let t = &self.targets[ti];
+                let quotient = if t.last.0 == d {
+                    Some(t.last.1)
+                } else {
+                    // A later route rescaled this target (or spilled and
+                    // restarted it: then `d` may no longer divide).
+                    exact_quotient(t.denom, d)
+                };
+                let p = if negate { -p } else { p };
+                let Some(scale) = quotient.and_then(|q| p.checked_mul(q)) else {
+                    // Exact, term by term: each product times p/d.
+                    let f = Q::from_i128(p, d);
+                    for (ma, na) in ga {
+                        for (mb, nb) in gb {
+                            let c = Q::from_i128(*na as i128 * *nb as i128, 1).mul(&f);
+                            spill(t.key(ma + mb), c, t.sines);
+                        }
+                    }
+                    continue;
+                };
+                // Rows are checked only in products of 64 rows or more.
+                let others = if ga.len() >= 64 {
+                    self.held() - self.targets[ti].map.len()
+                } else {
+                    0
+                };
+                let t = &mut self.targets[ti];
+                // When no product of numerators times the scale can
+                // overflow, the loop multiplies unchecked (only the sums
+                // are checked).
+                if product_bits + bits(scale.unsigned_abs()) <= 126 {
+                    let small = bits(a.max_abs() as u128) + bits(scale.unsigned_abs()) <= 63;
+                    for (row, (ma, na)) in ga.iter().enumerate() {
+                        if row % 64 == 63 {
+                            check(others + t.map.len())?;
+                        }
+                        t.add_row(*ma, *na as i128 * scale, small, gb, spill);
+                    }
+                    continue;
+                }
+                for (row, (ma, na)) in ga.iter().enumerate() {
                     if row % 64 == 63 {
                         check(others + t.map.len())?;
                     }
-                    t.add_row(*ma, *na as i128 * scale, small, &b.terms, spill);
-                }
-                continue;
-            }
-            for (row, (ma, na)) in a.terms.iter().enumerate() {
-                if row % 64 == 63 {
-                    check(others + t.map.len())?;
-                }
-                for (mb, nb) in &b.terms {
-                    let m = ma + mb;
-                    let v = (*na as i128) * (*nb as i128);
-                    let added = v.checked_mul(scale).and_then(|v| {
-                        let e = t.map.slot(m);
-                        *e = e.checked_add(v)?;
-                        Some(())
-                    });
-                    if added.is_none() {
-                        // Exact: v·scale/denom, through rationals.
-                        let c = Q::from_i128(v, 1).mul(&Q::from_i128(scale, t.denom));
-                        spill(key_of(m, &t.beat()), c, t.sines);
+                    for (mb, nb) in gb {
+                        let m = ma + mb;
+                        let v = (*na as i128) * (*nb as i128);
+                        let added = v.checked_mul(scale).and_then(|v| {
+                            let e = t.map.slot(m);
+                            *e = e.checked_add(v)?;
+                            Some(())
+                        });
+                        if added.is_none() {
+                            // Exact: v·scale/denom, through rationals.
+                            let c = Q::from_i128(v, 1).mul(&Q::from_i128(scale, t.denom));
+                            spill(t.key(m), c, t.sines);
+                        }
                     }
                 }
             }
@@ -846,8 +1266,8 @@ impl PackedSum {
     }
 
     /// The common case of [`PackedSum::add_product`], with its set-up cut
-    /// to a few instructions: a product of fewer than 64 rows, without sine
-    /// constants, whose routes all go to existing sums with denominators
+    /// to a few instructions: a product of fewer than 64 rows of parts
+    /// without trigonometric factors in the state, without sine constants, whose routes all go to existing sums with denominators
     /// that are multiples of its own, and whose products of terms fit 127
     /// bits (a sum that would leave i128 takes its product apart, exactly,
     /// as in `add_product`). Returns the routes taken (0 when every term
@@ -862,7 +1282,7 @@ impl PackedSum {
         cut: Cut,
         spill: &mut impl FnMut(Key, Q, bool),
     ) -> Option<usize> {
-        if a.terms.len() >= 64 {
+        if a.terms.len() >= 64 || a.waves || b.waves {
             return None;
         }
         // The routes (see [`routes`]) as (frequency, kind, p) over the
@@ -942,13 +1362,14 @@ impl PackedSum {
         Some(len)
     }
 
-    /// The kept sums as packed parts `(frequency, odd, part)` sorted by
-    /// frequency, cosines first (the order of
-    /// [`super::expr::Expr::into_by_frequency`]), without the sine
+    /// The kept sums as packed parts sorted by frequency, cosines first
+    /// (the order of [`super::expr::Expr::into_by_frequency`]), the sums of
+    /// one time factor as the groups of one part, without the sine
     /// constants; `None` when a numerator or denominator does not fit a
     /// word even after reduction (nothing is consumed then).
     pub fn to_parts(&self) -> Option<Vec<Packed>> {
-        let mut out = Vec::with_capacity(self.targets.len());
+        // (frequency, odd, factor, denominator, terms) of each kept sum.
+        let mut sums = Vec::with_capacity(self.targets.len());
         for t in self.targets.iter().filter(|t| !t.sines) {
             let fits = |n: i128| i64::try_from(n).is_ok();
             let g = if fits(t.denom) && t.map.values().all(fits) {
@@ -968,48 +1389,86 @@ impl PackedSum {
                 }
             }
             if !terms.is_empty() {
-                out.push(Packed::new(t.freq, t.odd, denom, terms));
+                sums.push((t.freq, t.odd, t.wave, denom, terms));
             }
         }
-        out.sort_unstable_by_key(|p| (p.freq, p.odd));
+        sums.sort_unstable_by_key(|s| (s.0, s.1, s.2));
+        let mut out: Vec<Packed> = Vec::with_capacity(sums.len());
+        let mut rest = sums.as_mut_slice();
+        while let Some(first) = rest.first() {
+            let (freq, odd) = (first.0, first.1);
+            let n = rest
+                .iter()
+                .take_while(|s| (s.0, s.1) == (freq, odd))
+                .count();
+            let (same, later) = std::mem::take(&mut rest).split_at_mut(n);
+            rest = later;
+            if let [(_, _, w, denom, terms)] = same {
+                if *w == PWave::ONE {
+                    out.push(Packed::new(freq, odd, *denom, std::mem::take(terms)));
+                    continue;
+                }
+            }
+            // Several factors: the groups of one part, over one denominator.
+            let l = same.iter().try_fold(1i64, |l, s| lcm_i64(l, s.3))?;
+            let mut terms = Vec::with_capacity(same.iter().map(|s| s.4.len()).sum());
+            let mut groups: SmallVec<[(PWave, usize); 1]> = SmallVec::new();
+            for (_, _, w, denom, group) in same.iter() {
+                let f = l / denom;
+                for (m, n) in group {
+                    terms.push((*m, n.checked_mul(f)?));
+                }
+                groups.push((*w, terms.len()));
+            }
+            out.push(Packed::with_groups(freq, odd, l, terms, groups));
+        }
         common_denominator_of_parts(&mut out);
         Some(out)
     }
 
-    /// `self += a` along route `r` (see [`PackedSum::add_terms`]).
+    /// `self += a` along route `r` (see [`PackedSum::add_terms`]), group
+    /// by group.
     pub fn add_packed(
         &mut self,
         a: &Packed,
         r: &Route,
         spill: &mut impl FnMut(Key, Q, bool),
     ) -> bool {
-        self.add_terms(&a.terms, a.denom, r, spill)
+        if (a.denom as i128).checked_mul(r.q as i128).is_none() {
+            return false;
+        }
+        for (w, g) in a.groups() {
+            // Cannot decline: the denominator fits (checked above).
+            self.add_terms(g, a.denom, r, w, spill);
+        }
+        true
     }
 
-    /// `self += (p/q)·Σ n/denom · m` along route `r` (`denom`, `q` > 0).
-    /// False, doing nothing, when the route's sum cannot take the
-    /// denominator in machine integers; sums that overflow are spilled.
+    /// `self += (p/q)·Σ n/denom · m` times the factor `wave`, along route
+    /// `r` (`denom`, `q` > 0). False, doing nothing, when the route's
+    /// denominator does not fit machine integers; sums that overflow are
+    /// spilled.
     pub fn add_terms(
         &mut self,
         terms: &[(u128, i64)],
         denom: i64,
         r: &Route,
+        wave: PWave,
         spill: &mut impl FnMut(Key, Q, bool),
     ) -> bool {
         let Some(d) = (denom as i128).checked_mul(r.q as i128) else {
             return false;
         };
-        let ti = self.target(r, d, spill);
+        let ti = self.target(r, wave, d, spill);
         let t = &mut self.targets[ti];
-        let quotient = if t.last.0 == d {
-            t.last.1
-        } else if let Some(quotient) = exact_quotient(t.denom, d) {
-            quotient
-        } else {
-            return false;
-        };
-        let Some(scale) = (r.p as i128).checked_mul(quotient) else {
-            return false;
+        // The target's denominator is a multiple of `d` (see `target`).
+        let scale = exact_quotient(t.denom, d).and_then(|q| (r.p as i128).checked_mul(q));
+        let Some(scale) = scale else {
+            let f = Q::from_i128(r.p as i128, d);
+            for (m, n) in terms {
+                spill(t.key(*m), Q::int(*n).mul(&f), t.sines);
+            }
+            return true;
         };
         for (m, n) in terms {
             let added = (*n as i128).checked_mul(scale).and_then(|v| {
@@ -1019,7 +1478,7 @@ impl PackedSum {
             });
             if added.is_none() {
                 let c = Q::from_i128(*n as i128, 1).mul(&Q::from_i128(scale, t.denom));
-                spill(key_of(*m, &t.beat()), c, t.sines);
+                spill(t.key(*m), c, t.sines);
             }
         }
         true
@@ -1032,12 +1491,14 @@ impl PackedSum {
     }
 
     /// The nonzero terms as (kept, sine constants), each sorted by key:
-    /// the order of [`Key`] (monomial, then time factor) computed on the
-    /// packed form, which is much cheaper than comparing keys.
+    /// the order of [`Key`] (monomial, then trigonometric factor, then
+    /// time factor) computed on the packed form, which is much cheaper
+    /// than comparing keys.
     pub fn into_sorted(self) -> (Terms, Terms) {
         let mut kept: Vec<Drained> = Vec::new();
         let mut sines: Vec<Drained> = Vec::new();
-        for mut t in self.targets {
+        let mut waves = Vec::with_capacity(self.targets.len());
+        for (i, mut t) in self.targets.into_iter().enumerate() {
             let kind = if t.freq == 0 {
                 0
             } else if t.odd {
@@ -1051,14 +1512,23 @@ impl PackedSum {
                     .take()
                     .into_iter()
                     .filter(|(_, n)| *n != 0)
-                    .map(|(m, n)| (m, kind, t.freq, n, t.denom)),
+                    .map(|(m, n)| (m, t.wave, kind, t.freq, n, t.denom, i)),
             );
+            waves.push(t.wave.unpack());
         }
         let build = |mut v: Vec<Drained>| -> Terms {
-            v.sort_unstable_by(|a, b| cmp_mono(a.0, b.0).then(a.1.cmp(&b.1)).then(a.2.cmp(&b.2)));
+            v.sort_unstable_by(|a, b| {
+                cmp_mono(a.0, b.0)
+                    .then_with(|| cmp_wave(a.1, b.1))
+                    .then(a.2.cmp(&b.2))
+                    .then(a.3.cmp(&b.3))
+            });
             v.into_iter()
-                .map(|(m, kind, freq, n, d)| {
-                    (key_of(m, &beat_of(freq, kind == 2)), Q::from_i128(n, d))
+                .map(|(m, _, kind, freq, n, d, i)| {
+                    (
+                        key_of(m, waves[i].clone(), &beat_of(freq, kind == 2)),
+                        Q::from_i128(n, d),
+                    )
                 })
                 .collect()
         };
@@ -1068,10 +1538,14 @@ impl PackedSum {
     /// Hands every nonzero term to `out` as (key, coefficient, sines).
     pub fn drain(self, out: &mut impl FnMut(Key, Q, bool)) {
         for mut t in self.targets {
-            let beat = t.beat();
+            let (wave, beat) = (t.wave.unpack(), t.beat());
             for (m, n) in t.map.take() {
                 if n != 0 {
-                    out(key_of(m, &beat), Q::from_i128(n, t.denom), t.sines);
+                    out(
+                        key_of(m, wave.clone(), &beat),
+                        Q::from_i128(n, t.denom),
+                        t.sines,
+                    );
                 }
             }
         }
@@ -1147,6 +1621,165 @@ mod tests {
             .sub(&c.mul(&b).expect("cb"));
         assert!(expected.max_coeff_bits() > 127);
         assert_eq!(acc.finish(), expected);
+    }
+
+    /// A linear form from `(symbol, coefficient)` pairs.
+    fn lin(pairs: &[(u32, i64)]) -> Lin {
+        Lin(pairs
+            .iter()
+            .filter(|(_, c)| *c != 0)
+            .map(|(s, c)| (Sym(*s), Q::int(*c)))
+            .collect())
+    }
+
+    #[test]
+    fn packed_order_of_linear_forms_is_the_order_of_lin() {
+        // Every form in slots 2, 3 and 15 with coefficients from -2 to 2,
+        // as cosines and sines.
+        let mut all = Vec::new();
+        for code in 0..125i64 {
+            let c = [code % 5 - 2, code / 5 % 5 - 2, code / 25 - 2];
+            let l = lin(&[(2, c[0]), (3, c[1]), (15, c[2])]);
+            all.push(Wave::Cos(l.clone()));
+            all.push(Wave::Sin(l));
+        }
+        all.push(Wave::One);
+        for a in &all {
+            let pa = PWave::pack(a).expect("fits");
+            assert_eq!(&pa.unpack(), a);
+            for b in &all {
+                let pb = PWave::pack(b).expect("fits");
+                assert_eq!(cmp_wave(pa, pb), a.cmp(b), "{a:?} vs {b:?}");
+            }
+        }
+    }
+
+    #[test]
+    fn linear_forms_pack_only_when_they_fit_signed_bytes() {
+        assert!(PWave::pack(&Wave::Sin(lin(&[(3, 127), (15, -127)]))).is_some());
+        assert!(PWave::pack(&Wave::Sin(lin(&[(3, 128)]))).is_none());
+        assert!(PWave::pack(&Wave::Cos(lin(&[(3, 1), (4, -128)]))).is_none());
+        assert!(PWave::pack(&Wave::Cos(lin(&[(16, 1)]))).is_none());
+        let half = Lin(vec![(Sym(3), Q::Small(1, 2))].into());
+        assert!(PWave::pack(&Wave::Cos(half)).is_none());
+        // Products whose forms could leave the lanes (100 + 100 > 127)
+        // decline; the general path takes them, exactly.
+        let st = [Sym::new("lq")];
+        let e = Expr::cos_of(&Expr::sym(st[0]).scale(&Q::int(100)), &st)
+            .expect("cos")
+            .mul(&Expr::sym(st[0]))
+            .expect("product");
+        let parts = e.clone().into_by_frequency();
+        let packed = parts[0].packed().expect("packed");
+        assert!(!Packed::lanes_fit(packed, packed));
+        let mut acc = Acc::new();
+        acc.add_product_harmonics(&parts, &parts, false, Keep::All)
+            .expect("product");
+        assert_eq!(acc.finish(), e.mul(&e).expect("square"));
+    }
+
+    #[test]
+    fn lanes_add_and_negate_one_by_one() {
+        let mut x = 0x2545_f491_4f6c_dd1du64;
+        let mut next = || {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            x
+        };
+        for _ in 0..2000 {
+            // Coefficients from -63 to 63, some lanes zero.
+            let mut lanes = [[0i8; 16]; 2];
+            for l in lanes.iter_mut() {
+                for c in l.iter_mut() {
+                    let r = next();
+                    *c = if r % 3 == 0 { 0 } else { (r % 127) as i8 - 63 };
+                }
+            }
+            let pack = |l: &[i8; 16]| {
+                l.iter()
+                    .enumerate()
+                    .fold(0u128, |acc, (i, c)| acc | u128::from(*c as u8) << (8 * i))
+            };
+            let (a, b) = (pack(&lanes[0]), pack(&lanes[1]));
+            for negate in [false, true] {
+                let sum = add_lanes(a, b, negate);
+                for i in 0..16 {
+                    let (p, q) = (lanes[0][i], lanes[1][i]);
+                    let want = if negate { p - q } else { p + q };
+                    assert_eq!(lane(sum, 8 * i as u32), want);
+                }
+            }
+            let n = negate_lanes(a);
+            for (i, c) in lanes[0].iter().enumerate() {
+                assert_eq!(lane(n, 8 * i as u32), -c);
+            }
+        }
+    }
+
+    #[test]
+    fn products_of_waves_follow_product_to_sum() {
+        // cos(q + r)·sin(2q − r) = (sin(3q) − sin(−q + 2r))/2
+        //                       = (sin(3q) + sin(q − 2r))/2.
+        let a = PWave::pack(&Wave::Cos(lin(&[(3, 1), (4, 1)]))).expect("a");
+        let b = PWave::pack(&Wave::Sin(lin(&[(3, 2), (4, -1)]))).expect("b");
+        let got: Vec<(Wave, i64)> = wave_routes(a, b)
+            .as_slice()
+            .iter()
+            .map(|(w, p)| (w.unpack(), *p))
+            .collect();
+        assert_eq!(
+            got,
+            vec![
+                (Wave::Sin(lin(&[(3, 3)])), 1),
+                (Wave::Sin(lin(&[(3, 1), (4, -2)])), 1),
+            ]
+        );
+        // sin(q)·sin(q) = (1 − cos(2q))/2; sin(q)·cos(q) = sin(2q)/2.
+        let s = PWave::pack(&Wave::Sin(lin(&[(3, 1)]))).expect("s");
+        let c = PWave::pack(&Wave::Cos(lin(&[(3, 1)]))).expect("c");
+        let ss: Vec<(PWave, i64)> = wave_routes(s, s).as_slice().to_vec();
+        assert_eq!(ss[0], (PWave::ONE, 1));
+        assert_eq!(ss[1].1, -1);
+        assert_eq!(ss[1].0.unpack(), Wave::Cos(lin(&[(3, 2)])));
+        let sc: Vec<(PWave, i64)> = wave_routes(s, c).as_slice().to_vec();
+        assert_eq!(sc.len(), 1);
+        assert_eq!((sc[0].0.unpack(), sc[0].1), (Wave::Sin(lin(&[(3, 2)])), 1));
+    }
+
+    #[test]
+    fn derivatives_of_trigonometric_parts_agree_with_the_normal_form() {
+        let st = [Sym::new("wq"), Sym::new("wp")];
+        let (q, p) = (Expr::sym(st[0]), Expr::sym(st[1]));
+        let arg = q.scale(&Q::int(2)).sub(&p);
+        let cos_t = Expr::cos_of(&Expr::sym(Sym::T), &st).expect("cos t");
+        let e = Expr::sin_of(&arg, &st)
+            .expect("sin")
+            .mul(&p.mul(&p).expect("p^2"))
+            .expect("product")
+            .add(&Expr::cos_of(&q, &st).expect("cos").scale(&Q::Small(3, 7)))
+            .add(&q.mul(&p).expect("qp").mul(&cos_t).expect("qp cos t"))
+            .add(
+                &Expr::cos_of(&arg, &st)
+                    .expect("cos")
+                    .mul(&q)
+                    .expect("q cos")
+                    .mul(&cos_t)
+                    .expect("with cos t"),
+            );
+        let parts = e.clone().into_by_frequency();
+        assert!(parts.iter().all(|p| p.is_packed()));
+        for s in [st[0], st[1], Sym::new("wz")] {
+            let want = e.pd(s);
+            let mut got = Expr::zero();
+            for part in &parts {
+                if let Some(d) = part.derivative(s) {
+                    assert!(d.is_packed());
+                    got = got.add(d.expr());
+                }
+            }
+            assert_eq!(got, want, "d/d{}", s.name());
+        }
     }
 
     #[test]
