@@ -44,18 +44,29 @@ const MAX_LANE: i16 = 127;
 /// A packed state-trigonometric factor (see [`Wave`]): none, `cos L` or
 /// `sin L`, with `L`'s integer coefficients in signed byte lanes (symbol
 /// `s` in byte `s`) and its first nonzero lane positive (the normal form's
-/// canonical sign).
+/// canonical sign). One word: lane 0 (time, never in a state form) holds
+/// the kind, 0 for none, 1 for `cos`, 2 for `sin` (the order of [`Wave`]'s
+/// variants).
 #[derive(Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Debug, Default)]
-pub struct PWave {
-    /// 0: none, 1: `cos`, 2: `sin` (the order of [`Wave`]'s variants).
-    kind: u8,
-    /// The linear form (0 for none).
-    lanes: u128,
-}
+pub struct PWave(u128);
 
 impl PWave {
     /// No trigonometric factor.
-    pub const ONE: PWave = PWave { kind: 0, lanes: 0 };
+    pub const ONE: PWave = PWave(0);
+
+    fn new(kind: u8, lanes: u128) -> PWave {
+        PWave(lanes & !0xff | u128::from(kind))
+    }
+
+    /// 0: none, 1: `cos`, 2: `sin`.
+    fn kind(self) -> u8 {
+        self.0 as u8
+    }
+
+    /// The linear form (lane 0 empty).
+    fn lanes(self) -> u128 {
+        self.0 & !0xff
+    }
 
     /// The packed copy of `w`, `None` when it does not fit.
     pub fn pack(w: &Wave) -> Option<PWave> {
@@ -69,21 +80,22 @@ impl PWave {
             let Q::Small(n, 1) = c else {
                 return None;
             };
-            if s.0 >= SLOTS || n.unsigned_abs() > MAX_LANE as u64 {
+            // Lane 0 (time, never in a state form) holds the kind.
+            if s.0 == 0 || s.0 >= SLOTS || n.unsigned_abs() > MAX_LANE as u64 {
                 return None;
             }
             lanes |= u128::from(*n as i8 as u8) << (8 * s.0);
         }
-        Some(PWave { kind, lanes })
+        Some(PWave::new(kind, lanes))
     }
 
     /// The factor in normal form.
     pub fn unpack(self) -> Wave {
-        if self.kind == 0 {
+        if self.kind() == 0 {
             return Wave::One;
         }
         let mut pairs = Vec::new();
-        let (mut rest, mut s) = (self.lanes, 0u32);
+        let (mut rest, mut s) = (self.lanes(), 0u32);
         while rest != 0 {
             let c = lane(rest, 0);
             if c != 0 {
@@ -93,11 +105,21 @@ impl PWave {
             s += 1;
         }
         let l = Lin(Arc::from(pairs));
-        if self.kind == 1 {
+        if self.kind() == 1 {
             Wave::Cos(l)
         } else {
             Wave::Sin(l)
         }
+    }
+
+    /// The factor as one word.
+    fn code(self) -> u128 {
+        self.0
+    }
+
+    /// The factor of [`PWave::code`].
+    fn from_code(code: u128) -> PWave {
+        PWave(code)
     }
 
     /// The coefficient of `s` in the linear form.
@@ -105,13 +127,13 @@ impl PWave {
         if s.0 >= SLOTS {
             0
         } else {
-            i64::from(lane(self.lanes, 8 * s.0))
+            i64::from(lane(self.lanes(), 8 * s.0))
         }
     }
 
     /// True for a trigonometric factor (not 1).
     fn is_wave(self) -> bool {
-        self.kind != 0
+        self.kind() != 0
     }
 }
 
@@ -122,7 +144,12 @@ fn lane(lanes: u128, shift: u32) -> i8 {
 
 /// The largest coefficient of a packed linear form in absolute value.
 fn max_lane(lanes: u128) -> u8 {
-    (0..16).map(|i| lane(lanes, 8 * i).unsigned_abs()).max().unwrap_or(0)
+    lanes
+        .to_le_bytes()
+        .iter()
+        .map(|b| (*b as i8).unsigned_abs())
+        .max()
+        .unwrap_or(0)
 }
 
 /// The low seven bits of every lane.
@@ -175,8 +202,8 @@ fn wave_routes(a: PWave, b: PWave) -> WaveRoutes {
         out.push(a, 2);
         return out;
     }
-    let diff = add_lanes(a.lanes, b.lanes, true);
-    let sum = add_lanes(a.lanes, b.lanes, false);
+    let diff = add_lanes(a.lanes(), b.lanes(), true);
+    let sum = add_lanes(a.lanes(), b.lanes(), false);
     let mut push = |kind: u8, lanes: u128, p: i64| {
         let (lanes, negated) = canonical_lanes(lanes);
         if lanes == 0 {
@@ -186,9 +213,9 @@ fn wave_routes(a: PWave, b: PWave) -> WaveRoutes {
             return;
         }
         let p = if negated && kind == 2 { -p } else { p };
-        out.push(PWave { kind, lanes }, p);
+        out.push(PWave::new(kind, lanes), p);
     };
-    match (a.kind, b.kind) {
+    match (a.kind(), b.kind()) {
         (1, 1) => {
             push(1, diff, 1);
             push(1, sum, 1);
@@ -259,9 +286,9 @@ fn cmp_lanes(a: u128, b: u128) -> Ordering {
 /// The order of [`Wave`] on packed factors: none, then `cos`, then `sin`,
 /// each by linear form.
 fn cmp_wave(a: PWave, b: PWave) -> Ordering {
-    a.kind
-        .cmp(&b.kind)
-        .then_with(|| cmp_lanes(a.lanes, b.lanes))
+    a.kind()
+        .cmp(&b.kind())
+        .then_with(|| cmp_lanes(a.lanes(), b.lanes()))
 }
 
 /// A packed term with its trigonometric factor (before grouping).
@@ -318,7 +345,15 @@ impl Packed {
             .max()
             .unwrap_or(0);
         let waves = groups.iter().any(|(w, _)| w.is_wave());
-        let max_lane = groups.iter().map(|(w, _)| max_lane(w.lanes)).max().unwrap_or(0);
+        let max_lane = if waves {
+            groups
+                .iter()
+                .map(|(w, _)| max_lane(w.lanes()))
+                .max()
+                .unwrap_or(0)
+        } else {
+            0
+        };
         Packed {
             freq,
             odd,
@@ -360,7 +395,8 @@ impl Packed {
             v = merged;
         }
         let mut terms: Vec<(u128, i64)> = Vec::with_capacity(v.len());
-        let mut groups: SmallVec<[(PWave, usize); 1]> = SmallVec::new();
+        let n_groups = 1 + v.windows(2).filter(|p| p[0].0 != p[1].0).count();
+        let mut groups: SmallVec<[(PWave, usize); 1]> = SmallVec::with_capacity(n_groups);
         for (w, m, n) in v {
             if groups.last().map(|g| g.0) != Some(w) {
                 groups.push((w, 0));
@@ -457,8 +493,8 @@ impl Packed {
                     v.push((w, m - (1u128 << shift), n.checked_mul(e)?));
                 }
                 if c != 0 {
-                    let (kind, f) = if w.kind == 1 { (2, -c) } else { (1, c) };
-                    v.push((PWave { kind, ..w }, *m, n.checked_mul(f)?));
+                    let (kind, f) = if w.kind() == 1 { (2, -c) } else { (1, c) };
+                    v.push((PWave::new(kind, w.lanes()), *m, n.checked_mul(f)?));
                 }
             }
         }
@@ -865,21 +901,55 @@ fn common_denominator_of_parts(parts: &mut [Packed]) {
     }
 }
 
-/// No packed monomial: every lane holds an exponent of at most 127.
-const VACANT: u128 = u128::MAX;
+/// A key of a [`KeyMap`]: a packed monomial, or a packed monomial with a
+/// packed trigonometric factor ([`PWave::code`]).
+trait SlotKey: Copy + Eq + std::fmt::Debug {
+    /// No key: a monomial has exponents of at most 127 in every lane.
+    const VACANT: Self;
+    /// The key folded to one word before mixing.
+    fn fold(self) -> u128;
+}
+
+impl SlotKey for u128 {
+    const VACANT: u128 = u128::MAX;
+    fn fold(self) -> u128 {
+        self
+    }
+}
+
+impl SlotKey for (u128, u128) {
+    const VACANT: (u128, u128) = (u128::MAX, 0);
+    fn fold(self) -> u128 {
+        self.0 ^ self.1.rotate_left(40)
+    }
+}
 
 /// Numerators by packed monomial: an open-addressing table with linear
 /// probing, made for this loop (one multiply to hash a key, one compare of
 /// two words to find it; the general hash map costs several times that per
 /// product of terms). Entries are never removed; sums that cancel stay as
 /// zeros until the terms are taken out.
-#[derive(Debug, Default)]
-struct MonoMap {
-    slots: Vec<(u128, i128)>,
+#[derive(Debug)]
+struct KeyMap<K> {
+    slots: Vec<(K, i128)>,
     len: usize,
 }
 
-impl MonoMap {
+/// Numerators by monomial (terms without trigonometric factor).
+type MonoMap = KeyMap<u128>;
+/// Numerators by monomial and trigonometric factor.
+type WaveMap = KeyMap<(u128, u128)>;
+
+impl<K> Default for KeyMap<K> {
+    fn default() -> Self {
+        KeyMap {
+            slots: Vec::new(),
+            len: 0,
+        }
+    }
+}
+
+impl<K: SlotKey> KeyMap<K> {
     fn len(&self) -> usize {
         self.len
     }
@@ -889,7 +959,8 @@ impl MonoMap {
     /// bits: the bits of a bare product see only the key's lower bits, and
     /// the lanes of higher-numbered symbols would then collide (measured:
     /// 25% slower averaging once two other names were declared first).
-    fn index(m: u128, mask: usize) -> usize {
+    fn index(m: K, mask: usize) -> usize {
+        let m = m.fold();
         let mut x = (m as u64) ^ ((m >> 64) as u64).rotate_left(32);
         x ^= x >> 29;
         x = x.wrapping_mul(0xBF58_476D_1CE4_E5B9);
@@ -898,7 +969,7 @@ impl MonoMap {
     }
 
     /// The numerator of `m`, inserted as 0 when absent.
-    fn slot(&mut self, m: u128) -> &mut i128 {
+    fn slot(&mut self, m: K) -> &mut i128 {
         if (self.len + 1) * 2 > self.slots.len() {
             self.grow();
         }
@@ -909,7 +980,7 @@ impl MonoMap {
             if k == m {
                 break;
             }
-            if k == VACANT {
+            if k == K::VACANT {
                 self.slots[i].0 = m;
                 self.len += 1;
                 break;
@@ -921,19 +992,19 @@ impl MonoMap {
 
     fn grow(&mut self) {
         let size = (self.slots.len() * 2).max(16);
-        let old = std::mem::replace(&mut self.slots, vec![(VACANT, 0); size]);
+        let old = std::mem::replace(&mut self.slots, vec![(K::VACANT, 0); size]);
         let mask = size - 1;
-        for (m, n) in old.into_iter().filter(|(m, _)| *m != VACANT) {
+        for (m, n) in old.into_iter().filter(|(m, _)| *m != K::VACANT) {
             let mut i = Self::index(m, mask);
-            while self.slots[i].0 != VACANT {
+            while self.slots[i].0 != K::VACANT {
                 i = (i + 1) & mask;
             }
             self.slots[i] = (m, n);
         }
     }
 
-    fn iter(&self) -> impl Iterator<Item = (u128, i128)> + '_ {
-        self.slots.iter().copied().filter(|(m, _)| *m != VACANT)
+    fn iter(&self) -> impl Iterator<Item = (K, i128)> + '_ {
+        self.slots.iter().copied().filter(|(m, _)| *m != K::VACANT)
     }
 
     fn values(&self) -> impl Iterator<Item = i128> + '_ {
@@ -943,7 +1014,7 @@ impl MonoMap {
     fn values_mut(&mut self) -> impl Iterator<Item = &mut i128> + '_ {
         self.slots
             .iter_mut()
-            .filter(|(m, _)| *m != VACANT)
+            .filter(|(m, _)| *m != K::VACANT)
             .map(|(_, n)| n)
     }
 
@@ -956,33 +1027,34 @@ impl MonoMap {
             .slots
             .iter()
             .enumerate()
-            .filter(|(_, (m, _))| *m != VACANT)
+            .filter(|(_, (m, _))| *m != K::VACANT)
             .map(|(i, (m, _))| (i.wrapping_sub(Self::index(*m, mask)) & mask) + 1)
             .sum();
         total as f64 / self.len.max(1) as f64
     }
 
     /// Empties the table, handing back its entries.
-    fn take(&mut self) -> Vec<(u128, i128)> {
+    fn take(&mut self) -> Vec<(K, i128)> {
         self.len = 0;
         let mut out = std::mem::take(&mut self.slots);
-        out.retain(|(m, _)| *m != VACANT);
+        out.retain(|(m, _)| *m != K::VACANT);
         out
     }
 }
 
-/// One sum of packed terms with a common time and trigonometric factor:
-/// numerators over `denom`.
+/// One sum of packed terms with a common time factor: numerators over
+/// `denom`, by monomial (terms without trigonometric factor) and by
+/// monomial and trigonometric factor.
 #[derive(Debug)]
 struct Target {
     freq: i64,
     odd: bool,
     sines: bool,
-    wave: PWave,
     denom: i128,
     /// The last `d` that divided `denom`, with `denom / d`.
     last: (i128, i128),
     map: MonoMap,
+    waves: WaveMap,
 }
 
 impl Target {
@@ -990,16 +1062,50 @@ impl Target {
         beat_of(self.freq, self.odd)
     }
 
-    /// The key of monomial `m` in this sum.
-    fn key(&self, m: u128) -> Key {
-        key_of(m, self.wave.unpack(), &self.beat())
+    /// The key of monomial `m` with factor `wave` in this sum.
+    fn key(&self, m: u128, wave: PWave) -> Key {
+        key_of(m, wave.unpack(), &self.beat())
+    }
+
+    /// Number of terms held.
+    fn held(&self) -> usize {
+        self.map.len() + self.waves.len()
+    }
+
+    /// Every numerator.
+    fn values(&self) -> impl Iterator<Item = i128> + '_ {
+        self.map.values().chain(self.waves.values())
+    }
+
+    /// `self += m_a·row_n · b` times the factor `wave` (see
+    /// [`Target::add_row`]).
+    fn add_wave_row(
+        &mut self,
+        ma: u128,
+        wave: PWave,
+        row_n: i128,
+        b: &[(u128, i64)],
+        spill: &mut impl FnMut(Key, Q, bool),
+    ) {
+        let code = wave.code();
+        for (mb, nb) in b {
+            let v = row_n * (*nb as i128);
+            let e = self.waves.slot((ma + mb, code));
+            match e.checked_add(v) {
+                Some(s) => *e = s,
+                None => {
+                    let c = Q::from_i128(v, self.denom);
+                    spill(self.key(ma + mb, wave), c, self.sines);
+                }
+            }
+        }
     }
 
     /// `self += m_a·row_n · b`: one row of a product, `row_n` the row's
     /// numerator times the route's scale (a word when `small`, so that each
     /// product is one widening multiply). Every product must fit 127 bits;
     /// a sum that would leave i128 takes the product apart, exactly.
-    #[inline]
+    #[inline(always)]
     fn add_row(
         &mut self,
         ma: u128,
@@ -1014,7 +1120,7 @@ impl Target {
                 Some(s) => *e = s,
                 None => {
                     let c = Q::from_i128(v, self.denom);
-                    spill(self.key(ma + mb), c, self.sines);
+                    spill(self.key(ma + mb, PWave::ONE), c, self.sines);
                 }
             }
         };
@@ -1029,56 +1135,138 @@ impl Target {
             }
         }
     }
+
+    /// `self += scale · a·b` times the factor `wave`, every product and
+    /// sum checked (for products that may not fit 127 bits); what does not
+    /// fit is spilled exactly.
+    fn add_checked(
+        &mut self,
+        a: &[(u128, i64)],
+        b: &[(u128, i64)],
+        wave: PWave,
+        scale: i128,
+        spill: &mut impl FnMut(Key, Q, bool),
+    ) {
+        for (ma, na) in a {
+            for (mb, nb) in b {
+                let m = ma + mb;
+                let v = (*na as i128) * (*nb as i128);
+                let added = v
+                    .checked_mul(scale)
+                    .is_some_and(|v| self.try_add(m, wave, v));
+                if !added {
+                    // Exact: v·scale/denom, through rationals.
+                    let c = Q::from_i128(v, 1).mul(&Q::from_i128(scale, self.denom));
+                    spill(self.key(m, wave), c, self.sines);
+                }
+            }
+        }
+    }
+
+    /// `self += v · m` times the factor `wave`, unless the sum overflows
+    /// (then nothing is added and the result is false).
+    fn try_add(&mut self, m: u128, wave: PWave, v: i128) -> bool {
+        let e = if wave == PWave::ONE {
+            self.map.slot(m)
+        } else {
+            self.waves.slot((m, wave.code()))
+        };
+        match e.checked_add(v) {
+            Some(s) => {
+                *e = s;
+                true
+            }
+            None => false,
+        }
+    }
+
+    /// Multiplies every numerator by `f` (which must not overflow).
+    fn rescale(&mut self, f: i128) {
+        for n in self.map.values_mut() {
+            *n *= f;
+        }
+        for n in self.waves.values_mut() {
+            *n *= f;
+        }
+    }
+
+    /// Empties the sum, handing every term to `spill`.
+    fn spill_all(&mut self, spill: &mut impl FnMut(Key, Q, bool)) {
+        for (m, n) in self.map.take() {
+            spill(
+                self.key(m, PWave::ONE),
+                Q::from_i128(n, self.denom),
+                self.sines,
+            );
+        }
+        for ((m, w), n) in self.waves.take() {
+            let c = Q::from_i128(n, self.denom);
+            spill(self.key(m, PWave::from_code(w)), c, self.sines);
+        }
+    }
+
+    /// The nonzero terms: monomial, factor, numerator.
+    fn take_terms(&mut self) -> impl Iterator<Item = (u128, PWave, i128)> {
+        let plain = self.map.take().into_iter().map(|(m, n)| (m, PWave::ONE, n));
+        let waves = self
+            .waves
+            .take()
+            .into_iter()
+            .map(|((m, w), n)| (m, PWave::from_code(w), n));
+        plain.chain(waves).filter(|t| t.2 != 0)
+    }
 }
 
 /// Terms of an expression: keys and coefficients.
 pub type Terms = Vec<(Key, Q)>;
 
 /// A drained term: monomial, trigonometric factor, time factor kind (0:
-/// 1, 1: cos, 2: sin), frequency, numerator, denominator, and the index of
-/// its sum (which holds the factor in normal form).
-type Drained = (u128, PWave, u8, i64, i128, i128, usize);
+/// 1, 1: cos, 2: sin), frequency, numerator, denominator.
+type Drained = (u128, PWave, u8, i64, i128, i128);
 
-/// A sum of products of packed parts, by time and trigonometric factor of
-/// the result.
+/// The trigonometric factors of packed terms in normal form, each made
+/// once.
+#[derive(Default)]
+struct WaveCache(FxHashMap<PWave, Wave>);
+
+impl WaveCache {
+    fn get(&mut self, w: PWave) -> Wave {
+        if w == PWave::ONE {
+            return Wave::One;
+        }
+        self.0.entry(w).or_insert_with(|| w.unpack()).clone()
+    }
+}
+
+/// A sum of products of packed parts, by time factor of the result.
 #[derive(Debug, Default)]
 pub struct PackedSum {
     targets: Vec<Target>,
-    /// Target without trigonometric factor by (frequency, kind) for small
-    /// frequencies: kind 0 for `cos`/1, 1 for `sin`, 2 for sine constants;
-    /// `usize::MAX` for none.
+    /// Target by (frequency, kind) for small frequencies: kind 0 for
+    /// `cos`/1, 1 for `sin`, 2 for sine constants; `usize::MAX` for none.
     small: Vec<[usize; 3]>,
-    /// Target by (frequency, kind, trigonometric factor) for the others.
-    index: FxHashMap<(i64, u8, PWave), usize>,
+    /// Target by (frequency, kind) for the others.
+    index: FxHashMap<(i64, u8), usize>,
 }
 
 impl PackedSum {
     /// Number of terms held (before cancellation).
     pub fn held(&self) -> usize {
-        self.targets.iter().map(|t| t.map.len()).sum()
+        self.targets.iter().map(Target::held).sum()
     }
 
     /// The target of `r` whose denominator is a multiple of `d`, created
     /// or rescaled as needed; what cannot be rescaled in machine integers
     /// is spilled as exact terms.
-    fn target(
-        &mut self,
-        r: &Route,
-        wave: PWave,
-        d: i128,
-        spill: &mut impl FnMut(Key, Q, bool),
-    ) -> usize {
+    fn target(&mut self, r: &Route, d: i128, spill: &mut impl FnMut(Key, Q, bool)) -> usize {
         let kind = if r.sines { 2 } else { r.odd as u8 };
-        let small = usize::try_from(r.freq)
-            .ok()
-            .filter(|f| *f < SMALL_FREQ && wave == PWave::ONE);
-        let found = match small {
-            Some(f) => self
+        let found = match usize::try_from(r.freq) {
+            Ok(f) if f < SMALL_FREQ => self
                 .small
                 .get(f)
                 .map(|k| k[kind as usize])
                 .filter(|i| *i != usize::MAX),
-            None => self.index.get(&(r.freq, kind, wave)).copied(),
+            _ => self.index.get(&(r.freq, kind)).copied(),
         };
         let i = match found {
             Some(i) => i,
@@ -1087,21 +1275,21 @@ impl PackedSum {
                     freq: r.freq,
                     odd: r.odd,
                     sines: r.sines,
-                    wave,
                     denom: d,
                     last: (d, 1),
                     map: MonoMap::default(),
+                    waves: WaveMap::default(),
                 });
                 let i = self.targets.len() - 1;
-                match small {
-                    Some(f) => {
+                match usize::try_from(r.freq) {
+                    Ok(f) if f < SMALL_FREQ => {
                         if self.small.len() <= f {
                             self.small.resize(f + 1, [usize::MAX; 3]);
                         }
                         self.small[f][kind as usize] = i;
                     }
-                    None => {
-                        self.index.insert((r.freq, kind, wave), i);
+                    _ => {
+                        self.index.insert((r.freq, kind), i);
                     }
                 }
                 return i;
@@ -1116,7 +1304,7 @@ impl PackedSum {
             return i;
         }
         // Rescale in place when every numerator times the factor fits.
-        let max = t.map.values().map(|n| n.unsigned_abs()).max().unwrap_or(0);
+        let max = t.values().map(|n| n.unsigned_abs()).max().unwrap_or(0);
         let factor = lcm_i128(t.denom, d)
             .map(|l| (l, l / t.denom))
             .filter(|(_, f)| {
@@ -1125,16 +1313,12 @@ impl PackedSum {
             });
         match factor {
             Some((l, f)) => {
-                for n in t.map.values_mut() {
-                    *n *= f;
-                }
+                t.rescale(f);
                 t.denom = l;
                 t.last = (d, l / d);
             }
             None => {
-                for (m, n) in t.map.take() {
-                    spill(t.key(m), Q::from_i128(n, t.denom), t.sines);
-                }
+                t.spill_all(spill);
                 t.denom = d;
                 t.last = (d, 1);
             }
@@ -1142,14 +1326,14 @@ impl PackedSum {
         i
     }
 
-    /// `self += ±a·b` along `routes` (see [`routes`]), group by group
-    /// (see [`wave_routes`]). Returns false, doing nothing, when a
-    /// denominator or a trigonometric factor does not fit machine integers:
-    /// the caller then multiplies the general way. Products that overflow
-    /// are spilled exactly. Every 64 rows (terms of a group of `a`),
-    /// `check` is given the number of terms held and may stop the product
-    /// with an error (budgets, interruption: the caller's business); the
-    /// sum is then incomplete and must be dropped.
+    /// `self += ±a·b` along `routes` (see [`routes`]); with trigonometric
+    /// factors, pair of groups by pair of groups (see [`wave_routes`]).
+    /// Returns false, doing nothing that changes the sum, when a factor
+    /// does not fit machine integers: the caller then multiplies the
+    /// general way. Products that overflow are spilled exactly. Every 64
+    /// rows, `check` is given the number of terms held and may stop the
+    /// product with an error (budgets, interruption: the caller's
+    /// business); the sum is then incomplete and must be dropped.
     pub fn add_product<E>(
         &mut self,
         a: &Packed,
@@ -1159,104 +1343,113 @@ impl PackedSum {
         spill: &mut impl FnMut(Key, Q, bool),
         check: &mut impl FnMut(usize) -> Result<(), E>,
     ) -> Result<bool, E> {
-        // One denominator per route for every pair of groups: the parts'
-        // denominators, the route's (halves for the time factors) and
-        // halves again for the trigonometric factors when there are any.
-        let q_wave: i128 = if a.waves || b.waves { 2 } else { 1 };
-        let mut ds = [0i128; 2];
-        for (d, r) in ds.iter_mut().zip(routes) {
-            let Some(x) = (a.denom as i128)
+        // With trigonometric factors, their products (halves) join the
+        // routes' denominators, and their linear forms must fit the lanes.
+        let waves = a.waves || b.waves;
+        if waves && !Packed::lanes_fit(a, b) {
+            return Ok(false);
+        }
+        let q_wave: i128 = if waves { 2 } else { 1 };
+        // The targets of every route first (a later one may rescale an
+        // earlier one), then the scales.
+        let mut plan = [(0usize, 0i128, 0i128); 2];
+        for (slot, r) in plan.iter_mut().zip(routes) {
+            let Some(d) = (a.denom as i128)
                 .checked_mul(b.denom as i128)
                 .and_then(|d| d.checked_mul(q_wave))
                 .and_then(|d| d.checked_mul(r.q as i128))
             else {
                 return Ok(false);
             };
-            *d = x;
+            *slot = (self.target(r, d, spill), r.p as i128, d);
         }
-        if !Packed::lanes_fit(a, b) {
-            return Ok(false);
+        let mut scales = [(0usize, 0i128); 2];
+        for (slot, &(ti, p, d)) in scales.iter_mut().zip(&plan[..routes.len()]) {
+            let t = &self.targets[ti];
+            let quotient = if t.last.0 == d {
+                t.last.1
+            } else if let Some(quotient) = exact_quotient(t.denom, d) {
+                // A later route rescaled this target.
+                quotient
+            } else {
+                // A later route spilled and restarted this target.
+                return Ok(false);
+            };
+            let Some(scale) = p.checked_mul(quotient) else {
+                return Ok(false);
+            };
+            let Some(scale) = (if negate {
+                scale.checked_neg()
+            } else {
+                Some(scale)
+            }) else {
+                return Ok(false);
+            };
+            *slot = (ti, scale);
         }
+        // When no product of numerators times the scale can overflow, the
+        // loop multiplies unchecked (only the sums are checked).
         let bits = |n: u128| 128 - n.leading_zeros();
         let product_bits = bits(a.max_abs() as u128) + bits(b.max_abs() as u128);
-        for ((wa, ga), (wb, gb)) in a
-            .groups()
-            .flat_map(|ga| b.groups().map(move |gb| (ga, gb)))
-        {
-            let waves = if q_wave == 1 {
-                let mut one = WaveRoutes::default();
-                one.push(PWave::ONE, 1);
-                one
-            } else {
-                wave_routes(wa, wb)
-            };
-            // The targets of every route first (a later one may rescale an
-            // earlier one), then the scales.
-            let mut plan = [(0usize, 0i128, 0i128); 4];
-            let mut len = 0;
-            for &(w, pw) in waves.as_slice() {
-                for (r, &d) in routes.iter().zip(&ds) {
-                    plan[len] = (self.target(r, w, d, spill), pw as i128 * r.p as i128, d);
-                    len += 1;
+        let n = routes.len();
+        // Rows are checked only in products of 64 rows or more.
+        let mut others = [0usize; 2];
+        if a.terms.len() >= 64 {
+            for (o, &(ti, _)) in others.iter_mut().zip(&scales[..n]) {
+                *o = self.held() - self.targets[ti].held();
+            }
+        }
+        let mut rows = 0usize;
+        if !waves {
+            for (k, &(ti, scale)) in scales[..n].iter().enumerate() {
+                let t = &mut self.targets[ti];
+                if product_bits + bits(scale.unsigned_abs()) > 126 {
+                    t.add_checked(&a.terms, &b.terms, PWave::ONE, scale, spill);
+                    continue;
+                }
+                let small = bits(a.max_abs() as u128) + bits(scale.unsigned_abs()) <= 63;
+                for (row, (ma, na)) in a.terms.iter().enumerate() {
+                    if row % 64 == 63 {
+                        check(others[k] + t.held())?;
+                    }
+                    t.add_row(*ma, *na as i128 * scale, small, &b.terms, spill);
                 }
             }
-            for &(ti, p, d) in &plan[..len] {
-                let t = &self.targets[ti];
-                let quotient = if t.last.0 == d {
-                    Some(t.last.1)
-                } else {
-                    // A later route rescaled this target (or spilled and
-                    // restarted it: then `d` may no longer divide).
-                    exact_quotient(t.denom, d)
-                };
-                let p = if negate { -p } else { p };
-                let Some(scale) = quotient.and_then(|q| p.checked_mul(q)) else {
-                    // Exact, term by term: each product times p/d.
-                    let f = Q::from_i128(p, d);
-                    for (ma, na) in ga {
-                        for (mb, nb) in gb {
-                            let c = Q::from_i128(*na as i128 * *nb as i128, 1).mul(&f);
-                            spill(t.key(ma + mb), c, t.sines);
+            return Ok(true);
+        }
+        for (wa, ga) in a.groups() {
+            for (wb, gb) in b.groups() {
+                let factors = wave_routes(wa, wb);
+                for (k, &(ti, scale)) in scales[..n].iter().enumerate() {
+                    let t = &mut self.targets[ti];
+                    for &(w, pw) in factors.as_slice() {
+                        // The factor's p (its halves are in the denominator).
+                        let Some(scale) = scale.checked_mul(pw as i128) else {
+                            // Exact, term by term, through rationals.
+                            let f = Q::from_i128(scale, t.denom).mul(&Q::int(pw));
+                            for (ma, na) in ga {
+                                for (mb, nb) in gb {
+                                    let v = Q::from_i128(*na as i128 * *nb as i128, 1);
+                                    spill(t.key(ma + mb, w), v.mul(&f), t.sines);
+                                }
+                            }
+                            continue;
+                        };
+                        if product_bits + bits(scale.unsigned_abs()) > 126 {
+                            t.add_checked(ga, gb, w, scale, spill);
+                            continue;
                         }
-                    }
-                    continue;
-                };
-                // Rows are checked only in products of 64 rows or more.
-                let others = if ga.len() >= 64 {
-                    self.held() - self.targets[ti].map.len()
-                } else {
-                    0
-                };
-                let t = &mut self.targets[ti];
-                // When no product of numerators times the scale can
-                // overflow, the loop multiplies unchecked (only the sums
-                // are checked).
-                if product_bits + bits(scale.unsigned_abs()) <= 126 {
-                    let small = bits(a.max_abs() as u128) + bits(scale.unsigned_abs()) <= 63;
-                    for (row, (ma, na)) in ga.iter().enumerate() {
-                        if row % 64 == 63 {
-                            check(others + t.map.len())?;
-                        }
-                        t.add_row(*ma, *na as i128 * scale, small, gb, spill);
-                    }
-                    continue;
-                }
-                for (row, (ma, na)) in ga.iter().enumerate() {
-                    if row % 64 == 63 {
-                        check(others + t.map.len())?;
-                    }
-                    for (mb, nb) in gb {
-                        let m = ma + mb;
-                        let v = (*na as i128) * (*nb as i128);
-                        let added = v.checked_mul(scale).and_then(|v| {
-                            let e = t.map.slot(m);
-                            *e = e.checked_add(v)?;
-                            Some(())
-                        });
-                        if added.is_none() {
-                            // Exact: v·scale/denom, through rationals.
-                            let c = Q::from_i128(v, 1).mul(&Q::from_i128(scale, t.denom));
-                            spill(t.key(m), c, t.sines);
+                        let small = bits(a.max_abs() as u128) + bits(scale.unsigned_abs()) <= 63;
+                        for (ma, na) in ga {
+                            rows += 1;
+                            if rows % 64 == 0 {
+                                check(others[k] + t.held())?;
+                            }
+                            if w == PWave::ONE {
+                                t.add_row(*ma, *na as i128 * scale, small, gb, spill);
+                            } else {
+                                t.add_wave_row(*ma, w, *na as i128 * scale, gb, spill);
+                            }
                         }
                     }
                 }
@@ -1267,7 +1460,8 @@ impl PackedSum {
 
     /// The common case of [`PackedSum::add_product`], with its set-up cut
     /// to a few instructions: a product of fewer than 64 rows of parts
-    /// without trigonometric factors in the state, without sine constants, whose routes all go to existing sums with denominators
+    /// without trigonometric factors in the state, without sine constants,
+    /// whose routes all go to existing sums with denominators
     /// that are multiples of its own, and whose products of terms fit 127
     /// bits (a sum that would leave i128 takes its product apart, exactly,
     /// as in `add_product`). Returns the routes taken (0 when every term
@@ -1363,65 +1557,50 @@ impl PackedSum {
     }
 
     /// The kept sums as packed parts sorted by frequency, cosines first
-    /// (the order of [`super::expr::Expr::into_by_frequency`]), the sums of
-    /// one time factor as the groups of one part, without the sine
-    /// constants; `None` when a numerator or denominator does not fit a
-    /// word even after reduction (nothing is consumed then).
+    /// (the order of [`super::expr::Expr::into_by_frequency`]), without
+    /// the sine constants; `None` when a numerator or denominator does not
+    /// fit a word even after reduction (nothing is consumed then).
     pub fn to_parts(&self) -> Option<Vec<Packed>> {
-        // (frequency, odd, factor, denominator, terms) of each kept sum.
-        let mut sums = Vec::with_capacity(self.targets.len());
+        let mut out = Vec::with_capacity(self.targets.len());
         for t in self.targets.iter().filter(|t| !t.sines) {
             let fits = |n: i128| i64::try_from(n).is_ok();
-            let g = if fits(t.denom) && t.map.values().all(fits) {
+            let g = if fits(t.denom) && t.values().all(fits) {
                 1
             } else {
-                t.map
-                    .values()
+                t.values()
                     .fold(t.denom.unsigned_abs(), |g, n| gcd_u128(g, n.unsigned_abs()))
                     as i128
             };
             let denom = i64::try_from(t.denom / g).ok()?;
-            let mut terms = Vec::with_capacity(t.map.len());
+            let reduce = |n: i128| i64::try_from(if g == 1 { n } else { n / g }).ok();
+            if t.waves.len() == 0 {
+                let mut terms = Vec::with_capacity(t.map.len());
+                for (m, n) in t.map.iter() {
+                    if n != 0 {
+                        terms.push((m, reduce(n)?));
+                    }
+                }
+                if !terms.is_empty() {
+                    out.push(Packed::new(t.freq, t.odd, denom, terms));
+                }
+                continue;
+            }
+            let mut terms: Vec<WaveTerm> = Vec::with_capacity(t.held());
             for (m, n) in t.map.iter() {
                 if n != 0 {
-                    let n = if g == 1 { n } else { n / g };
-                    terms.push((m, i64::try_from(n).ok()?));
+                    terms.push((PWave::ONE, m, reduce(n)?));
+                }
+            }
+            for ((m, w), n) in t.waves.iter() {
+                if n != 0 {
+                    terms.push((PWave::from_code(w), m, reduce(n)?));
                 }
             }
             if !terms.is_empty() {
-                sums.push((t.freq, t.odd, t.wave, denom, terms));
+                out.push(Packed::from_wave_terms(t.freq, t.odd, denom, terms, false)?);
             }
         }
-        sums.sort_unstable_by_key(|s| (s.0, s.1, s.2));
-        let mut out: Vec<Packed> = Vec::with_capacity(sums.len());
-        let mut rest = sums.as_mut_slice();
-        while let Some(first) = rest.first() {
-            let (freq, odd) = (first.0, first.1);
-            let n = rest
-                .iter()
-                .take_while(|s| (s.0, s.1) == (freq, odd))
-                .count();
-            let (same, later) = std::mem::take(&mut rest).split_at_mut(n);
-            rest = later;
-            if let [(_, _, w, denom, terms)] = same {
-                if *w == PWave::ONE {
-                    out.push(Packed::new(freq, odd, *denom, std::mem::take(terms)));
-                    continue;
-                }
-            }
-            // Several factors: the groups of one part, over one denominator.
-            let l = same.iter().try_fold(1i64, |l, s| lcm_i64(l, s.3))?;
-            let mut terms = Vec::with_capacity(same.iter().map(|s| s.4.len()).sum());
-            let mut groups: SmallVec<[(PWave, usize); 1]> = SmallVec::new();
-            for (_, _, w, denom, group) in same.iter() {
-                let f = l / denom;
-                for (m, n) in group {
-                    terms.push((*m, n.checked_mul(f)?));
-                }
-                groups.push((*w, terms.len()));
-            }
-            out.push(Packed::with_groups(freq, odd, l, terms, groups));
-        }
+        out.sort_unstable_by_key(|p| (p.freq, p.odd));
         common_denominator_of_parts(&mut out);
         Some(out)
     }
@@ -1459,26 +1638,24 @@ impl PackedSum {
         let Some(d) = (denom as i128).checked_mul(r.q as i128) else {
             return false;
         };
-        let ti = self.target(r, wave, d, spill);
+        let ti = self.target(r, d, spill);
         let t = &mut self.targets[ti];
         // The target's denominator is a multiple of `d` (see `target`).
         let scale = exact_quotient(t.denom, d).and_then(|q| (r.p as i128).checked_mul(q));
         let Some(scale) = scale else {
             let f = Q::from_i128(r.p as i128, d);
             for (m, n) in terms {
-                spill(t.key(*m), Q::int(*n).mul(&f), t.sines);
+                spill(t.key(*m, wave), Q::int(*n).mul(&f), t.sines);
             }
             return true;
         };
         for (m, n) in terms {
-            let added = (*n as i128).checked_mul(scale).and_then(|v| {
-                let e = t.map.slot(*m);
-                *e = e.checked_add(v)?;
-                Some(())
-            });
-            if added.is_none() {
+            let added = (*n as i128)
+                .checked_mul(scale)
+                .is_some_and(|v| t.try_add(*m, wave, v));
+            if !added {
                 let c = Q::from_i128(*n as i128, 1).mul(&Q::from_i128(scale, t.denom));
-                spill(t.key(*m), c, t.sines);
+                spill(t.key(*m, wave), c, t.sines);
             }
         }
         true
@@ -1497,8 +1674,7 @@ impl PackedSum {
     pub fn into_sorted(self) -> (Terms, Terms) {
         let mut kept: Vec<Drained> = Vec::new();
         let mut sines: Vec<Drained> = Vec::new();
-        let mut waves = Vec::with_capacity(self.targets.len());
-        for (i, mut t) in self.targets.into_iter().enumerate() {
+        for mut t in self.targets {
             let kind = if t.freq == 0 {
                 0
             } else if t.odd {
@@ -1506,17 +1682,12 @@ impl PackedSum {
             } else {
                 1
             };
+            let (freq, denom) = (t.freq, t.denom);
             let out = if t.sines { &mut sines } else { &mut kept };
-            out.extend(
-                t.map
-                    .take()
-                    .into_iter()
-                    .filter(|(_, n)| *n != 0)
-                    .map(|(m, n)| (m, t.wave, kind, t.freq, n, t.denom, i)),
-            );
-            waves.push(t.wave.unpack());
+            out.extend(t.take_terms().map(|(m, w, n)| (m, w, kind, freq, n, denom)));
         }
-        let build = |mut v: Vec<Drained>| -> Terms {
+        let mut cache = WaveCache::default();
+        let mut build = |mut v: Vec<Drained>| -> Terms {
             v.sort_unstable_by(|a, b| {
                 cmp_mono(a.0, b.0)
                     .then_with(|| cmp_wave(a.1, b.1))
@@ -1524,29 +1695,29 @@ impl PackedSum {
                     .then(a.3.cmp(&b.3))
             });
             v.into_iter()
-                .map(|(m, _, kind, freq, n, d, i)| {
+                .map(|(m, w, kind, freq, n, d)| {
                     (
-                        key_of(m, waves[i].clone(), &beat_of(freq, kind == 2)),
+                        key_of(m, cache.get(w), &beat_of(freq, kind == 2)),
                         Q::from_i128(n, d),
                     )
                 })
                 .collect()
         };
-        (build(kept), build(sines))
+        let kept = build(kept);
+        (kept, build(sines))
     }
 
     /// Hands every nonzero term to `out` as (key, coefficient, sines).
     pub fn drain(self, out: &mut impl FnMut(Key, Q, bool)) {
+        let mut cache = WaveCache::default();
         for mut t in self.targets {
-            let (wave, beat) = (t.wave.unpack(), t.beat());
-            for (m, n) in t.map.take() {
-                if n != 0 {
-                    out(
-                        key_of(m, wave.clone(), &beat),
-                        Q::from_i128(n, t.denom),
-                        t.sines,
-                    );
-                }
+            let (beat, denom, sines) = (t.beat(), t.denom, t.sines);
+            for (m, w, n) in t.take_terms() {
+                out(
+                    key_of(m, cache.get(w), &beat),
+                    Q::from_i128(n, denom),
+                    sines,
+                );
             }
         }
     }
