@@ -1442,7 +1442,7 @@ impl PackedSum {
                         let small = bits(a.max_abs() as u128) + bits(scale.unsigned_abs()) <= 63;
                         for (ma, na) in ga {
                             rows += 1;
-                            if rows % 64 == 0 {
+                            if rows.is_multiple_of(64) {
                                 check(others[k] + t.held())?;
                             }
                             if w == PWave::ONE {
@@ -1875,8 +1875,7 @@ mod tests {
             let (a, b) = (pack(&lanes[0]), pack(&lanes[1]));
             for negate in [false, true] {
                 let sum = add_lanes(a, b, negate);
-                for i in 0..16 {
-                    let (p, q) = (lanes[0][i], lanes[1][i]);
+                for (i, (p, q)) in lanes[0].iter().zip(&lanes[1]).enumerate() {
                     let want = if negate { p - q } else { p + q };
                     assert_eq!(lane(sum, 8 * i as u32), want);
                 }
