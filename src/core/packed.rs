@@ -261,26 +261,7 @@ impl WaveRoutes {
 /// lexicographically) on packed linear forms: as [`cmp_mono`], with the
 /// lanes compared as signed numbers.
 fn cmp_lanes(a: u128, b: u128) -> Ordering {
-    let x = a ^ b;
-    if x == 0 {
-        return Ordering::Equal;
-    }
-    let shift = x.trailing_zeros() / 8 * 8;
-    let (ea, eb) = (lane(a, shift), lane(b, shift));
-    let rest = |m: u128| shift + 8 < 128 && m >> (shift + 8) != 0;
-    if ea != 0 && eb != 0 {
-        ea.cmp(&eb)
-    } else if ea == 0 {
-        if rest(a) {
-            Ordering::Greater
-        } else {
-            Ordering::Less
-        }
-    } else if rest(b) {
-        Ordering::Less
-    } else {
-        Ordering::Greater
-    }
+    cmp_lanes_by(a, b, |m, shift| i16::from(lane(m, shift)))
 }
 
 /// The order of [`Wave`] on packed factors: none, then `cos`, then `sin`,
@@ -685,17 +666,24 @@ fn unpack_mono(mut m: u128) -> Mono {
 }
 
 /// The order of [`Mono`] (its sorted `(symbol, exponent)` pairs compared
-/// lexicographically) on packed monomials: at the lowest symbol where they
-/// differ, two nonzero exponents compare as numbers; where one is zero,
-/// that one's next pair has a later symbol (it is greater) unless it has
-/// none left (it is a prefix, so smaller).
-fn cmp_mono(a: u128, b: u128) -> std::cmp::Ordering {
+/// lexicographically) on packed monomials (see [`cmp_lanes_by`]).
+fn cmp_mono(a: u128, b: u128) -> Ordering {
+    cmp_lanes_by(a, b, |m, shift| ((m >> shift) & 0xff) as i16)
+}
+
+/// The order of sorted `(symbol, value)` lists compared lexicographically,
+/// on lanes (`value` reads a lane, 0 meaning absent): at the lowest lane
+/// where they differ, two present values compare as numbers; where one is
+/// absent, that one's next pair has a later symbol (it is greater) unless it
+/// has none left (it is a prefix, so smaller).
+#[inline]
+fn cmp_lanes_by(a: u128, b: u128, value: impl Fn(u128, u32) -> i16) -> Ordering {
     let x = a ^ b;
     if x == 0 {
         return Ordering::Equal;
     }
     let shift = x.trailing_zeros() / 8 * 8;
-    let (ea, eb) = ((a >> shift) & 0xff, (b >> shift) & 0xff);
+    let (ea, eb) = (value(a, shift), value(b, shift));
     let rest = |m: u128| shift + 8 < 128 && m >> (shift + 8) != 0;
     if ea != 0 && eb != 0 {
         ea.cmp(&eb)
