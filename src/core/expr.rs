@@ -282,8 +282,9 @@ impl Part {
         self.packed.is_some()
     }
 
-    /// The packed copy, when there is one.
-    pub fn packed(&self) -> Option<&Packed> {
+    /// The packed copy, when there is one (for tests of the packed path).
+    #[cfg(test)]
+    pub(crate) fn packed(&self) -> Option<&Packed> {
         self.packed.as_ref()
     }
 }

@@ -1392,7 +1392,16 @@ impl PackedSum {
             for (k, &(ti, scale)) in scales[..n].iter().enumerate() {
                 let t = &mut self.targets[ti];
                 if product_bits + bits(scale.unsigned_abs()) > 126 {
-                    t.add_checked(&a.terms, &b.terms, PWave::ONE, scale, spill);
+                    // Large coefficients: every product checked, and the
+                    // budget every 64 rows as below.
+                    for chunk in a.terms.chunks(64) {
+                        rows += chunk.len();
+                        if rows >= 64 {
+                            rows = 0;
+                            check(others[k] + t.held())?;
+                        }
+                        t.add_checked(chunk, &b.terms, PWave::ONE, scale, spill);
+                    }
                     continue;
                 }
                 let small = bits(a.max_abs() as u128) + bits(scale.unsigned_abs()) <= 63;
@@ -1424,7 +1433,14 @@ impl PackedSum {
                             continue;
                         };
                         if product_bits + bits(scale.unsigned_abs()) > 126 {
-                            t.add_checked(ga, gb, w, scale, spill);
+                            for chunk in ga.chunks(64) {
+                                rows += chunk.len();
+                                if rows >= 64 {
+                                    rows = 0;
+                                    check(others[k] + t.held())?;
+                                }
+                                t.add_checked(chunk, gb, w, scale, spill);
+                            }
                             continue;
                         }
                         let small = bits(a.max_abs() as u128) + bits(scale.unsigned_abs()) <= 63;
