@@ -996,7 +996,7 @@ impl Expr {
 
     /// Builds from unsorted terms with possible repeats (merged) and zeros (dropped).
     pub fn from_terms(mut terms: Vec<(Key, Q)>) -> Expr {
-        terms.sort_unstable_by(|a, b| a.0.cmp(&b.0));
+        packed::sort_terms(&mut terms);
         let mut out: Vec<(Key, Q)> = Vec::with_capacity(terms.len());
         for (k, c) in terms {
             match out.last_mut() {
@@ -1028,7 +1028,7 @@ impl Expr {
 
     fn from_map(map: FxHashMap<Key, Q>) -> Expr {
         let mut terms: Vec<(Key, Q)> = map.into_iter().filter(|(_, c)| !c.is_zero()).collect();
-        terms.sort_unstable_by(|a, b| a.0.cmp(&b.0));
+        packed::sort_terms(&mut terms);
         Expr { terms }
     }
 

@@ -614,6 +614,37 @@ pub fn pack_key(k: &Key) -> Option<(u128, PWave, i64, bool)> {
     Some((pack_mono(&k.mono)?, wave, freq, odd))
 }
 
+/// Sorts terms by key (the order of [`Key`]). When every key packs (see
+/// [`pack_key`]), the terms are sorted by their packed keys and then moved
+/// once into place: comparing two packed keys is a few word operations, and
+/// the sort moves small entries instead of whole terms (a term is several
+/// times larger). Otherwise the keys are compared directly.
+pub fn sort_terms(terms: &mut Vec<(Key, Q)>) {
+    // Small sorts gain nothing from packing.
+    if terms.len() < 32 {
+        terms.sort_unstable_by(|a, b| a.0.cmp(&b.0));
+        return;
+    }
+    let mut order: Vec<(u128, PWave, u8, i64, u32)> = Vec::with_capacity(terms.len());
+    for (i, (k, _)) in terms.iter().enumerate() {
+        let Some((m, w, freq, odd)) = pack_key(k) else {
+            terms.sort_unstable_by(|a, b| a.0.cmp(&b.0));
+            return;
+        };
+        // The order of `Beat`: none, `cos`, `sin`, then the frequency.
+        let kind = if freq == 0 { 0 } else { 1 + odd as u8 };
+        order.push((m, w, kind, freq, i as u32));
+    }
+    order.sort_unstable_by(|a, b| {
+        cmp_mono(a.0, b.0)
+            .then_with(|| cmp_wave(a.1, b.1))
+            .then(a.2.cmp(&b.2))
+            .then(a.3.cmp(&b.3))
+    });
+    let mut slots: Vec<Option<(Key, Q)>> = terms.drain(..).map(Some).collect();
+    terms.extend(order.iter().filter_map(|e| slots[e.4 as usize].take()));
+}
+
 /// `n / d` when `d` (positive) divides `n` (positive), in machine words
 /// when both fit (a division of 128-bit integers is a slow library call).
 fn exact_quotient(n: i128, d: i128) -> Option<i128> {
@@ -1954,6 +1985,63 @@ mod tests {
             }
             assert_eq!(got, want, "d/d{}", s.name());
         }
+    }
+
+    #[test]
+    fn sorting_by_packed_keys_gives_the_order_of_keys() {
+        // Terms with monomials, trigonometric factors and time factors
+        // drawn from small sets (with repeats), in a scrambled order.
+        let monos: Vec<Mono> = [
+            vec![],
+            vec![(0, 1)],
+            vec![(2, 1)],
+            vec![(0, 2), (3, 1)],
+            vec![(3, 2), (15, 1)],
+        ]
+        .into_iter()
+        .map(|p| Mono(p.into_iter().map(|(s, e)| (Sym(s), e)).collect()))
+        .collect();
+        let waves = [
+            Wave::One,
+            Wave::Cos(lin(&[(2, 1)])),
+            Wave::Sin(lin(&[(2, 1), (3, -2)])),
+            Wave::Cos(lin(&[(3, 1)])),
+        ];
+        let beats = [
+            Beat::One,
+            Beat::Cos(Q::int(1)),
+            Beat::Sin(Q::int(1)),
+            Beat::Cos(Q::int(3)),
+        ];
+        let mut terms = Vec::new();
+        let mut x = 7u64;
+        for i in 0..200u64 {
+            x = x
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            let pick = |n: usize, shift: u32| (x >> shift) as usize % n;
+            let key = Key {
+                mono: monos[pick(monos.len(), 20)].clone(),
+                exp: Lin::default(),
+                wave: waves[pick(waves.len(), 30)].clone(),
+                beat: beats[pick(beats.len(), 40)].clone(),
+            };
+            terms.push((key, Q::int(i as i64 + 1)));
+        }
+        let mut want = terms.clone();
+        want.sort_by(|a, b| a.0.cmp(&b.0));
+        let mut got = terms.clone();
+        sort_terms(&mut got);
+        let keys = |v: &[(Key, Q)]| v.iter().map(|(k, _)| k.clone()).collect::<Vec<_>>();
+        assert_eq!(keys(&got), keys(&want));
+        assert_eq!(got.len(), terms.len());
+        // A key that does not pack (a rational frequency): the direct sort.
+        let mut mixed = terms;
+        mixed[17].0.beat = Beat::Sin(Q::Small(1, 2));
+        let mut want = mixed.clone();
+        want.sort_by(|a, b| a.0.cmp(&b.0));
+        sort_terms(&mut mixed);
+        assert_eq!(keys(&mixed), keys(&want));
     }
 
     #[test]
