@@ -365,15 +365,21 @@ impl Packed {
     ) -> Option<Packed> {
         v.sort_unstable_by_key(|&(w, m, _)| (w, m));
         if merge {
-            let mut merged: Vec<WaveTerm> = Vec::with_capacity(v.len());
-            for (w, m, n) in v {
-                match merged.last_mut() {
+            // Equal pairs summed in place (they are adjacent), then zeros
+            // dropped.
+            let mut kept = 0usize;
+            for i in 0..v.len() {
+                let (w, m, n) = v[i];
+                match kept.checked_sub(1).map(|j| &mut v[j]) {
                     Some(last) if last.0 == w && last.1 == m => last.2 = last.2.checked_add(n)?,
-                    _ => merged.push((w, m, n)),
+                    _ => {
+                        v[kept] = (w, m, n);
+                        kept += 1;
+                    }
                 }
             }
-            merged.retain(|t| t.2 != 0);
-            v = merged;
+            v.truncate(kept);
+            v.retain(|t| t.2 != 0);
         }
         let mut terms: Vec<(u128, i64)> = Vec::with_capacity(v.len());
         let n_groups = 1 + v.windows(2).filter(|p| p[0].0 != p[1].0).count();
@@ -1445,10 +1451,31 @@ impl PackedSum {
             }
             return Ok(true);
         }
+        self.add_groups(a, b, &scales[..n], others, spill, check)?;
+        Ok(true)
+    }
+
+    /// The products of parts with trigonometric factors, pair of groups by
+    /// pair of groups (see [`wave_routes`]), into the targets of `scales`
+    /// (target and scale of each time route; `others`: the terms held
+    /// elsewhere, for `check`, see [`PackedSum::add_product`]). The parts'
+    /// forms must fit the lanes (see [`Packed::lanes_fit`]).
+    fn add_groups<E>(
+        &mut self,
+        a: &Packed,
+        b: &Packed,
+        scales: &[(usize, i128)],
+        others: [usize; 2],
+        spill: &mut impl FnMut(Key, Q, bool),
+        check: &mut impl FnMut(usize) -> Result<(), E>,
+    ) -> Result<(), E> {
+        let bits = |n: u128| 128 - n.leading_zeros();
+        let product_bits = bits(a.max_abs() as u128) + bits(b.max_abs() as u128);
+        let mut rows = 0usize;
         for (wa, ga) in a.groups() {
             for (wb, gb) in b.groups() {
                 let factors = wave_routes(wa, wb);
-                for (k, &(ti, scale)) in scales[..n].iter().enumerate() {
+                for (k, &(ti, scale)) in scales.iter().enumerate() {
                     let t = &mut self.targets[ti];
                     for &(w, pw) in factors.as_slice() {
                         // The factor's p (its halves are in the denominator).
@@ -1490,7 +1517,7 @@ impl PackedSum {
                 }
             }
         }
-        Ok(true)
+        Ok(())
     }
 
     /// The common case of [`PackedSum::add_product`], with its set-up cut
