@@ -863,3 +863,41 @@ fn flow_terms_are_eps_coefficients_of_exact_solutions() {
         }
     }
 }
+
+/// An output that depends on time is read as `h(t, x(t))`: its flow terms
+/// are the eps-coefficients of `h` at the exact solution, with the time
+/// factors of `h` left as they are. The system `x' = eps·y, y' = eps·cos t`
+/// has `y(t) = y + eps sin t`, `x(t) = x + eps t y + eps² (1 − cos t)`
+/// (checked exactly here before use); output `h = x·cos t + y²·sin 2t + t·x`.
+#[test]
+fn flow_of_a_time_varying_output_is_the_output_along_the_solution() {
+    let states = [Sym::new("x"), Sym::new("y")];
+    let eps_sym = Sym::new("eps");
+    let eps = Expr::sym(eps_sym);
+    let (x, y) = (Expr::sym(states[0]), Expr::sym(states[1]));
+    let cos_t = ok(Expr::cos_of(&t(), &states), "cos t");
+    let sin_t = ok(Expr::sin_of(&t(), &states), "sin t");
+    let sin_2t = ok(Expr::sin_of(&t().scale(&Q::int(2)), &states), "sin 2t");
+    let m = |a: &Expr, b: &Expr| ok(a.mul(b), "product");
+    let ys = y.add(&m(&eps, &sin_t));
+    let xs = x
+        .add(&m(&eps, &m(&t(), &y)))
+        .add(&m(&m(&eps, &eps), &Expr::int(1).sub(&cos_t)));
+    let v = Field(vec![m(&eps, &y), m(&eps, &cos_t)]);
+    assert_solution(&xs, &ys, &v.0[0], &v.0[1]);
+    let h = m(&x, &cos_t).add(&m(&m(&y, &y), &sin_2t)).add(&m(&t(), &x));
+    let mut map = HashMap::new();
+    map.insert(states[0], xs);
+    map.insert(states[1], ys);
+    let along = ok(h.subst(&map, &states), "h(t, x(t))");
+    let n = 4;
+    let terms = ok(flow_terms(&v, &h, n, &states), "flow terms");
+    for k in 1..=n {
+        let expected = m(
+            &ok(eps.pow(k as i64), "eps^k"),
+            &along.coeff_of_power(eps_sym, k as i32),
+        );
+        assert_eq!(terms[k - 1], expected, "flow term {k}");
+    }
+    assert!(!terms[1].is_zero());
+}

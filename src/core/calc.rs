@@ -455,7 +455,7 @@ fn trig_value(is_sin: bool, c: &Q) -> Option<Q> {
 }
 
 /// `∫ t^n · beat dt` as a list of `(power, beat, coefficient)`.
-fn integrate_time_monomial(n: i32, beat: &Beat) -> CoreResult<Vec<(i32, Beat, Q)>> {
+pub(crate) fn integrate_time_monomial(n: i32, beat: &Beat) -> CoreResult<Vec<(i32, Beat, Q)>> {
     match beat {
         Beat::One => Ok(vec![(
             n.checked_add(1).ok_or(CoreError::Limit {

@@ -641,6 +641,61 @@ impl Acc {
         (kept.into_by_frequency(), sines)
     }
 
+    /// `self += ∫_0^t part dτ`; packed parts stay packed (each power of
+    /// `t` times the part's time factor integrated by parts), others go
+    /// through the normal form.
+    pub fn add_integral_from_zero(&mut self, part: &Part) -> CoreResult<()> {
+        if let Some(p) = &part.packed {
+            let beat = match (p.freq(), p.odd()) {
+                (0, _) => Beat::One,
+                (f, false) => Beat::Cos(Q::int(f)),
+                (f, true) => Beat::Sin(Q::int(f)),
+            };
+            let mut pieces = |n: i32| -> Option<Vec<packed::TimePiece>> {
+                let list = super::calc::integrate_time_monomial(n, &beat).ok()?;
+                let mut out = Vec::with_capacity(list.len() + 1);
+                for (power, b, q) in list {
+                    let Q::Small(num, den) = q else {
+                        return None;
+                    };
+                    let (freq, odd) = match &b {
+                        Beat::One => (0, false),
+                        Beat::Cos(h) => (h.to_i64()?, false),
+                        Beat::Sin(h) => (h.to_i64()?, true),
+                    };
+                    out.push(packed::TimePiece {
+                        power,
+                        freq,
+                        odd,
+                        num,
+                        den,
+                    });
+                    // Minus the value at 0: the pieces without a power of
+                    // `t` or a sine.
+                    if power == 0 && !odd {
+                        out.push(packed::TimePiece {
+                            power,
+                            freq: 0,
+                            odd: false,
+                            num: num.checked_neg()?,
+                            den,
+                        });
+                    }
+                }
+                Some(out)
+            };
+            let done = {
+                let (sum, mut spill) = self.packed_and_spill();
+                sum.add_time_pieces(p, &mut pieces, &mut spill)
+            };
+            if done {
+                limits::add_work(p.len() as u64)?;
+                return self.check_budget();
+            }
+        }
+        self.add_scaled(&part.expr().integral_from_zero()?, &Q::ONE, Keep::All)
+    }
+
     /// `self += q·Σ parts`, keeping the terms `keep` asks for (as
     /// [`Acc::add_scaled`]); packed parts go in whole.
     pub fn add_parts(&mut self, parts: &[Part], q: &Q, keep: Keep) -> CoreResult<()> {

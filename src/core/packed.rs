@@ -768,6 +768,18 @@ pub struct Cut {
     pub sines: bool,
 }
 
+/// One piece of what a term's power of `t` becomes (see
+/// [`PackedSum::add_time_pieces`]): `t^power` with the time factor
+/// `(freq, odd)` and the factor `num/den` (`den > 0`).
+#[derive(Clone, Copy, Debug)]
+pub struct TimePiece {
+    pub power: i32,
+    pub freq: i64,
+    pub odd: bool,
+    pub num: i64,
+    pub den: i64,
+}
+
 /// Where the products of one pair of parts go: the sum of terms with time
 /// factor `(freq, odd)` or, with `sines`, the constants of dropped sines;
 /// each product takes the factor `p/q` on the way.
@@ -1685,6 +1697,52 @@ impl PackedSum {
         true
     }
 
+    /// `self += Σ n/denom · m·W` with each term's power of `t` replaced by
+    /// the `pieces` of its exponent (each piece: a power of `t`, a time
+    /// factor and a factor; `∫_0^t` of a part is built this way). False,
+    /// adding nothing, when `pieces` declines an exponent or a piece's
+    /// power leaves the packed range.
+    pub fn add_time_pieces(
+        &mut self,
+        a: &Packed,
+        pieces: &mut impl FnMut(i32) -> Option<Vec<TimePiece>>,
+        spill: &mut impl FnMut(Key, Q, bool),
+    ) -> bool {
+        debug_assert_eq!(Sym::T.0, 0);
+        let mut table: SmallVec<[(i32, Vec<TimePiece>); 4]> = SmallVec::new();
+        for (m, _) in &a.terms {
+            let p = (m & 0xff) as i32;
+            if table.iter().any(|(q, _)| *q == p) {
+                continue;
+            }
+            let Some(list) = pieces(p) else {
+                return false;
+            };
+            if list
+                .iter()
+                .any(|pc| !(0..=MAX_EXP).contains(&pc.power) || pc.den <= 0)
+            {
+                return false;
+            }
+            table.push((p, list));
+        }
+        for (w, g) in a.groups() {
+            for (m, n) in g {
+                let p = (m & 0xff) as i32;
+                let Some((_, list)) = table.iter().find(|(q, _)| *q == p) else {
+                    continue;
+                };
+                let base = m & !0xff;
+                for pc in list {
+                    let r = Route::new(pc.freq, pc.odd, false, pc.num, pc.den);
+                    // Cannot decline: `denom·den` fits 128 bits.
+                    self.add_terms(&[(base | pc.power as u128, *n)], a.denom, &r, w, spill);
+                }
+            }
+        }
+        true
+    }
+
     /// `self += (p/q)·Σ n/denom · m` times the factor `wave`, along route
     /// `r` (`denom`, `q` > 0). False, doing nothing, when the route's
     /// denominator does not fit machine integers; sums that overflow are
@@ -2012,6 +2070,50 @@ mod tests {
             }
             assert_eq!(got, want, "d/d{}", s.name());
         }
+    }
+
+    /// `∫_0^t` of packed parts with powers of `t`, several frequencies,
+    /// sines and cosines, trigonometric factors in the state and fractions,
+    /// built packed, equals the normal form's integral (integration by
+    /// parts on `t^p cos(h t)` and `t^p sin(h t)`, minus the value at 0).
+    #[test]
+    fn packed_time_integrals_agree_with_the_normal_form() {
+        let st = [Sym::new("iq"), Sym::new("ip")];
+        let (q, p, t) = (Expr::sym(st[0]), Expr::sym(st[1]), Expr::sym(Sym::T));
+        let time = |k: i64, sin: bool| {
+            let arg = t.scale(&Q::int(k));
+            if sin {
+                Expr::sin_of(&arg, &st).expect("sin")
+            } else {
+                Expr::cos_of(&arg, &st).expect("cos")
+            }
+        };
+        let wave = Expr::cos_of(&q.sub(&p.scale(&Q::int(2))), &st).expect("cos");
+        let mut checked = 0;
+        for k in 0..4i64 {
+            for sin in [false, true] {
+                let factor = if k == 0 { Expr::int(1) } else { time(k, sin) };
+                let e = q
+                    .mul(&t.pow(3).expect("t^3"))
+                    .expect("q t^3")
+                    .scale(&Q::Small(5, 3))
+                    .add(&p.mul(&p).expect("p^2").mul(&t).expect("p^2 t"))
+                    .add(&wave.mul(&t.pow(2).expect("t^2")).expect("wave t^2"))
+                    .add(&wave.mul(&q).expect("q wave").scale(&Q::Small(-2, 7)))
+                    .add(&Expr::int(4))
+                    .mul(&factor)
+                    .expect("with time factor");
+                let want = e.integral_from_zero().expect("normal form");
+                let mut acc = Acc::new();
+                for part in e.clone().into_by_frequency() {
+                    assert!(part.is_packed(), "{e}");
+                    acc.add_integral_from_zero(&part).expect("packed");
+                }
+                assert_eq!(acc.finish(), want, "integral of {e}");
+                checked += 1;
+            }
+        }
+        assert_eq!(checked, 8);
     }
 
     #[test]

@@ -207,16 +207,17 @@ impl Session {
             Some(h) => vec![h.clone()],
             None => self.states.iter().map(|s| Expr::sym(*s)).collect(),
         };
-        let mut per_output: Vec<Vec<Expr>> = Vec::new();
-        for out in &outputs {
-            let terms = if inputs.is_empty() {
-                chrono::flow_terms(v, out, n, &self.states).map_err(core)?
-            } else {
-                super::structural::chen_fliess_terms(v, out, n, &inputs, &self.states)
-                    .map_err(core)?
-            };
-            per_output.push(terms);
-        }
+        // Without inputs every output comes from one expansion of the
+        // solution (the coordinates' terms are shared).
+        let per_output: Vec<Vec<Expr>> = if inputs.is_empty() {
+            chrono::flow_outputs(v, &outputs, n, &self.states).map_err(core)?
+        } else {
+            outputs
+                .iter()
+                .map(|out| super::structural::chen_fliess_terms(v, out, n, &inputs, &self.states))
+                .collect::<Result<_, _>>()
+                .map_err(core)?
+        };
         if !inputs.is_empty() {
             report.push(Style::Note, "Chen–Fliess series: iint(u_i1, …, u_ik) is the iterated integral, first argument at the latest time");
         }

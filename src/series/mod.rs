@@ -5,3 +5,4 @@
 
 pub mod chrono;
 pub mod freelie;
+pub mod taylor;

@@ -1,0 +1,256 @@
+//! The chronological exponential computed forward: Picard iteration with
+//! Taylor expansion of the field about the initial point.
+//!
+//! Scale the field by eps. The solution of `x' = eps·V(t, x)`, `x(0) = x`,
+//! is `x(t) = x + δ(t)` with `δ = Σ_k eps^k δ_k`, and
+//!
+//! ```text
+//! δ_k(t) = ∫_0^t [V(τ, x + δ(τ))]_{k−1} dτ,
+//! [g(x + δ)]_m = Σ_{1 ≤ |α| ≤ m} (∂^α g / α!) · [δ^α]_m   (m ≥ 1),
+//! ```
+//!
+//! where `[·]_m` is the eps^m coefficient. The order-`k` term of the
+//! chronological expansion of an output `h` (DESIGN §2.4) is exactly
+//! `[h(x + δ)]_k`. The powers `[δ^α]_m` are built from lower ones,
+//! `δ^α = δ^{α − e_i} · δ_i` with `i` the last coordinate in `α`, and only
+//! for the `α` whose derivative of the field or an output is not zero: a
+//! polynomial field of degree `d` needs `|α| ≤ d`. Every intermediate is a
+//! piece of the result (a power of the solution's deviation), so the work
+//! follows the size of the output; nothing carries a second time.
+
+use std::collections::HashMap;
+
+use crate::core::expr::{Acc, Harmonics, Keep, Part};
+use crate::core::{limits, CoreError, CoreResult, Expr, Field, Sym, Q};
+
+/// One multi-index `α` with a nonzero derivative of the field or of an
+/// output: its canonical parent `α − e_var` (`None` when `|α| = 1`).
+struct Node {
+    parent: Option<usize>,
+    var: usize,
+    degree: usize,
+}
+
+/// The multi-indices, parents before children, with a lookup.
+#[derive(Default)]
+struct Nodes {
+    list: Vec<Node>,
+    index: HashMap<Vec<u32>, usize>,
+}
+
+impl Nodes {
+    fn get_or_add(&mut self, alpha: &[u32], parent: Option<usize>, var: usize) -> usize {
+        if let Some(&i) = self.index.get(alpha) {
+            return i;
+        }
+        let degree = alpha.iter().map(|&a| a as usize).sum();
+        self.list.push(Node {
+            parent,
+            var,
+            degree,
+        });
+        self.index.insert(alpha.to_vec(), self.list.len() - 1);
+        self.list.len() - 1
+    }
+}
+
+/// Pairs of node index and the components `∂^α g / α!`.
+type Derivatives = Vec<(usize, Vec<Expr>)>;
+
+/// The most multi-indices the forward route takes. Each holds powers of
+/// the deviation for every order; fields with transcendental factors in
+/// many coordinates need far more (`exp(x1 + … + x6)` to order 9: 3002), and
+/// there the backward recursion ([`super::chrono::flow_outputs`] falls
+/// back to it) is as fast and holds far less.
+pub const MAX_NODES: usize = 256;
+
+/// `∂^α g / α!` for every `α` with `1 ≤ |α| ≤ max` where some component is
+/// not zero, each generated once from its canonical parent, registered in
+/// `nodes` (returned as pairs of node index and components).
+fn derivatives(
+    g: &[Expr],
+    max: usize,
+    states: &[Sym],
+    nodes: &mut Nodes,
+) -> CoreResult<Option<Derivatives>> {
+    let n = states.len();
+    let mut out: Vec<(usize, Vec<Expr>)> = Vec::new();
+    let mut held = 0usize;
+    // Frontier of one degree: (multi-index, node, components).
+    let mut frontier: Vec<(Vec<u32>, Option<usize>, Vec<Expr>)> =
+        vec![(vec![0; n], None, g.to_vec())];
+    for _ in 1..=max {
+        limits::poll()?;
+        let mut next = Vec::new();
+        for (alpha, node, comps) in &frontier {
+            let last = alpha.iter().rposition(|&a| a > 0).unwrap_or(0);
+            for (i, s) in states.iter().enumerate().skip(last) {
+                let mut beta = alpha.clone();
+                beta[i] += 1;
+                let inv = Q::ratio(1, i64::from(beta[i])).unwrap_or(Q::ONE);
+                let d: Vec<Expr> = comps.iter().map(|c| c.pd(*s).scale(&inv)).collect();
+                if d.iter().all(Expr::is_zero) {
+                    continue;
+                }
+                // Many coordinates with transcendental factors give many
+                // multi-indices: past the cap this route is not taken.
+                held = held.saturating_add(d.iter().map(Expr::len).sum::<usize>());
+                if nodes.list.len() >= MAX_NODES || held > limits::limits().max_terms {
+                    return Ok(None);
+                }
+                let id = nodes.get_or_add(&beta, *node, i);
+                out.push((id, d.clone()));
+                next.push((beta, Some(id), d));
+            }
+        }
+        if next.is_empty() {
+            break;
+        }
+        frontier = next;
+    }
+    Ok(Some(out))
+}
+
+/// Terms `k = 1..=n` of the chronological expansion of each output `h(x(t))`
+/// for `x' = V(t, x)`, `x(0) = x` (DESIGN §2.4), as functions of `t` and `x`:
+/// `result[j][k − 1]` is the order-`k` term of `outputs[j]`. `None` when the
+/// expansion would need more than [`MAX_NODES`] multi-indices.
+pub fn forward_flow(
+    v: &Field,
+    outputs: &[Expr],
+    n: usize,
+    states: &[Sym],
+) -> CoreResult<Option<Vec<Vec<Expr>>>> {
+    limits::check_order(n as u64)?;
+    if v.dim() != states.len() {
+        return Err(CoreError::Dimension {
+            what: format!(
+                "a field of dimension {} on {} state coordinates",
+                v.dim(),
+                states.len()
+            ),
+        });
+    }
+    let dim = states.len();
+    let mut nodes = Nodes::default();
+    let Some(dv) = derivatives(&v.0, n.saturating_sub(1), states, &mut nodes)? else {
+        return Ok(None);
+    };
+    let mut dh = Vec::with_capacity(outputs.len());
+    for h in outputs {
+        match derivatives(std::slice::from_ref(h), n, states, &mut nodes)? {
+            Some(d) => dh.push(d),
+            None => return Ok(None),
+        }
+    }
+    // Parents come before children within each tree, but the union may
+    // interleave trees: order the nodes by degree for the power recursion.
+    let mut order: Vec<usize> = (0..nodes.list.len()).collect();
+    order.sort_by_key(|&i| nodes.list[i].degree);
+
+    // Everything below is kept split by time factor (packed parts stay
+    // packed from one order to the next).
+    let split = |ds: Derivatives| -> Vec<(usize, Vec<Harmonics>)> {
+        ds.into_iter()
+            .map(|(id, d)| (id, d.into_iter().map(Expr::into_by_frequency).collect()))
+            .collect()
+    };
+    let dv = split(dv);
+    let dh: Vec<Vec<(usize, Vec<Harmonics>)>> = dh.into_iter().map(split).collect();
+    // delta[i][m] = [δ_i]_m (index 0 unused); powers[node][m] = [δ^α]_m.
+    let mut delta: Vec<Vec<Harmonics>> = vec![vec![Vec::new()]; dim];
+    let mut powers: Vec<Vec<Harmonics>> = nodes.list.iter().map(|_| vec![Vec::new()]).collect();
+    // Fills [δ^α]_m for every node (zero above the node's degree).
+    let fill_powers =
+        |m: usize, delta: &[Vec<Harmonics>], powers: &mut Vec<Vec<Harmonics>>| -> CoreResult<()> {
+            for &id in &order {
+                let node = &nodes.list[id];
+                let value = match node.parent {
+                    None => delta[node.var][m].clone(),
+                    Some(_) if node.degree > m => Vec::new(),
+                    Some(p) => {
+                        let mut acc = Acc::new();
+                        let d = &delta[node.var];
+                        for j in 1..=(m + 1 - node.degree) {
+                            let lower = &powers[p][m - j];
+                            if lower.is_empty() || d[j].is_empty() {
+                                continue;
+                            }
+                            acc.add_product_harmonics(lower, &d[j], false, Keep::All)?;
+                        }
+                        acc.finish_parts()
+                    }
+                };
+                powers[id].push(value);
+            }
+            Ok(())
+        };
+    // Σ_α D[α]_c · [δ^α]_m for one set of derivatives.
+    let expand = |ds: &[(usize, Vec<Harmonics>)], c: usize, m: usize, powers: &[Vec<Harmonics>]| {
+        let mut acc = Acc::new();
+        for (id, d) in ds {
+            let p = &powers[*id][m];
+            if d[c].is_empty() || p.is_empty() {
+                continue;
+            }
+            match number(&d[c]) {
+                Some(q) => acc.add_parts(p, &q, Keep::All)?,
+                None => acc.add_product_harmonics(&d[c], p, false, Keep::All)?,
+            }
+        }
+        Ok::<Acc, CoreError>(acc)
+    };
+
+    let v_parts: Vec<Harmonics> = v.0.iter().cloned().map(Expr::into_by_frequency).collect();
+    for k in 1..=n {
+        limits::poll()?;
+        limits::progress("chronological exponential", k - 1, n);
+        let m = k - 1;
+        if m >= 1 {
+            fill_powers(m, &delta, &mut powers)?;
+        }
+        for c in 0..dim {
+            let w = if m == 0 {
+                v_parts[c].clone()
+            } else {
+                expand(&dv, c, m, &powers)?.finish_parts()
+            };
+            let d = integral_from_zero(&w)?;
+            limits::check_terms(d.iter().map(Part::len).sum())?;
+            delta[c].push(d);
+        }
+    }
+    if n >= 1 {
+        fill_powers(n, &delta, &mut powers)?;
+    }
+    let mut out = Vec::with_capacity(outputs.len());
+    for ds in &dh {
+        let mut terms = Vec::with_capacity(n);
+        for k in 1..=n {
+            limits::poll()?;
+            let y = expand(ds, 0, k, &powers)?.finish();
+            limits::check_terms(y.len())?;
+            terms.push(y);
+        }
+        out.push(terms);
+    }
+    Ok(Some(out))
+}
+
+/// The number a split expression equals, if it is one.
+fn number(parts: &[Part]) -> Option<Q> {
+    match parts {
+        [p] if p.freq.is_zero() && p.len() == 1 => p.expr().as_number(),
+        _ => None,
+    }
+}
+
+/// `∫_0^t` of an expression split by time factor, split the same way:
+/// part by part (packed parts stay packed).
+fn integral_from_zero(parts: &[Part]) -> CoreResult<Harmonics> {
+    let mut acc = Acc::new();
+    for p in parts {
+        acc.add_integral_from_zero(p)?;
+    }
+    Ok(acc.finish_parts())
+}
