@@ -15,8 +15,9 @@
 //! `δ^α = δ^{α − e_i} · δ_i` with `i` the last coordinate in `α`, and only
 //! for the `α` whose derivative of the field or an output is not zero: a
 //! polynomial field of degree `d` needs `|α| ≤ d`. Every intermediate is a
-//! piece of the result (a power of the solution's deviation), so the work
-//! follows the size of the output; nothing carries a second time.
+//! piece of the result (a power of the solution's deviation): nothing
+//! carries a second time, as the backward recursion must. An output that
+//! depends on time is read along the solution, `h(t, x(t))`.
 
 use std::collections::HashMap;
 
@@ -73,12 +74,12 @@ fn derivatives(
     states: &[Sym],
     nodes: &mut Nodes,
 ) -> CoreResult<Option<Derivatives>> {
-    let n = states.len();
+    let dim = states.len();
     let mut out: Vec<(usize, Vec<Expr>)> = Vec::new();
     let mut held = 0usize;
     // Frontier of one degree: (multi-index, node, components).
     let mut frontier: Vec<(Vec<u32>, Option<usize>, Vec<Expr>)> =
-        vec![(vec![0; n], None, g.to_vec())];
+        vec![(vec![0; dim], None, g.to_vec())];
     for _ in 1..=max {
         limits::poll()?;
         let mut next = Vec::new();
@@ -160,31 +161,48 @@ pub fn forward_flow(
     // delta[i][m] = [δ_i]_m (index 0 unused); powers[node][m] = [δ^α]_m.
     let mut delta: Vec<Vec<Harmonics>> = vec![vec![Vec::new()]; dim];
     let mut powers: Vec<Vec<Harmonics>> = nodes.list.iter().map(|_| vec![Vec::new()]).collect();
-    // Fills [δ^α]_m for every node (zero above the node's degree).
-    let fill_powers =
-        |m: usize, delta: &[Vec<Harmonics>], powers: &mut Vec<Vec<Harmonics>>| -> CoreResult<()> {
-            for &id in &order {
-                let node = &nodes.list[id];
-                let value = match node.parent {
-                    None => delta[node.var][m].clone(),
-                    Some(_) if node.degree > m => Vec::new(),
-                    Some(p) => {
-                        let mut acc = Acc::new();
-                        let d = &delta[node.var];
-                        for j in 1..=(m + 1 - node.degree) {
-                            let lower = &powers[p][m - j];
-                            if lower.is_empty() || d[j].is_empty() {
-                                continue;
-                            }
-                            acc.add_product_harmonics(lower, &d[j], false, Keep::All)?;
-                        }
-                        acc.finish_parts()
-                    }
-                };
-                powers[id].push(value);
+    // The last order feeds only the outputs: the nodes of their
+    // derivatives and those nodes' parents.
+    let mut for_outputs = vec![false; nodes.list.len()];
+    for &(id, _) in dh.iter().flatten() {
+        let mut at = Some(id);
+        while let Some(i) = at {
+            if std::mem::replace(&mut for_outputs[i], true) {
+                break;
             }
-            Ok(())
-        };
+            at = nodes.list[i].parent;
+        }
+    }
+    // Fills [δ^α]_m for every node (zero above the node's degree), or only
+    // for those the outputs need.
+    let fill_powers = |m: usize,
+                       only_outputs: bool,
+                       delta: &[Vec<Harmonics>],
+                       powers: &mut Vec<Vec<Harmonics>>|
+     -> CoreResult<()> {
+        for &id in &order {
+            let node = &nodes.list[id];
+            let value = match node.parent {
+                _ if only_outputs && !for_outputs[id] => Vec::new(),
+                None => delta[node.var][m].clone(),
+                Some(_) if node.degree > m => Vec::new(),
+                Some(p) => {
+                    let mut acc = Acc::new();
+                    let d = &delta[node.var];
+                    for j in 1..=(m + 1 - node.degree) {
+                        let lower = &powers[p][m - j];
+                        if lower.is_empty() || d[j].is_empty() {
+                            continue;
+                        }
+                        acc.add_product_harmonics(lower, &d[j], false, Keep::All)?;
+                    }
+                    acc.finish_parts()
+                }
+            };
+            powers[id].push(value);
+        }
+        Ok(())
+    };
     // Σ_α D[α]_c · [δ^α]_m for one set of derivatives.
     let expand = |ds: &[(usize, Vec<Harmonics>)], c: usize, m: usize, powers: &[Vec<Harmonics>]| {
         let mut acc = Acc::new();
@@ -207,7 +225,7 @@ pub fn forward_flow(
         limits::progress("chronological exponential", k - 1, n);
         let m = k - 1;
         if m >= 1 {
-            fill_powers(m, &delta, &mut powers)?;
+            fill_powers(m, false, &delta, &mut powers)?;
         }
         for c in 0..dim {
             let w = if m == 0 {
@@ -221,7 +239,7 @@ pub fn forward_flow(
         }
     }
     if n >= 1 {
-        fill_powers(n, &delta, &mut powers)?;
+        fill_powers(n, true, &delta, &mut powers)?;
     }
     let mut out = Vec::with_capacity(outputs.len());
     for ds in &dh {
