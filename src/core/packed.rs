@@ -1726,17 +1726,32 @@ impl PackedSum {
             }
             table.push((p, list));
         }
+        // The terms of each piece, gathered per group so that each piece
+        // finds its sum once.
+        let mut gathered: Vec<Vec<Vec<(u128, i64)>>> = table
+            .iter()
+            .map(|(_, list)| vec![Vec::new(); list.len()])
+            .collect();
         for (w, g) in a.groups() {
             for (m, n) in g {
                 let p = (m & 0xff) as i32;
-                let Some((_, list)) = table.iter().find(|(q, _)| *q == p) else {
+                let Some(ti) = table.iter().position(|(q, _)| *q == p) else {
                     continue;
                 };
                 let base = m & !0xff;
-                for pc in list {
+                for (pc, out) in table[ti].1.iter().zip(gathered[ti].iter_mut()) {
+                    out.push((base | pc.power as u128, *n));
+                }
+            }
+            for ((_, list), outs) in table.iter().zip(gathered.iter_mut()) {
+                for (pc, out) in list.iter().zip(outs.iter_mut()) {
+                    if out.is_empty() {
+                        continue;
+                    }
                     let r = Route::new(pc.freq, pc.odd, false, pc.num, pc.den);
                     // Cannot decline: `denom·den` fits 128 bits.
-                    self.add_terms(&[(base | pc.power as u128, *n)], a.denom, &r, w, spill);
+                    self.add_terms(out, a.denom, &r, w, spill);
+                    out.clear();
                 }
             }
         }
