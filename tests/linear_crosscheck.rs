@@ -791,13 +791,16 @@ fn assert_solution(xs: &Expr, ys: &Expr, f: &Expr, g: &Expr) {
 /// `h = x² + x·y`.
 #[test]
 fn flow_terms_are_eps_coefficients_of_exact_solutions() {
-    let states = [Sym::new("x"), Sym::new("y")];
-    let eps_sym = Sym::new("eps");
-    let eps = Expr::sym(eps_sym);
-    let (x, y) = (Expr::sym(states[0]), Expr::sym(states[1]));
-    let cos_t = ok(Expr::cos_of(&t(), &states), "cos t");
-    let sin_t = ok(Expr::sin_of(&t(), &states), "sin t");
-    let sin_2t = ok(Expr::sin_of(&t().scale(&Q::int(2)), &states), "sin 2t");
+    let ExactSetting {
+        states,
+        eps_sym,
+        eps,
+        x,
+        y,
+        cos_t,
+        sin_t,
+        sin_2t,
+    } = exact_setting();
     let m = |a: &Expr, b: &Expr| ok(a.mul(b), "product");
     let one_minus_cos = Expr::int(1).sub(&cos_t);
     let eps2 = m(&eps, &eps);
@@ -864,6 +867,34 @@ fn flow_terms_are_eps_coefficients_of_exact_solutions() {
     }
 }
 
+/// The setting of the exact-solution tests of the flow: states `x, y`, the
+/// parameter `eps` and the time factors the solutions use.
+struct ExactSetting {
+    states: [Sym; 2],
+    eps_sym: Sym,
+    eps: Expr,
+    x: Expr,
+    y: Expr,
+    cos_t: Expr,
+    sin_t: Expr,
+    sin_2t: Expr,
+}
+
+fn exact_setting() -> ExactSetting {
+    let states = [Sym::new("x"), Sym::new("y")];
+    let eps_sym = Sym::new("eps");
+    ExactSetting {
+        states,
+        eps_sym,
+        eps: Expr::sym(eps_sym),
+        x: Expr::sym(states[0]),
+        y: Expr::sym(states[1]),
+        cos_t: ok(Expr::cos_of(&t(), &states), "cos t"),
+        sin_t: ok(Expr::sin_of(&t(), &states), "sin t"),
+        sin_2t: ok(Expr::sin_of(&t().scale(&Q::int(2)), &states), "sin 2t"),
+    }
+}
+
 /// An output that depends on time is read as `h(t, x(t))`: its flow terms
 /// are the eps-coefficients of `h` at the exact solution, with the time
 /// factors of `h` left as they are. The system `x' = eps·y, y' = eps·cos t`
@@ -871,21 +902,17 @@ fn flow_terms_are_eps_coefficients_of_exact_solutions() {
 /// (checked exactly here before use); output `h = x·cos t + y²·sin 2t + t·x`.
 #[test]
 fn flow_of_a_time_varying_output_is_the_output_along_the_solution() {
-    let states = [Sym::new("x"), Sym::new("y")];
-    let eps_sym = Sym::new("eps");
-    let eps = Expr::sym(eps_sym);
-    let (x, y) = (Expr::sym(states[0]), Expr::sym(states[1]));
-    let cos_t = ok(Expr::cos_of(&t(), &states), "cos t");
-    let sin_t = ok(Expr::sin_of(&t(), &states), "sin t");
-    let sin_2t = ok(Expr::sin_of(&t().scale(&Q::int(2)), &states), "sin 2t");
+    let e = exact_setting();
+    let (states, eps) = (e.states, &e.eps);
+    let (x, y) = (&e.x, &e.y);
     let m = |a: &Expr, b: &Expr| ok(a.mul(b), "product");
-    let ys = y.add(&m(&eps, &sin_t));
+    let ys = y.add(&m(eps, &e.sin_t));
     let xs = x
-        .add(&m(&eps, &m(&t(), &y)))
-        .add(&m(&m(&eps, &eps), &Expr::int(1).sub(&cos_t)));
-    let v = Field(vec![m(&eps, &y), m(&eps, &cos_t)]);
+        .add(&m(eps, &m(&t(), y)))
+        .add(&m(&m(eps, eps), &Expr::int(1).sub(&e.cos_t)));
+    let v = Field(vec![m(eps, y), m(eps, &e.cos_t)]);
     assert_solution(&xs, &ys, &v.0[0], &v.0[1]);
-    let h = m(&x, &cos_t).add(&m(&m(&y, &y), &sin_2t)).add(&m(&t(), &x));
+    let h = m(x, &e.cos_t).add(&m(&m(y, y), &e.sin_2t)).add(&m(&t(), x));
     let mut map = HashMap::new();
     map.insert(states[0], xs);
     map.insert(states[1], ys);
@@ -895,7 +922,7 @@ fn flow_of_a_time_varying_output_is_the_output_along_the_solution() {
     for k in 1..=n {
         let expected = m(
             &ok(eps.pow(k as i64), "eps^k"),
-            &along.coeff_of_power(eps_sym, k as i32),
+            &along.coeff_of_power(e.eps_sym, k as i32),
         );
         assert_eq!(terms[k - 1], expected, "flow term {k}");
     }

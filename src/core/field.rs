@@ -132,7 +132,8 @@ impl Field {
         Ok(acc.finish())
     }
 
-    fn check_states(&self, states: &[Sym]) -> CoreResult<()> {
+    /// An error unless the field has one component per state coordinate.
+    pub(crate) fn check_states(&self, states: &[Sym]) -> CoreResult<()> {
         if self.dim() != states.len() {
             return Err(CoreError::Dimension {
                 what: format!(

@@ -124,15 +124,7 @@ pub fn forward_flow(
     states: &[Sym],
 ) -> CoreResult<Option<Vec<Vec<Expr>>>> {
     limits::check_order(n as u64)?;
-    if v.dim() != states.len() {
-        return Err(CoreError::Dimension {
-            what: format!(
-                "a field of dimension {} on {} state coordinates",
-                v.dim(),
-                states.len()
-            ),
-        });
-    }
+    v.check_states(states)?;
     let dim = states.len();
     let mut nodes = Nodes::default();
     let Some(dv) = derivatives(&v.0, n.saturating_sub(1), states, &mut nodes)? else {
