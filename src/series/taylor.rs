@@ -78,18 +78,20 @@ fn derivatives(
     let dim = states.len();
     let mut out: Vec<(usize, Vec<Expr>)> = Vec::new();
     let mut held = 0usize;
-    // Frontier of one degree: (multi-index, node, components).
-    let mut frontier: Vec<(Vec<u32>, Option<usize>, Vec<Expr>)> =
-        vec![(vec![0; dim], None, g.to_vec())];
+    // Frontier of one degree: (multi-index, node, its entry in `out`; the
+    // root, `g` itself, has neither).
+    let mut frontier: Vec<(Vec<u32>, Option<usize>, Option<usize>)> =
+        vec![(vec![0; dim], None, None)];
     for _ in 1..=max {
         limits::poll()?;
         let mut next = Vec::new();
-        for (alpha, node, comps) in &frontier {
+        for (alpha, node, entry) in &frontier {
             let last = alpha.iter().rposition(|&a| a > 0).unwrap_or(0);
             for (i, s) in states.iter().enumerate().skip(last) {
                 let mut beta = alpha.clone();
                 beta[i] += 1;
                 let inv = Q::ratio(1, i64::from(beta[i])).unwrap_or(Q::ONE);
+                let comps = entry.map_or(g, |e| &out[e].1[..]);
                 let d: Vec<Expr> = comps.iter().map(|c| c.pd(*s).scale(&inv)).collect();
                 if d.iter().all(Expr::is_zero) {
                     continue;
@@ -101,8 +103,8 @@ fn derivatives(
                     return Ok(None);
                 }
                 let id = nodes.get_or_add(&beta, *node, i);
-                out.push((id, d.clone()));
-                next.push((beta, Some(id), d));
+                next.push((beta, Some(id), Some(out.len())));
+                out.push((id, d));
             }
         }
         if next.is_empty() {
@@ -151,7 +153,8 @@ pub fn forward_flow(
     };
     let dv = split(dv);
     let dh: Vec<Vec<(usize, Vec<Harmonics>)>> = dh.into_iter().map(split).collect();
-    // delta[i][m] = [δ_i]_m (index 0 unused); powers[node][m] = [δ^α]_m.
+    // delta[i][m] = [δ_i]_m (index 0 unused); powers[node][m] = [δ^α]_m
+    // for nodes of degree 2 and more (read both through `power`).
     let mut delta: Vec<Vec<Harmonics>> = vec![vec![Vec::new()]; dim];
     let mut powers: Vec<Vec<Harmonics>> = nodes.list.iter().map(|_| vec![Vec::new()]).collect();
     // The last order feeds only the outputs: the nodes of their
@@ -177,13 +180,14 @@ pub fn forward_flow(
             let node = &nodes.list[id];
             let value = match node.parent {
                 _ if only_outputs && !for_outputs[id] => Vec::new(),
-                None => delta[node.var][m].clone(),
+                // Degree 1: `δ` itself, read from `delta` (see `power`).
+                None => Vec::new(),
                 Some(_) if node.degree > m => Vec::new(),
                 Some(p) => {
                     let mut acc = Acc::new();
                     let d = &delta[node.var];
                     for j in 1..=(m + 1 - node.degree) {
-                        let lower = &powers[p][m - j];
+                        let lower = power(&nodes, delta, powers, p, m - j);
                         if lower.is_empty() || d[j].is_empty() {
                             continue;
                         }
@@ -197,10 +201,14 @@ pub fn forward_flow(
         Ok(())
     };
     // Σ_α D[α]_c · [δ^α]_m for one set of derivatives.
-    let expand = |ds: &[(usize, Vec<Harmonics>)], c: usize, m: usize, powers: &[Vec<Harmonics>]| {
+    let expand = |ds: &[(usize, Vec<Harmonics>)],
+                  c: usize,
+                  m: usize,
+                  delta: &[Vec<Harmonics>],
+                  powers: &[Vec<Harmonics>]| {
         let mut acc = Acc::new();
         for (id, d) in ds {
-            let p = &powers[*id][m];
+            let p = power(&nodes, delta, powers, *id, m);
             if d[c].is_empty() || p.is_empty() {
                 continue;
             }
@@ -221,12 +229,11 @@ pub fn forward_flow(
             fill_powers(m, false, &delta, &mut powers)?;
         }
         for c in 0..dim {
-            let w = if m == 0 {
-                v_parts[c].clone()
+            let d = if m == 0 {
+                integral_from_zero(&v_parts[c])?
             } else {
-                expand(&dv, c, m, &powers)?.finish_parts()
+                integral_from_zero(&expand(&dv, c, m, &delta, &powers)?.finish_parts())?
             };
-            let d = integral_from_zero(&w)?;
             limits::check_terms(d.iter().map(Part::len).sum())?;
             delta[c].push(d);
         }
@@ -239,13 +246,29 @@ pub fn forward_flow(
         let mut terms = Vec::with_capacity(n);
         for k in 1..=n {
             limits::poll()?;
-            let y = expand(ds, 0, k, &powers)?.finish();
+            let y = expand(ds, 0, k, &delta, &powers)?.finish();
             limits::check_terms(y.len())?;
             terms.push(y);
         }
         out.push(terms);
     }
     Ok(Some(out))
+}
+
+/// `[δ^α]_m` for node `id`: `[δ_i]_m` itself for a node of degree 1
+/// (kept only in `delta`), the stored power otherwise.
+fn power<'a>(
+    nodes: &Nodes,
+    delta: &'a [Vec<Harmonics>],
+    powers: &'a [Vec<Harmonics>],
+    id: usize,
+    m: usize,
+) -> &'a Harmonics {
+    let node = &nodes.list[id];
+    match node.parent {
+        None => &delta[node.var][m],
+        Some(_) => &powers[id][m],
+    }
 }
 
 /// The number a split expression equals, if it is one.
