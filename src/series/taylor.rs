@@ -185,13 +185,15 @@ pub fn forward_flow(
                 Some(_) if node.degree > m => Vec::new(),
                 Some(p) => {
                     let mut acc = Acc::new();
-                    let d = &delta[node.var];
-                    for j in 1..=(m + 1 - node.degree) {
+                    // [δ^α]_m = Σ_j [δ^{α − e_i}]_{m − j} [δ_i]_j, the
+                    // lower power being of order at least |α| − 1.
+                    let d = &delta[node.var][..=m + 1 - node.degree];
+                    for (j, dj) in d.iter().enumerate().skip(1) {
                         let lower = power(&nodes, delta, powers, p, m - j);
-                        if lower.is_empty() || d[j].is_empty() {
+                        if lower.is_empty() || dj.is_empty() {
                             continue;
                         }
-                        acc.add_product_harmonics(lower, &d[j], false, Keep::All)?;
+                        acc.add_product_harmonics(lower, dj, false, Keep::All)?;
                     }
                     acc.finish_parts()
                 }
