@@ -1515,6 +1515,9 @@ fn linear_arg(func: &'static str, arg: &Expr, states: &[Sym]) -> CoreResult<Line
                     .iter()
                     .find(|(s, _)| *s != Sym::T && *s != Sym::PI && !states.contains(s))
                 {
+                    if super::func::atom(*p).is_some() {
+                        return Err(nonlinear());
+                    }
                     if k.mono.exp_of(Sym::T) != 0 {
                         return Err(CoreError::SymbolicFrequency {
                             arg: arg.to_string(),

@@ -473,9 +473,8 @@ impl Session {
                             span,
                             format!(
                                 "a derivative of the function `{n}` is applied to arguments: \
-                                 write `pd({n}, {})({})`",
+                                 write `pd({n}, {})(…)` (or `{n}'(…)` for one argument)",
                                 f.params[0],
-                                f.params.join(", ")
                             ),
                         ));
                     }
@@ -628,10 +627,9 @@ impl Session {
                             name.span,
                             format!(
                                 "primes mark derivatives of a function of one argument; \
-                                 `{base}` takes {}: write `pd({base}, {})({})`",
+                                 `{base}` takes {}: write `pd({base}, {})(…)`",
                                 sig.params.len(),
                                 sig.params[0],
-                                sig.params.join(", ")
                             ),
                         ));
                     }
@@ -762,7 +760,7 @@ impl Session {
         let shown = format!("{}({})", sig.name, sig.params.join(", "));
         let mut values = Vec::with_capacity(n);
         let st = self.arg_states();
-        for a in args {
+        for (i, a) in args.iter().enumerate() {
             let Arg::Pos(e) = a else {
                 return Err(SessionError::invalid(
                     a.span(),
@@ -774,7 +772,11 @@ impl Session {
                 return Err(SessionError::core(
                     e.span,
                     CoreError::FunctionArgument {
-                        call: format!("{}(…, {x}, …)", sig.name),
+                        call: {
+                            let mut shown: Vec<String> = vec!["…".to_string(); args.len()];
+                            shown[i] = x.to_string();
+                            format!("{}({})", sig.name, shown.join(", "))
+                        },
                         reason,
                     },
                 ));
