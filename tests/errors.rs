@@ -128,3 +128,91 @@ fn an_unclosed_bracket_is_reported_at_the_bracket() {
     assert_eq!(status.exit_code(), 2);
     assert!(out.starts_with("open.ordex:2:5:"), "{out}");
 }
+
+/// Bad uses of unspecified functions (`func`): each is an error located on
+/// its line with a caret, and the session is unchanged by it (the same
+/// `names` listing and the same value of a definition afterwards).
+#[test]
+fn bad_uses_of_unspecified_functions_change_nothing() {
+    const FUNC_PREAMBLE: &str =
+        "state q, p\nparam eps, gam\nfunc V(s), J(a, b)\nX = [p, -V'(q)]\nh = V(q) + J(q, p)\n";
+    const FUNC_CASES: &[&str] = &[
+        "Z = V(q + gam)",
+        "Z = V(t)",
+        "Z = V(q*p)",
+        "Z = V(sin(q))",
+        "Z = V(q, p)",
+        "Z = J(q)",
+        "Z = J'(q, p)",
+        "Z = pd(J, c)(q, p)",
+        "Z = pd(J)(q, p)",
+        "Z = pd(V, q)",
+        "Z = V",
+        "Z = W'(q)",
+        "Z = sin(V(q))",
+        "Z = V(q) + 1/(V(q) + 1)",
+        "func q(s)",
+        "func gam(s)",
+        "func V(r)",
+        "func F(s, s)",
+        "func G",
+        "Z = plug(h, V(s) = p*s)",
+        "Z = plug(h, V(s) = cos(t)*s)",
+        "Z = plug(h, V(s, r) = s)",
+        "Z = plug(h, gam(s) = s)",
+        "Z = plug(h, q = q^2)",
+        "Z = plug(h, q = gam)",
+        "Z = plug(V(q), V(s) = cos(s), q = 1/2)",
+        "carleman X degree 2",
+        "simulate X from q = 1, p = 0 for 1",
+        "stability X at q = 0, p = 0",
+        "average [p, -q] + eps*[0, -V'(q)] to 1 in eps",
+        "Z = V'",
+    ];
+    let listing = |s: &mut Session| {
+        let mut out = String::new();
+        s.run_text("names\nX\nh\n", Some("after.ordex"), &mut |e| {
+            if let Event::Report(r) = e {
+                for l in r.lines {
+                    out.push_str(&l.text);
+                    out.push('\n');
+                }
+            }
+        });
+        out
+    };
+    let mut clean = Session::new();
+    clean.show_timing = false;
+    clean.run_text(FUNC_PREAMBLE, Some("pre.ordex"), &mut |_| {});
+    let before = listing(&mut clean);
+    let mut all = String::new();
+    for case in FUNC_CASES {
+        let mut session = Session::new();
+        session.show_timing = false;
+        session.run_text(FUNC_PREAMBLE, Some("pre.ordex"), &mut |_| {});
+        let mut out = String::new();
+        let status = session.run_text(&format!("{case}\n"), Some("bad.ordex"), &mut |e| {
+            if let Event::Error(m) = e {
+                out.push_str(&m);
+                out.push('\n');
+            }
+        });
+        assert_eq!(
+            status.exit_code(),
+            2,
+            "`{case}` should be an error, got:\n{out}"
+        );
+        assert!(
+            out.contains("bad.ordex:1:"),
+            "`{case}`: not located:\n{out}"
+        );
+        assert!(out.contains('^'), "`{case}`: no caret:\n{out}");
+        assert_eq!(
+            listing(&mut session),
+            before,
+            "`{case}` changed the session"
+        );
+        all.push_str(&format!("## {case}\n{out}\n"));
+    }
+    insta::assert_snapshot!("bad_uses_of_functions", all);
+}

@@ -715,3 +715,232 @@ proptest! {
         run(&mut s, &format!("check F({h}) == {xh}")).map_err(TestCaseError::fail)?;
     }
 }
+
+// ---------------------------------------------------------------------------
+// Unspecified functions (DESIGN §2.7a): atoms `V^(k)(L + c)`, `∂^α J(L1, L2)`.
+
+mod functions {
+    use super::*;
+    use ordex::core::func::Signature;
+    use std::sync::Arc;
+
+    fn sig_v() -> Arc<Signature> {
+        Arc::new(Signature {
+            name: "V".into(),
+            params: vec!["s".into()],
+        })
+    }
+
+    fn sig_j() -> Arc<Signature> {
+        Arc::new(Signature {
+            name: "J".into(),
+            params: vec!["u".into(), "w".into()],
+        })
+    }
+
+    /// A random argument: a linear form with small integer coefficients in
+    /// the states plus a constant 0, 1/2 or pi.
+    #[derive(Clone, Debug)]
+    pub struct ArgSpec {
+        lin: [i64; 3],
+        constant: u8,
+    }
+
+    fn arg_spec() -> impl Strategy<Value = ArgSpec> {
+        (prop::array::uniform3(-2i64..=2), 0u8..3)
+            .prop_map(|(lin, constant)| ArgSpec { lin, constant })
+    }
+
+    fn arg_of(a: &ArgSpec, dim: usize) -> Expr {
+        let st = states(dim);
+        let l = linear_form(&a.lin, 1, &st);
+        match a.constant {
+            0 => l,
+            1 => l.add(&Expr::num(q(1, 2))),
+            _ => l.add(&Expr::sym(Sym::PI)),
+        }
+    }
+
+    /// A random atom: `V^(k)(L)` (k ≤ 2) or `∂^α J(L1, L2)` (|α| ≤ 2).
+    #[derive(Clone, Debug)]
+    pub struct AtomSpec {
+        two: bool,
+        deriv: [u32; 2],
+        a: ArgSpec,
+        b: ArgSpec,
+    }
+
+    fn atom_spec() -> impl Strategy<Value = AtomSpec> {
+        (
+            any::<bool>(),
+            prop::array::uniform2(0u32..=1),
+            arg_spec(),
+            arg_spec(),
+        )
+            .prop_map(|(two, deriv, a, b)| AtomSpec { two, deriv, a, b })
+    }
+
+    fn atom_of(s: &AtomSpec, dim: usize) -> Result<Expr, TestCaseError> {
+        let st = states(dim);
+        if s.two {
+            Expr::apply_function(
+                &sig_j(),
+                &s.deriv,
+                &[arg_of(&s.a, dim), arg_of(&s.b, dim)],
+                &st,
+            )
+            .or_fail("J")
+        } else {
+            Expr::apply_function(
+                &sig_v(),
+                &[s.deriv[0] + s.deriv[1]],
+                &[arg_of(&s.a, dim)],
+                &st,
+            )
+            .or_fail("V")
+        }
+    }
+
+    /// `Σ e_i · A_i^{k_i}` with `e_i` random expressions of the core laws
+    /// and `k_i` in −1..=2.
+    fn with_atoms(
+        parts: &[(Vec<TermSpec>, AtomSpec, i64)],
+        dim: usize,
+    ) -> Result<Expr, TestCaseError> {
+        let mut out = Expr::zero();
+        for (e, a, k) in parts {
+            let base = build_expr(e, dim)?;
+            let atom = atom_of(a, dim)?.pow(*k).or_fail("A^k")?;
+            out = out.add(&base.mul(&atom).or_fail("e*A")?);
+        }
+        Ok(out)
+    }
+
+    fn atom_expr_spec() -> impl Strategy<Value = Vec<(Vec<TermSpec>, AtomSpec, i64)>> {
+        prop::collection::vec((expr_spec(2), atom_spec(), -1i64..=2), 1..=3)
+    }
+
+    proptest! {
+        #![proptest_config(config(64))]
+
+        /// The chain rule on one atom, the product rule and commuting
+        /// partial derivatives on sums of products with atoms (standard
+        /// calculus, from memory).
+        #[test]
+        fn calculus_with_atoms(dim in dim_strategy(), sa in atom_spec(), ea in atom_expr_spec(), eb in atom_expr_spec()) {
+            let st = states(dim);
+            let x = st[0];
+            let atom = atom_of(&sa, dim)?;
+            // ∂_x f^(α)(L1, …) = Σ_j (∂L_j/∂x) f^(α+e_j)(L1, …).
+            let expected = if sa.two {
+                let (l1, l2) = (arg_of(&sa.a, dim).pd(x), arg_of(&sa.b, dim).pd(x));
+                let args = [arg_of(&sa.a, dim), arg_of(&sa.b, dim)];
+                let d1 = Expr::apply_function(&sig_j(), &[sa.deriv[0] + 1, sa.deriv[1]], &args, &st).or_fail("J_a")?;
+                let d2 = Expr::apply_function(&sig_j(), &[sa.deriv[0], sa.deriv[1] + 1], &args, &st).or_fail("J_b")?;
+                l1.mul(&d1).or_fail("l1 d1")?.add(&l2.mul(&d2).or_fail("l2 d2")?)
+            } else {
+                let k = sa.deriv[0] + sa.deriv[1];
+                let d = Expr::apply_function(&sig_v(), &[k + 1], &[arg_of(&sa.a, dim)], &st).or_fail("V'")?;
+                arg_of(&sa.a, dim).pd(x).mul(&d).or_fail("l d")?
+            };
+            prop_assert_eq!(atom.pd(x), expected);
+            let a = with_atoms(&ea, dim)?;
+            let b = with_atoms(&eb, dim)?;
+            let ab = a.mul(&b).or_fail("ab")?;
+            let rule = a.pd(x).mul(&b).or_fail("a'b")?.add(&a.mul(&b.pd(x)).or_fail("ab'")?);
+            prop_assert_eq!(ab.pd(x), rule);
+            let y = st[dim - 1];
+            prop_assert_eq!(a.pd(x).pd(y), a.pd(y).pd(x));
+        }
+
+        /// The printed form of an expression with atoms reads back to the
+        /// same normal form in a session that declares the functions.
+        #[test]
+        fn round_trip_with_atoms(dim in dim_strategy(), ea in atom_expr_spec()) {
+            let a = with_atoms(&ea, dim)?;
+            let mut s = session_for(dim)?;
+            run(&mut s, &format!("func V(s), J(u, w)\nE = {a}")).map_err(TestCaseError::fail)?;
+            match s.get("E") {
+                Some(Value::Scalar(e)) => prop_assert_eq!(e, &a, "printed: {}", a),
+                other => return Err(TestCaseError::fail(format!("E is {other:?}"))),
+            }
+            let printed = run(&mut s, "E").map_err(TestCaseError::fail)?;
+            prop_assert_eq!(printed, vec![a.to_string()]);
+        }
+    }
+
+    /// One random right-hand side of the averaging law: a few terms
+    /// `c · q^i p^j · atom · {1, cos t, sin t, cos 2t}`.
+    fn rhs_text(terms: &[(i64, u8, u8, u8)], fast: bool) -> String {
+        // With the fast oscillation `cos(t)*[0, a*V(q)]` the atoms depend
+        // on q alone, so that the ad-series ends (a mechanical system).
+        const ATOMS: [&str; 4] = ["V(q)", "V'(q)", "V(q + pi)", "V'(p - q)"];
+        let n_atoms = if fast { 3 } else { 4 };
+        const MONOS: [&str; 3] = ["1", "q", "p"];
+        const BEATS: [&str; 4] = ["1", "cos(t)", "sin(t)", "cos(2*t)"];
+        let parts: Vec<String> = terms
+            .iter()
+            .map(|(c, m, a, b)| {
+                format!(
+                    "({c})*{}*{}*{}",
+                    MONOS[*m as usize % 3],
+                    ATOMS[*a as usize % n_atoms],
+                    BEATS[*b as usize % 4]
+                )
+            })
+            .collect();
+        parts.join(" + ")
+    }
+
+    fn rhs_spec() -> impl Strategy<Value = Vec<(i64, u8, u8, u8)>> {
+        prop::collection::vec(
+            (prop_oneof![-3i64..=-1, 1i64..=3], 0u8..3, 0u8..4, 0u8..4),
+            1..=3,
+        )
+    }
+
+    proptest! {
+        #![proptest_config(config(48))]
+
+        /// Averaging commutes with plugging a definition: averaging with V
+        /// unspecified, then plugging a concrete V, gives the averaged
+        /// concrete system, at every order, for stroboscopic and classical
+        /// averaging, in the standard and the fast-oscillation form (the
+        /// averaged field is built from brackets, means and integrals,
+        /// each of which commutes with the substitution).
+        #[test]
+        fn averaging_commutes_with_plugging_a_definition(
+            f1 in rhs_spec(),
+            f2 in rhs_spec(),
+            fast in any::<bool>(),
+            classic in any::<bool>(),
+            order in 1usize..=3,
+            def in 0u8..3,
+            c in prop::array::uniform3(1i64..=2),
+        ) {
+            let mut s = Session::new();
+            let base = if fast { " + cos(t)*[0, a*V(q)]" } else { "" };
+            let definition = match def {
+                0 => format!("V(s) = ({})*s + ({})*s^2 + ({})*s^3", c[0], c[1], c[2]),
+                1 => format!("V(s) = ({})*cos(s) + ({})*sin(2*s)", c[0], c[1]),
+                _ => format!("V(s) = ({}) + ({})*s*cos(s)", c[0], c[1]),
+            };
+            let method = if classic { "classic" } else { "strobo" };
+            let text = format!(
+                "state q, p\nparam eps, a\nfunc V(s)\n\
+                 S = eps*[p + {}, {}]{base}\n\
+                 A = average S to {order} in eps {method}\n\
+                 Sc = plug(S, {definition})\n\
+                 Ac = average Sc to {order} in eps {method}\n\
+                 check plug(A, {definition}) == Ac",
+                rhs_text(&f1, fast),
+                rhs_text(&f2, fast)
+            );
+            run(&mut s, &text).map_err(TestCaseError::fail)?;
+            for k in 1..=order {
+                run(&mut s, &format!("check plug(order(A, eps, {k}), {definition}) == order(Ac, eps, {k})"))
+                    .map_err(TestCaseError::fail)?;
+            }
+        }
+    }
+}

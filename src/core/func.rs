@@ -250,19 +250,28 @@ pub fn show_arg(a: &Arg) -> String {
     s
 }
 
+/// `f^(α)(args)` in the input syntax, the arguments already shown.
+fn show_call(sig: &Signature, deriv: &[u32], args: &[String]) -> String {
+    let args = args.join(", ");
+    let name = &sig.name;
+    let order: u32 = deriv.iter().sum();
+    if sig.params.len() == 1 {
+        format!("{name}{}({args})", "'".repeat(order as usize))
+    } else if order == 0 {
+        format!("{name}({args})")
+    } else {
+        let mut names = Vec::new();
+        for (n, d) in sig.params.iter().zip(deriv) {
+            names.extend(std::iter::repeat_n(n.as_str(), *d as usize));
+        }
+        format!("pd({name}, {})({args})", names.join(", "))
+    }
+}
+
 impl std::fmt::Display for Atom {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         let args: Vec<String> = self.args.iter().map(show_arg).collect();
-        let args = args.join(", ");
-        let name = &self.sig.name;
-        if self.sig.params.len() == 1 {
-            let primes = "'".repeat(self.order() as usize);
-            write!(f, "{name}{primes}({args})")
-        } else if self.order() == 0 {
-            write!(f, "{name}({args})")
-        } else {
-            write!(f, "pd({name}, {})({args})", self.deriv_names().join(", "))
-        }
+        write!(f, "{}", show_call(&self.sig, &self.deriv, &args))
     }
 }
 
@@ -281,7 +290,7 @@ impl Expr {
     ) -> CoreResult<Expr> {
         let shown = || {
             let a: Vec<String> = args.iter().map(Expr::to_string).collect();
-            format!("{}({})", sig.name, a.join(", "))
+            show_call(sig, deriv, &a)
         };
         if args.len() != sig.params.len() || deriv.len() != sig.params.len() {
             return Err(bad_argument(
