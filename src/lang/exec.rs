@@ -81,7 +81,12 @@ impl Session {
                     let p = self.resolve_path(&path.path);
                     let mut text = self.accepted.join("\n");
                     text.push('\n');
-                    crate::lang::files::write_atomic(&p, text.as_bytes()).map_err(|e| {
+                    crate::lang::files::write_file(
+                        &p,
+                        text.as_bytes(),
+                        crate::lang::files::FileKind::Script,
+                    )
+                    .map_err(|e| {
                         SessionError::at(
                             path.span,
                             ErrorKind::File {
@@ -394,7 +399,16 @@ impl Session {
         }
         if let Some(message) = nested_error {
             let ran = std::mem::take(&mut report.journal);
-            return Err(SessionError::at(span, ErrorKind::Nested { message, ran }));
+            let printed = std::mem::take(&mut report.lines);
+            return Err(SessionError::at(
+                span,
+                ErrorKind::Nested {
+                    message,
+                    ran,
+                    printed,
+                    check_failed: report.check_failed,
+                },
+            ));
         }
         if status.quit {
             report.quit = true;

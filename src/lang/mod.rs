@@ -19,4 +19,4 @@ pub mod split;
 pub mod structural;
 pub mod value;
 
-pub use session::{Event, Report, RunStatus, Session, Style};
+pub use session::{Event, Line, Report, RunStatus, Session, Style};

@@ -94,8 +94,14 @@ pub enum ErrorKind {
     File { path: String, reason: String },
     /// An error inside a script run with `run FILE`, already rendered, with
     /// the journal lines of the statements that ran before it (they changed
-    /// the session and belong in the journal).
-    Nested { message: String, ran: Vec<String> },
+    /// the session and belong in the journal) and what they printed (shown
+    /// before the error: a failed check earlier in the script is not lost).
+    Nested {
+        message: String,
+        ran: Vec<String>,
+        printed: Vec<Line>,
+        check_failed: bool,
+    },
 }
 
 /// An error with the span of the offending input.
@@ -174,6 +180,27 @@ impl SessionError {
             ErrorKind::Nested { ran, .. } => ran,
             _ => &[],
         }
+    }
+
+    /// What the statements before the error printed (a `run FILE` that
+    /// failed partway): front ends print it before the error.
+    pub fn printed(&self) -> &[Line] {
+        match &self.kind {
+            ErrorKind::Nested { printed, .. } => printed,
+            _ => &[],
+        }
+    }
+
+    /// A check failed before the error (in a `run FILE` that failed
+    /// partway).
+    pub fn check_failed(&self) -> bool {
+        matches!(
+            self.kind,
+            ErrorKind::Nested {
+                check_failed: true,
+                ..
+            }
+        )
     }
 }
 
@@ -368,6 +395,17 @@ impl Session {
                     }
                 }
                 Err(err) => {
+                    if !err.printed().is_empty() || !err.journal_lines().is_empty() {
+                        // A nested `run` that failed partway: what it
+                        // printed and ran before the error still counts.
+                        status.check_failed |= err.check_failed();
+                        sink(Event::Report(Report {
+                            lines: err.printed().to_vec(),
+                            check_failed: err.check_failed(),
+                            quit: false,
+                            journal: err.journal_lines().to_vec(),
+                        }));
+                    }
                     sink(Event::Error(render_error(stmt, origin, &err)));
                     status.error = true;
                     return status;
