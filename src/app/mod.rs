@@ -13,6 +13,7 @@
 
 pub mod cli;
 pub mod journal;
+pub mod kernel;
 pub mod repl;
 pub mod style;
 
@@ -34,6 +35,11 @@ pub const INLINE_ORIGIN: &str = "-e";
 /// for scripts 0 (all well), 1 (a check failed) or 2 (an error); for the
 /// prompt 0.
 pub fn run(invocation: &Invocation) -> u8 {
+    match &invocation.kernel {
+        Some(cli::Kernel::Install) => return kernel::install(),
+        Some(cli::Kernel::Start(file)) => return kernel::run(file),
+        None => {}
+    }
     let painter = Painter::detect();
     if invocation.sources.is_empty() {
         repl::run_prompt(invocation, painter)

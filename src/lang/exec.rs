@@ -5,7 +5,7 @@
 use std::time::Instant;
 
 use super::ast::{Ident, Rhs, Stmt, StmtKind};
-use super::session::{ErrorKind, Report, Session, SessionError, Style, SymKind};
+use super::session::{ErrorKind, Report, Rich, Session, SessionError, Style, SymKind};
 use super::split::SourceStmt;
 use super::value::Value;
 use crate::core::limits::{self, Limits};
@@ -43,13 +43,17 @@ impl Session {
             StmtKind::Print(e) => {
                 let v = self.eval(e)?;
                 report.push(Style::Result, plain::value(&v));
+                report.rich = Some(Rich::Value(v));
             }
             StmtKind::Run(c) => self.run_command(c, &[], &mut report, started)?,
             StmtKind::Check { lhs, rhs } => self.check(lhs, rhs, &mut report, src, origin)?,
             StmtKind::Show { expr, how } => {
                 let v = self.eval(expr)?;
                 match how.name.as_str() {
-                    "latex" => report.push(Style::Result, latex::value(&v)),
+                    "latex" => {
+                        report.push(Style::Result, latex::value(&v));
+                        report.rich = Some(Rich::Latex);
+                    }
                     "brackets" => match &v {
                         Value::Field(f) => match &f.structure {
                             Some(terms) => report.push(Style::Result, super::structural::show_terms(terms)),
@@ -391,6 +395,7 @@ impl Session {
             match e {
                 super::session::Event::Report(r) => {
                     report.lines.extend(r.lines);
+                    report.plots.extend(r.plots);
                     report.check_failed |= r.check_failed;
                     report.journal.extend(r.journal);
                 }
