@@ -49,7 +49,11 @@ impl Session {
             StmtKind::Show { expr, how } => {
                 let v = self.eval(expr)?;
                 match how.name.as_str() {
-                    "latex" => report.push(Style::Result, latex::value(&v)),
+                    "latex" => {
+                        for l in latex::value(&v, &self.states).lines() {
+                            report.push(Style::Result, l);
+                        }
+                    }
                     "brackets" => match &v {
                         Value::Field(f) => match &f.structure {
                             Some(terms) => report.push(Style::Result, super::structural::show_terms(terms)),
