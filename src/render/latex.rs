@@ -196,12 +196,15 @@ fn is_simple_lin(l: &Lin) -> bool {
 fn term(k: &Key, c: &Q, states: &[Sym], lead: Option<Sym>) -> (bool, String) {
     let mut up: Vec<(u8, String)> = Vec::new();
     let mut down: Vec<String> = Vec::new();
-    let mut vars: Vec<(u8, String)> = Vec::new();
+    let mut vars: Vec<(usize, String)> = Vec::new();
     for (s, e) in &k.mono.0 {
         let n = name(&s.name());
-        if states.contains(s) || *s == Sym::T {
-            let rank = u8::from(*s != Sym::T);
-            vars.push((rank, power(&n, *e as i64)));
+        if let Some(i) = states.iter().position(|x| x == s) {
+            vars.push((i + 1, power(&n, *e as i64)));
+            continue;
+        }
+        if *s == Sym::T {
+            vars.push((0, power(&n, *e as i64)));
             continue;
         }
         let rank = if Some(*s) == lead {
