@@ -51,7 +51,9 @@ impl Session {
                 let v = self.eval(expr)?;
                 match how.name.as_str() {
                     "latex" => {
-                        report.push(Style::Result, latex::value(&v));
+                        for l in latex::value(&v, &self.states).lines() {
+                            report.push(Style::Result, l);
+                        }
                         report.rich = Some(Rich::Latex);
                     }
                     "brackets" => match &v {
