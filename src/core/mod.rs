@@ -7,6 +7,7 @@ pub mod calc;
 pub mod error;
 pub mod expr;
 pub mod field;
+pub mod func;
 pub mod limits;
 pub mod num;
 pub mod packed;

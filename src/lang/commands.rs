@@ -465,6 +465,18 @@ impl Session {
 
     fn carleman(&self, x: &Field, degree: u32, span: Span, report: &mut Report) -> R<Value> {
         let core = |e: CoreError| SessionError::core(span, e);
+        if let Some(a) = x.0.iter().find_map(Expr::first_atom) {
+            return Err(SessionError::invalid(
+                span,
+                format!(
+                    "`carleman` needs a polynomial field, and `{a}` is an unspecified function: \
+                     its section on monomials is not finite (plug a polynomial definition first, \
+                     e.g. `plug(X, {}({}) = …)`)",
+                    a.sig.name,
+                    a.sig.params.join(", ")
+                ),
+            ));
+        }
         // The section is a dense N x N matrix on the C(n + d, d) monomials:
         // with many states it is astronomically large, so count its entries
         // against the term budget before building anything.
