@@ -351,6 +351,7 @@ impl Session {
             ),
             Form::FastOscillation {
                 generator,
+                zero_mean,
                 depth,
                 ended,
             } => {
@@ -365,6 +366,15 @@ impl Session {
                         g.join(" + "),
                         res.period
                     ),
+                );
+                report.push(
+                    Style::Note,
+                    if *zero_mean {
+                        "base: zero-mean antiderivatives U_i = ∫_0^t u_i - mean(∫_0^t u_i) (classical, \
+                         the vibrational transform); full transform x = exp(Y(t))(y + W(t, y))"
+                    } else {
+                        "base: U_i = ∫_0^t u_i (stroboscopic: x = z at multiples of the period)"
+                    },
                 );
                 if *ended {
                     report.push(Style::Note, format!("ad-series ends at depth {depth}"));
@@ -442,6 +452,7 @@ impl Session {
             transform: res.transform.clone(),
             period: res.period.clone(),
             classic: opts.method == Method::Classic,
+            outer: res.outer_at_zero(),
         };
         let mut out = vec![Value::Field(FieldValue {
             field: total,
