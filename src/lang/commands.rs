@@ -432,6 +432,39 @@ impl Session {
                         .map_err(core)?
                 }
             },
+            (Some(combo), Form::FastOscillation { zero_mean, .. }) => {
+                let s = optional_structure(
+                    super::structural::fast_oscillation_structure(
+                        combo,
+                        opts.order,
+                        &res.period,
+                        eps,
+                        *zero_mean,
+                        opts.depth,
+                        &self.states,
+                    ),
+                    report,
+                )
+                .map_err(core)?;
+                if s.is_some() {
+                    let g: Vec<&str> = combo
+                        .parts
+                        .iter()
+                        .filter(|(_, _, c)| !c.coeff_of_power(eps, 0).is_zero())
+                        .map(|(n, _, _)| n.as_str())
+                        .collect();
+                    report.push(
+                        Style::Note,
+                        format!(
+                            "bracket form in the letters with {} commuting (as the fast-oscillation \
+                             form needs): over ad-words [G, [G, …]], those that vanish on these \
+                             fields left out",
+                            g.join(", ")
+                        ),
+                    );
+                }
+                s
+            }
             _ => None,
         };
         if structure.is_some() {

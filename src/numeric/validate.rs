@@ -66,7 +66,15 @@ fn outer_map(
 ) -> Result<Vec<f64>, OdeError> {
     let Some(y) = y else { return Ok(x) };
     let mut rhs = |t: f64, z: &[f64], dz: &mut [f64]| y.eval(t, z, dz);
-    let out = integrate_at(&mut rhs, 0.0, &x, &[1.0], &compare_options(), cancel, &mut |_| {})?;
+    let out = integrate_at(
+        &mut rhs,
+        0.0,
+        &x,
+        &[1.0],
+        &compare_options(),
+        cancel,
+        &mut |_| {},
+    )?;
     Ok(out.states.into_iter().next().unwrap_or(x))
 }
 
