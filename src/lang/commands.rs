@@ -72,6 +72,7 @@ impl Session {
                 want(1, span)?;
                 let n = order_arg(to.value, to.span)?;
                 let v = self.eval_field(field, "the field of `flow`")?;
+                self.refuse_phase(&v.field.0, field.span, "the field of `flow`")?;
                 let h = match on {
                     Some(h) => Some(self.eval_scalar(h, "the output of `flow … on h`")?),
                     None => None,
@@ -82,6 +83,7 @@ impl Session {
                 want(1, span)?;
                 let n = order_arg(to.value, to.span)?;
                 let v = self.eval_field(field, "the field of `magnus`")?;
+                self.refuse_phase(&v.field.0, field.span, "the field of `magnus`")?;
                 let period = match over {
                     Some(t) => Some((
                         self.eval_scalar(t, "the horizon of `magnus … over T`")?,
@@ -95,6 +97,7 @@ impl Session {
                 field,
                 to,
                 param,
+                inverse,
                 method,
                 depth,
                 with_transform,
@@ -102,6 +105,9 @@ impl Session {
                 let n = order_arg(to.value, to.span)?;
                 let v = self.eval_field(field, "the system of `average`")?;
                 let eps = self.param_sym(param)?;
+                if !*inverse {
+                    self.refuse_phase(&v.field.0, field.span, "the system of `average … in eps`")?;
+                }
                 let method = match method.as_ref().map(|m| m.name.as_str()) {
                     None | Some("strobo") => Method::Strobo,
                     Some("classic") => Method::Classic,
@@ -130,7 +136,11 @@ impl Session {
                     depth,
                     with_transform: *with_transform,
                 };
-                self.average(&v, eps, &opts, span, report)?
+                if *inverse {
+                    self.average_in_frequency(&v, eps, &opts, span, report)?
+                } else {
+                    self.average(&v, eps, &opts, span, report)?
+                }
             }
             CommandKind::Carleman { field, degree } => {
                 want(1, span)?;
