@@ -277,8 +277,10 @@ pub enum CommandKind {
         field: Expr,
         /// The order after `to`.
         to: Spanned<u64>,
-        /// The small parameter after `in`.
+        /// The small parameter after `in` (the frequency of `in 1/w`).
         param: Ident,
+        /// `in 1/w`: a symbolic frequency w, eps = 1/w (DESIGN §2.7c).
+        inverse: bool,
         /// `strobo` or `classic` as typed.
         method: Option<Ident>,
         /// The ad-series depth after `depth`.
@@ -524,13 +526,15 @@ fn write_command(out: &mut String, command: &Command) {
             field,
             to,
             param,
+            inverse,
             method,
             depth,
             with_transform,
         } => {
             out.push_str("(average ");
             write_expr(out, field);
-            let _ = write!(out, " to {} in {}", to.value, param.name);
+            let per = if *inverse { "1/" } else { "" };
+            let _ = write!(out, " to {} in {per}{}", to.value, param.name);
             if let Some(method) = method {
                 out.push(' ');
                 out.push_str(&method.name);

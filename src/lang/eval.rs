@@ -436,7 +436,12 @@ impl Session {
             f @ ("sin" | "cos" | "exp") => {
                 let a = self.pos_args(name, args, 1, &format!("{f}(x)"))?;
                 let x = self.eval_scalar(a[0], &format!("the argument of `{f}`"))?;
-                let st = self.arg_states();
+                // `w*t` (w a parameter) is a symbolic-frequency phase (DESIGN §2.7c).
+                let (x, mut st) = match f {
+                    "exp" => (x, self.states.clone()),
+                    _ => self.phase_arg(&x),
+                };
+                st.extend(self.placeholders.borrow().iter().map(|(_, s)| *s));
                 let r = match f {
                     "sin" => Expr::sin_of(&x, &st),
                     "cos" => Expr::cos_of(&x, &st),
@@ -484,7 +489,16 @@ impl Session {
                     &[SymKind::State, SymKind::Param],
                     "the second argument of `pd` must be a state, a parameter or t",
                 )?;
-                match self.eval(a[0])? {
+                let v = self.eval(a[0])?;
+                if s == Sym::T {
+                    let es: Vec<&Expr> = match &v {
+                        Value::Scalar(x) => vec![x],
+                        Value::Field(f) => f.field.0.iter().collect(),
+                        Value::Matrix(m) => m.data.iter().collect(),
+                    };
+                    self.refuse_phase(es, a[0].span, "`pd(…, t)` of this expression")?;
+                }
+                match v {
                     Value::Scalar(h) => Ok(Value::Scalar(h.pd(s))),
                     Value::Field(f) => Ok(Value::field(Field(
                         f.field.0.iter().map(|c| c.pd(s)).collect(),
@@ -565,6 +579,7 @@ impl Session {
                     Value::Field(f) => f.field.0.iter().collect(),
                     Value::Matrix(m) => m.data.iter().collect(),
                 };
+                self.refuse_phase(exprs.iter().copied(), a[0].span, "the argument of `mean`")?;
                 let mut freqs = Vec::new();
                 for x in &exprs {
                     x.check_periodic()
@@ -694,11 +709,17 @@ impl Session {
             return Err(SessionError::invalid(name.span, "usage: plug(e, q = v, …)"));
         };
         let core = |err: CoreError| SessionError::core(span, err);
-        let st = &self.states;
         let mut value = self.eval(target)?;
         for def in &mut defs {
-            value = map_value(value, &mut |c: &Expr| c.plug_definition(def, st)).map_err(core)?;
+            value = map_value(value, &mut |c: &Expr| c.plug_definition(def, &self.states))
+                .map_err(core)?;
         }
+        let es: Vec<&Expr> = match &value {
+            Value::Scalar(x) => vec![x],
+            Value::Field(f) => f.field.0.iter().collect(),
+            Value::Matrix(m) => m.data.iter().collect(),
+        };
+        let st = &self.plug_phases(&es, &mut map, span)?;
         Ok(match value {
             Value::Scalar(x) => Value::Scalar(x.subst(&map, st).map_err(core)?),
             Value::Field(f) => Value::field(f.field.map(|c| c.subst(&map, st)).map_err(core)?),

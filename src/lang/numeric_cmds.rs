@@ -316,6 +316,13 @@ impl Session {
                     ),
                     _ => None,
                 };
+                let outer = match (&info.outer, info.classic) {
+                    (Some(y), true) => Some(
+                        CompiledField::new(y, &self.states, &floats)
+                            .map_err(|e| compile_err(model.span, e))?,
+                    ),
+                    _ => None,
+                };
                 let n_orders = orders.len();
                 let mut table: Vec<Vec<f64>> = Vec::new();
                 let mut bar = Progress::new(eps_values.len() as u64, "compare");
@@ -332,6 +339,7 @@ impl Session {
                         system: &sys,
                         orders: &orders,
                         transform: transform.as_deref(),
+                        outer: outer.as_ref(),
                         eps: *e,
                         period,
                         n_periods,

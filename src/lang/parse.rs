@@ -1564,6 +1564,11 @@ impl<'a> Parser<'a> {
                 "`in` and the small parameter after the order in `average`",
             );
         };
+        // `in 1/w`: a symbolic frequency (DESIGN §2.7c).
+        let (after_in, inverse) = match ws(after_in).strip_prefix('1') {
+            Some(r) if ws(r).starts_with('/') => (&ws(r)[1..], true),
+            _ => (after_in, false),
+        };
         let (mut rest, param) = self.name(after_in, "the small parameter after `in`")?;
         let mut method: Option<Ident> = None;
         let mut depth: Option<Spanned<u64>> = None;
@@ -1614,6 +1619,7 @@ impl<'a> Parser<'a> {
                 field,
                 to,
                 param,
+                inverse,
                 method,
                 depth,
                 with_transform,
