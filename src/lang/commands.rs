@@ -98,6 +98,7 @@ impl Session {
                 method,
                 depth,
                 with_transform,
+                chart,
             } => {
                 let n = order_arg(to.value, to.span)?;
                 let v = self.eval_field(field, "the system of `average`")?;
@@ -130,7 +131,17 @@ impl Session {
                     depth,
                     with_transform: *with_transform,
                 };
-                self.average(&v, eps, &opts, span, report)?
+                let results = self.average(&v, eps, &opts, span, report)?;
+                if chart.is_empty() {
+                    self.note_averaged_chart(report);
+                    results
+                } else {
+                    self.name_averaged_state(chart, results, span, report)?
+                }
+            }
+            CommandKind::Change { field, to, by } => {
+                want(1, span)?;
+                vec![self.change(field, to, by, span, report)?]
             }
             CommandKind::Carleman { field, degree } => {
                 want(1, span)?;

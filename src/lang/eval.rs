@@ -54,7 +54,13 @@ impl Session {
             .chain(["t", "pi"].iter().map(|s| s.to_string()));
         for c in candidates {
             let d = edit_distance(name, &c);
-            if d <= 2 && d < name.len().max(2) && best.as_ref().is_none_or(|(bd, _)| d < *bd) {
+            // Never the name itself: a name that exists but is not a value
+            // gets its own message where it matters.
+            if d > 0
+                && d <= 2
+                && d < name.len().max(2)
+                && best.as_ref().is_none_or(|(bd, _)| d < *bd)
+            {
                 best = Some((d, c));
             }
         }

@@ -246,6 +246,8 @@ pub struct Session {
     pub(crate) run_depth: usize,
     /// Show timings in command summaries.
     pub show_timing: bool,
+    /// Charts beyond the declared state, and the chart of each bound value.
+    pub(crate) charts: super::chart::Charts,
 }
 
 impl Default for Session {
@@ -268,6 +270,7 @@ impl Session {
             base_dir: PathBuf::from("."),
             run_depth: 0,
             show_timing: true,
+            charts: Default::default(),
         }
     }
 
@@ -323,7 +326,14 @@ impl Session {
             parse_stmt(&stmt.text).map_err(|e| SessionError::at(e.span, ErrorKind::Parse(e)))?;
         let started = Instant::now();
         super::progress::install();
-        let result = self.execute_parsed(&parsed, stmt, origin, started);
+        let result = match self.enter_chart(&parsed) {
+            Ok(scope) => {
+                let result = self.execute_parsed(&parsed, stmt, origin, started);
+                self.leave_chart(scope);
+                result
+            }
+            Err(e) => Err(e),
+        };
         super::progress::remove();
         let mut report = result?;
         let is_file_op = matches!(parsed.kind, StmtKind::Save(_) | StmtKind::RunFile(_));
