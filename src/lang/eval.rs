@@ -4,7 +4,7 @@
 use std::collections::HashMap;
 
 use super::ast::{Arg, BinOp, Expr as Ast, ExprKind, Ident, Span};
-use super::session::{edit_distance, ErrorKind, Session, SessionError, SymKind};
+use super::session::{ErrorKind, Session, SessionError, SymKind};
 use super::value::{Combo, FieldValue, Value};
 use crate::core::calc::common_period;
 use crate::core::{CoreError, Expr, Field, Matrix, Sym, Q};
@@ -67,25 +67,13 @@ impl Session {
 
     /// Suggests the nearest known name.
     pub(crate) fn suggest(&self, name: &str) -> Option<String> {
-        let mut best: Option<(usize, String)> = None;
-        let candidates = self
-            .known_names()
-            .into_iter()
-            .chain(BUILTINS.iter().map(|s| s.to_string()))
-            .chain(["t", "pi"].iter().map(|s| s.to_string()));
-        for c in candidates {
-            let d = edit_distance(name, &c);
-            // Never the name itself: a name that exists but is not a value
-            // gets its own message where it matters.
-            if d > 0
-                && d <= 2
-                && d < name.len().max(2)
-                && best.as_ref().is_none_or(|(bd, _)| d < *bd)
-            {
-                best = Some((d, c));
-            }
-        }
-        best.map(|(_, c)| c)
+        let known = self.known_names();
+        let candidates = known
+            .iter()
+            .map(String::as_str)
+            .chain(BUILTINS.iter().copied())
+            .chain(["t", "pi"]);
+        super::diag::nearest(name, candidates).map(str::to_string)
     }
 
     fn unknown(&self, name: &str, span: Span) -> SessionError {

@@ -103,9 +103,12 @@ impl Session {
                 let text =
                     super::help::help(word.as_ref().map(|w| w.name.as_str())).ok_or_else(|| {
                         let w = word.as_ref().map_or(String::new(), |w| w.name.clone());
+                        let hint = super::diag::nearest(&w, super::help::topic_words())
+                            .map(|h| format!(" (did you mean `help {h}`?)"))
+                            .unwrap_or_default();
                         SessionError::invalid(
                             word.as_ref().map_or(stmt.span, |w| w.span),
-                            format!("no help for `{w}`; `help` lists the topics"),
+                            format!("no help for `{w}`{hint}; `help` lists the topics"),
                         )
                     })?;
                 for l in text.lines() {

@@ -322,8 +322,14 @@ impl Session {
     ) -> Result<Report, SessionError> {
         limits::clear_interrupt();
         limits::start_work();
-        let parsed =
-            parse_stmt(&stmt.text).map_err(|e| SessionError::at(e.span, ErrorKind::Parse(e)))?;
+        let parsed = parse_stmt(&stmt.text).map_err(|e| {
+            match super::diag::misspelt_command(&stmt.text, |w| {
+                self.symbols.contains_key(w) || self.names.contains_key(w)
+            }) {
+                Some((span, msg)) => SessionError::invalid(span, msg),
+                None => SessionError::at(e.span, ErrorKind::Parse(e)),
+            }
+        })?;
         let started = Instant::now();
         super::progress::install();
         let result = match self.enter_chart(&parsed) {
