@@ -5,7 +5,7 @@
 use std::time::Instant;
 
 use super::ast::{Ident, Rhs, Stmt, StmtKind};
-use super::session::{ErrorKind, Report, Session, SessionError, Style, SymKind};
+use super::session::{ErrorKind, Report, Rich, Session, SessionError, Style, SymKind};
 use super::split::SourceStmt;
 use super::value::Value;
 use crate::core::limits::{self, Limits};
@@ -43,13 +43,19 @@ impl Session {
             StmtKind::Print(e) => {
                 let v = self.eval(e)?;
                 report.push(Style::Result, plain::value(&v));
+                report.rich = Some(Rich::Value(v));
             }
             StmtKind::Run(c) => self.run_command(c, &[], &mut report, started)?,
             StmtKind::Check { lhs, rhs } => self.check(lhs, rhs, &mut report, src, origin)?,
             StmtKind::Show { expr, how } => {
                 let v = self.eval(expr)?;
                 match how.name.as_str() {
-                    "latex" => report.push(Style::Result, latex::value(&v)),
+                    "latex" => {
+                        for l in latex::value(&v, &self.states).lines() {
+                            report.push(Style::Result, l);
+                        }
+                        report.rich = Some(Rich::Latex);
+                    }
                     "brackets" => match &v {
                         Value::Field(f) => match &f.structure {
                             Some(terms) => report.push(Style::Result, super::structural::show_terms(terms)),
@@ -81,7 +87,12 @@ impl Session {
                     let p = self.resolve_path(&path.path);
                     let mut text = self.accepted.join("\n");
                     text.push('\n');
-                    crate::lang::files::write_atomic(&p, text.as_bytes()).map_err(|e| {
+                    crate::lang::files::write_file(
+                        &p,
+                        text.as_bytes(),
+                        crate::lang::files::FileKind::Script,
+                    )
+                    .map_err(|e| {
                         SessionError::at(
                             path.span,
                             ErrorKind::File {
@@ -443,6 +454,7 @@ impl Session {
             match e {
                 super::session::Event::Report(r) => {
                     report.lines.extend(r.lines);
+                    report.plots.extend(r.plots);
                     report.check_failed |= r.check_failed;
                     report.journal.extend(r.journal);
                 }
@@ -451,7 +463,16 @@ impl Session {
         }
         if let Some(message) = nested_error {
             let ran = std::mem::take(&mut report.journal);
-            return Err(SessionError::at(span, ErrorKind::Nested { message, ran }));
+            let printed = std::mem::take(&mut report.lines);
+            return Err(SessionError::at(
+                span,
+                ErrorKind::Nested {
+                    message,
+                    ran,
+                    printed,
+                    check_failed: report.check_failed,
+                },
+            ));
         }
         if status.quit {
             report.quit = true;
