@@ -43,7 +43,7 @@ impl Session {
             StmtKind::Print(e) => {
                 let v = self.eval(e)?;
                 report.push(Style::Result, plain::value(&v));
-                report.rich = Some(Rich::Value(v));
+                report.rich = Some(Rich::Value(v, self.states.clone()));
             }
             StmtKind::Run(c) => self.run_command(c, &[], &mut report, started)?,
             StmtKind::Check { lhs, rhs } => self.check(lhs, rhs, &mut report, src, origin)?,

@@ -69,8 +69,9 @@ pub struct Report {
 #[derive(Clone, Debug)]
 pub enum Rich {
     /// The value of a bare expression line (its result line is the value in
-    /// input syntax).
-    Value(Value),
+    /// input syntax), with the session's state order (the LaTeX of a
+    /// product puts parameters before states).
+    Value(Value, Vec<Sym>),
     /// The result lines are LaTeX (`show … as latex`).
     Latex,
 }
@@ -432,6 +433,8 @@ impl Session {
                             check_failed: err.check_failed(),
                             quit: false,
                             journal: err.journal_lines().to_vec(),
+                            rich: None,
+                            plots: Vec::new(),
                         }));
                     }
                     sink(Event::Error(render_error(stmt, origin, &err)));
