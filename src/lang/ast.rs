@@ -287,6 +287,17 @@ pub enum CommandKind {
         depth: Option<Spanned<u64>>,
         /// Whether `with transform` was given.
         with_transform: bool,
+        /// Names for the averaged state after `as` (empty: the system's chart).
+        chart: Vec<Ident>,
+    },
+    /// `change E to r, phi by x = r*cos(phi), v = r*sin(phi)`
+    Change {
+        /// The field or scalar to rewrite.
+        field: Expr,
+        /// The new coordinates after `to`.
+        to: Vec<Ident>,
+        /// The old coordinates as expressions in the new ones, after `by`.
+        by: Vec<Assign>,
     },
     /// `carleman E degree N`
     Carleman {
@@ -530,6 +541,7 @@ fn write_command(out: &mut String, command: &Command) {
             method,
             depth,
             with_transform,
+            chart,
         } => {
             out.push_str("(average ");
             write_expr(out, field);
@@ -544,6 +556,22 @@ fn write_command(out: &mut String, command: &Command) {
             }
             if *with_transform {
                 out.push_str(" transform");
+            }
+            if !chart.is_empty() {
+                let names: Vec<&str> = chart.iter().map(|c| c.name.as_str()).collect();
+                let _ = write!(out, " as {}", names.join(" "));
+            }
+            out.push(')');
+        }
+        CommandKind::Change { field, to, by } => {
+            out.push_str("(change ");
+            write_expr(out, field);
+            let names: Vec<&str> = to.iter().map(|c| c.name.as_str()).collect();
+            let _ = write!(out, " to {} by", names.join(" "));
+            for a in by {
+                let _ = write!(out, " (= {} ", a.name.name);
+                write_expr(out, &a.value);
+                out.push(')');
             }
             out.push(')');
         }

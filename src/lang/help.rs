@@ -60,6 +60,16 @@ pub fn help(word: Option<&str>) -> Option<String> {
     }
 }
 
+/// The help topics and the words `help` also answers for, for suggestions.
+pub fn topic_words() -> Vec<&'static str> {
+    let mut v: Vec<&'static str> = TOPICS.iter().map(|(w, _)| *w).collect();
+    v.extend(super::parse::COMMAND_WORDS);
+    v.extend([
+        "sin", "cos", "exp", "pd", "jac", "plug", "order", "mean", "bch", "iint", "chart",
+    ]);
+    v
+}
+
 /// The caution shown in the README and in help texts.
 pub fn caution() -> &'static str {
     CAUTION

@@ -303,6 +303,8 @@ pub struct Session {
     pub(crate) run_depth: usize,
     /// Show timings in command summaries.
     pub show_timing: bool,
+    /// Charts beyond the declared state, and the chart of each bound value.
+    pub(crate) charts: super::chart::Charts,
 }
 
 impl Default for Session {
@@ -327,6 +329,7 @@ impl Session {
             base_dir: PathBuf::from("."),
             run_depth: 0,
             show_timing: true,
+            charts: Default::default(),
         }
     }
 
@@ -378,11 +381,24 @@ impl Session {
     ) -> Result<Report, SessionError> {
         limits::clear_interrupt();
         limits::start_work();
-        let parsed =
-            parse_stmt(&stmt.text).map_err(|e| SessionError::at(e.span, ErrorKind::Parse(e)))?;
+        let parsed = parse_stmt(&stmt.text).map_err(|e| {
+            match super::diag::misspelt_command(&stmt.text, |w| {
+                self.symbols.contains_key(w) || self.names.contains_key(w)
+            }) {
+                Some((span, msg)) => SessionError::invalid(span, msg),
+                None => SessionError::at(e.span, ErrorKind::Parse(e)),
+            }
+        })?;
         let started = Instant::now();
         super::progress::install();
-        let result = self.execute_parsed(&parsed, stmt, origin, started);
+        let result = match self.enter_chart(&parsed) {
+            Ok(scope) => {
+                let result = self.execute_parsed(&parsed, stmt, origin, started);
+                self.leave_chart(scope);
+                result
+            }
+            Err(e) => Err(e),
+        };
         super::progress::remove();
         let mut report = result?;
         let is_file_op = matches!(parsed.kind, StmtKind::Save(_) | StmtKind::RunFile(_));
