@@ -4,6 +4,7 @@
 //! language, the prompt or floating point. Coefficients are exact rationals.
 
 pub mod calc;
+pub mod chart;
 pub mod error;
 pub mod expr;
 pub mod field;

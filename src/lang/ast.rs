@@ -277,14 +277,27 @@ pub enum CommandKind {
         field: Expr,
         /// The order after `to`.
         to: Spanned<u64>,
-        /// The small parameter after `in`.
+        /// The small parameter after `in` (the frequency of `in 1/w`).
         param: Ident,
+        /// `in 1/w`: a symbolic frequency w, eps = 1/w (DESIGN §2.7c).
+        inverse: bool,
         /// `strobo` or `classic` as typed.
         method: Option<Ident>,
         /// The ad-series depth after `depth`.
         depth: Option<Spanned<u64>>,
         /// Whether `with transform` was given.
         with_transform: bool,
+        /// Names for the averaged state after `as` (empty: the system's chart).
+        chart: Vec<Ident>,
+    },
+    /// `change E to r, phi by x = r*cos(phi), v = r*sin(phi)`
+    Change {
+        /// The field or scalar to rewrite.
+        field: Expr,
+        /// The new coordinates after `to`.
+        to: Vec<Ident>,
+        /// The old coordinates as expressions in the new ones, after `by`.
+        by: Vec<Assign>,
     },
     /// `carleman E degree N`
     Carleman {
@@ -524,13 +537,16 @@ fn write_command(out: &mut String, command: &Command) {
             field,
             to,
             param,
+            inverse,
             method,
             depth,
             with_transform,
+            chart,
         } => {
             out.push_str("(average ");
             write_expr(out, field);
-            let _ = write!(out, " to {} in {}", to.value, param.name);
+            let per = if *inverse { "1/" } else { "" };
+            let _ = write!(out, " to {} in {per}{}", to.value, param.name);
             if let Some(method) = method {
                 out.push(' ');
                 out.push_str(&method.name);
@@ -540,6 +556,22 @@ fn write_command(out: &mut String, command: &Command) {
             }
             if *with_transform {
                 out.push_str(" transform");
+            }
+            if !chart.is_empty() {
+                let names: Vec<&str> = chart.iter().map(|c| c.name.as_str()).collect();
+                let _ = write!(out, " as {}", names.join(" "));
+            }
+            out.push(')');
+        }
+        CommandKind::Change { field, to, by } => {
+            out.push_str("(change ");
+            write_expr(out, field);
+            let names: Vec<&str> = to.iter().map(|c| c.name.as_str()).collect();
+            let _ = write!(out, " to {} by", names.join(" "));
+            for a in by {
+                let _ = write!(out, " (= {} ", a.name.name);
+                write_expr(out, &a.value);
+                out.push(')');
             }
             out.push(')');
         }

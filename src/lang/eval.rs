@@ -4,7 +4,7 @@
 use std::collections::HashMap;
 
 use super::ast::{Arg, BinOp, Expr as Ast, ExprKind, Ident, Span};
-use super::session::{edit_distance, ErrorKind, Session, SessionError, SymKind};
+use super::session::{ErrorKind, Session, SessionError, SymKind};
 use super::value::{Combo, FieldValue, Value};
 use crate::core::calc::common_period;
 use crate::core::func::{Arg as FuncArg, Definition, Signature};
@@ -32,7 +32,28 @@ fn kind_err(span: Span, op: &str, left: &Value, right: Option<&Value>) -> Sessio
 
 /// The symbol name of an iterated integral `iint(u1, u2)`.
 pub fn iint_name(args: &[String]) -> String {
-    format!("iint({})", args.join(", "))
+    crate::series::shuffle::iint_name(args)
+}
+
+/// A value with its products of iterated integrals rewritten as sums
+/// (shuffle identity), so that its normal form is canonical.
+pub(crate) fn reduce_iint_products(v: Value) -> Result<Value, CoreError> {
+    use crate::series::shuffle::reduce_products;
+    Ok(match v {
+        Value::Scalar(x) => Value::Scalar(reduce_products(&x)?),
+        Value::Field(mut f) => {
+            f.field = f.field.map(reduce_products)?;
+            Value::Field(f)
+        }
+        Value::Matrix(m) => Value::Matrix(Matrix {
+            data: m
+                .data
+                .iter()
+                .map(reduce_products)
+                .collect::<Result<_, _>>()?,
+            ..m
+        }),
+    })
 }
 
 impl Session {
@@ -48,19 +69,13 @@ impl Session {
 
     /// Suggests the nearest known name.
     pub(crate) fn suggest(&self, name: &str) -> Option<String> {
-        let mut best: Option<(usize, String)> = None;
-        let candidates = self
-            .known_names()
-            .into_iter()
-            .chain(BUILTINS.iter().map(|s| s.to_string()))
-            .chain(["t", "pi"].iter().map(|s| s.to_string()));
-        for c in candidates {
-            let d = edit_distance(name, &c);
-            if d <= 2 && d < name.len().max(2) && best.as_ref().is_none_or(|(bd, _)| d < *bd) {
-                best = Some((d, c));
-            }
-        }
-        best.map(|(_, c)| c)
+        let known = self.known_names();
+        let candidates = known
+            .iter()
+            .map(String::as_str)
+            .chain(BUILTINS.iter().copied())
+            .chain(["t", "pi"]);
+        super::diag::nearest(name, candidates).map(str::to_string)
     }
 
     fn unknown(&self, name: &str, span: Span) -> SessionError {
@@ -96,7 +111,13 @@ impl Session {
                 )),
                 Value::Matrix(m) => Ok(Value::Matrix(m.mul_expr(&Expr::int(-1)).map_err(core)?)),
             },
-            ExprKind::Bin(op, a, b) => self.eval_bin(*op, a, b, e.span),
+            ExprKind::Bin(op, a, b) => {
+                let v = self.eval_bin(*op, a, b, e.span)?;
+                match op {
+                    BinOp::Mul | BinOp::Div | BinOp::Pow => reduce_iint_products(v).map_err(core),
+                    BinOp::Add | BinOp::Sub => Ok(v),
+                }
+            }
             ExprKind::Call(name, args) => self.eval_call(name, args, e.span),
             ExprKind::Apply(target, args) => {
                 if let Some(v) = self.eval_derivative_call(target, args, e.span)? {
@@ -436,7 +457,12 @@ impl Session {
             f @ ("sin" | "cos" | "exp") => {
                 let a = self.pos_args(name, args, 1, &format!("{f}(x)"))?;
                 let x = self.eval_scalar(a[0], &format!("the argument of `{f}`"))?;
-                let st = self.arg_states();
+                // `w*t` (w a parameter) is a symbolic-frequency phase (DESIGN §2.7c).
+                let (x, mut st) = match f {
+                    "exp" => (x, self.states.clone()),
+                    _ => self.phase_arg(&x),
+                };
+                st.extend(self.placeholders.borrow().iter().map(|(_, s)| *s));
                 let r = match f {
                     "sin" => Expr::sin_of(&x, &st),
                     "cos" => Expr::cos_of(&x, &st),
@@ -484,7 +510,16 @@ impl Session {
                     &[SymKind::State, SymKind::Param],
                     "the second argument of `pd` must be a state, a parameter or t",
                 )?;
-                match self.eval(a[0])? {
+                let v = self.eval(a[0])?;
+                if s == Sym::T {
+                    let es: Vec<&Expr> = match &v {
+                        Value::Scalar(x) => vec![x],
+                        Value::Field(f) => f.field.0.iter().collect(),
+                        Value::Matrix(m) => m.data.iter().collect(),
+                    };
+                    self.refuse_phase(es, a[0].span, "`pd(…, t)` of this expression")?;
+                }
+                match v {
                     Value::Scalar(h) => Ok(Value::Scalar(h.pd(s))),
                     Value::Field(f) => Ok(Value::field(Field(
                         f.field.0.iter().map(|c| c.pd(s)).collect(),
@@ -565,6 +600,7 @@ impl Session {
                     Value::Field(f) => f.field.0.iter().collect(),
                     Value::Matrix(m) => m.data.iter().collect(),
                 };
+                self.refuse_phase(exprs.iter().copied(), a[0].span, "the argument of `mean`")?;
                 let mut freqs = Vec::new();
                 for x in &exprs {
                     x.check_periodic()
@@ -667,6 +703,7 @@ impl Session {
         let mut target = None;
         let mut map: HashMap<Sym, Expr> = HashMap::new();
         let mut defs: Vec<Definition> = Vec::new();
+        let mut inputs: HashMap<String, Expr> = HashMap::new();
         for a in args {
             match a {
                 Arg::BindFunc(id, params, body) => defs.push(self.definition(id, params, body)?),
@@ -675,6 +712,19 @@ impl Session {
                     return Err(SessionError::invalid(e.span, "usage: plug(e, q = v, …)"))
                 }
                 Arg::Bind(id, v) => {
+                    if self.sym_kind(&id.name) == Some(SymKind::Input) {
+                        let val = self.eval_scalar(v, "a plugged input")?;
+                        if !self.is_state_free(&val) {
+                            return Err(SessionError::invalid(
+                                v.span,
+                                format!(
+                                    "an input is a function of time (and parameters): `{val}` mentions the state"
+                                ),
+                            ));
+                        }
+                        inputs.insert(id.name.clone(), val);
+                        continue;
+                    }
                     let s = match id.name.as_str() {
                         "t" => Sym::T,
                         n if matches!(self.sym_kind(n), Some(SymKind::State | SymKind::Param)) => {
@@ -684,7 +734,7 @@ impl Session {
                             return Err(SessionError::invalid(
                                 id.span,
                                 format!(
-                                "`{n}` is not a state or a parameter: only those can be plugged"
+                                "`{n}` is not a state, a parameter or an input: only those can be plugged"
                             ),
                             ))
                         }
@@ -698,24 +748,38 @@ impl Session {
             return Err(SessionError::invalid(name.span, "usage: plug(e, q = v, …)"));
         };
         let core = |err: CoreError| SessionError::core(span, err);
-        let st = &self.states;
         let mut value = self.eval(target)?;
         for def in &mut defs {
-            value = map_value(value, &mut |c: &Expr| c.plug_definition(def, st)).map_err(core)?;
+            value = map_value(value, &mut |c: &Expr| c.plug_definition(def, &self.states))
+                .map_err(core)?;
         }
-        Ok(match value {
-            Value::Scalar(x) => Value::Scalar(x.subst(&map, st).map_err(core)?),
-            Value::Field(f) => Value::field(f.field.map(|c| c.subst(&map, st)).map_err(core)?),
+        let es: Vec<&Expr> = match &value {
+            Value::Scalar(x) => vec![x],
+            Value::Field(f) => f.field.0.iter().collect(),
+            Value::Matrix(m) => m.data.iter().collect(),
+        };
+        let st = &self.plug_phases(&es, &mut map, span)?;
+        let sub = |c: &Expr| {
+            if inputs.is_empty() {
+                c.subst(&map, st)
+            } else {
+                crate::series::shuffle::evaluate(c, &inputs, &map, st)
+            }
+        };
+        let v = match value {
+            Value::Scalar(x) => Value::Scalar(sub(&x).map_err(core)?),
+            Value::Field(f) => Value::field(f.field.map(sub).map_err(core)?),
             Value::Matrix(m) => Value::Matrix(Matrix {
                 data: m
                     .data
                     .iter()
-                    .map(|c| c.subst(&map, st))
+                    .map(sub)
                     .collect::<Result<_, _>>()
                     .map_err(core)?,
                 ..m
             }),
-        })
+        };
+        reduce_iint_products(v).map_err(core)
     }
 }
 

@@ -246,7 +246,7 @@ impl Session {
                                 },
                             )
                         })?;
-                        report.push(Style::Note, format!("plot written to {}", p.path));
+                        report.plot_written(&p.path, self.resolve_path(&p.path));
                     }
                 }
                 Ok(())
@@ -316,6 +316,13 @@ impl Session {
                     ),
                     _ => None,
                 };
+                let outer = match (&info.outer, info.classic) {
+                    (Some(y), true) => Some(
+                        CompiledField::new(y, &self.states, &floats)
+                            .map_err(|e| compile_err(model.span, e))?,
+                    ),
+                    _ => None,
+                };
                 let n_orders = orders.len();
                 let mut table: Vec<Vec<f64>> = Vec::new();
                 let mut bar = Progress::new(eps_values.len() as u64, "compare");
@@ -332,6 +339,7 @@ impl Session {
                         system: &sys,
                         orders: &orders,
                         transform: transform.as_deref(),
+                        outer: outer.as_ref(),
                         eps: *e,
                         period,
                         n_periods,
@@ -429,7 +437,7 @@ impl Session {
                                 },
                             )
                         })?;
-                        report.push(Style::Note, format!("plot written to {}", p.path));
+                        report.plot_written(&p.path, self.resolve_path(&p.path));
                     }
                 }
                 report.push(Style::Warn, "an averaged model is an approximation: validate it before it drives a real machine (help compare)");

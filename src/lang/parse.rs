@@ -88,6 +88,8 @@ pub const RESERVED_WORDS: &[&str] = &[
     "transform",
     "carleman",
     "degree",
+    "change",
+    "by",
     "simulate",
     "from",
     "for",
@@ -116,6 +118,7 @@ pub const COMMAND_WORDS: &[&str] = &[
     "magnus",
     "average",
     "carleman",
+    "change",
     "simulate",
     "compare",
     "stability",
@@ -1504,6 +1507,7 @@ impl<'a> Parser<'a> {
             "magnus" => self.magnus(after)?,
             "average" => self.average(after)?,
             "carleman" => self.carleman(after)?,
+            "change" => self.change(after)?,
             "simulate" => self.simulate(after)?,
             "compare" => self.compare(after)?,
             "stability" => self.stability(after)?,
@@ -1567,10 +1571,16 @@ impl<'a> Parser<'a> {
                 "`in` and the small parameter after the order in `average`",
             );
         };
+        // `in 1/w`: a symbolic frequency (DESIGN §2.7c).
+        let (after_in, inverse) = match ws(after_in).strip_prefix('1') {
+            Some(r) if ws(r).starts_with('/') => (&ws(r)[1..], true),
+            _ => (after_in, false),
+        };
         let (mut rest, param) = self.name(after_in, "the small parameter after `in`")?;
         let mut method: Option<Ident> = None;
         let mut depth: Option<Spanned<u64>> = None;
         let mut with_transform = false;
+        let mut chart: Vec<Ident> = Vec::new();
         loop {
             let at = ws(rest);
             let Ok((after, word)) = ident(at) else {
@@ -1604,12 +1614,20 @@ impl<'a> Parser<'a> {
                     with_transform = true;
                     rest = next;
                 }
+                "as" => {
+                    if !chart.is_empty() {
+                        return self.duplicate(span, "`as`");
+                    }
+                    let (next, names) = self.name_list(after, "as")?;
+                    chart = names;
+                    rest = next;
+                }
                 _ => break,
             }
         }
         self.end(
             rest,
-            Some("`strobo`, `classic`, `depth`, `with transform` or the end of the line"),
+            Some("`strobo`, `classic`, `depth`, `with transform`, `as` or the end of the line"),
         )?;
         Ok((
             rest,
@@ -1617,11 +1635,56 @@ impl<'a> Parser<'a> {
                 field,
                 to,
                 param,
+                inverse,
                 method,
                 depth,
                 with_transform,
+                chart,
             },
         ))
+    }
+
+    /// `NAME, NAME, …` after `word` (stops before anything that is not `,`).
+    fn name_list(&self, input: &'a str, word: &str) -> PResult<'a, Vec<Ident>> {
+        let mut names = Vec::new();
+        let mut next_in = input;
+        loop {
+            let what = if names.is_empty() {
+                format!("a name after `{word}`")
+            } else {
+                "a name after `,`".to_string()
+            };
+            let (rest, name) = self.name(next_in, &what)?;
+            names.push(name);
+            match ws(rest).strip_prefix(',') {
+                Some(after) => next_in = after,
+                None => return Ok((rest, names)),
+            }
+        }
+    }
+
+    /// `change E to r, phi by x = r*cos(phi), v = r*sin(phi)`.
+    fn change(&self, input: &'a str) -> PResult<'a, CommandKind> {
+        let (rest, field) = self.expect_expr(input, "the field or scalar after `change`")?;
+        let Some(after_to) = self.keyword(rest, "to") else {
+            return self.expected(
+                rest,
+                "`to` and the new coordinates after the value in `change`",
+            );
+        };
+        let (rest, to) = self.name_list(after_to, "to")?;
+        let Some(after_by) = self.keyword(rest, "by") else {
+            return self.expected(
+                rest,
+                "`,` or `by` and the old coordinates in the new ones (`by x = r*cos(phi), …`)",
+            );
+        };
+        let (rest, by) = self.assigns(after_by, "by")?;
+        self.end(
+            rest,
+            Some("`,` and another `name = value` or the end of the line"),
+        )?;
+        Ok((rest, CommandKind::Change { field, to, by }))
     }
 
     fn carleman(&self, input: &'a str) -> PResult<'a, CommandKind> {
@@ -2857,7 +2920,7 @@ mod tests {
                 let args: Vec<String> = args
                     .iter()
                     .map(|arg| match arg {
-                        Arg::Pos(e) | Arg::Bind(_, e) => print_min(e, 0),
+                        Arg::Pos(e) | Arg::Bind(_, e) | Arg::BindFunc(_, _, e) => print_min(e, 0),
                     })
                     .collect();
                 format!("{}({})", name.name, args.join(", "))
