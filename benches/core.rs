@@ -382,6 +382,93 @@ fn bench_averaging() -> CoreResult<()> {
     Ok(())
 }
 
+/// Issue "unspecified functions": the same system averaged with `V`, `g`
+/// unspecified and with concrete polynomials in their place, per result
+/// term (the unspecified result has more terms: each derivative is an atom
+/// of its own). Runs on a fresh thread, so the symbols are numbered as in a
+/// session that declares the state, the parameters and the functions.
+fn bench_functions() -> CoreResult<()> {
+    std::thread::spawn(bench_functions_here)
+        .join()
+        .unwrap_or(Err(CoreError::Interrupted))
+}
+
+fn bench_functions_here() -> CoreResult<()> {
+    use ordex::core::func::{Definition, Signature};
+    use std::sync::Arc;
+    println!("## unspecified functions: stroboscopic `average`, orders 2..5");
+    println!();
+    let st = states(&["q", "p"]);
+    let eps = Sym::new("eps");
+    let s = Sym::new("s");
+    let (qq, pp) = (Expr::sym(st[0]), Expr::sym(st[1]));
+    let sig = |n: &str| {
+        Arc::new(Signature {
+            name: n.to_string(),
+            params: vec!["s".to_string()],
+        })
+    };
+    let (sv, sg) = (sig("V"), sig("g"));
+    let app = |f: &Arc<Signature>, k: u32| Expr::apply_function(f, &[k], &[qq.clone()], &st);
+    // eps*[p + g(q)*cos(t), -V'(q) + p*g'(q)*sin(t) + g(q)*cos(2t)]
+    let generic = Field(vec![
+        pp.add(&app(&sg, 0)?.mul(&beat(false, 1, &st)?)?),
+        app(&sv, 1)?
+            .neg()
+            .add(&pp.mul(&app(&sg, 1)?)?.mul(&beat(true, 1, &st)?)?)
+            .add(&app(&sg, 0)?.mul(&beat(false, 2, &st)?)?),
+    ])
+    .mul_expr(&Expr::sym(eps))?;
+    // V(s) = s^4/4 + s^2/2, g(s) = s^3 - s/2: polynomials of the degree
+    // the derivatives to order 5 still see.
+    let ss = Expr::sym(s);
+    let mut dv = Definition::new(
+        sv.clone(),
+        vec![s],
+        ss.pow(4)?.scale(&q(1, 4)).add(&ss.pow(2)?.scale(&q(1, 2))),
+    );
+    let mut dg = Definition::new(sg.clone(), vec![s], ss.pow(3)?.sub(&ss.scale(&q(1, 2))));
+    let concrete = generic.map(|e| e.plug_definition(&mut dv, &st)?.plug_definition(&mut dg, &st))?;
+    println!("System eps*[p + g(q)*cos(t), -V'(q) + p*g'(q)*sin(t) + g(q)*cos(2t)], with V, g");
+    println!("unspecified and with V = q^4/4 + q^2/2, g = q^3 - q/2. The line of issue 16: the");
+    println!("unspecified system within 3x of the concrete one per result term.");
+    println!();
+    println!(
+        "| order | unspecified ms (fastest) | terms | concrete ms (fastest) | terms \
+         | us per term, unspecified | us per term, concrete | ratio per term |"
+    );
+    println!("|---|---|---|---|---|---|---|---|");
+    for n in 2..=5usize {
+        let opts = Options {
+            method: Method::Strobo,
+            order: n,
+            depth: 8,
+            with_transform: false,
+        };
+        let run = |v: &Field| {
+            timed_runs(3, Duration::from_millis(500), || {
+                Ok(averaging::average(v, eps, &opts, &st)?
+                    .orders
+                    .iter()
+                    .map(Field::n_terms)
+                    .sum::<usize>())
+            })
+        };
+        let (tg, ng) = run(&generic)?;
+        let (tc, nc) = run(&concrete)?;
+        let per = |d: Duration, n: usize| d.as_secs_f64() * 1e6 / n.max(1) as f64;
+        let (pg, pc) = (per(tg.fastest, ng), per(tc.fastest, nc));
+        println!(
+            "| {n} | {} | {ng} | {} | {nc} | {pg:.2} | {pc:.2} | {:.2} |",
+            ms(tg.fastest),
+            ms(tc.fastest),
+            pg / pc
+        );
+    }
+    println!();
+    Ok(())
+}
+
 fn main() {
     // `cargo bench` passes `--bench`; a filter word selects one issue.
     let filter: Vec<String> = std::env::args()
@@ -398,6 +485,9 @@ fn main() {
     }
     if wants("averaging") {
         status = status.and_then(|()| bench_averaging());
+    }
+    if wants("functions averaging") {
+        status = status.and_then(|()| bench_functions());
     }
     if let Err(e) = status {
         eprintln!("benchmark failed: {e}");
