@@ -428,7 +428,10 @@ fn bench_functions_here() -> CoreResult<()> {
         ss.pow(4)?.scale(&q(1, 4)).add(&ss.pow(2)?.scale(&q(1, 2))),
     );
     let mut dg = Definition::new(sg.clone(), vec![s], ss.pow(3)?.sub(&ss.scale(&q(1, 2))));
-    let concrete = generic.map(|e| e.plug_definition(&mut dv, &st)?.plug_definition(&mut dg, &st))?;
+    let concrete = generic.map(|e| {
+        e.plug_definition(&mut dv, &st)?
+            .plug_definition(&mut dg, &st)
+    })?;
     println!("System eps*[p + g(q)*cos(t), -V'(q) + p*g'(q)*sin(t) + g(q)*cos(2t)], with V, g");
     println!("unspecified and with V = q^4/4 + q^2/2, g = q^3 - q/2. The line of issue 16: the");
     println!("unspecified system within 3x of the concrete one per result term.");
