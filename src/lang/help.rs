@@ -11,6 +11,7 @@ const TOPICS: &[(&str, &str)] = &[
     ("state", "state q, p\n  declare the state coordinates, in this order (fields list one entry per coordinate).\n  Changing the state after fields exist is refused."),
     ("param", "param eps, k\n  declare exact symbolic constants; negative integer powers (eps^-1) are allowed."),
     ("input", "input u1, u2\n  declare unspecified time functions; `flow` then gives the Chen–Fliess series with\n  iterated integrals iint(u1, u2) (first argument at the latest time).\n  example: input u1\n           flow u1*[1, x] on y to 2"),
+    ("func", "func V(s), J(a, b)\n  declare unspecified smooth functions of the state (the names in brackets are argument\n  placeholders). Apply them to linear forms of the state plus a constant (a number and/or a\n  multiple of pi): V(q), V(q + pi), J(x - 1, y), V(1/2); parameters, t and nonlinear arguments\n  are refused. Derivatives: V'(q), V''(q), ... for one argument, pd(J, a)(x, y), pd(J, a, b)(x, y)\n  for several; the chain rule is exact (pd(V(2*q), q) == 2*V'(2*q)). Every series command takes\n  them, so averaged results hold for any V; `carleman` and the numerical commands need concrete\n  functions: plug(e, V(s) = -k*cos(s)) replaces V and all its derivatives, plug(e, q = pi)\n  evaluates arguments. A result for any V is still an approximation: check it on the concrete\n  machine (plug, then `compare`) before relying on it.\n  example: func V(s)\n           A = average eps*[p, -V'(q)] + cos(t)*[0, b*sin(q)] to 1 in eps classic"),
     ("define", "NAME = EXPRESSION\n  bind a value (scalar, field or matrix); redefining replaces it (and says so).\n  example: X = [p, -q]"),
     ("flow", "flow V on h to N   |   flow V to N\n  the chronological expansion of h(x(t)) for x' = V(t, x), x(0) = x, term by term to order N\n  (earliest time outermost); without `on`, every coordinate. An output that depends on t is\n  read along the solution, h(t, x(t)). A truncated series is good only for short times or\n  small fields: check it numerically before relying on it.\n  example: flow cos(t)*[1, 0] + [0, q] on p to 3"),
     ("magnus", "magnus V to N [over T]\n  the chronological logarithm W_T (exp(W_T) = the time-T flow) by order; T is the period by default.\n  When V = Σ c_i(t)*X_i with named fields, `show W as brackets` gives the Lie polynomial.\n  example: W = magnus cos(t)*X + sin(t)*Y to 3"),
@@ -57,6 +58,16 @@ pub fn help(word: Option<&str>) -> Option<String> {
             Some(s)
         }
     }
+}
+
+/// The help topics and the words `help` also answers for, for suggestions.
+pub fn topic_words() -> Vec<&'static str> {
+    let mut v: Vec<&'static str> = TOPICS.iter().map(|(w, _)| *w).collect();
+    v.extend(super::parse::COMMAND_WORDS);
+    v.extend([
+        "sin", "cos", "exp", "pd", "jac", "plug", "order", "mean", "bch", "iint", "chart",
+    ]);
+    v
 }
 
 /// The caution shown in the README and in help texts.
