@@ -328,6 +328,13 @@ impl Session {
                         }
                     }
                 }
+                let phases = super::phase::phases_all(&f.field.0);
+                if let Some(w) = phases.first().and_then(|p| super::phase::param_of(*p)) {
+                    s.push_str(&format!(
+                        ", symbolic frequency {0} (for `average … in 1/{0}`)",
+                        w.name()
+                    ));
+                }
                 s
             }
             Value::Matrix(m) => format!("{}x{} matrix", m.rows, m.cols),

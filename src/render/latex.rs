@@ -81,6 +81,10 @@ pub fn name(n: &str) -> String {
     if !n.is_empty() && n.bytes().all(|b| b.is_ascii_digit()) {
         return n.to_string();
     }
+    // A symbolic-frequency phase `w*t` (DESIGN §2.7c).
+    if let Some(w) = n.strip_suffix("*t").filter(|w| !w.is_empty()) {
+        return format!("{} t", name(w));
+    }
     if let Some(rest) = n.strip_prefix("iint(") {
         let inner = rest.trim_end_matches(')');
         let args: Vec<String> = inner.split(", ").map(name).collect();
