@@ -13,6 +13,7 @@
 
 pub mod cli;
 pub mod journal;
+pub mod kernel;
 pub mod repl;
 pub mod style;
 
@@ -34,6 +35,11 @@ pub const INLINE_ORIGIN: &str = "-e";
 /// for scripts 0 (all well), 1 (a check failed) or 2 (an error); for the
 /// prompt 0.
 pub fn run(invocation: &Invocation) -> u8 {
+    match &invocation.kernel {
+        Some(cli::Kernel::Install) => return kernel::install(),
+        Some(cli::Kernel::Start(file)) => return kernel::run(file),
+        None => {}
+    }
     let painter = Painter::detect();
     if invocation.sources.is_empty() {
         repl::run_prompt(invocation, painter)
@@ -54,6 +60,11 @@ pub fn run_sources(sources: &[Source], timing: bool, painter: Painter) -> u8 {
         indent: "",
     };
     let mut status = RunStatus::default();
+    let n_inline = sources
+        .iter()
+        .filter(|s| matches!(s, Source::Inline(_)))
+        .count();
+    let mut inline_index = 0;
     for source in sources {
         let (text, origin) = match source {
             Source::File(path) => {
@@ -67,7 +78,10 @@ pub fn run_sources(sources: &[Source], timing: bool, painter: Painter) -> u8 {
                     }
                 }
             }
-            Source::Inline(text) => (text.clone(), INLINE_ORIGIN.to_string()),
+            Source::Inline(text) => {
+                inline_index += 1;
+                (text.clone(), inline_origin(inline_index, n_inline))
+            }
         };
         match run_text(&mut session, &text, &origin, &output) {
             Ok(one) => {
@@ -84,6 +98,17 @@ pub fn run_sources(sources: &[Source], timing: bool, painter: Painter) -> u8 {
         }
     }
     u8::try_from(status.exit_code()).unwrap_or(2)
+}
+
+/// The origin of the `index`-th of `count` `-e` arguments in messages:
+/// `-e` alone, `-e#2` for the second of several (line numbers count within
+/// the argument: `-e#2:3:5`).
+pub fn inline_origin(index: usize, count: usize) -> String {
+    if count > 1 {
+        format!("{INLINE_ORIGIN}#{index}")
+    } else {
+        INLINE_ORIGIN.to_string()
+    }
 }
 
 /// Runs one text statement by statement, printing as it goes; stops at the

@@ -508,24 +508,35 @@ struct PromptHelper {
     files: FilenameCompleter,
 }
 
-impl PromptHelper {
-    /// The words starting with `prefix`, sorted, without repeats.
-    fn candidates(&self, prefix: &str) -> Vec<String> {
-        let mut words: Vec<String> = RESERVED_WORDS
-            .iter()
-            .chain(BUILTINS.iter())
-            .map(|w| w.to_string())
-            .chain(self.names.iter().cloned())
-            .filter(|w| w.starts_with(prefix))
-            .collect();
-        words.sort();
-        words.dedup();
-        words
+/// The command words, built-ins and `names` starting with `prefix`,
+/// sorted, without repeats.
+pub(crate) fn candidates(prefix: &str, names: &[String]) -> Vec<String> {
+    let mut words: Vec<String> = RESERVED_WORDS
+        .iter()
+        .chain(BUILTINS.iter())
+        .map(|w| w.to_string())
+        .chain(names.iter().cloned())
+        .filter(|w| w.starts_with(prefix))
+        .collect();
+    words.sort();
+    words.dedup();
+    words
+}
+
+/// The words that complete the identifier before byte `pos` of `line`
+/// (none after a digit or outside a word), with the byte where that
+/// identifier starts.
+pub(crate) fn word_completions(line: &str, pos: usize, names: &[String]) -> (usize, Vec<String>) {
+    let start = word_start(line, pos);
+    let prefix = line.get(start..pos).unwrap_or("");
+    if prefix.is_empty() || prefix.starts_with(|c: char| c.is_ascii_digit()) {
+        return (pos, Vec::new());
     }
+    (start, candidates(prefix, names))
 }
 
 /// The byte where the identifier ending at `pos` starts.
-fn word_start(line: &str, pos: usize) -> usize {
+pub(crate) fn word_start(line: &str, pos: usize) -> usize {
     let before = line.get(..pos).unwrap_or(line);
     before
         .char_indices()
@@ -535,7 +546,7 @@ fn word_start(line: &str, pos: usize) -> usize {
 }
 
 /// True when the cursor is in the path argument of `save` or `run`.
-fn in_path_argument(line: &str, pos: usize) -> bool {
+pub(crate) fn in_path_argument(line: &str, pos: usize) -> bool {
     let before = line.get(..pos).unwrap_or(line).trim_start();
     ["save", "run"].iter().any(|word| {
         before
@@ -556,13 +567,8 @@ impl Completer for PromptHelper {
         if in_path_argument(line, pos) {
             return self.files.complete(line, pos, ctx);
         }
-        let start = word_start(line, pos);
-        let prefix = line.get(start..pos).unwrap_or("");
-        if prefix.is_empty() || prefix.starts_with(|c: char| c.is_ascii_digit()) {
-            return Ok((pos, Vec::new()));
-        }
-        let pairs = self
-            .candidates(prefix)
+        let (start, words) = word_completions(line, pos, &self.names);
+        let pairs = words
             .into_iter()
             .map(|word| Pair {
                 display: word.clone(),
@@ -613,22 +619,20 @@ pub fn journal_path() -> Option<PathBuf> {
 mod tests {
     use super::*;
 
-    fn helper(names: &[&str]) -> PromptHelper {
-        PromptHelper {
-            names: names.iter().map(|n| n.to_string()).collect(),
-            files: FilenameCompleter::new(),
-        }
-    }
-
     #[test]
     fn candidates_cover_commands_builtins_and_names() {
-        let h = helper(&["Xfast", "Xslow", "eps"]);
-        assert_eq!(h.candidates("Xf"), vec!["Xfast"]);
-        assert_eq!(h.candidates("X"), vec!["Xfast", "Xslow"]);
-        assert_eq!(h.candidates("magn"), vec!["magnus"]);
-        assert_eq!(h.candidates("tr"), vec!["trace", "transform"]);
-        assert!(h.candidates("e").contains(&"eps".to_string()));
-        assert!(h.candidates("zzz").is_empty());
+        let names: Vec<String> = ["Xfast", "Xslow", "eps"].map(String::from).to_vec();
+        assert_eq!(candidates("Xf", &names), vec!["Xfast"]);
+        assert_eq!(candidates("X", &names), vec!["Xfast", "Xslow"]);
+        assert_eq!(candidates("magn", &names), vec!["magnus"]);
+        assert_eq!(candidates("tr", &names), vec!["trace", "transform"]);
+        assert!(candidates("e", &names).contains(&"eps".to_string()));
+        assert!(candidates("zzz", &names).is_empty());
+        assert_eq!(
+            word_completions("check Xf", 8, &names),
+            (6, vec!["Xfast".to_string()])
+        );
+        assert_eq!(word_completions("x = 12", 6, &names), (6, Vec::new()));
     }
 
     #[test]
