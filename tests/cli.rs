@@ -479,3 +479,56 @@ fn save_writes_through_a_symlink_and_refuses_devices_and_plots_over_scripts() {
         "state q, p\n"
     );
 }
+
+#[test]
+fn a_printed_result_of_1330_terms_pastes_back() {
+    // A flat sum is as deep as its nesting, not as long as it is: a
+    // printed result of 1330 terms (more than the 1000 levels of the
+    // depth limit) is input again.
+    let dir = temp();
+    let mut terms = Vec::new();
+    for i in 0..38 {
+        for j in 0..35 {
+            terms.push(format!("{}*q^{i}*p^{j}", 1 + (7 * i + 3 * j) % 11));
+        }
+    }
+    let script = format!("state q, p\nx = {}\nx\n", terms.join(" + "));
+    write(dir.path(), "big.ordex", script.as_bytes());
+    let out = ordex(dir.path(), &["big.ordex"]);
+    assert_eq!(code(&out), 0, "{}", stderr(&out));
+    assert!(
+        stdout(&out).contains("x: scalar, 1330 terms"),
+        "{}",
+        stdout(&out)
+    );
+    let printed = stdout(&out).lines().last().unwrap_or_default().to_string();
+    let back = format!("{script}y = {printed}\ncheck x == y\n");
+    write(dir.path(), "back.ordex", back.as_bytes());
+    let out = ordex(dir.path(), &["back.ordex"]);
+    assert_eq!(code(&out), 0, "{}", stderr(&out));
+    assert!(stdout(&out).contains("holds"), "{}", stdout(&out));
+    // Signs survive the balanced tree of a long sum: 1 - 2 + 3 - 5 … with
+    // signs from a fixed pattern, against the sum taken here.
+    let mut text = String::from("1");
+    let mut expected: i64 = 1;
+    for k in 2..=3000i64 {
+        let minus = (k * k + k / 3) % 5 < 2;
+        text.push_str(if minus { " - " } else { " + " });
+        text.push_str(&k.to_string());
+        expected += if minus { -k } else { k };
+    }
+    let out = ordex(dir.path(), &["-e", &format!("check {text} == {expected}")]);
+    assert_eq!(code(&out), 0, "{}", stderr(&out));
+}
+
+#[test]
+fn names_that_are_not_ascii_get_a_hint() {
+    let dir = temp();
+    let out = ordex(dir.path(), &["-e", "state \u{3b8}"]);
+    assert_eq!(code(&out), 2);
+    assert!(
+        stderr(&out).contains("for `\u{3b8}` write `theta` or `th`"),
+        "{}",
+        stderr(&out)
+    );
+}

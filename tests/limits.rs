@@ -659,15 +659,75 @@ fn three_hundred_nested_brackets() {
     );
 }
 
+/// A flat sum is as deep as its nesting, not as long as it is (it was
+/// refused as "more than 1000 levels deep", so long printed results could
+/// not be pasted back).
 #[test]
 fn typed_out_sum_of_100000_terms() {
     let terms: Vec<String> = (1..=100_000).map(|i| format!("x^{i}")).collect();
     let text = format!("state x\nS = {}", terms.join(" + "));
+    works("100,000-term sum", &text, "S: scalar, 100000 terms");
+}
+
+/// `(1+q+p)^550` took 17-19 s of large coefficients before the work limit
+/// spoke; its size is known in advance (multinomial count), so it is
+/// refused at once.
+#[test]
+fn power_of_a_sum_of_independent_terms_is_refused_before_any_work() {
     refused(
-        "100,000-term sum",
-        &text,
-        &["more than 1000 levels deep", "split it into named parts"],
+        "(1+q+p)^550",
+        "state q, p\nx = (1 + q + p)^550",
+        &[
+            "term budget exceeded",
+            "term multiplications",
+            "set budget N",
+        ],
     );
+    works(
+        "(1+q+q^2)^300",
+        "state q, p\nx = (1 + q + q^2)^300",
+        "x: scalar, 601 terms",
+    );
+}
+
+/// `set budget 1000000000` then `bch(X, Y, 14)` on 3 states aborted the
+/// process out of memory: the budget is capped by the memory it implies
+/// (here under an address-space limit of 1 GiB), and the computation
+/// ends with the budget's error message instead.
+#[cfg(target_os = "linux")]
+#[test]
+fn a_raised_budget_is_capped_by_the_memory_it_implies() {
+    use std::os::unix::process::CommandExt;
+    let text = "state x, y, z\nset budget 1000000000\nX = [y + z^2, z + x^2, x + y^2]\n\
+                Y = [y*z, x*z + 1, x*y]\nB = bch(X, Y, 14)";
+    let mut command = Command::new(env!("CARGO_BIN_EXE_ordex"));
+    command
+        .args(["--no-timing", "-e", text])
+        .env("NO_COLOR", "1")
+        .stdin(Stdio::null());
+    // SAFETY: setrlimit is async-signal-safe; it limits only the child.
+    unsafe {
+        command.pre_exec(|| {
+            let limit = libc::rlimit {
+                rlim_cur: 1 << 30,
+                rlim_max: 1 << 30,
+            };
+            if libc::setrlimit(libc::RLIMIT_AS, &limit) != 0 {
+                return Err(std::io::Error::last_os_error());
+            }
+            Ok(())
+        });
+    }
+    let out = command.output().expect("ordex runs");
+    let (stdout, stderr) = (
+        String::from_utf8_lossy(&out.stdout),
+        String::from_utf8_lossy(&out.stderr),
+    );
+    // 1 GiB / 2 / 2048 bytes a term.
+    assert!(stdout.contains("capped at 262144"), "{stdout}");
+    assert!(stdout.contains("term budget 262144"), "{stdout}");
+    assert_eq!(out.status.code(), Some(2), "{stdout}\n{stderr}");
+    assert!(stderr.contains("term budget exceeded"), "{stderr}");
 }
 
 /// The deepest inputs the parser accepts evaluate on a main thread's stack.

@@ -40,6 +40,12 @@ struct Terminal {
 impl Terminal {
     /// Starts `ordex ARGS` with `home` as its ORDEX_HOME, colour off.
     fn start(home: &Path, args: &[&str]) -> Terminal {
+        Terminal::start_with(home, args, &[("NO_COLOR", "1"), ("TERM", "xterm")])
+    }
+
+    /// Starts `ordex ARGS` with `home` as its ORDEX_HOME and exactly these
+    /// of `NO_COLOR` and `TERM` set.
+    fn start_with(home: &Path, args: &[&str], env: &[(&str, &str)]) -> Terminal {
         let size = Winsize {
             ws_row: 50,
             ws_col: 200,
@@ -52,8 +58,9 @@ impl Terminal {
         command
             .args(args)
             .env("ORDEX_HOME", home)
-            .env("NO_COLOR", "1")
-            .env("TERM", "xterm")
+            .env_remove("NO_COLOR")
+            .env_remove("TERM")
+            .envs(env.iter().copied())
             .stdin(Stdio::from(slave.try_clone().expect("dup")))
             .stdout(Stdio::from(slave.try_clone().expect("dup")))
             .stderr(Stdio::from(slave));
@@ -360,4 +367,20 @@ fn a_burst_of_typed_ahead_lines_runs_every_line_whole() {
     }
     term.send("quit\r");
     assert!(term.wait_exit().success());
+}
+
+#[test]
+fn a_dumb_terminal_gets_no_colour() {
+    let home = temp_home();
+    let mut term = Terminal::start_with(home.path(), &[], &[("TERM", "dumb")]);
+    term.expect(PROMPT);
+    term.enter("state q", PROMPT);
+    term.enter("check q == 2*q", "difference");
+    term.send("quit\r");
+    assert!(term.wait_exit().success());
+    let raw = String::from_utf8_lossy(&term.raw).into_owned();
+    assert!(
+        !raw.contains("\u{1b}["),
+        "escape sequences on TERM=dumb: {raw:?}"
+    );
 }

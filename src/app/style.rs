@@ -1,8 +1,9 @@
 //! Colour for the binary's output: which report styles get which colour,
 //! and whether colour is used at all.
 //!
-//! Colour is used on a stream only when that stream is a terminal and the
-//! `NO_COLOR` environment variable is unset (or empty). This module knows the
+//! Colour is used on a stream only when that stream is a terminal, the
+//! `NO_COLOR` environment variable is unset (or empty) and `TERM` names a
+//! terminal that is not `dumb`. This module knows the
 //! report styles of the language layer and the `colored` crate; it must not
 //! know about sessions, files or the prompt.
 
@@ -11,6 +12,15 @@ use std::io::IsTerminal;
 use colored::Colorize;
 
 use crate::lang::Style;
+
+/// Whether the environment allows colour at all: not when `NO_COLOR` is
+/// set to anything non-empty, nor on a terminal that says it has no
+/// escape sequences (`TERM=dumb`, or no `TERM` at all).
+pub fn colour_allowed(no_color: Option<&std::ffi::OsStr>, term: Option<&std::ffi::OsStr>) -> bool {
+    let no_color_set = no_color.is_some_and(|v| !v.is_empty());
+    let dumb = term.is_none_or(|t| t.is_empty() || t == "dumb");
+    !no_color_set && !dumb
+}
 
 /// Decides the colour of printed lines, per output stream.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -33,7 +43,10 @@ impl Painter {
     /// Looks at the environment and the two output streams, and sets the
     /// `colored` crate's global switch to match.
     pub fn detect() -> Painter {
-        let allowed = std::env::var_os("NO_COLOR").is_none_or(|v| v.is_empty());
+        let allowed = colour_allowed(
+            std::env::var_os("NO_COLOR").as_deref(),
+            std::env::var_os("TERM").as_deref(),
+        );
         let painter = Painter {
             stdout: allowed && std::io::stdout().is_terminal(),
             stderr: allowed && std::io::stderr().is_terminal(),
@@ -108,6 +121,17 @@ mod tests {
         );
         assert_eq!(painter.warning("w"), "w");
         assert_eq!(painter.note("n"), "n");
+    }
+
+    #[test]
+    fn no_color_and_dumb_terminals_get_no_colour() {
+        use std::ffi::OsStr;
+        let xterm = Some(OsStr::new("xterm-256color"));
+        assert!(colour_allowed(None, xterm));
+        assert!(colour_allowed(Some(OsStr::new("")), xterm));
+        assert!(!colour_allowed(Some(OsStr::new("1")), xterm));
+        assert!(!colour_allowed(None, Some(OsStr::new("dumb"))));
+        assert!(!colour_allowed(None, None));
     }
 
     #[test]

@@ -22,6 +22,9 @@ pub enum LimitKind {
     /// A statement needing more term multiplications than the term budget
     /// allows (`set budget N`, times `limits::WORK_PER_TERM`).
     Work,
+    /// The machine refused memory for a growing result (the limit is the
+    /// number of bytes asked for).
+    Memory,
 }
 
 /// An error of the exact core.
@@ -144,6 +147,12 @@ impl fmt::Display for CoreError {
                      raise it with `set budget N`",
                     limit.saturating_mul(super::limits::WORK_PER_TERM),
                     super::limits::WORK_PER_TERM
+                ),
+                LimitKind::Memory => write!(
+                    f,
+                    "out of memory: a growing result needed about {limit} more bytes and the \
+                     machine refused them; the session is intact (lower the budget with \
+                     `set budget N`, or split the computation)"
                 ),
                 LimitKind::Exponent => write!(
                     f,

@@ -336,8 +336,17 @@ impl Acc {
         (&mut self.packed, spill)
     }
 
-    fn check_budget(&self) -> CoreResult<()> {
+    fn check_budget(&mut self) -> CoreResult<()> {
         let max_terms = limits::limits().max_terms;
+        // Before the table of terms doubles, ask for the room: a machine
+        // out of memory then gives an error, not an abort.
+        let (len, capacity) = (self.map.len(), self.map.capacity());
+        if len >= 1 << 16 && len.saturating_mul(8) >= capacity.saturating_mul(7) {
+            self.map.try_reserve(len).map_err(|_| CoreError::Limit {
+                kind: LimitKind::Memory,
+                limit: (len as u64).saturating_mul(std::mem::size_of::<(Key, Q)>() as u64 + 1),
+            })?;
+        }
         let held = self.map.len() + self.sines.len() + self.packed.held();
         if held.saturating_add(self.big_words) > max_terms {
             return Err(CoreError::Limit {
@@ -1344,6 +1353,7 @@ impl Expr {
                 limit: limits::limits().max_terms as u64,
             });
         }
+        self.refuse_oversized_power(e)?;
         // Repeated multiplication by the base: every step multiplies by a
         // short factor with small coefficients, far less work than squaring
         // long powers with long coefficients ((x+y+z+w)^60: 2.4 million term
@@ -1354,6 +1364,70 @@ impl Expr {
             acc = acc.mul(self)?;
         }
         Ok(acc)
+    }
+
+    /// Refuses `self^e` before any work when its size is known in advance
+    /// to break the budget. A polynomial whose m terms have affinely
+    /// independent exponent vectors (`1 + q + p`) has exactly
+    /// `C(i+m−1, m−1)` terms in its i-th power (the multinomial count: no
+    /// two products of terms share a monomial), so the repeated
+    /// multiplication of [`Expr::pow`] does `m·(C(e+m−1, m) − 1)` term
+    /// products at least; `(1+q+p)^550` needs 83 million and is refused
+    /// at once instead of after many seconds of large coefficients.
+    fn refuse_oversized_power(&self, e: i64) -> CoreResult<()> {
+        let m = self.terms.len() as u64;
+        if m < 2 || !self.has_independent_exponents() {
+            return Ok(());
+        }
+        let e = e.unsigned_abs();
+        let max = limits::limits().max_terms as u64;
+        if binomial(e + m - 1, m - 1) > u128::from(max) {
+            return Err(CoreError::Limit {
+                kind: LimitKind::Terms,
+                limit: max,
+            });
+        }
+        let products = binomial(e + m - 1, m)
+            .saturating_sub(1)
+            .saturating_mul(u128::from(m));
+        if products > u128::from(max.saturating_mul(limits::WORK_PER_TERM)) {
+            return Err(CoreError::Limit {
+                kind: LimitKind::Work,
+                limit: max,
+            });
+        }
+        Ok(())
+    }
+
+    /// True when every term is a plain monomial (no `exp`, no trigonometric
+    /// factor) and the exponent vectors are affinely independent.
+    fn has_independent_exponents(&self) -> bool {
+        let plain = |k: &Key| k.exp.is_zero() && k.wave == Wave::One && k.beat == Beat::One;
+        if !self.terms.iter().all(|(k, _)| plain(k)) {
+            return false;
+        }
+        let mut syms: Vec<Sym> = self
+            .terms
+            .iter()
+            .flat_map(|(k, _)| k.mono.0.iter().map(|(s, _)| *s))
+            .collect();
+        syms.sort();
+        syms.dedup();
+        let m = self.terms.len();
+        if m - 1 > syms.len() {
+            return false;
+        }
+        let vector =
+            |k: &Key| -> Vec<i128> { syms.iter().map(|s| i128::from(k.mono.exp_of(*s))).collect() };
+        let Some((first, rest)) = self.terms.split_first() else {
+            return false;
+        };
+        let origin = vector(&first.0);
+        let rows: Vec<Vec<i128>> = rest
+            .iter()
+            .map(|(k, _)| vector(k).iter().zip(&origin).map(|(a, b)| a - b).collect())
+            .collect();
+        full_row_rank(rows)
     }
 
     /// Exact reciprocal of a number or monomial (times `exp(M)`).
@@ -1781,6 +1855,38 @@ mod tests {
         Expr::sym(Sym::T).scale(&Q::int(k))
     }
 
+    /// A power whose size is known in advance (terms with affinely
+    /// independent exponents: the multinomial count) is refused before
+    /// any term product; one whose products share monomials is not.
+    #[test]
+    fn oversized_powers_are_refused_before_any_work() {
+        let (q, p) = (Expr::sym(Sym::new("q")), Expr::sym(Sym::new("p")));
+        let base = Expr::int(1).add(&q).add(&p);
+        limits::set_limits(limits::Limits::default());
+        limits::start_work();
+        let refused = base.pow(550);
+        assert!(
+            matches!(
+                refused,
+                Err(CoreError::Limit {
+                    kind: LimitKind::Work,
+                    ..
+                })
+            ),
+            "{refused:?}"
+        );
+        assert_eq!(limits::work_done(), Some(0));
+        // (1 + q + p)^40 has C(42, 2) = 861 terms, as counted.
+        assert_eq!(base.pow(40).map(|e| e.terms.len()).ok(), Some(861));
+        // 1, q, q^2 are affinely dependent: no early refusal, and
+        // (1 + q + q^2)^300 has 601 terms.
+        let dependent = Expr::int(1).add(&q).add(&q.mul(&q).unwrap_or_default());
+        assert!(!dependent.has_independent_exponents());
+        assert_eq!(dependent.pow(300).map(|e| e.terms.len()).ok(), Some(601));
+        assert_eq!(binomial(552, 2), 152_076);
+        assert_eq!(binomial(5, 7), 0);
+    }
+
     /// Keeping low frequencies, and the constant of the dropped sines, on
     /// a product worked by hand: sin(3t)·(cos t + cos 3t) =
     /// (sin 4t + sin 2t)/2 + (sin 6t)/2 (+ sin 0 = 0).
@@ -1822,4 +1928,71 @@ mod tests {
         // Two pairs of parts tested (one unit each), no term product.
         assert_eq!(limits::work_done(), Some(2));
     }
+}
+
+/// `C(n, k)`, saturating at `u128::MAX`.
+fn binomial(n: u64, k: u64) -> u128 {
+    if k > n {
+        return 0;
+    }
+    let k = k.min(n - k);
+    let mut r: u128 = 1;
+    for j in 1..=u128::from(k) {
+        let factor = u128::from(n - k) + j;
+        match r.checked_mul(factor) {
+            Some(p) => r = p / j,
+            None => return u128::MAX,
+        }
+    }
+    r
+}
+
+/// True when the integer rows are linearly independent (fraction-free
+/// elimination; an overflow counts as "not known", false).
+fn full_row_rank(mut rows: Vec<Vec<i128>>) -> bool {
+    let n_rows = rows.len();
+    let n_cols = rows.first().map_or(0, Vec::len);
+    let mut rank = 0;
+    for col in 0..n_cols {
+        let Some(pivot) = (rank..n_rows).find(|&r| rows[r][col] != 0) else {
+            continue;
+        };
+        rows.swap(rank, pivot);
+        let p = rows[rank][col];
+        for r in rank + 1..n_rows {
+            let f = rows[r][col];
+            if f == 0 {
+                continue;
+            }
+            for c in 0..n_cols {
+                let Some(v) = rows[r][c]
+                    .checked_mul(p)
+                    .and_then(|a| rows[rank][c].checked_mul(f).and_then(|b| a.checked_sub(b)))
+                else {
+                    return false;
+                };
+                rows[r][c] = v;
+            }
+            // Keep the entries small: divide the row by its gcd.
+            let g = rows[r].iter().fold(0i128, |g, &v| gcd_i128(g, v));
+            if g > 1 {
+                for v in &mut rows[r] {
+                    *v /= g;
+                }
+            }
+        }
+        rank += 1;
+        if rank == n_rows {
+            break;
+        }
+    }
+    rank == n_rows
+}
+
+fn gcd_i128(a: i128, b: i128) -> i128 {
+    let (mut a, mut b) = (a.unsigned_abs(), b.unsigned_abs());
+    while b != 0 {
+        (a, b) = (b, a % b);
+    }
+    i128::try_from(a).unwrap_or(i128::MAX)
 }

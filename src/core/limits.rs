@@ -45,6 +45,19 @@ pub fn coefficient_terms(bits: u64) -> usize {
     usize::try_from(bits / BITS_PER_TERM).unwrap_or(usize::MAX)
 }
 
+/// Memory one unit of the term budget lets a statement use, at most, in
+/// bytes: measured, `bch(X, Y, 14)` on 3 states peaked at 291 MB when it
+/// tripped the default budget of 200000 (about 1.5 KB a unit), with
+/// room for larger coefficients.
+pub const BYTES_PER_BUDGET_TERM: u64 = 2048;
+
+/// The largest term budget for a machine with `memory` bytes: one that
+/// implies at most half of it ([`BYTES_PER_BUDGET_TERM`] a term), so that
+/// raising the budget cannot make a statement exhaust the machine.
+pub fn budget_cap(memory: u64) -> usize {
+    usize::try_from(memory / 2 / BYTES_PER_BUDGET_TERM).unwrap_or(usize::MAX)
+}
+
 /// Term products one statement may do, per unit of the term budget.
 pub const WORK_PER_TERM: u64 = 250;
 

@@ -99,10 +99,53 @@ pub fn render_located(
         Some(origin) => format!("{origin}:{line_no}:{column}: error: {message}"),
         None => format!("{line_no}:{column}: error: {message}"),
     };
+    let (shown, span) = window(source_line, span_in_line);
     format!(
-        "{header}\n{INDENT}{source_line}\n{INDENT}{}",
-        render_caret(source_line, span_in_line)
+        "{header}\n{INDENT}{shown}\n{INDENT}{}",
+        render_caret(&shown, span)
     )
+}
+
+/// Lines up to this many characters are quoted whole.
+const WHOLE_LINE_CHARS: usize = 160;
+/// Characters quoted on each side of the span of a longer line, and at
+/// most of the span itself.
+const CONTEXT_CHARS: usize = 60;
+
+/// The part of a long `line` around `span` (marked `…` where cut) and
+/// the span within it; a line of at most [`WHOLE_LINE_CHARS`] characters
+/// comes back whole. An error on a 15 MB line quotes about 180
+/// characters, not the line.
+fn window(line: &str, span: Span) -> (String, Span) {
+    if line.len() <= WHOLE_LINE_CHARS || line.chars().count() <= WHOLE_LINE_CHARS {
+        return (line.to_string(), span);
+    }
+    let start = floor_boundary(line, span.start);
+    let end = floor_boundary(line, span.end.clamp(start, line.len()));
+    let back = |pos: usize, n: usize| {
+        line.get(..pos)
+            .and_then(|before| before.char_indices().rev().nth(n.saturating_sub(1)))
+            .map_or(0, |(i, _)| i)
+    };
+    let forward = |pos: usize, n: usize| {
+        line.get(pos..)
+            .and_then(|after| after.char_indices().nth(n))
+            .map_or(line.len(), |(i, _)| pos + i)
+    };
+    let from = back(start, CONTEXT_CHARS);
+    let span_end = end.min(forward(start, CONTEXT_CHARS));
+    let to = forward(span_end, CONTEXT_CHARS);
+    let mut shown = String::new();
+    if from > 0 {
+        shown.push('…');
+    }
+    let offset = shown.len();
+    shown.push_str(line.get(from..to).unwrap_or(""));
+    if to < line.len() {
+        shown.push('…');
+    }
+    let local = Span::new(start - from + offset, span_end - from + offset);
+    (shown, local)
 }
 
 /// The 0-based line index and the 1-based character column of byte `byte` in
@@ -254,6 +297,32 @@ mod tests {
             let (_, column) = line_col(&text, start);
             proptest::prop_assert!(column >= 1);
         }
+    }
+
+    #[test]
+    fn a_long_line_is_quoted_around_the_caret() {
+        let line = format!(
+            "x = {} + ) + {}",
+            "a + ".repeat(400_000),
+            "b + ".repeat(1000)
+        );
+        let at = line.find(')').unwrap_or(0);
+        let text = render_located(None, 1, at + 1, &line, Span::new(at, at + 1), "stray");
+        assert!(text.len() < 400, "{} bytes", text.len());
+        let lines: Vec<&str> = text.lines().collect();
+        assert_eq!(lines.len(), 3);
+        assert!(
+            lines[1].starts_with("    …") && lines[1].ends_with('…'),
+            "{text}"
+        );
+        // The caret is under the `)`.
+        let caret = lines[2].chars().position(|c| c == '^');
+        let paren = lines[1].chars().position(|c| c == ')');
+        assert_eq!(caret, paren, "{text}");
+        assert!(lines[0].starts_with(&format!("1:{}: error: stray", at + 1)));
+        // Short lines are quoted whole.
+        let short = render_located(None, 1, 5, "x = )", Span::new(4, 5), "stray");
+        assert_eq!(short, "1:5: error: stray\n    x = )\n        ^");
     }
 
     #[test]

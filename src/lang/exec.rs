@@ -132,9 +132,30 @@ impl Session {
                     return Err(SessionError::invalid(n.span, "the budget must be positive"));
                 }
                 let mut l: Limits = limits::limits();
-                l.max_terms = usize::try_from(n.value).unwrap_or(usize::MAX);
+                let asked = usize::try_from(n.value).unwrap_or(usize::MAX);
+                l.max_terms = asked;
+                if let Some(memory) = crate::lang::files::usable_memory() {
+                    let cap = limits::budget_cap(memory);
+                    if asked > cap {
+                        l.max_terms = cap;
+                        report.push(
+                            Style::Warn,
+                            format!(
+                                "a budget of {} terms could let one statement take about {} \
+                                 ({} bytes a term), more than half of the {} this process may \
+                                 use: capped at {cap}",
+                                n.value,
+                                human_bytes(
+                                    u128::from(n.value) * u128::from(limits::BYTES_PER_BUDGET_TERM)
+                                ),
+                                limits::BYTES_PER_BUDGET_TERM,
+                                human_bytes(u128::from(memory)),
+                            ),
+                        );
+                    }
+                }
                 limits::set_limits(l);
-                report.push(Style::Note, format!("term budget {}", n.value));
+                report.push(Style::Note, format!("term budget {}", l.max_terms));
             }
             StmtKind::Quit => report.quit = true,
         }
@@ -550,6 +571,22 @@ impl Session {
             report.quit = true;
         }
         Ok(())
+    }
+}
+
+/// A byte count for messages: `23.5 GiB`.
+fn human_bytes(bytes: u128) -> String {
+    const UNITS: [&str; 6] = ["bytes", "KiB", "MiB", "GiB", "TiB", "PiB"];
+    let mut value = bytes as f64;
+    let mut unit = 0;
+    while value >= 1024.0 && unit + 1 < UNITS.len() {
+        value /= 1024.0;
+        unit += 1;
+    }
+    if unit == 0 {
+        format!("{bytes} bytes")
+    } else {
+        format!("{value:.1} {}", UNITS[unit])
     }
 }
 

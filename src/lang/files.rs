@@ -103,10 +103,7 @@ pub fn write_file(path: &Path, bytes: &[u8], kind: FileKind) -> Result<(), Strin
     let result = write_temp_and_rename(&tmp, &target, bytes, existing.as_ref());
     if let Err(e) = result {
         let _ = std::fs::remove_file(&tmp);
-        return Err(match e.kind() {
-            std::io::ErrorKind::NotFound => "no such directory".to_string(),
-            _ => io_reason(&e),
-        });
+        return Err(io_reason(&e));
     }
     // The rename is durable once the directory is synced (best effort:
     // some file systems cannot sync a directory).
@@ -236,6 +233,33 @@ fn write_temp_and_rename(
     f.sync_all()?;
     drop(f);
     std::fs::rename(tmp, target)
+}
+
+/// The memory this process may use, in bytes: the least of the
+/// machine's memory, its control group's limit and the address-space
+/// limit (`ulimit -v`); `None` where none of them can be read.
+pub fn usable_memory() -> Option<u64> {
+    let read = |path: &str| std::fs::read_to_string(path).ok();
+    let machine = read("/proc/meminfo").and_then(|text| {
+        text.lines()
+            .find_map(|l| l.strip_prefix("MemTotal:"))
+            .and_then(|rest| {
+                rest.trim()
+                    .trim_end_matches("kB")
+                    .trim()
+                    .parse::<u64>()
+                    .ok()
+            })
+            .map(|kb| kb.saturating_mul(1024))
+    });
+    let group = read("/sys/fs/cgroup/memory.max").and_then(|text| text.trim().parse::<u64>().ok());
+    let address_space = read("/proc/self/limits").and_then(|text| {
+        text.lines()
+            .find(|l| l.starts_with("Max address space"))
+            .and_then(|l| l.split_whitespace().nth(3))
+            .and_then(|soft| soft.parse::<u64>().ok())
+    });
+    [machine, group, address_space].into_iter().flatten().min()
 }
 
 /// A short lowercase reason for an I/O error, without the OS error number.
@@ -433,6 +457,6 @@ mod tests {
         );
         assert_eq!(read(&path), "old\n");
         let err = write_file(&d.path().join("no/such.ordex"), b"x", FileKind::Script);
-        assert_eq!(err, Err("no such directory".to_string()));
+        assert_eq!(err, Err("no such file or directory".to_string()));
     }
 }

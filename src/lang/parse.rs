@@ -62,6 +62,15 @@ pub const MAX_NESTING: usize = 256;
 /// within the stack.
 pub const MAX_EXPR_DEPTH: usize = 1000;
 
+/// The most terms of one flat sum (`a + b - c …`): a long sum becomes a
+/// balanced tree and so counts as nesting only by its logarithm, but each
+/// term costs memory before the term budget can see it.
+pub const MAX_SUM_TERMS: usize = 1_000_000;
+
+/// Flat sums of at most this many terms keep the left-leaning tree they
+/// are written as (their errors name the operators as written).
+const SHORT_SUM: usize = 64;
+
 /// Words that cannot be used as names. `t` and `pi` are still values in
 /// expressions, and `sin`, `cos`, `exp` are still called as functions.
 pub const RESERVED_WORDS: &[&str] = &[
@@ -215,13 +224,69 @@ pub enum ParseErrorKind {
         /// The limit.
         limit: usize,
     },
+    /// A flat sum of more than [`MAX_SUM_TERMS`] terms.
+    SumTooLong {
+        /// The limit.
+        limit: usize,
+    },
+}
+
+/// The ASCII names for a Greek letter (the ones LaTeX output shows as
+/// that letter), for the hint on a name that is not ASCII.
+fn greek_names(c: char) -> Option<&'static str> {
+    Some(match c {
+        'α' => "`alpha` or `alp`",
+        'β' => "`beta` or `bet`",
+        'γ' => "`gamma` or `gam`",
+        'δ' => "`delta` or `del`",
+        'ε' | 'ϵ' => "`eps`",
+        'ζ' => "`zeta`",
+        'η' => "`eta`",
+        'θ' | 'ϑ' => "`theta` or `th`",
+        'κ' => "`kappa` or `kap`",
+        'λ' => "`lambda` or `lam`",
+        'μ' => "`mu`",
+        'ν' => "`nu`",
+        'ξ' => "`xi`",
+        'π' => "`pi` (the constant)",
+        'ρ' => "`rho`",
+        'σ' => "`sigma` or `sig`",
+        'τ' => "`tau`",
+        'φ' | 'ϕ' => "`phi`",
+        'χ' => "`chi`",
+        'ψ' => "`psi`",
+        'ω' => "`omega` or `om`",
+        'Ω' => "`Omega` or `Om`",
+        _ => return None,
+    })
+}
+
+/// A hint for a token that starts with a letter outside ASCII (`θ`):
+/// names are ASCII, and a Greek letter has a usual spelling.
+fn non_ascii_hint(found: &str) -> Option<String> {
+    let c = found.strip_prefix('`')?.chars().next()?;
+    if c.is_ascii() || !c.is_alphabetic() {
+        return None;
+    }
+    Some(match greek_names(c) {
+        Some(names) => format!(
+            " (names are ASCII letters, digits and `_`: for `{c}` write {names}; LaTeX output shows it as the letter)"
+        ),
+        None => format!(" (names are ASCII letters, digits and `_`: `{c}` is not one of them)"),
+    })
 }
 
 impl fmt::Display for ParseErrorKind {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
             ParseErrorKind::EmptyInput => write!(f, "empty statement"),
-            ParseErrorKind::Expected { what, found } => write!(f, "expected {what}, found {found}"),
+            ParseErrorKind::Expected { what, found } => {
+                write!(f, "expected {what}, found {found}")?;
+                match non_ascii_hint(found) {
+                    Some(hint) => write!(f, "{hint}"),
+                    None => Ok(()),
+                }
+            }
             ParseErrorKind::Reserved(word) => {
                 write!(
                     f,
@@ -260,6 +325,10 @@ impl fmt::Display for ParseErrorKind {
             ParseErrorKind::ExpressionTooDeep { limit } => write!(
                 f,
                 "expression is more than {limit} levels deep; split it into named parts"
+            ),
+            ParseErrorKind::SumTooLong { limit } => write!(
+                f,
+                "a sum of more than {limit} terms in one expression; split it into named parts"
             ),
         }
     }
@@ -860,8 +929,9 @@ impl<'a> Parser<'a> {
     /// error if no expression starts here.
     fn expr(&self, input: &'a str) -> PResult<'a, Node> {
         let (mut rest, mut product) = self.unary(input)?;
-        // The sum so far with the additive operator that follows it.
-        let mut sum: Option<(Node, BinOp, usize)> = None;
+        // The terms of the sum so far, each with the additive operator
+        // before it and that operator's offset (the first has none).
+        let mut terms: Vec<(BinOp, usize, Node)> = Vec::new();
         loop {
             let at = ws(rest);
             let (op, what) = match at.as_bytes() {
@@ -878,20 +948,86 @@ impl<'a> Parser<'a> {
             if matches!(op, BinOp::Mul | BinOp::Div) {
                 product = self.binary(op, product, operand, op_at)?;
             } else {
-                let left = match sum.take() {
-                    None => product,
-                    Some((acc, acc_op, acc_at)) => self.binary(acc_op, acc, product, acc_at)?,
-                };
-                sum = Some((left, op, op_at));
+                if terms.len() >= MAX_SUM_TERMS {
+                    self.fail::<()>(
+                        Span::new(op_at, op_at + 1),
+                        ParseErrorKind::SumTooLong {
+                            limit: MAX_SUM_TERMS,
+                        },
+                    )?;
+                }
+                terms.push((op, op_at, product));
                 product = operand;
             }
             rest = next;
         }
-        let node = match sum {
-            None => product,
-            Some((acc, op, op_at)) => self.binary(op, acc, product, op_at)?,
-        };
+        if terms.is_empty() {
+            return Ok((rest, product));
+        }
+        terms.push((BinOp::Add, 0, product));
+        let node = self.sum_tree(terms)?;
         Ok((rest, node))
+    }
+
+    /// Builds the tree of a flat sum `t0 o1 t1 o2 t2 …` (`terms[k]` holds
+    /// `t_k` and the operator *after* it, which the last term lacks).
+    /// Short sums fold to the left as written; a long one (a pasted
+    /// result of thousands of terms) becomes a balanced tree, so that its
+    /// depth counts nesting, not length: `L − (R)` with the signs inside
+    /// `R` flipped is the same sum (exact arithmetic is associative).
+    fn sum_tree(&self, terms: Vec<(BinOp, usize, Node)>) -> Result<Node, NomErr<PErr>> {
+        let mut items: Vec<Option<(BinOp, usize, Node)>> = terms.into_iter().map(Some).collect();
+        self.sum_range(&mut items, false)
+    }
+
+    /// The tree of `items` (taken out of their slots), with every operator
+    /// flipped (`+` ↔ `−`) when `flip` is set.
+    fn sum_range(
+        &self,
+        items: &mut [Option<(BinOp, usize, Node)>],
+        flip: bool,
+    ) -> Result<Node, NomErr<PErr>> {
+        let turn = |op: BinOp| match (op, flip) {
+            (BinOp::Add, true) => BinOp::Sub,
+            (BinOp::Sub, true) => BinOp::Add,
+            (other, _) => other,
+        };
+        // Every slot holds a term until it is taken once: not reached.
+        let missing = || -> Result<Node, NomErr<PErr>> {
+            Err(NomErr::Failure(PErr {
+                rem: 0,
+                len: 0,
+                kind: Some(Box::new(ParseErrorKind::SumTooLong {
+                    limit: MAX_SUM_TERMS,
+                })),
+            }))
+        };
+        if items.len() <= SHORT_SUM {
+            let mut iter = items.iter_mut();
+            let Some((mut op, mut op_at, mut acc)) = iter.next().and_then(Option::take) else {
+                return missing();
+            };
+            for slot in iter {
+                let Some((next_op, next_at, term)) = slot.take() else {
+                    return missing();
+                };
+                acc = self.binary(turn(op), acc, term, op_at)?;
+                op = next_op;
+                op_at = next_at;
+            }
+            return Ok(acc);
+        }
+        let mid = items.len() / 2;
+        let (left, right) = items.split_at_mut(mid);
+        // The operator joining the halves is the one after the left
+        // half's last term.
+        let (join, join_at) = match left.last() {
+            Some(Some((op, at, _))) => (turn(*op), *at),
+            _ => return missing(),
+        };
+        let lhs = self.sum_range(left, flip)?;
+        let rhs = self.sum_range(right, flip ^ (join == BinOp::Sub))?;
+        self.binary(join, lhs, rhs, join_at)
     }
 
     /// Leading minus signs (collected in a loop), then a power.
@@ -2277,7 +2413,7 @@ mod tests {
 
     #[test]
     fn bad_inputs_report_kind_and_caret_column() {
-        let long_chain = format!("x{}", "+x".repeat(1500));
+        let long_chain = format!("x{}", "*x".repeat(1500));
         let long_minus = format!("{}x", "-".repeat(2000));
         let long_power = format!("x{}", "^x".repeat(2000));
         let deep_parens = format!("{}x{}", "(".repeat(300), ")".repeat(300));

@@ -93,7 +93,8 @@ impl fmt::Display for OdeError {
             ),
             OdeError::TooManySteps { t, steps } => write!(
                 f,
-                "gave up after {steps} steps at t = {t}: raise the step limit or loosen the tolerance"
+                "gave up after {steps} steps at t = {t} (a fixed limit): the system is very stiff \
+                 or oscillates very fast there; shorten the horizon or rescale the system"
             ),
             OdeError::Cancelled { t } => write!(f, "integration cancelled at t = {t}"),
             OdeError::InvalidInput { reason } => write!(f, "invalid integration input: {reason}"),
@@ -798,6 +799,13 @@ mod tests {
         assert!(
             matches!(res, Err(OdeError::TooManySteps { steps: 10, .. })),
             "{res:?}"
+        );
+        // The message names no setting that does not exist.
+        let text = res.err().map(|e| e.to_string()).unwrap_or_default();
+        assert!(text.contains("a fixed limit"), "{text}");
+        assert!(
+            !text.contains("step limit") && !text.contains("loosen"),
+            "{text}"
         );
     }
 
