@@ -5,7 +5,7 @@
 use std::time::Instant;
 
 use super::ast::{Ident, Rhs, Stmt, StmtKind};
-use super::session::{ErrorKind, Report, Session, SessionError, Style, SymKind};
+use super::session::{ErrorKind, Report, Rich, Session, SessionError, Style, SymKind};
 use super::split::SourceStmt;
 use super::value::Value;
 use crate::core::limits::{self, Limits};
@@ -43,6 +43,7 @@ impl Session {
             StmtKind::Print(e) => {
                 let v = self.eval(e)?;
                 report.push(Style::Result, plain::value(&v));
+                report.rich = Some(Rich::Value(v, self.states.clone()));
             }
             StmtKind::Run(c) => self.run_command(c, &[], &mut report, started)?,
             StmtKind::Check { lhs, rhs } => self.check(lhs, rhs, &mut report, src, origin)?,
@@ -57,7 +58,12 @@ impl Session {
                         text.push('\n');
                         (text, 0)
                     };
-                    crate::lang::files::write_atomic(&p, text.as_bytes()).map_err(|e| {
+                    crate::lang::files::write_file(
+                        &p,
+                        text.as_bytes(),
+                        crate::lang::files::FileKind::Script,
+                    )
+                    .map_err(|e| {
                         SessionError::at(
                             path.span,
                             ErrorKind::File {
@@ -130,7 +136,10 @@ impl Session {
     ) -> R<()> {
         let v = self.eval(expr)?;
         let text = match how.name.as_str() {
-            "latex" => latex::value(&v, &self.states),
+            "latex" => {
+                report.rich = Some(Rich::Latex);
+                latex::value(&v, &self.states)
+            }
             "brackets" => match &v {
                 Value::Field(f) => match &f.structure {
                     Some(terms) => super::structural::show_terms(terms),
@@ -191,7 +200,8 @@ impl Session {
                     if !bytes.ends_with(b"\n") {
                         bytes.push(b'\n');
                     }
-                    crate::lang::files::write_atomic(&p, &bytes).map_err(|e| {
+                    let kind = crate::lang::files::FileKind::Code;
+                    crate::lang::files::write_file(&p, &bytes, kind).map_err(|e| {
                         SessionError::at(
                             path.span,
                             ErrorKind::File {
@@ -465,6 +475,7 @@ impl Session {
             match e {
                 super::session::Event::Report(r) => {
                     report.lines.extend(r.lines);
+                    report.plots.extend(r.plots);
                     report.check_failed |= r.check_failed;
                     report.journal.extend(r.journal);
                 }
@@ -473,7 +484,16 @@ impl Session {
         }
         if let Some(message) = nested_error {
             let ran = std::mem::take(&mut report.journal);
-            return Err(SessionError::at(span, ErrorKind::Nested { message, ran }));
+            let printed = std::mem::take(&mut report.lines);
+            return Err(SessionError::at(
+                span,
+                ErrorKind::Nested {
+                    message,
+                    ran,
+                    printed,
+                    check_failed: report.check_failed,
+                },
+            ));
         }
         if status.quit {
             report.quit = true;

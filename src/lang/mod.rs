@@ -13,10 +13,10 @@ pub mod files;
 pub mod help;
 pub mod numeric_cmds;
 pub mod parse;
-mod progress;
+pub mod progress;
 pub mod session;
 pub mod split;
 pub mod structural;
 pub mod value;
 
-pub use session::{Event, Report, RunStatus, Session, Style};
+pub use session::{Event, Line, Report, Rich, RunStatus, Session, Style};

@@ -228,7 +228,7 @@ impl Session {
                                 },
                             )
                         })?;
-                        report.push(Style::Note, format!("plot written to {}", p.path));
+                        report.plot_written(&p.path, self.resolve_path(&p.path));
                     }
                 }
                 Ok(())
@@ -409,7 +409,7 @@ impl Session {
                                 },
                             )
                         })?;
-                        report.push(Style::Note, format!("plot written to {}", p.path));
+                        report.plot_written(&p.path, self.resolve_path(&p.path));
                     }
                 }
                 report.push(Style::Warn, "an averaged model is an approximation: validate it before it drives a real machine (help compare)");
