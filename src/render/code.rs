@@ -234,6 +234,7 @@ impl Writer<'_> {
         match self.lang {
             Lang::Python => format!("np.{f}({arg})"),
             Lang::Julia | Lang::C => format!("{f}({arg})"),
+            Lang::Rust if is_name(&arg) => format!("{arg}.{f}()"),
             Lang::Rust => format!("({arg}).{f}()"),
         }
     }
@@ -284,6 +285,10 @@ impl Writer<'_> {
         }
         join(e.terms().iter().map(|(k, c)| self.term(k, c)).collect())
     }
+}
+
+fn is_name(s: &str) -> bool {
+    s.chars().all(|c| c.is_ascii_alphanumeric() || c == '_')
 }
 
 fn paren_neg(k: i32) -> String {
@@ -469,7 +474,10 @@ pub fn function(lang: Lang, name: &str, shape: &Shape, states: &[Sym], params: &
                 Shape::Field(f) => format!("[f64; {}]", f.dim()),
                 Shape::Matrix(m) => format!("[[f64; {}]; {}]", m.cols, m.rows),
             };
-            out.push("#[allow(unused_variables, non_snake_case, clippy::all)]".to_string());
+            out.push(
+                "#[allow(unused_variables, unused_parens, non_snake_case, clippy::all)]"
+                    .to_string(),
+            );
             out.push(format!("pub fn {fname}({}) -> {ret} {{", sig.join(", ")));
             for (i, s) in state_names.iter().enumerate() {
                 out.push(format!("    let {s} = state[{i}];"));
