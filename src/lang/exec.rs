@@ -75,7 +75,7 @@ impl Session {
                     let mut note = format!("saved {} lines to {}", self.accepted.len(), path.path);
                     if *checks {
                         note.push_str(&format!(
-                            " with {}",
+                            " with {added} {}",
                             super::commands::plural(added, "check")
                         ));
                     }
