@@ -60,6 +60,11 @@ pub fn run_sources(sources: &[Source], timing: bool, painter: Painter) -> u8 {
         indent: "",
     };
     let mut status = RunStatus::default();
+    let n_inline = sources
+        .iter()
+        .filter(|s| matches!(s, Source::Inline(_)))
+        .count();
+    let mut inline_index = 0;
     for source in sources {
         let (text, origin) = match source {
             Source::File(path) => {
@@ -73,7 +78,10 @@ pub fn run_sources(sources: &[Source], timing: bool, painter: Painter) -> u8 {
                     }
                 }
             }
-            Source::Inline(text) => (text.clone(), INLINE_ORIGIN.to_string()),
+            Source::Inline(text) => {
+                inline_index += 1;
+                (text.clone(), inline_origin(inline_index, n_inline))
+            }
         };
         match run_text(&mut session, &text, &origin, &output) {
             Ok(one) => {
@@ -90,6 +98,17 @@ pub fn run_sources(sources: &[Source], timing: bool, painter: Painter) -> u8 {
         }
     }
     u8::try_from(status.exit_code()).unwrap_or(2)
+}
+
+/// The origin of the `index`-th of `count` `-e` arguments in messages:
+/// `-e` alone, `-e#2` for the second of several (line numbers count within
+/// the argument: `-e#2:3:5`).
+pub fn inline_origin(index: usize, count: usize) -> String {
+    if count > 1 {
+        format!("{INLINE_ORIGIN}#{index}")
+    } else {
+        INLINE_ORIGIN.to_string()
+    }
 }
 
 /// Runs one text statement by statement, printing as it goes; stops at the

@@ -244,6 +244,8 @@ pub enum SymKind {
     Param,
     /// An unspecified input function of time.
     Input,
+    /// An unspecified function of the state (`func V(s)`).
+    Func,
 }
 
 /// The outcome of running a whole text.
@@ -297,6 +299,11 @@ pub struct Session {
     pub(crate) states: Vec<Sym>,
     pub(crate) symbols: BTreeMap<String, SymKind>,
     pub(crate) names: BTreeMap<String, Value>,
+    /// The placeholders of a function definition being read (`plug(e,
+    /// V(s) = …)`), as names of the state while its body is evaluated.
+    pub(crate) placeholders: std::cell::RefCell<Vec<(String, Sym)>>,
+    /// Unspecified functions by name (`func V(s)`).
+    pub(crate) funcs: BTreeMap<String, std::sync::Arc<crate::core::func::Signature>>,
     /// Order in which names were defined (for `names`).
     pub(crate) order: Vec<String>,
     /// Accepted input lines, for `save`.
@@ -316,6 +323,8 @@ pub struct Session {
     pub(crate) run_depth: usize,
     /// Show timings in command summaries.
     pub show_timing: bool,
+    /// Charts beyond the declared state, and the chart of each bound value.
+    pub(crate) charts: super::chart::Charts,
 }
 
 impl Default for Session {
@@ -332,6 +341,8 @@ impl Session {
             states: Vec::new(),
             symbols: BTreeMap::new(),
             names: BTreeMap::new(),
+            funcs: BTreeMap::new(),
+            placeholders: Default::default(),
             order: Vec::new(),
             accepted: Vec::new(),
             bound: Vec::new(),
@@ -341,6 +352,7 @@ impl Session {
             base_dir: PathBuf::from("."),
             run_depth: 0,
             show_timing: true,
+            charts: Default::default(),
         }
     }
 
@@ -442,11 +454,24 @@ impl Session {
     ) -> Result<Report, SessionError> {
         limits::clear_interrupt();
         limits::start_work();
-        let parsed =
-            parse_stmt(&stmt.text).map_err(|e| SessionError::at(e.span, ErrorKind::Parse(e)))?;
+        let parsed = parse_stmt(&stmt.text).map_err(|e| {
+            match super::diag::misspelt_command(&stmt.text, |w| {
+                self.symbols.contains_key(w) || self.names.contains_key(w)
+            }) {
+                Some((span, msg)) => SessionError::invalid(span, msg),
+                None => SessionError::at(e.span, ErrorKind::Parse(e)),
+            }
+        })?;
         let started = Instant::now();
         super::progress::install();
-        let result = self.execute_parsed(&parsed, stmt, origin, started);
+        let result = match self.enter_chart(&parsed) {
+            Ok(scope) => {
+                let result = self.execute_parsed(&parsed, stmt, origin, started);
+                self.leave_chart(scope);
+                result
+            }
+            Err(e) => Err(e),
+        };
         super::progress::remove();
         if result.is_err() {
             // A binding made by a statement that then failed belongs to no line.
