@@ -93,6 +93,7 @@ pub fn run_prompt(invocation: &Invocation, painter: Painter) -> u8 {
             Read::Cancelled => continue,
             Read::End => break,
         };
+        session.begin_prompt_input(text.lines().count());
         match execute_input(&mut session, &text, &output, &mut journal) {
             Flow::Continue => {}
             Flow::Quit => break,

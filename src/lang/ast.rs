@@ -177,15 +177,22 @@ pub enum StmtKind {
         /// Right side.
         rhs: Expr,
     },
-    /// `show E as WORD` (the word is kept as typed; lowering validates it).
+    /// `show E as WORD [to PATH]` (the word is kept as typed; lowering validates it).
     Show {
         /// What to show.
         expr: Expr,
-        /// The format word, e.g. `latex` or `brackets`.
+        /// The format word, e.g. `latex`, `brackets` or `python`.
         how: Ident,
+        /// `to PATH`: write the text to a file instead of printing it.
+        to: Option<PathArg>,
     },
-    /// `save PATH`
-    Save(PathArg),
+    /// `save PATH [with checks]`
+    Save {
+        /// Where.
+        path: PathArg,
+        /// `with checks`: freeze every bound value as a `check` after its line.
+        checks: bool,
+    },
     /// `run PATH`
     RunFile(PathArg),
     /// `names`
@@ -703,13 +710,18 @@ fn write_stmt(out: &mut String, stmt: &Stmt) {
             write_expr(out, rhs);
             out.push(')');
         }
-        StmtKind::Show { expr, how } => {
+        StmtKind::Show { expr, how, to } => {
             out.push_str("(show ");
             write_expr(out, expr);
-            let _ = write!(out, " as {})", how.name);
+            let _ = write!(out, " as {}", how.name);
+            if let Some(p) = to {
+                let _ = write!(out, " to {:?}", p.path);
+            }
+            out.push(')');
         }
-        StmtKind::Save(path) => {
-            let _ = write!(out, "(save {:?})", path.path);
+        StmtKind::Save { path, checks } => {
+            let _ = write!(out, "(save {:?}", path.path);
+            out.push_str(if *checks { " with checks)" } else { ")" });
         }
         StmtKind::RunFile(path) => {
             let _ = write!(out, "(run {:?})", path.path);

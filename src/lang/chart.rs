@@ -529,7 +529,7 @@ fn stmt_mentions<'a>(stmt: &'a Stmt, out: &mut Vec<Mention<'a>>) {
         | StmtKind::Param(_)
         | StmtKind::Input(_)
         | StmtKind::Func(_)
-        | StmtKind::Save(_)
+        | StmtKind::Save { .. }
         | StmtKind::RunFile(_)
         | StmtKind::Names
         | StmtKind::Forget(_)

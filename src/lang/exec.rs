@@ -10,7 +10,7 @@ use super::split::SourceStmt;
 use super::value::Value;
 use crate::core::limits::{self, Limits};
 use crate::core::Sym;
-use crate::render::{latex, plain};
+use crate::render::{code, latex, plain};
 
 type R<T> = Result<T, SessionError>;
 
@@ -48,46 +48,17 @@ impl Session {
             }
             StmtKind::Run(c) => self.run_command(c, &[], &mut report, started)?,
             StmtKind::Check { lhs, rhs } => self.check(lhs, rhs, &mut report, src, origin)?,
-            StmtKind::Show { expr, how } => {
-                let v = self.eval(expr)?;
-                match how.name.as_str() {
-                    "latex" => {
-                        for l in latex::value(&v, &self.states).lines() {
-                            report.push(Style::Result, l);
-                        }
-                        report.rich = Some(Rich::Latex);
-                    }
-                    "brackets" => match &v {
-                        Value::Field(f) => match &f.structure {
-                            Some(terms) => report.push(Style::Result, super::structural::show_terms(terms)),
-                            None => {
-                                return Err(SessionError::invalid(
-                                    expr.span,
-                                    "no bracket form: it exists for results of `magnus`, `average` and `bch` \
-                                     on systems written as Σ c_i(t)*X_i with named fields X_i",
-                                ))
-                            }
-                        },
-                        _ => {
-                            return Err(SessionError::invalid(
-                                expr.span,
-                                format!("a {} has no bracket form", v.kind_name()),
-                            ))
-                        }
-                    },
-                    other => {
-                        return Err(SessionError::invalid(
-                            how.span,
-                            format!("unknown display `{other}`: use `latex` or `brackets`"),
-                        ))
-                    }
-                }
-            }
-            StmtKind::Save(path) => {
+            StmtKind::Show { expr, how, to } => self.show(expr, how, to.as_ref(), &mut report)?,
+            StmtKind::Save { path, checks } => {
                 if !self.replaying {
                     let p = self.resolve_path(&path.path);
-                    let mut text = self.accepted.join("\n");
-                    text.push('\n');
+                    let (text, added) = if *checks {
+                        self.script_with_checks()
+                    } else {
+                        let mut text = self.accepted.join("\n");
+                        text.push('\n');
+                        (text, 0)
+                    };
                     crate::lang::files::write_file(
                         &p,
                         text.as_bytes(),
@@ -102,10 +73,14 @@ impl Session {
                             },
                         )
                     })?;
-                    report.push(
-                        Style::Note,
-                        format!("saved {} lines to {}", self.accepted.len(), path.path),
-                    );
+                    let mut note = format!("saved {} lines to {}", self.accepted.len(), path.path);
+                    if *checks {
+                        note.push_str(&format!(
+                            " with {added} {}",
+                            super::commands::plural(added, "check")
+                        ));
+                    }
+                    report.push(Style::Note, note);
                 }
             }
             StmtKind::RunFile(path) => self.run_file(&path.path, path.span, &mut report)?,
@@ -160,6 +135,98 @@ impl Session {
             StmtKind::Quit => report.quit = true,
         }
         Ok(report)
+    }
+
+    /// `show E as WORD [to FILE]`: LaTeX, the bracket form, or code for
+    /// simulation; printed, or written atomically to the file.
+    fn show(
+        &self,
+        expr: &super::ast::Expr,
+        how: &Ident,
+        to: Option<&super::ast::PathArg>,
+        report: &mut Report,
+    ) -> R<()> {
+        let v = self.eval(expr)?;
+        let text = match how.name.as_str() {
+            "latex" => {
+                report.rich = Some(Rich::Latex);
+                latex::value(&v, &self.states)
+            }
+            "brackets" => match &v {
+                Value::Field(f) => match &f.structure {
+                    Some(terms) => super::structural::show_terms(terms),
+                    None => return Err(SessionError::invalid(
+                        expr.span,
+                        "no bracket form: it exists for results of `magnus`, `average` and `bch` \
+                             on systems written as Σ c_i(t)*X_i with named fields X_i",
+                    )),
+                },
+                _ => {
+                    return Err(SessionError::invalid(
+                        expr.span,
+                        format!("a {} has no bracket form", v.kind_name()),
+                    ))
+                }
+            },
+            word => {
+                let Some(lang) = code::Lang::from_word(word) else {
+                    return Err(SessionError::invalid(
+                        how.span,
+                        format!(
+                            "unknown display `{word}`: use `latex`, `brackets`, or code: \
+                             `python`, `julia`, `c`, `rust`"
+                        ),
+                    ));
+                };
+                let shape = match &v {
+                    Value::Scalar(e) => code::Shape::Scalar(e),
+                    Value::Field(f) => code::Shape::Field(&f.field),
+                    Value::Matrix(m) => code::Shape::Matrix(m),
+                };
+                let name = match &expr.kind {
+                    super::ast::ExprKind::Name(n) => n.clone(),
+                    _ => "ordex_value".to_string(),
+                };
+                let declared: Vec<Sym> = self
+                    .symbols
+                    .iter()
+                    .filter(|(_, k)| **k == SymKind::Param)
+                    .map(|(n, _)| Sym::new(n))
+                    .collect();
+                let mut declared = declared;
+                declared.sort();
+                let params = code::parameters(&shape, &self.states, &declared);
+                code::function(lang, &name, &shape, &self.states, &params)
+            }
+        };
+        match to {
+            None => {
+                for l in text.lines() {
+                    report.push(Style::Result, l);
+                }
+            }
+            Some(path) => {
+                if !self.replaying {
+                    let p = self.resolve_path(&path.path);
+                    let mut bytes = text.into_bytes();
+                    if !bytes.ends_with(b"\n") {
+                        bytes.push(b'\n');
+                    }
+                    let kind = crate::lang::files::FileKind::Code;
+                    crate::lang::files::write_file(&p, &bytes, kind).map_err(|e| {
+                        SessionError::at(
+                            path.span,
+                            ErrorKind::File {
+                                path: path.path.clone(),
+                                reason: e,
+                            },
+                        )
+                    })?;
+                    report.push(Style::Note, format!("wrote {} to {}", how.name, path.path));
+                }
+            }
+        }
+        Ok(())
     }
 
     pub(crate) fn check_new_name(&self, id: &Ident, allow_redefine_value: bool) -> R<()> {
@@ -299,7 +366,17 @@ impl Session {
         self.check_new_name(id, true)?;
         let summary = self.describe(&v);
         self.record_chart(&id.name, &v);
-        if self.names.insert(id.name.clone(), v).is_some() {
+        let old = self.names.insert(id.name.clone(), v);
+        let replaced = old.is_some();
+        if let Some(old) = old {
+            self.retire(&id.name, old);
+        }
+        self.bound.push(super::session::Bound {
+            line: self.accepted.len(),
+            name: id.name.clone(),
+            retired: None,
+        });
+        if replaced {
             report.push(
                 Style::Note,
                 format!("{}: {summary} (replaces the previous {})", id.name, id.name),
@@ -407,7 +484,8 @@ impl Session {
     /// defined value uses. Coordinates stay (a new `state` replaces the state).
     fn forget(&mut self, id: &Ident, report: &mut Report) -> R<()> {
         let name = id.name.as_str();
-        if self.names.remove(name).is_some() {
+        if let Some(old) = self.names.remove(name) {
+            self.retire(name, old);
             self.order.retain(|n| n != name);
             self.forget_chart(name);
             report.push(Style::Note, format!("forgot {name}"));
@@ -507,7 +585,7 @@ impl Session {
                 let (line, _) = src.locate(0);
                 let place = match origin {
                     Some(o) => format!("{o}:{line}"),
-                    None => format!("line {line}"),
+                    None => format!("line {}", line + self.line_offset),
                 };
                 report.push(
                     Style::Fail,

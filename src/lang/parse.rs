@@ -1437,9 +1437,17 @@ impl<'a> Parser<'a> {
                 "check" => return self.check(after),
                 "show" => return self.show(after),
                 "save" => {
-                    let (rest, path) = self.path(after, "a file name after `save`")?;
+                    let (mut rest, path) = self.path(after, "a file name after `save`")?;
+                    let mut checks = false;
+                    if let Some(after_with) = self.keyword(rest, "with") {
+                        let Some(after_checks) = self.keyword(after_with, "checks") else {
+                            return self.expected(after_with, "`checks` after `with` in `save`");
+                        };
+                        rest = after_checks;
+                        checks = true;
+                    }
                     self.end(rest, Some(QUOTE_HINT))?;
-                    return Ok((rest, StmtKind::Save(path)));
+                    return Ok((rest, StmtKind::Save { path, checks }));
                 }
                 "run" => {
                     let (rest, path) = self.path(after, "a file name after `run`")?;
@@ -1580,12 +1588,18 @@ impl<'a> Parser<'a> {
                 "`as` and a format (`latex` or `brackets`) after the expression in `show`",
             );
         };
-        let (rest, how) = self.word(
+        let (mut rest, how) = self.word(
             after_as,
             "a format word after `as`, such as `latex` or `brackets`",
         )?;
+        let mut to = None;
+        if let Some(after_to) = self.keyword(rest, "to") {
+            let (after_path, path) = self.path(after_to, "a file name after `to`")?;
+            rest = after_path;
+            to = Some(path);
+        }
         self.end(rest, None)?;
-        Ok((rest, StmtKind::Show { expr, how }))
+        Ok((rest, StmtKind::Show { expr, how, to }))
     }
 
     /// `NAME = ...` or `NAME, NAME = command` (`input` starts at the first name).
@@ -2248,7 +2262,7 @@ mod tests {
         assert_eq!((to.value, to.span), (12, Span::new(12, 14)));
 
         let save = stmt("save \"my file.ordex\"");
-        let StmtKind::Save(path) = &save.kind else {
+        let StmtKind::Save { path, .. } = &save.kind else {
             panic!("not save: {}", save.sexpr());
         };
         assert_eq!(path.span, Span::new(5, 20));
@@ -2282,6 +2296,14 @@ mod tests {
             ),
             ("show A as brackets", "(show A as brackets)"),
             ("save session.ordex", "(save \"session.ordex\")"),
+            (
+                "save session.ordex with checks",
+                "(save \"session.ordex\" with checks)",
+            ),
+            (
+                "show jac(X) as c to \"field.c\"",
+                "(show (call jac X) as c to \"field.c\")",
+            ),
             ("save \"my #1 file.ordex\"", "(save \"my #1 file.ordex\")"),
             ("save out.ordex # the session", "(save \"out.ordex\")"),
             ("run scripts/boom.ordex", "(run \"scripts/boom.ordex\")"),

@@ -281,6 +281,19 @@ pub enum Event {
     Error(String),
 }
 
+/// A name bound by an accepted line. The value is the current one while
+/// the name keeps it; a redefinition or `forget` moves the old value here
+/// (no copy is made for a value that is never replaced).
+#[derive(Clone, Debug)]
+pub(crate) struct Bound {
+    /// Index of the accepted line that bound the name.
+    pub(crate) line: usize,
+    /// The name.
+    pub(crate) name: String,
+    /// The value it had, once replaced or forgotten.
+    pub(crate) retired: Option<Value>,
+}
+
 /// A session.
 pub struct Session {
     pub(crate) states: Vec<Sym>,
@@ -295,6 +308,13 @@ pub struct Session {
     pub(crate) order: Vec<String>,
     /// Accepted input lines, for `save`.
     pub(crate) accepted: Vec<String>,
+    /// Every binding of a name, by the accepted line that made it, for
+    /// `save FILE with checks`.
+    pub(crate) bound: Vec<Bound>,
+    /// Lines read at the prompt before the current input, so that a failed
+    /// check there names its line in the session.
+    pub(crate) line_offset: usize,
+    lines_seen: usize,
     /// Skip file writes (journal replay).
     pub replaying: bool,
     /// Directory against which relative paths are resolved.
@@ -325,6 +345,9 @@ impl Session {
             placeholders: Default::default(),
             order: Vec::new(),
             accepted: Vec::new(),
+            bound: Vec::new(),
+            line_offset: 0,
+            lines_seen: 0,
             replaying: false,
             base_dir: PathBuf::from("."),
             run_depth: 0,
@@ -350,6 +373,56 @@ impl Session {
         v.sort();
         v.dedup();
         v
+    }
+
+    /// Called by the prompt before each input of `n_lines` lines: a failed
+    /// check then names its line counted from the start of the session.
+    pub fn begin_prompt_input(&mut self, n_lines: usize) {
+        self.line_offset = self.lines_seen;
+        self.lines_seen += n_lines.max(1);
+    }
+
+    /// Moves the value a name loses (redefinition, `forget`) to its last
+    /// binding record.
+    pub(crate) fn retire(&mut self, name: &str, old: Value) {
+        if let Some(b) = self
+            .bound
+            .iter_mut()
+            .rev()
+            .find(|b| b.name == name && b.retired.is_none())
+        {
+            b.retired = Some(old);
+        }
+    }
+
+    /// The script `save FILE with checks` writes: every accepted line, and
+    /// after a line that bound names, `check NAME == VALUE` for each with
+    /// the value it was given there (in input syntax). A check that is
+    /// already the next line (a replayed saved script) is not repeated.
+    pub(crate) fn script_with_checks(&self) -> (String, usize) {
+        let mut out = String::new();
+        let mut added = 0;
+        let mut bound = self.bound.iter().peekable();
+        for (i, line) in self.accepted.iter().enumerate() {
+            out.push_str(line);
+            out.push('\n');
+            while let Some(b) = bound.next_if(|b| b.line <= i) {
+                let value = b.retired.as_ref().or_else(|| self.names.get(&b.name));
+                let Some(value) = value else { continue };
+                let check = format!("check {} == {}", b.name, crate::render::plain::value(value));
+                let already = self.accepted.iter().skip(i + 1);
+                if already
+                    .take_while(|l| l.starts_with("check "))
+                    .any(|l| *l == check)
+                {
+                    continue;
+                }
+                out.push_str(&check);
+                out.push('\n');
+                added += 1;
+            }
+        }
+        (out, added)
     }
 
     /// The value bound to `name`.
@@ -400,8 +473,16 @@ impl Session {
             Err(e) => Err(e),
         };
         super::progress::remove();
+        if result.is_err() {
+            // A binding made by a statement that then failed belongs to no line.
+            let n = self.accepted.len();
+            self.bound.retain(|b| b.line < n);
+        }
         let mut report = result?;
-        let is_file_op = matches!(parsed.kind, StmtKind::Save(_) | StmtKind::RunFile(_));
+        let is_file_op = matches!(
+            parsed.kind,
+            StmtKind::Save { .. } | StmtKind::RunFile(_) | StmtKind::Help(_) | StmtKind::Names
+        );
         if !is_file_op && !matches!(parsed.kind, StmtKind::Quit) {
             self.accepted.push(stmt.source());
         }

@@ -1,5 +1,6 @@
 //! Rendering of values: plain text in the input syntax (so every result
-//! can be pasted back) and LaTeX.
+//! can be pasted back), LaTeX, and code for simulation.
 
+pub mod code;
 pub mod latex;
 pub mod plain;

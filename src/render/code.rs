@@ -1,0 +1,548 @@
+//! Code for simulation: a self-contained function of `(t, state, params)`
+//! that evaluates a scalar, a field or a matrix in floating point, in
+//! Python (NumPy), Julia, C99 or Rust. Parameters are named arguments
+//! (keyword-only in Python and Julia); the exact value is kept in a comment
+//! beside the code, one line per entry.
+//!
+//! Works on core types only: the caller passes the value's shape, the state
+//! coordinates and the parameters in the order the arguments should take.
+//! Names that are keywords or helpers of the target language get a
+//! trailing underscore (`lambda` → `lambda_` in Python).
+
+use crate::core::expr::{Beat, Key, Lin, Wave};
+use crate::core::{Expr, Field, Matrix, Sym, Q};
+
+/// A target language.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Lang {
+    /// Python 3 with NumPy.
+    Python,
+    /// Plain Julia.
+    Julia,
+    /// C99 with `<math.h>`.
+    C,
+    /// Rust.
+    Rust,
+}
+
+impl Lang {
+    /// The language for a `show … as WORD` word.
+    pub fn from_word(w: &str) -> Option<Lang> {
+        match w {
+            "python" => Some(Lang::Python),
+            "julia" => Some(Lang::Julia),
+            "c" => Some(Lang::C),
+            "rust" => Some(Lang::Rust),
+            _ => None,
+        }
+    }
+
+    /// The word users type.
+    pub fn word(self) -> &'static str {
+        match self {
+            Lang::Python => "python",
+            Lang::Julia => "julia",
+            Lang::C => "c",
+            Lang::Rust => "rust",
+        }
+    }
+
+    fn comment(self) -> &'static str {
+        match self {
+            Lang::Python | Lang::Julia => "#",
+            Lang::C | Lang::Rust => "//",
+        }
+    }
+
+    /// Keywords and names the generated code itself uses.
+    fn taken(self) -> &'static [&'static str] {
+        match self {
+            Lang::Python => &[
+                "False", "None", "True", "and", "as", "assert", "async", "await", "break", "class",
+                "continue", "def", "del", "elif", "else", "except", "finally", "for", "from",
+                "global", "if", "import", "in", "is", "lambda", "nonlocal", "not", "or", "pass",
+                "raise", "return", "try", "while", "with", "yield", "np", "state",
+            ],
+            Lang::Julia => &[
+                "baremodule",
+                "begin",
+                "break",
+                "catch",
+                "const",
+                "continue",
+                "do",
+                "else",
+                "elseif",
+                "end",
+                "export",
+                "false",
+                "finally",
+                "for",
+                "function",
+                "global",
+                "if",
+                "import",
+                "let",
+                "local",
+                "macro",
+                "module",
+                "quote",
+                "return",
+                "struct",
+                "true",
+                "try",
+                "using",
+                "while",
+                "state",
+                "sin",
+                "cos",
+                "exp",
+                "im",
+                "e",
+            ],
+            Lang::C => &[
+                "auto", "break", "case", "char", "const", "continue", "default", "do", "double",
+                "else", "enum", "extern", "float", "for", "goto", "if", "inline", "int", "long",
+                "register", "restrict", "return", "short", "signed", "sizeof", "static", "struct",
+                "switch", "typedef", "union", "unsigned", "void", "volatile", "while", "state",
+                "out", "sin", "cos", "exp", "pow",
+            ],
+            Lang::Rust => &[
+                "as", "break", "const", "continue", "crate", "else", "enum", "extern", "false",
+                "fn", "for", "if", "impl", "in", "let", "loop", "match", "mod", "move", "mut",
+                "pub", "ref", "return", "self", "static", "struct", "super", "trait", "true",
+                "type", "unsafe", "use", "where", "while", "async", "await", "dyn", "abstract",
+                "become", "box", "do", "final", "macro", "override", "priv", "typeof", "unsized",
+                "virtual", "yield", "try", "state",
+            ],
+        }
+    }
+
+    /// A symbol's name in the target language.
+    pub fn ident(self, name: &str) -> String {
+        if self.taken().contains(&name) {
+            format!("{name}_")
+        } else {
+            name.to_string()
+        }
+    }
+}
+
+/// What is evaluated.
+#[derive(Clone, Copy, Debug)]
+pub enum Shape<'a> {
+    /// A scalar: the function returns one number.
+    Scalar(&'a Expr),
+    /// A field: one number per state coordinate.
+    Field(&'a Field),
+    /// A matrix, row by row.
+    Matrix(&'a Matrix),
+}
+
+impl Shape<'_> {
+    fn entries(&self) -> Vec<&Expr> {
+        match self {
+            Shape::Scalar(e) => vec![*e],
+            Shape::Field(f) => f.0.iter().collect(),
+            Shape::Matrix(m) => m.data.iter().collect(),
+        }
+    }
+}
+
+/// The parameters a value needs (symbols other than the states, `t` and
+/// `pi`), in the order of `order` (the session's declarations), then any
+/// others in symbol order.
+pub fn parameters(shape: &Shape, states: &[Sym], order: &[Sym]) -> Vec<Sym> {
+    let mut found: Vec<Sym> = Vec::new();
+    for e in shape.entries() {
+        for s in e.symbols() {
+            if s != Sym::T && s != Sym::PI && !states.contains(&s) && !found.contains(&s) {
+                found.push(s);
+            }
+        }
+    }
+    let mut out: Vec<Sym> = order
+        .iter()
+        .copied()
+        .filter(|s| found.contains(s))
+        .collect();
+    let mut rest: Vec<Sym> = found.into_iter().filter(|s| !out.contains(s)).collect();
+    rest.sort();
+    out.extend(rest);
+    out
+}
+
+/// A double literal valid in all four languages (`3.0`, `0.25`, `1e-5`).
+fn float_lit(x: f64) -> String {
+    let s = format!("{x:?}");
+    if s.contains(['.', 'e', 'n', 'i']) {
+        s
+    } else {
+        format!("{s}.0")
+    }
+}
+
+/// The coefficient as a double: `p/q` as one division of exact doubles
+/// when both fit in 53 bits (correctly rounded), else the nearest double.
+fn coeff_lit(c: &Q) -> String {
+    const EXACT: i64 = 1 << 53;
+    match (c.numer().try_into(), c.denom().try_into()) {
+        (Ok(n), Ok(1i64)) if (-EXACT..=EXACT).contains(&n) => float_lit(n as f64),
+        (Ok(n), Ok(d)) if (-EXACT..=EXACT).contains(&n) && d <= EXACT => {
+            let n: i64 = n;
+            let d: i64 = d;
+            format!("({} / {})", float_lit(n as f64), float_lit(d as f64))
+        }
+        _ => float_lit(c.to_f64()),
+    }
+}
+
+struct Writer<'a> {
+    lang: Lang,
+    states: &'a [Sym],
+}
+
+impl Writer<'_> {
+    fn sym(&self, s: Sym) -> String {
+        if s == Sym::T {
+            return "t".to_string();
+        }
+        if s == Sym::PI {
+            return match self.lang {
+                Lang::Python => "np.pi".to_string(),
+                Lang::Julia => "pi".to_string(),
+                Lang::C => "3.14159265358979323846".to_string(),
+                Lang::Rust => "std::f64::consts::PI".to_string(),
+            };
+        }
+        self.lang.ident(&s.name())
+    }
+
+    fn power(&self, base: String, k: i32) -> String {
+        if k == 1 {
+            return base;
+        }
+        match self.lang {
+            Lang::Python => format!("{base}**{}", paren_neg(k)),
+            Lang::Julia => format!("{base}^{}", paren_neg(k)),
+            Lang::C => format!("pow({base}, {k})"),
+            Lang::Rust => format!("{base}.powi({k})"),
+        }
+    }
+
+    fn call(&self, f: &str, arg: String) -> String {
+        match self.lang {
+            Lang::Python => format!("np.{f}({arg})"),
+            Lang::Julia | Lang::C => format!("{f}({arg})"),
+            Lang::Rust if is_name(&arg) => format!("{arg}.{f}()"),
+            Lang::Rust => format!("({arg}).{f}()"),
+        }
+    }
+
+    fn lin(&self, l: &Lin, time: Option<&Q>) -> String {
+        let mut parts: Vec<(bool, String)> = Vec::new();
+        for (s, c) in l.0.iter() {
+            parts.push(scaled(c, self.sym(*s)));
+        }
+        if let Some(k) = time {
+            parts.push(scaled(k, "t".to_string()));
+        }
+        join(parts)
+    }
+
+    fn term(&self, k: &Key, c: &Q) -> (bool, String) {
+        let mut factors: Vec<String> = Vec::new();
+        let a = c.abs();
+        if !a.is_one() {
+            factors.push(coeff_lit(&a));
+        }
+        for (s, e) in &k.mono.0 {
+            factors.push(self.power(self.sym(*s), *e));
+        }
+        if !k.exp.is_zero() {
+            factors.push(self.call("exp", self.lin(&k.exp, None)));
+        }
+        match &k.wave {
+            Wave::One => {}
+            Wave::Cos(l) => factors.push(self.call("cos", self.lin(l, None))),
+            Wave::Sin(l) => factors.push(self.call("sin", self.lin(l, None))),
+        }
+        let none = Lin::default();
+        match &k.beat {
+            Beat::One => {}
+            Beat::Cos(w) => factors.push(self.call("cos", self.lin(&none, Some(w)))),
+            Beat::Sin(w) => factors.push(self.call("sin", self.lin(&none, Some(w)))),
+        }
+        if factors.is_empty() {
+            factors.push("1.0".to_string());
+        }
+        (c.is_negative(), factors.join(" * "))
+    }
+
+    fn expr(&self, e: &Expr) -> String {
+        if e.is_zero() {
+            return "0.0".to_string();
+        }
+        join(e.terms().iter().map(|(k, c)| self.term(k, c)).collect())
+    }
+}
+
+fn is_name(s: &str) -> bool {
+    s.chars().all(|c| c.is_ascii_alphanumeric() || c == '_')
+}
+
+fn paren_neg(k: i32) -> String {
+    if k < 0 {
+        format!("({k})")
+    } else {
+        k.to_string()
+    }
+}
+
+fn scaled(c: &Q, v: String) -> (bool, String) {
+    let a = c.abs();
+    let body = if a.is_one() {
+        v
+    } else {
+        format!("{} * {v}", coeff_lit(&a))
+    };
+    (c.is_negative(), body)
+}
+
+fn join(parts: Vec<(bool, String)>) -> String {
+    let mut s = String::new();
+    for (i, (neg, body)) in parts.into_iter().enumerate() {
+        if i == 0 {
+            if neg {
+                s.push('-');
+            }
+        } else {
+            s.push_str(if neg { " - " } else { " + " });
+        }
+        s.push_str(&body);
+    }
+    s
+}
+
+/// The exact value, one comment line per entry.
+fn exact_comment(lang: Lang, name: &str, shape: &Shape) -> Vec<String> {
+    let c = lang.comment();
+    let mut out = vec![format!("{c} exact value of {name} (ordex):")];
+    match shape {
+        Shape::Scalar(e) => out.push(format!("{c}   {name} = {e}")),
+        Shape::Field(f) => {
+            for (i, e) in f.0.iter().enumerate() {
+                out.push(format!("{c}   {name}[{i}] = {e}"));
+            }
+        }
+        Shape::Matrix(m) => {
+            for i in 0..m.rows {
+                for (j, e) in m.row(i).iter().enumerate() {
+                    out.push(format!("{c}   {name}[{i}, {j}] = {e}"));
+                }
+            }
+        }
+    }
+    out
+}
+
+/// The function `name(t, state, params…)` evaluating `shape` in `lang`.
+/// `params` are the named arguments, in order (see [`parameters`]).
+pub fn function(lang: Lang, name: &str, shape: &Shape, states: &[Sym], params: &[Sym]) -> String {
+    let w = Writer { lang, states };
+    let fname = lang.ident(name);
+    let state_names: Vec<String> = w.states.iter().map(|s| w.sym(*s)).collect();
+    let param_names: Vec<String> = params.iter().map(|s| w.sym(*s)).collect();
+    let entries: Vec<String> = shape.entries().iter().map(|e| w.expr(e)).collect();
+    let n = state_names.len();
+    let mut out: Vec<String> = exact_comment(lang, name, shape);
+    let what = match shape {
+        Shape::Scalar(_) => "a number".to_string(),
+        Shape::Field(f) => format!("the {} components", f.dim()),
+        Shape::Matrix(m) => format!("the {}x{} matrix", m.rows, m.cols),
+    };
+    let state_doc = format!("state = ({})", state_names.join(", "));
+    match lang {
+        Lang::Python => {
+            out.push(format!(
+                "{} state = ({}); returns {what}",
+                lang.comment(),
+                state_names.join(", ")
+            ));
+            out.push("import numpy as np".to_string());
+            out.push(String::new());
+            out.push(String::new());
+            let mut sig = vec!["t".to_string(), "state".to_string()];
+            if !param_names.is_empty() {
+                sig.push("*".to_string());
+                sig.extend(param_names.iter().cloned());
+            }
+            out.push(format!("def {fname}({}):", sig.join(", ")));
+            if n > 0 {
+                out.push(format!("    {} = state", unpack(&state_names)));
+            }
+            let body = match shape {
+                Shape::Scalar(_) => entries[0].clone(),
+                Shape::Field(_) => format!("np.array([{}])", indent_list(&entries, "        ")),
+                Shape::Matrix(m) => {
+                    let rows: Vec<String> = (0..m.rows)
+                        .map(|i| format!("[{}]", entries[i * m.cols..(i + 1) * m.cols].join(", ")))
+                        .collect();
+                    format!("np.array([{}])", indent_list(&rows, "        "))
+                }
+            };
+            out.push(format!("    return {body}"));
+        }
+        Lang::Julia => {
+            out.push(format!("# {state_doc}; returns {what}"));
+            let params = if param_names.is_empty() {
+                String::new()
+            } else {
+                format!("; {}", param_names.join(", "))
+            };
+            out.push(format!("function {fname}(t, state{params})"));
+            if n > 0 {
+                out.push(format!("    {} = state", unpack(&state_names)));
+            }
+            let body = match shape {
+                Shape::Scalar(_) => entries[0].clone(),
+                Shape::Field(_) => format!("[{}]", indent_list(&entries, "        ")),
+                Shape::Matrix(m) => {
+                    let rows: Vec<String> = (0..m.rows)
+                        .map(|i| {
+                            entries[i * m.cols..(i + 1) * m.cols]
+                                .iter()
+                                .map(|e| format!("({e})"))
+                                .collect::<Vec<_>>()
+                                .join(" ")
+                        })
+                        .collect();
+                    format!("[{}]", rows.join(";\n        "))
+                }
+            };
+            out.push(format!("    return {body}"));
+            out.push("end".to_string());
+        }
+        Lang::C => {
+            out.push(format!(
+                "// {state_doc}; {}",
+                match shape {
+                    Shape::Scalar(_) => "returns a number".to_string(),
+                    Shape::Field(_) => format!("writes {what} to out[0..{}]", n),
+                    Shape::Matrix(m) =>
+                        format!("writes {what} to out, row by row (out[i*{} + j])", m.cols),
+                }
+            ));
+            out.push("#include <math.h>".to_string());
+            out.push(String::new());
+            let mut sig = vec!["double t".to_string(), "const double *state".to_string()];
+            sig.extend(param_names.iter().map(|p| format!("double {p}")));
+            let ret = match shape {
+                Shape::Scalar(_) => "double",
+                _ => {
+                    sig.push("double *out".to_string());
+                    "void"
+                }
+            };
+            out.push(format!("{ret} {fname}({})", sig.join(", ")));
+            out.push("{".to_string());
+            for (i, s) in state_names.iter().enumerate() {
+                out.push(format!("    const double {s} = state[{i}];"));
+            }
+            let mut unused = vec!["t".to_string(), "state".to_string()];
+            unused.extend(state_names.iter().cloned());
+            unused.extend(param_names.iter().cloned());
+            for u in unused {
+                out.push(format!("    (void){u};"));
+            }
+            match shape {
+                Shape::Scalar(_) => out.push(format!("    return {};", entries[0])),
+                _ => {
+                    for (i, e) in entries.iter().enumerate() {
+                        out.push(format!("    out[{i}] = {e};"));
+                    }
+                }
+            }
+            out.push("}".to_string());
+        }
+        Lang::Rust => {
+            out.push(format!("// {state_doc}; returns {what}"));
+            let mut sig = vec!["t: f64".to_string(), "state: &[f64]".to_string()];
+            sig.extend(param_names.iter().map(|p| format!("{p}: f64")));
+            let ret = match shape {
+                Shape::Scalar(_) => "f64".to_string(),
+                Shape::Field(f) => format!("[f64; {}]", f.dim()),
+                Shape::Matrix(m) => format!("[[f64; {}]; {}]", m.cols, m.rows),
+            };
+            out.push(
+                "#[allow(unused_variables, unused_parens, non_snake_case, clippy::all)]"
+                    .to_string(),
+            );
+            out.push(format!("pub fn {fname}({}) -> {ret} {{", sig.join(", ")));
+            for (i, s) in state_names.iter().enumerate() {
+                out.push(format!("    let {s} = state[{i}];"));
+            }
+            let body = match shape {
+                Shape::Scalar(_) => entries[0].clone(),
+                Shape::Field(_) => format!("[{}]", indent_list(&entries, "        ")),
+                Shape::Matrix(m) => {
+                    let rows: Vec<String> = (0..m.rows)
+                        .map(|i| format!("[{}]", entries[i * m.cols..(i + 1) * m.cols].join(", ")))
+                        .collect();
+                    format!("[{}]", indent_list(&rows, "        "))
+                }
+            };
+            out.push(format!("    {body}"));
+            out.push("}".to_string());
+        }
+    }
+    let mut s = out.join("\n");
+    s.push('\n');
+    s
+}
+
+/// The left side of `… = state`: `x,` for one name, `a, b` for several.
+fn unpack(names: &[String]) -> String {
+    if names.len() == 1 {
+        format!("{},", names[0])
+    } else {
+        names.join(", ")
+    }
+}
+
+/// Entries of a list literal, one a line when there are several.
+fn indent_list(items: &[String], pad: &str) -> String {
+    if items.len() <= 1 {
+        return items.join(", ");
+    }
+    let inner: Vec<String> = items.iter().map(|i| format!("{pad}{i}")).collect();
+    format!(
+        "\n{},\n{}",
+        inner.join(",\n"),
+        &pad[..pad.len().saturating_sub(4)]
+    )
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn literals_are_valid_doubles_everywhere() {
+        assert_eq!(float_lit(3.0), "3.0");
+        assert_eq!(float_lit(0.25), "0.25");
+        assert_eq!(float_lit(1e-5), "1e-5");
+        assert_eq!(coeff_lit(&Q::ratio(1, 4).unwrap()), "(1.0 / 4.0)");
+        assert_eq!(coeff_lit(&Q::int(-3)), "-3.0");
+    }
+
+    #[test]
+    fn keywords_get_an_underscore() {
+        assert_eq!(Lang::Python.ident("lambda"), "lambda_");
+        assert_eq!(Lang::Python.ident("del"), "del_");
+        assert_eq!(Lang::C.ident("double"), "double_");
+        assert_eq!(Lang::Rust.ident("type"), "type_");
+        assert_eq!(Lang::Julia.ident("end"), "end_");
+        assert_eq!(Lang::Python.ident("gam"), "gam");
+    }
+}
