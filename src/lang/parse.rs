@@ -2126,6 +2126,22 @@ mod tests {
     }
 
     #[test]
+    fn change_and_average_as_keep_their_names() {
+        let s = stmt("P = change A to r, phi by x = r*cos(phi), v = r*sin(phi)");
+        assert_eq!(
+            s.sexpr(),
+            "(define P (change A to r phi by (= x (* r (call cos phi))) (= v (* r (call sin phi)))))"
+        );
+        let s = stmt("Z = average S to 2 in eps classic as z1, z2");
+        assert_eq!(
+            s.sexpr(),
+            "(define Z (average S to 2 in eps classic as z1 z2))"
+        );
+        assert!(parse_stmt("P = change A to r, phi").is_err());
+        assert!(parse_stmt("P = change A to r, by x = r").is_err());
+    }
+
+    #[test]
     fn average_keeps_every_part() {
         let statement = stmt("A, W = average S to 3 in eps classic depth 5 with transform");
         let StmtKind::Define { names, rhs } = &statement.kind else {
