@@ -1304,24 +1304,9 @@ impl<'a> Parser<'a> {
         word: &str,
         make: fn(Vec<Ident>) -> StmtKind,
     ) -> PResult<'a, StmtKind> {
-        let mut names = Vec::new();
-        let mut next_in = input;
-        loop {
-            let what = if names.is_empty() {
-                format!("a name after `{word}`")
-            } else {
-                "a name after `,`".to_string()
-            };
-            let (rest, name) = self.name(next_in, &what)?;
-            names.push(name);
-            match ws(rest).strip_prefix(',') {
-                Some(after) => next_in = after,
-                None => {
-                    self.end(rest, Some("`,` or the end of the line"))?;
-                    return Ok((rest, make(names)));
-                }
-            }
-        }
+        let (rest, names) = self.name_list(input, word)?;
+        self.end(rest, Some("`,` or the end of the line"))?;
+        Ok((rest, make(names)))
     }
 
     fn check(&self, input: &'a str) -> PResult<'a, StmtKind> {
@@ -2370,7 +2355,7 @@ mod tests {
             (
                 "average S to 3 in eps fast",
                 expected(
-                    "`strobo`, `classic`, `depth`, `with transform` or the end of the line",
+                    "`strobo`, `classic`, `depth`, `with transform`, `as` or the end of the line",
                     "`fast`",
                 ),
                 23,
