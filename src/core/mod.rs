@@ -8,6 +8,7 @@ pub mod chart;
 pub mod error;
 pub mod expr;
 pub mod field;
+pub mod func;
 pub mod limits;
 pub mod num;
 pub mod packed;

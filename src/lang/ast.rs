@@ -125,6 +125,18 @@ pub enum Arg {
     Pos(Expr),
     /// `q = v`, as in `plug(e, q = v)`.
     Bind(Ident, Expr),
+    /// `V(s) = body`, as in `plug(e, V(s) = -cos(s))`: a definition of an
+    /// unspecified function (name, placeholders, body).
+    BindFunc(Ident, Vec<Ident>, Expr),
+}
+
+/// One function of a `func` declaration: `J(a, b)`.
+#[derive(Clone, Debug, PartialEq)]
+pub struct FuncDecl {
+    /// The function's name.
+    pub name: Ident,
+    /// The argument names (placeholders).
+    pub params: Vec<Ident>,
 }
 
 /// One statement with its span (leading and trailing blanks and comments excluded).
@@ -145,6 +157,8 @@ pub enum StmtKind {
     Param(Vec<Ident>),
     /// `input u1, u2`
     Input(Vec<Ident>),
+    /// `func V(s), J(a, b)`
+    Func(Vec<FuncDecl>),
     /// `A = ...` or `A, W = average ... with transform`.
     Define {
         /// The names being bound (one, or several for a command).
@@ -263,8 +277,10 @@ pub enum CommandKind {
         field: Expr,
         /// The order after `to`.
         to: Spanned<u64>,
-        /// The small parameter after `in`.
+        /// The small parameter after `in` (the frequency of `in 1/w`).
         param: Ident,
+        /// `in 1/w`: a symbolic frequency w, eps = 1/w (DESIGN §2.7c).
+        inverse: bool,
         /// `strobo` or `classic` as typed.
         method: Option<Ident>,
         /// The ad-series depth after `depth`.
@@ -363,7 +379,7 @@ impl Arg {
     pub fn span(&self) -> Span {
         match self {
             Arg::Pos(expr) => expr.span,
-            Arg::Bind(name, value) => name.span.join(value.span),
+            Arg::Bind(name, value) | Arg::BindFunc(name, _, value) => name.span.join(value.span),
         }
     }
 }
@@ -459,6 +475,14 @@ fn write_arg(out: &mut String, arg: &Arg) {
             write_expr(out, value);
             out.push(')');
         }
+        Arg::BindFunc(name, params, value) => {
+            out.push_str("(= (");
+            out.push_str(&name.name);
+            write_names(out, params);
+            out.push_str(") ");
+            write_expr(out, value);
+            out.push(')');
+        }
     }
 }
 
@@ -513,6 +537,7 @@ fn write_command(out: &mut String, command: &Command) {
             field,
             to,
             param,
+            inverse,
             method,
             depth,
             with_transform,
@@ -520,7 +545,8 @@ fn write_command(out: &mut String, command: &Command) {
         } => {
             out.push_str("(average ");
             write_expr(out, field);
-            let _ = write!(out, " to {} in {}", to.value, param.name);
+            let per = if *inverse { "1/" } else { "" };
+            let _ = write!(out, " to {} in {per}{}", to.value, param.name);
             if let Some(method) = method {
                 out.push(' ');
                 out.push_str(&method.name);
@@ -631,6 +657,16 @@ fn write_stmt(out: &mut String, stmt: &Stmt) {
         StmtKind::Input(names) => {
             out.push_str("(input");
             write_names(out, names);
+            out.push(')');
+        }
+        StmtKind::Func(decls) => {
+            out.push_str("(func");
+            for d in decls {
+                out.push_str(" (");
+                out.push_str(&d.name.name);
+                write_names(out, &d.params);
+                out.push(')');
+            }
             out.push(')');
         }
         StmtKind::Define { names, rhs } => {

@@ -528,6 +528,7 @@ fn stmt_mentions<'a>(stmt: &'a Stmt, out: &mut Vec<Mention<'a>>) {
         StmtKind::State(_)
         | StmtKind::Param(_)
         | StmtKind::Input(_)
+        | StmtKind::Func(_)
         | StmtKind::Save(_)
         | StmtKind::RunFile(_)
         | StmtKind::Names
@@ -651,7 +652,7 @@ fn expr_mentions<'a>(e: &'a Ast, out: &mut Vec<Mention<'a>>, model: bool) {
 fn args_mentions<'a>(args: &'a [Arg], out: &mut Vec<Mention<'a>>, model: bool) {
     for a in args {
         match a {
-            Arg::Pos(e) => expr_mentions(e, out, model),
+            Arg::Pos(e) | Arg::BindFunc(_, _, e) => expr_mentions(e, out, model),
             Arg::Bind(id, e) => {
                 out.push(ident_mention(id, model));
                 expr_mentions(e, out, model);

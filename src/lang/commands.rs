@@ -72,6 +72,7 @@ impl Session {
                 want(1, span)?;
                 let n = order_arg(to.value, to.span)?;
                 let v = self.eval_field(field, "the field of `flow`")?;
+                self.refuse_phase(&v.field.0, field.span, "the field of `flow`")?;
                 let h = match on {
                     Some(h) => Some(self.eval_scalar(h, "the output of `flow … on h`")?),
                     None => None,
@@ -82,6 +83,7 @@ impl Session {
                 want(1, span)?;
                 let n = order_arg(to.value, to.span)?;
                 let v = self.eval_field(field, "the field of `magnus`")?;
+                self.refuse_phase(&v.field.0, field.span, "the field of `magnus`")?;
                 let period = match over {
                     Some(t) => Some((
                         self.eval_scalar(t, "the horizon of `magnus … over T`")?,
@@ -95,6 +97,7 @@ impl Session {
                 field,
                 to,
                 param,
+                inverse,
                 method,
                 depth,
                 with_transform,
@@ -103,6 +106,9 @@ impl Session {
                 let n = order_arg(to.value, to.span)?;
                 let v = self.eval_field(field, "the system of `average`")?;
                 let eps = self.param_sym(param)?;
+                if !*inverse {
+                    self.refuse_phase(&v.field.0, field.span, "the system of `average … in eps`")?;
+                }
                 let method = match method.as_ref().map(|m| m.name.as_str()) {
                     None | Some("strobo") => Method::Strobo,
                     Some("classic") => Method::Classic,
@@ -131,7 +137,11 @@ impl Session {
                     depth,
                     with_transform: *with_transform,
                 };
-                let results = self.average(&v, eps, &opts, span, report)?;
+                let results = if *inverse {
+                    self.average_in_frequency(&v, eps, &opts, span, report)?
+                } else {
+                    self.average(&v, eps, &opts, span, report)?
+                };
                 if chart.is_empty() {
                     self.note_averaged_chart(report);
                     results
@@ -370,6 +380,7 @@ impl Session {
             ),
             Form::FastOscillation {
                 generator,
+                zero_mean,
                 depth,
                 ended,
             } => {
@@ -384,6 +395,15 @@ impl Session {
                         g.join(" + "),
                         res.period
                     ),
+                );
+                report.push(
+                    Style::Note,
+                    if *zero_mean {
+                        "base: zero-mean antiderivatives U_i = ∫_0^t u_i - mean(∫_0^t u_i) (classical, \
+                         the vibrational transform); full transform x = exp(Y(t))(y + W(t, y))"
+                    } else {
+                        "base: U_i = ∫_0^t u_i (stroboscopic: x = z at multiples of the period)"
+                    },
                 );
                 if *ended {
                     report.push(Style::Note, format!("ad-series ends at depth {depth}"));
@@ -441,6 +461,39 @@ impl Session {
                         .map_err(core)?
                 }
             },
+            (Some(combo), Form::FastOscillation { zero_mean, .. }) => {
+                let s = optional_structure(
+                    super::structural::fast_oscillation_structure(
+                        combo,
+                        opts.order,
+                        &res.period,
+                        eps,
+                        *zero_mean,
+                        opts.depth,
+                        &self.states,
+                    ),
+                    report,
+                )
+                .map_err(core)?;
+                if s.is_some() {
+                    let g: Vec<&str> = combo
+                        .parts
+                        .iter()
+                        .filter(|(_, _, c)| !c.coeff_of_power(eps, 0).is_zero())
+                        .map(|(n, _, _)| n.as_str())
+                        .collect();
+                    report.push(
+                        Style::Note,
+                        format!(
+                            "bracket form in the letters with {} commuting (as the fast-oscillation \
+                             form needs): over ad-words [G, [G, …]], those that vanish on these \
+                             fields left out",
+                            g.join(", ")
+                        ),
+                    );
+                }
+                s
+            }
             _ => None,
         };
         if structure.is_some() {
@@ -461,6 +514,7 @@ impl Session {
             transform: res.transform.clone(),
             period: res.period.clone(),
             classic: opts.method == Method::Classic,
+            outer: res.outer_at_zero(),
         };
         let mut out = vec![Value::Field(FieldValue {
             field: total,
@@ -484,6 +538,18 @@ impl Session {
 
     fn carleman(&self, x: &Field, degree: u32, span: Span, report: &mut Report) -> R<Value> {
         let core = |e: CoreError| SessionError::core(span, e);
+        if let Some(a) = x.0.iter().find_map(Expr::first_atom) {
+            return Err(SessionError::invalid(
+                span,
+                format!(
+                    "`carleman` needs a polynomial field, and `{a}` is an unspecified function: \
+                     its section on monomials is not finite (plug a polynomial definition first, \
+                     e.g. `plug(X, {}({}) = …)`)",
+                    a.sig.name,
+                    a.sig.params.join(", ")
+                ),
+            ));
+        }
         // The section is a dense N x N matrix on the C(n + d, d) monomials:
         // with many states it is astronomically large, so count its entries
         // against the term budget before building anything.

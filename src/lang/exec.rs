@@ -27,6 +27,7 @@ impl Session {
             StmtKind::State(ids) => self.declare_state(ids)?,
             StmtKind::Param(ids) => self.declare(ids, SymKind::Param)?,
             StmtKind::Input(ids) => self.declare(ids, SymKind::Input)?,
+            StmtKind::Func(decls) => self.declare_funcs(decls)?,
             StmtKind::Define { names, rhs } => match rhs {
                 Rhs::Expr(e) => {
                     if names.len() != 1 {
@@ -146,6 +147,7 @@ impl Session {
                 SymKind::State => "a state coordinate",
                 SymKind::Param => "a parameter",
                 SymKind::Input => "an input",
+                SymKind::Func => "an unspecified function",
             };
             return Err(SessionError::invalid(
                 id.span,
@@ -204,6 +206,55 @@ impl Session {
         self.states = ids.iter().map(|i| Sym::new(&i.name)).collect();
         for id in ids {
             self.symbols.insert(id.name.clone(), SymKind::State);
+        }
+        Ok(())
+    }
+
+    /// `func V(s), J(a, b)`: checks every declaration before recording
+    /// any; declaring a function again with the same arguments is a no-op.
+    fn declare_funcs(&mut self, decls: &[super::ast::FuncDecl]) -> R<()> {
+        use crate::core::func::Signature;
+        let mut new: Vec<Signature> = Vec::new();
+        for (i, d) in decls.iter().enumerate() {
+            let sig = Signature {
+                name: d.name.name.clone(),
+                params: d.params.iter().map(|p| p.name.clone()).collect(),
+            };
+            if decls[..i].iter().any(|e| e.name.name == d.name.name) {
+                return Err(SessionError::invalid(
+                    d.name.span,
+                    format!("`{}` is listed twice", d.name.name),
+                ));
+            }
+            for (j, p) in d.params.iter().enumerate() {
+                if d.params[..j].iter().any(|o| o.name == p.name) {
+                    return Err(SessionError::invalid(
+                        p.span,
+                        format!("argument `{}` is listed twice", p.name),
+                    ));
+                }
+            }
+            if let Some(old) = self.funcs.get(&d.name.name) {
+                if **old == sig {
+                    continue;
+                }
+                return Err(SessionError::invalid(
+                    d.name.span,
+                    format!(
+                        "`{}` is already declared as `{}({})`",
+                        old.name,
+                        old.name,
+                        old.params.join(", ")
+                    ),
+                ));
+            }
+            self.check_new_name(&d.name, false)?;
+            new.push(sig);
+        }
+        for sig in new {
+            self.symbols.insert(sig.name.clone(), SymKind::Func);
+            self.funcs
+                .insert(sig.name.clone(), std::sync::Arc::new(sig));
         }
         Ok(())
     }
@@ -302,6 +353,14 @@ impl Session {
         if !inputs.is_empty() {
             report.push(Style::Plain, format!("input  {}", inputs.join(", ")));
         }
+        if !self.funcs.is_empty() {
+            let shown: Vec<String> = self
+                .funcs
+                .values()
+                .map(|f| format!("{}({})", f.name, f.params.join(", ")))
+                .collect();
+            report.push(Style::Plain, format!("func   {}", shown.join(", ")));
+        }
         for line in self.chart_lines() {
             report.push(Style::Plain, line);
         }
@@ -349,6 +408,12 @@ impl Session {
             }
             Some(SymKind::Param) => "parameter",
             Some(SymKind::Input) => "input",
+            Some(SymKind::Func) => {
+                return Err(SessionError::invalid(
+                    id.span,
+                    format!("`{name}` is a declared function: functions stay for the session"),
+                ))
+            }
         };
         let users: Vec<&String> = self
             .order

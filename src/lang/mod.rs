@@ -14,6 +14,7 @@ pub mod files;
 pub mod help;
 pub mod numeric_cmds;
 pub mod parse;
+pub mod phase;
 pub mod progress;
 pub mod session;
 pub mod split;

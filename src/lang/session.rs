@@ -244,6 +244,8 @@ pub enum SymKind {
     Param,
     /// An unspecified input function of time.
     Input,
+    /// An unspecified function of the state (`func V(s)`).
+    Func,
 }
 
 /// The outcome of running a whole text.
@@ -284,6 +286,11 @@ pub struct Session {
     pub(crate) states: Vec<Sym>,
     pub(crate) symbols: BTreeMap<String, SymKind>,
     pub(crate) names: BTreeMap<String, Value>,
+    /// The placeholders of a function definition being read (`plug(e,
+    /// V(s) = …)`), as names of the state while its body is evaluated.
+    pub(crate) placeholders: std::cell::RefCell<Vec<(String, Sym)>>,
+    /// Unspecified functions by name (`func V(s)`).
+    pub(crate) funcs: BTreeMap<String, std::sync::Arc<crate::core::func::Signature>>,
     /// Order in which names were defined (for `names`).
     pub(crate) order: Vec<String>,
     /// Accepted input lines, for `save`.
@@ -314,6 +321,8 @@ impl Session {
             states: Vec::new(),
             symbols: BTreeMap::new(),
             names: BTreeMap::new(),
+            funcs: BTreeMap::new(),
+            placeholders: Default::default(),
             order: Vec::new(),
             accepted: Vec::new(),
             replaying: false,

@@ -133,6 +133,62 @@ pub fn coordinate_names(_v: &Value, states: &[Sym]) -> Vec<String> {
     states.iter().map(|s| s.name()).collect()
 }
 
+/// A symbol in LaTeX: a name (see [`name`]) or an application of an
+/// unspecified function: `V(q)`, `V'(q)`, `V^{(4)}(q)`, `J_{a}(x, y)`,
+/// `J_{ab}(x, y)`.
+fn sym_tex(s: Sym) -> String {
+    let Some(a) = crate::core::func::atom(s) else {
+        return name(&s.name());
+    };
+    let f = name(&a.sig.name);
+    let args: Vec<String> = a.args.iter().map(arg_tex).collect();
+    let args = args.join(", ");
+    let k = a.order();
+    if a.sig.params.len() == 1 {
+        match k {
+            0 => format!("{f}({args})"),
+            1..=3 => format!("{f}{}({args})", "'".repeat(k as usize)),
+            _ => format!("{f}^{{({k})}}({args})"),
+        }
+    } else if k == 0 {
+        format!("{f}({args})")
+    } else {
+        let sub: Vec<String> = a.deriv_names().into_iter().map(name).collect();
+        format!("{f}_{{{}}}({args})", sub.concat())
+    }
+}
+
+/// An argument of an unspecified function in LaTeX.
+fn arg_tex(a: &crate::core::func::Arg) -> String {
+    let mut s = lin(&a.lin, None);
+    let mut push = |c: &Q, what: &str| {
+        if c.is_zero() {
+            return;
+        }
+        let neg = c.is_negative();
+        let abs = c.abs();
+        if s.is_empty() {
+            if neg {
+                s.push('-');
+            }
+        } else {
+            s.push_str(if neg { " - " } else { " + " });
+        }
+        if what.is_empty() && abs.is_one() {
+            s.push('1');
+        } else {
+            s.push_str(&coeff_prefix(&abs));
+            s.push_str(what);
+        }
+    };
+    push(&a.constant, "");
+    push(&a.pi, "\\pi");
+    if s.is_empty() {
+        s.push('0');
+    }
+    s
+}
+
 fn power(base: &str, e: i64) -> String {
     if e == 1 {
         base.to_string()
@@ -197,8 +253,13 @@ fn term(k: &Key, c: &Q, states: &[Sym], lead: Option<Sym>) -> (bool, String) {
     let mut up: Vec<(u8, String)> = Vec::new();
     let mut down: Vec<String> = Vec::new();
     let mut vars: Vec<(usize, String)> = Vec::new();
+    let mut funcs: Vec<String> = Vec::new();
     for (s, e) in &k.mono.0 {
-        let n = name(&s.name());
+        let n = sym_tex(*s);
+        if crate::core::func::atom(*s).is_some() && *e > 0 {
+            funcs.push(power(&n, *e as i64));
+            continue;
+        }
         if let Some(i) = states.iter().position(|x| x == s) {
             vars.push((i + 1, power(&n, *e as i64)));
             continue;
@@ -248,6 +309,7 @@ fn term(k: &Key, c: &Q, states: &[Sym], lead: Option<Sym>) -> (bool, String) {
         parts.extend(up);
     }
     parts.extend(vars.into_iter().map(|(_, s)| s));
+    parts.extend(funcs);
     if !k.exp.is_zero() {
         parts.push(format!("e^{{{}}}", lin(&k.exp, None)));
     }
