@@ -131,7 +131,7 @@ fn inline_lines_have_the_same_exit_statuses() {
     let failed = ordex(dir.path(), &["-e", GOOD, "-e", "check X(q) == 0"]);
     assert_eq!(code(&failed), 1);
     assert!(
-        stdout(&failed).contains("check failed at -e:1"),
+        stdout(&failed).contains("check failed at -e#2:1"),
         "{}",
         stdout(&failed)
     );
@@ -281,7 +281,7 @@ fn save_writes_the_accepted_lines_and_the_saved_script_replays_the_same() {
     // Replaying the saved script prints what the session printed.
     let again = ordex(dir.path(), &["saved.ordex"]);
     assert_eq!(code(&again), 1);
-    let first = stdout(&out).replace("-e:1", "saved.ordex:6");
+    let first = stdout(&out).replace("-e#2:1", "saved.ordex:6");
     let first: Vec<&str> = first.lines().filter(|l| !l.starts_with("saved ")).collect();
     let replayed = stdout(&again);
     let replayed: Vec<&str> = replayed.lines().collect();

@@ -539,13 +539,17 @@ fn stmt_mentions<'a>(stmt: &'a Stmt, out: &mut Vec<Mention<'a>>) {
     }
 }
 
+fn ident_mention(id: &Ident, model: bool) -> Mention<'_> {
+    Mention {
+        name: &id.name,
+        span: id.span,
+        model,
+    }
+}
+
 fn assign_mentions<'a>(list: &'a [Assign], out: &mut Vec<Mention<'a>>) {
     for a in list {
-        out.push(Mention {
-            name: &a.name.name,
-            span: a.name.span,
-            model: false,
-        });
+        out.push(ident_mention(&a.name, false));
         expr_mentions(&a.value, out, false);
     }
 }
@@ -625,11 +629,7 @@ fn expr_mentions<'a>(e: &'a Ast, out: &mut Vec<Mention<'a>>, model: bool) {
             expr_mentions(b, out, model);
         }
         ExprKind::Call(name, args) => {
-            out.push(Mention {
-                name: &name.name,
-                span: name.span,
-                model,
-            });
+            out.push(ident_mention(name, model));
             args_mentions(args, out, model);
         }
         ExprKind::Apply(head, args) => {
@@ -654,11 +654,7 @@ fn args_mentions<'a>(args: &'a [Arg], out: &mut Vec<Mention<'a>>, model: bool) {
         match a {
             Arg::Pos(e) | Arg::BindFunc(_, _, e) => expr_mentions(e, out, model),
             Arg::Bind(id, e) => {
-                out.push(Mention {
-                    name: &id.name,
-                    span: id.span,
-                    model,
-                });
+                out.push(ident_mention(id, model));
                 expr_mentions(e, out, model);
             }
         }

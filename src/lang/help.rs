@@ -16,6 +16,7 @@ const TOPICS: &[(&str, &str)] = &[
     ("flow", "flow V on h to N   |   flow V to N\n  the chronological expansion of h(x(t)) for x' = V(t, x), x(0) = x, term by term to order N\n  (earliest time outermost); without `on`, every coordinate. An output that depends on t is\n  read along the solution, h(t, x(t)). A truncated series is good only for short times or\n  small fields: check it numerically before relying on it.\n  example: flow cos(t)*[1, 0] + [0, q] on p to 3"),
     ("magnus", "magnus V to N [over T]\n  the chronological logarithm W_T (exp(W_T) = the time-T flow) by order; T is the period by default.\n  When V = Σ c_i(t)*X_i with named fields, `show W as brackets` gives the Lie polynomial.\n  example: W = magnus cos(t)*X + sin(t)*Y to 3"),
     ("average", "average V to N in eps [strobo | classic] [depth D]\nA, W = average V to N in eps classic with transform\naverage V to N in 1/w [strobo | classic]\n  higher-order averaging of x' = f_0 + Σ eps^j f_j (T-periodic in t).\n  forms: standard (f_0 = 0), fast oscillation (f_0 = Σ u_i(t) g_i, zero-mean u_i, commuting g_i),\n  linear centre (f_0 = A x with eigenvalues ±i*k).\n  strobo (default): the field whose time-T flow is the period map; classic: zero-mean\n  near-identity transform x = y + W(t, y).\n  fast oscillation: x = exp(Σ U_i(t) g_i)(z) removes f_0. The base of U_i differs:\n  strobo uses U_i = ∫_0^t u_i (x = z at multiples of the period; u = sin(t) gives\n  U = 1 - cos(t) and a [g, f_1] term); classic uses the zero-mean antiderivative\n  U_i = ∫_0^t u_i - mean(∫_0^t u_i), the textbook vibrational transform, with the full\n  transform x = exp(Y(t))(y + W(t, y)). The output says which base it used. With named\n  fields (eps*F0 + cos(t)*G1 + sin(t)*G2), `show A as brackets` gives the Lie polynomial\n  (strobo at every order, classic to order 2).\n  in 1/w: a symbolic frequency, the time dependence written through w*t (w a parameter,\n  rational multiples 2*w*t too): time is rescaled s = w*t, eps = 1/w, the system averaged\n  in s and the result given in the original time as a series in 1/w (order k carries\n  w^(1-k)). A term that grows with w after rescaling is refused: hold an amplitude times\n  w fixed, e.g. plug(S, a = b/w). One symbolic frequency at a time.\n  example: A = average eps*[p, -q + cos(t)*q^2] to 2 in eps\n           order(A, eps, 1)\n           B = average [p, -sin(q)] + b*w*cos(w*t)*[0, sin(q)] to 2 in 1/w\n           order(B, w, 0)"),
+    ("change", "P = change A to r, phi by x = r*cos(phi), v = r*sin(phi)\n  A (a field, possibly time-varying, or a scalar) in new coordinates: the old ones given as\n  expressions in the new ones and t (x = ψ(t, y)). A field becomes (Dψ)^-1 (A∘ψ − ∂_tψ), a scalar h∘ψ.\n  Exact when det Dψ is a nonzero number times a monomial (polar: r; scalings, shears, rotations by\n  constant or time-dependent angles: a number); another determinant is refused, naming it.\n  The new names form a chart: results on it print in it, and commands work on them there\n  (brackets, X(h), flow, average, simulate/compare/stability with `from r = 1, phi = 0`);\n  a line that mixes two charts is refused, naming both. `change A to z1, z2 by x = z1, v = z2`\n  renames; `average … as z1, z2` names the averaged state at once; `names` lists the charts.\n  example: A = average [v, -x] + eps*[0, (1 - x^2)*v] to 1 in eps\n           P = change A to r, phi by x = r*cos(phi), v = r*sin(phi)   # eps*[r/2 - r^3/8, 0]"),
     ("carleman", "carleman X degree d\n  the finite section of h -> X(h) on monomials of degree <= d (1 first, graded lexicographic);\n  column j holds the coefficients of X(m_j).\n  example: carleman [p, -q - q^2] degree 2"),
     ("simulate", "simulate V from q=1, p=0 for L [with eps=1/20, k=1] [plot FILE.svg]\n  integrate x' = V numerically (adaptive Runge–Kutta of order 5) over [0, L] and print a table;\n  `plot` writes an SVG."),
     ("compare", "compare S with A from q=1, p=0 for L [with k=1] sweep eps=0.2,0.1,0.05 [tol E] [plot FILE.svg]\n  integrate the system S and each order of the averaged model A at multiples of the period over\n  the slow horizon L/eps, print the error per eps and order, the fitted slope of log(error)\n  against log(eps) per order, and with `tol` the largest eps whose error meets it."),
@@ -25,10 +26,19 @@ const TOPICS: &[(&str, &str)] = &[
     ("save", "save FILE   |   save FILE with checks\n  write the session's accepted lines as a script (atomically; `help` and `names` lines are\n  not saved). `with checks` also writes, after each line that defines a name,\n  `check NAME == VALUE` with its exact value, so a replay (`ordex FILE`) re-derives and\n  re-checks every result: exit 0 when all hold, 1 naming the line of a result that changed.\n  example: save boom_derivation.ordex with checks"),
     ("run", "run FILE\n  replay a script into this session."),
     ("names", "names\n  list declarations and definitions."),
-    ("forget", "forget NAME\n  remove a definition."),
+    ("forget", "forget NAME\n  remove a definition, or a parameter or input that no definition uses (otherwise it names\n  the definitions that do). State and chart coordinates stay: `state …` declares a new state."),
     ("set", "set budget N\n  the most terms one result may hold (a large coefficient counts as a term per 64 bytes),\n  and with it the work of one statement (250*N term products), before the computation\n  stops with a message. Digits (100,000), order (40) and nesting (256) are fixed limits."),
     ("quit", "quit\n  leave the prompt (Ctrl-D too)."),
     ("builtins", "built-in functions\n  sin cos exp (of linear arguments), ad(X, Y, k), pd(h, q), jac(X), div(X), det(M), trace(M),\n  plug(e, q = v, ...), order(e, eps, k), mean(e), bch(X, Y, N), iint(u1, ...), X(h) (Lie derivative),\n  [X, Y] (Lie bracket: [X,Y](h) = X(Y(h)) - Y(X(h)))."),
+];
+
+/// Paragraphs added to a topic (kept apart so that topics stay one entry each).
+const EXTRA: &[(&str, &str)] = &[
+    ("average", "  `average … as z1, z2` names the averaged state z (a chart of its own, see `help change`);\n  without it, the result prints z under the system's names."),
+    ("flow", "  with inputs: `plug(F, u1 = eps*cos(2*t), u2 = eps*cos(t))` evaluates every iterated integral\n  iint(u_i1, …, u_ik) = ∫_{0≤τk≤…≤τ1≤t} u_i1(τ1)…u_ik(τk) exactly (first argument at the latest\n  time; the letter 1 is the constant input). Products of iint are rewritten by the shuffle\n  identity (iint(u1)*iint(u2) = iint(u1, u2) + iint(u2, u1)), so `check` decides their identities."),
+    ("magnus", "  ordex keeps coefficients rational (no sqrt(3)): `over T` needs cos and sin of every frequency\n  rational at T (multiples of pi/2 always work; the message says which T do)."),
+    ("input", "  `plug(F, u1 = eps*cos(t))` puts concrete inputs into a result (see `help flow`)."),
+    ("builtins", "  plug also takes inputs (`plug(F, u1 = cos(t))`): see `help flow`."),
 ];
 
 /// The help text for `word`, or the topic list for `None`; `None` when
@@ -47,10 +57,15 @@ pub fn help(word: Option<&str>) -> Option<String> {
                 "sin" | "cos" | "exp" | "ad" | "pd" | "jac" | "div" | "det" | "trace" | "plug"
                 | "order" | "mean" | "bch" | "iint" => "builtins",
                 "budget" => "set",
+                "chart" | "charts" | "coordinates" => "change",
                 other => other,
             };
             let (_, text) = TOPICS.iter().find(|(k, _)| *k == key)?;
             let mut s = text.to_string();
+            if let Some(extra) = EXTRA.iter().find(|(k, _)| *k == key).map(|(_, e)| e) {
+                s.push('\n');
+                s.push_str(extra);
+            }
             if matches!(key, "average" | "compare" | "stability") {
                 s.push('\n');
                 s.push_str(CAUTION);

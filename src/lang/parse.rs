@@ -1504,24 +1504,9 @@ impl<'a> Parser<'a> {
         word: &str,
         make: fn(Vec<Ident>) -> StmtKind,
     ) -> PResult<'a, StmtKind> {
-        let mut names = Vec::new();
-        let mut next_in = input;
-        loop {
-            let what = if names.is_empty() {
-                format!("a name after `{word}`")
-            } else {
-                "a name after `,`".to_string()
-            };
-            let (rest, name) = self.name(next_in, &what)?;
-            names.push(name);
-            match ws(rest).strip_prefix(',') {
-                Some(after) => next_in = after,
-                None => {
-                    self.end(rest, Some("`,` or the end of the line"))?;
-                    return Ok((rest, make(names)));
-                }
-            }
-        }
+        let (rest, names) = self.name_list(input, word)?;
+        self.end(rest, Some("`,` or the end of the line"))?;
+        Ok((rest, make(names)))
     }
 
     /// `func V(s), J(a, b)`.
@@ -2391,6 +2376,22 @@ mod tests {
     }
 
     #[test]
+    fn change_and_average_as_keep_their_names() {
+        let s = stmt("P = change A to r, phi by x = r*cos(phi), v = r*sin(phi)");
+        assert_eq!(
+            s.sexpr(),
+            "(define P (change A to r phi by (= x (* r (call cos phi))) (= v (* r (call sin phi)))))"
+        );
+        let s = stmt("Z = average S to 2 in eps classic as z1, z2");
+        assert_eq!(
+            s.sexpr(),
+            "(define Z (average S to 2 in eps classic as z1 z2))"
+        );
+        assert!(parse_stmt("P = change A to r, phi").is_err());
+        assert!(parse_stmt("P = change A to r, by x = r").is_err());
+    }
+
+    #[test]
     fn average_keeps_every_part() {
         let statement = stmt("A, W = average S to 3 in eps classic depth 5 with transform");
         let StmtKind::Define { names, rhs } = &statement.kind else {
@@ -2619,7 +2620,7 @@ mod tests {
             (
                 "average S to 3 in eps fast",
                 expected(
-                    "`strobo`, `classic`, `depth`, `with transform` or the end of the line",
+                    "`strobo`, `classic`, `depth`, `with transform`, `as` or the end of the line",
                     "`fast`",
                 ),
                 23,

@@ -193,7 +193,10 @@ pub fn evaluate(
         let Some(word) = iint_word(&name) else {
             continue;
         };
-        if !word.iter().any(|a| inputs.contains_key(a)) {
+        // Words of given inputs, and words of the constant input alone
+        // (`iint(1, 1) = t^2/2`), take their values.
+        let plugged = word.iter().any(|a| inputs.contains_key(a));
+        if !plugged && !word.iter().all(|a| a == "1") {
             continue;
         }
         if !values.knows(&word) {
