@@ -708,15 +708,14 @@ mod tests {
                 .map(|p| goldberg_small(p, i128::try_from(&lcm).unwrap()).unwrap())
                 .collect();
             let big: Vec<BigInt> = parts.iter().map(|p| goldberg_big(p, &lcm)).collect();
-            let degree = Degree { lyn: &lyn, n };
-            let a = degree
-                .solve::<i128>(&small, &mut |_| true)
-                .unwrap()
-                .unwrap();
-            let b = degree
-                .solve::<BigInt>(&big, &mut |_| true)
-                .unwrap()
-                .unwrap();
+            let degree = Degree {
+                lyn: &lyn,
+                n,
+                threads: 2,
+                stop: &|| false,
+            };
+            let a = degree.solve::<i128>(&small).unwrap().unwrap();
+            let b = degree.solve::<BigInt>(&big).unwrap().unwrap();
             let a: Vec<BigInt> = a.into_iter().map(BigInt::from).collect();
             assert_eq!(a, b, "degree {n}");
         }
