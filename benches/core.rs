@@ -472,6 +472,71 @@ fn bench_functions_here() -> CoreResult<()> {
     Ok(())
 }
 
+/// Structural BCH, `log(e^X e^Y)` in the Lyndon basis: the Lyndon-word
+/// route on one and two threads, and the tensor-algebra route (the tests'
+/// oracle) where it finishes in seconds. `ORDEX_BCH_MAX` raises the top
+/// degree (default 20).
+fn bench_bch() -> CoreResult<()> {
+    use num_rational::BigRational;
+    use ordex::series::freelie::bch_by_tensor;
+    use ordex::series::lyndon;
+    let top: u32 = std::env::var("ORDEX_BCH_MAX")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(20);
+    println!("## structural BCH log(e^X e^Y) in the Lyndon basis");
+    println!();
+    println!("| degree | basis elements | nonzero | 1 thread ms (fastest) | 2 threads ms (fastest) | 1 / 2 threads | tensor route ms | tensor / Lyndon (1 thread) |");
+    println!("|---|---|---|---|---|---|---|---|");
+    let run = |n: u32, threads: usize| {
+        let reps = if n <= 16 { 5 } else { 2 };
+        timed_runs(reps, Duration::from_millis(300), || {
+            lyndon::bch(n, threads, &mut |_| true, &|| false).map_err(|e| CoreError::Refused {
+                reason: e.to_string(),
+            })
+        })
+    };
+    for n in (10..=top).step_by(2) {
+        let (one, series) = run(n, 1)?;
+        let (two, series2) = run(n, 2)?;
+        if series != series2 {
+            return Err(CoreError::Refused {
+                reason: format!("degree {n}: one and two threads differ"),
+            });
+        }
+        let tensor = if n <= 12 {
+            let (t, old) = timed_runs(2, Duration::from_millis(100), || {
+                bch_by_tensor::<BigRational>(n).map_err(|e| CoreError::Refused {
+                    reason: e.to_string(),
+                })
+            })?;
+            if old.into_terms() != series {
+                return Err(CoreError::Refused {
+                    reason: format!("degree {n}: the routes differ"),
+                });
+            }
+            Some(t.fastest)
+        } else {
+            None
+        };
+        println!(
+            "| {n} | {} | {} | {} | {} | {:.2} | {} | {} |",
+            lyndon::witt_total(n as u8),
+            series.len(),
+            ms(one.fastest),
+            ms(two.fastest),
+            one.fastest.as_secs_f64() / two.fastest.as_secs_f64(),
+            tensor.map_or("-".to_string(), ms),
+            tensor.map_or("-".to_string(), |t| format!(
+                "{:.0}x",
+                t.as_secs_f64() / one.fastest.as_secs_f64()
+            )),
+        );
+    }
+    println!();
+    Ok(())
+}
+
 fn main() {
     // `cargo bench` passes `--bench`; a filter word selects one issue.
     let filter: Vec<String> = std::env::args()
@@ -491,6 +556,9 @@ fn main() {
     }
     if wants("functions averaging") {
         status = status.and_then(|()| bench_functions());
+    }
+    if wants("bch structural") {
+        status = status.and_then(|()| bench_bch());
     }
     if let Err(e) = status {
         eprintln!("benchmark failed: {e}");

@@ -21,7 +21,7 @@ const PARALLEL_WORK: usize = 100_000;
 
 /// Worker threads for large brackets: the machine's cores, or
 /// `ORDEX_THREADS` (1 turns parallelism off).
-fn parallelism() -> usize {
+pub(crate) fn parallelism() -> usize {
     static CELL: std::sync::OnceLock<usize> = std::sync::OnceLock::new();
     *CELL.get_or_init(|| {
         std::env::var("ORDEX_THREADS")

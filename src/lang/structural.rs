@@ -5,6 +5,7 @@
 //! unspecified inputs; and `bch`.
 
 use std::cell::RefCell;
+use std::collections::HashMap;
 use std::num::NonZeroU64;
 
 use super::ast::{Arg, ExprKind, Ident, Span};
@@ -14,7 +15,7 @@ use crate::core::calc::Period;
 use crate::core::{CoreError, CoreResult, Expr, Field, Sym, Q};
 use crate::render::latex;
 use crate::series::chrono;
-use crate::series::freelie::{self, Alphabet, Bracket, Coeff, FreeLieError, LiePoly, Tensor};
+use crate::series::freelie::{self, Alphabet, Coeff, FreeLieError, LiePoly, Tensor};
 use crate::series::lyndon as freelie_lyndon;
 
 thread_local! {
@@ -94,11 +95,32 @@ fn checked<T>(r: Result<T, FreeLieError>) -> CoreResult<T> {
     }
 }
 
-/// Renders a bracket of names.
-fn bracket_text(b: &Bracket, names: &[String], tex: &[String]) -> (String, String) {
-    let plain = b.render(&|l| names.get(l as usize).cloned().unwrap_or_default());
-    let tex = b.render(&|l| tex.get(l as usize).cloned().unwrap_or_default());
-    (plain, tex.replace('[', "\\left[").replace(']', "\\right]"))
+/// The plain and LaTeX text of the standard bracketing of a Lyndon word,
+/// remembered by word: the factors of a standard factorisation are Lyndon
+/// words, so a series shares them (`None` for a word that is not Lyndon).
+fn bracket_text(
+    w: &[u16],
+    names: &[String],
+    tex: &[String],
+    memo: &mut HashMap<Vec<u16>, (String, String)>,
+) -> Option<(String, String)> {
+    if let Some(found) = memo.get(w) {
+        return Some(found.clone());
+    }
+    let text = if let [l] = w {
+        let name = names.get(*l as usize).cloned().unwrap_or_default();
+        (name, tex.get(*l as usize).cloned().unwrap_or_default())
+    } else {
+        let (left, right) = freelie::standard_factorization(w)?;
+        let (lp, lt) = bracket_text(&left, names, tex, memo)?;
+        let (rp, rt) = bracket_text(&right, names, tex, memo)?;
+        (
+            format!("[{lp}, {rp}]"),
+            format!("\\left[{lt}, {rt}\\right]"),
+        )
+    };
+    memo.insert(w.to_vec(), text.clone());
+    Some(text)
 }
 
 /// Turns a Lie polynomial into display terms.
@@ -109,11 +131,11 @@ fn to_terms(poly: &LiePoly<Expr>, names: &[String]) -> Vec<BracketTerm> {
 
 /// As `to_terms`, with the LaTeX of each letter given.
 fn to_terms_named(poly: &LiePoly<Expr>, names: &[String], tex: &[String]) -> Vec<BracketTerm> {
+    let mut memo = HashMap::new();
     poly.terms()
         .iter()
         .filter_map(|(w, c)| {
-            let b = freelie::standard_bracketing(w)?;
-            let (bracket, latex) = bracket_text(&b, names, tex);
+            let (bracket, latex) = bracket_text(w, names, tex, &mut memo)?;
             Some(BracketTerm {
                 coeff: c.clone(),
                 bracket,
@@ -495,6 +517,7 @@ pub fn bch_series(n: u32) -> CoreResult<LiePoly<Expr>> {
     let mut stopped = None;
     let terms = freelie_lyndon::bch(
         n,
+        crate::core::field::parallelism(),
         &mut |count| match crate::core::limits::check_terms(count) {
             Ok(()) => true,
             Err(e) => {
@@ -502,7 +525,9 @@ pub fn bch_series(n: u32) -> CoreResult<LiePoly<Expr>> {
                 false
             }
         },
+        &crate::core::limits::is_interrupted,
     );
+    let stopped = stopped.or_else(|| crate::core::limits::poll().err());
     match (stopped, terms) {
         (Some(e), _) => Err(e),
         (None, Err(e)) => Err(lie_err(e)),

@@ -35,6 +35,9 @@
 
 use std::collections::HashMap;
 
+use rustc_hash::FxHashMap;
+use std::sync::atomic::{AtomicUsize, Ordering};
+
 use num_bigint::BigInt;
 use num_integer::Integer;
 use num_rational::BigRational;
@@ -302,6 +305,8 @@ fn goldberg<T: Int>(runs: &[u8], lcm: &T, div: &dyn Fn(&T, usize) -> T) -> Optio
 struct Degree<'a> {
     lyn: &'a Lyndon,
     n: u8,
+    threads: usize,
+    stop: &'a (dyn Fn() -> bool + Sync),
 }
 
 /// The entries `⟨P_v, w[l..l+|v|]⟩` one class needs, as a straight-line
@@ -311,7 +316,7 @@ struct Degree<'a> {
 /// time in one forward sweep.
 struct Programme {
     n: u8,
-    ids: HashMap<u64, u32>,
+    ids: FxHashMap<u64, u32>,
     steps: Vec<[u32; 4]>,
 }
 
@@ -319,7 +324,7 @@ impl Programme {
     fn new(n: u8) -> Self {
         Programme {
             n,
-            ids: HashMap::new(),
+            ids: FxHashMap::default(),
             steps: Vec::new(),
         }
     }
@@ -362,7 +367,8 @@ impl Programme {
         let count = stop.saturating_sub(self.first_step()).min(self.steps.len());
         for step in &self.steps[..count] {
             // Entries are bounded by 2^(n-1) (P_v is a sum of 2^(|v|-1)
-            // words with signs), so these products cannot overflow.
+            // words with signs), so these products cannot overflow. A step
+            // reads only nodes before it.
             let v = values[step[0] as usize] * values[step[1] as usize]
                 - values[step[2] as usize] * values[step[3] as usize];
             values.push(v);
@@ -372,68 +378,121 @@ impl Programme {
 
 impl Degree<'_> {
     /// The numerators `D · c_w` of the words of length `n`, in the order of
-    /// [`Lyndon::words`]; `None` if `T` overflows.
-    fn solve<T: Int>(
-        &self,
-        h: &[T],
-        keep_going: &mut dyn FnMut(usize) -> bool,
-    ) -> Result<Option<Vec<T>>, FreeLieError> {
+    /// [`Lyndon::words`]; `None` if `T` overflows. The classes (words with
+    /// the same letters) are independent: up to `threads` workers take
+    /// them, largest first; the result does not depend on who took which.
+    fn solve<T: Int + Send + Sync>(&self, h: &[T]) -> Result<Option<Vec<T>>, FreeLieError> {
         let lo = self.lyn.first[usize::from(self.n)];
         let hi = self.lyn.first[usize::from(self.n) + 1];
-        let mut c: Vec<T> = vec![T::zero(); hi - lo];
         // Classes by the number of Y's; within one, lexicographic order.
         let mut classes: Vec<Vec<usize>> = vec![Vec::new(); usize::from(self.n) + 1];
         for i in lo..hi {
             classes[self.lyn.words[i].ones() as usize].push(i);
         }
+        classes.retain(|class| !class.is_empty());
+        classes.sort_by_key(|class| std::cmp::Reverse(class.len()));
+        let next = AtomicUsize::new(0);
+        let work = || -> Result<Vec<(usize, Option<Vec<T>>)>, FreeLieError> {
+            let mut out = Vec::new();
+            loop {
+                let k = next.fetch_add(1, Ordering::Relaxed);
+                let Some(class) = classes.get(k) else {
+                    return Ok(out);
+                };
+                out.push((k, self.solve_class(class, &h[class[0] - lo..])?));
+            }
+        };
+        // Small degrees are not worth a thread.
+        let threads = if hi - lo < 2000 {
+            1
+        } else {
+            self.threads.max(1)
+        };
+        let parts: Vec<Result<Vec<(usize, Option<Vec<T>>)>, FreeLieError>> = if threads == 1 {
+            vec![work()]
+        } else {
+            std::thread::scope(|scope| {
+                let handles: Vec<_> = (0..threads).map(|_| scope.spawn(&work)).collect();
+                handles
+                    .into_iter()
+                    .map(|handle| {
+                        handle
+                            .join()
+                            .unwrap_or(Err(FreeLieError::Stopped { n_terms: 0 }))
+                    })
+                    .collect()
+            })
+        };
+        let mut c: Vec<T> = vec![T::zero(); hi - lo];
+        for part in parts {
+            for (k, solved) in part? {
+                let Some(solved) = solved else {
+                    return Ok(None);
+                };
+                for (&i, value) in classes[k].iter().zip(solved) {
+                    c[i - lo] = value;
+                }
+            }
+        }
+        Ok(Some(c))
+    }
+
+    /// The numerators of one class (its words in lexicographic order; `h`
+    /// starts at its first word, the others following in the order of
+    /// [`Lyndon::words`]).
+    fn solve_class<T: Int>(
+        &self,
+        class: &[usize],
+        h: &[T],
+    ) -> Result<Option<Vec<T>>, FreeLieError> {
+        let first = class[0];
+        let mut c: Vec<T> = Vec::with_capacity(class.len());
+        let mut prog = Programme::new(self.n);
         let mut values = Vec::new();
-        for class in &classes {
-            if !keep_going(0) {
-                return Err(FreeLieError::Stopped { n_terms: hi - lo });
+        // (root node, leading X's k, position in the class) of the solved
+        // words with a nonzero coefficient.
+        let mut done: Vec<(u32, u8, usize)> = Vec::new();
+        let mut stop = 0usize;
+        for (pos, &i) in class.iter().enumerate() {
+            if pos % 256 == 255 && (self.stop)() {
+                return Err(FreeLieError::Stopped { n_terms: pos });
             }
-            let mut prog = Programme::new(self.n);
-            // (root node, leading X's k, index) of the solved words with a
-            // nonzero coefficient.
-            let mut done: Vec<(u32, u8, usize)> = Vec::new();
-            let mut stop = 0usize;
-            for &i in class {
-                let w = self.lyn.words[i];
-                let lead = w.leading_x();
-                let mut acc = h[i - lo].clone();
-                if !done.is_empty() {
-                    prog.run(w, stop, &mut values);
-                    for &(root, k, j) in &done {
-                        if k > lead {
-                            continue;
-                        }
-                        let t = values[root as usize];
-                        if t == 0 {
-                            continue;
-                        }
-                        let Some(prod) = c[j - lo].checked_mul(&T::from(t)) else {
-                            return Ok(None);
-                        };
-                        let Some(next) = acc.checked_sub(&prod) else {
-                            return Ok(None);
-                        };
-                        acc = next;
+            let w = self.lyn.words[i];
+            let lead = w.leading_x();
+            let mut acc = h[i - first].clone();
+            if !done.is_empty() {
+                prog.run(w, stop, &mut values);
+                for &(root, k, j) in &done {
+                    if k > lead {
+                        continue;
                     }
-                }
-                if !acc.is_zero() {
-                    let (mut v, mut k) = (i as u32, 0u8);
-                    while self.lyn.words[v as usize].len > 1
-                        && self.lyn.words[self.lyn.left[v as usize] as usize]
-                            == (Bits { len: 1, bits: 0 })
-                    {
-                        v = self.lyn.right[v as usize];
-                        k += 1;
+                    let t = values[root as usize];
+                    if t == 0 {
+                        continue;
                     }
-                    let root = prog.node(self.lyn, v, k);
-                    stop = stop.max(root as usize + 1);
-                    done.push((root, k, i));
+                    let Some(prod) = c[j].checked_mul(&T::from(t)) else {
+                        return Ok(None);
+                    };
+                    let Some(next) = acc.checked_sub(&prod) else {
+                        return Ok(None);
+                    };
+                    acc = next;
                 }
-                c[i - lo] = acc;
             }
+            if !acc.is_zero() {
+                let (mut v, mut k) = (i as u32, 0u8);
+                while self.lyn.words[v as usize].len > 1
+                    && self.lyn.words[self.lyn.left[v as usize] as usize]
+                        == (Bits { len: 1, bits: 0 })
+                {
+                    v = self.lyn.right[v as usize];
+                    k += 1;
+                }
+                let root = prog.node(self.lyn, v, k);
+                stop = stop.max(root as usize + 1);
+                done.push((root, k, pos));
+            }
+            c.push(acc);
         }
         Ok(Some(c))
     }
@@ -444,13 +503,16 @@ impl Degree<'_> {
 /// bracketing): the nonzero coefficients, by degree and then
 /// lexicographically.
 ///
-/// `keep_going` is asked now and then with a count of basis elements; it
-/// may stop the computation ([`FreeLieError::Stopped`]). It is first asked
-/// with the dimension of the free Lie algebra up to that degree, before
-/// anything is allocated.
+/// `keep_going` is asked with the dimension of the free Lie algebra up to
+/// that degree before anything is allocated, then once per degree with
+/// that degree's dimension; `false` stops the computation
+/// ([`FreeLieError::Stopped`]). `stop` is polled by the workers (up to
+/// `threads` of them; the output never depends on the number).
 pub fn bch(
     max_degree: u32,
+    threads: usize,
     keep_going: &mut dyn FnMut(usize) -> bool,
+    stop: &(dyn Fn() -> bool + Sync),
 ) -> Result<Vec<(Word, BigRational)>, FreeLieError> {
     let max_len = max_degree.min(MAX_DEGREE) as u8;
     if max_len == 0 {
@@ -471,7 +533,15 @@ pub fn bch(
         let hi = lyn.first[usize::from(n) + 1];
         let denom = factorial(u64::from(n)) * lcm_upto(u64::from(n));
         let lcm_big = lcm_upto(u64::from(n));
-        let degree = Degree { lyn: &lyn, n };
+        if !keep_going(hi - lo) {
+            return Err(FreeLieError::Stopped { n_terms: hi - lo });
+        }
+        let degree = Degree {
+            lyn: &lyn,
+            n,
+            threads,
+            stop,
+        };
         let parts: Vec<Vec<u8>> = (lo..hi).map(|i| partition(lyn.words[i])).collect();
         let small: Option<Vec<i128>> = i128::try_from(&lcm_big).ok().and_then(|lcm| {
             parts
@@ -484,7 +554,7 @@ pub fn bch(
                 .collect()
         });
         let solved = match &small {
-            Some(h) => degree.solve::<i128>(h, keep_going)?,
+            Some(h) => degree.solve::<i128>(h)?,
             None => None,
         };
         let numerators: Vec<BigInt> = match solved {
@@ -499,7 +569,7 @@ pub fn bch(
                             .clone()
                     })
                     .collect();
-                degree.solve::<BigInt>(&h, keep_going)?.unwrap_or_default()
+                degree.solve::<BigInt>(&h)?.unwrap_or_default()
             }
         };
         for (i, num) in (lo..hi).zip(numerators) {
@@ -546,7 +616,7 @@ mod tests {
     use proptest::prelude::*;
 
     fn go(n: u32) -> Vec<(Word, BigRational)> {
-        bch(n, &mut |_| true).unwrap()
+        bch(n, 2, &mut |_| true, &|| false).unwrap()
     }
 
     fn q(num: i64, den: i64) -> BigRational {
@@ -638,15 +708,14 @@ mod tests {
                 .map(|p| goldberg_small(p, i128::try_from(&lcm).unwrap()).unwrap())
                 .collect();
             let big: Vec<BigInt> = parts.iter().map(|p| goldberg_big(p, &lcm)).collect();
-            let degree = Degree { lyn: &lyn, n };
-            let a = degree
-                .solve::<i128>(&small, &mut |_| true)
-                .unwrap()
-                .unwrap();
-            let b = degree
-                .solve::<BigInt>(&big, &mut |_| true)
-                .unwrap()
-                .unwrap();
+            let degree = Degree {
+                lyn: &lyn,
+                n,
+                threads: 2,
+                stop: &|| false,
+            };
+            let a = degree.solve::<i128>(&small).unwrap().unwrap();
+            let b = degree.solve::<BigInt>(&big).unwrap().unwrap();
             let a: Vec<BigInt> = a.into_iter().map(BigInt::from).collect();
             assert_eq!(a, b, "degree {n}");
         }
@@ -655,10 +724,15 @@ mod tests {
     #[test]
     fn a_stop_is_honoured_before_allocation() {
         let mut asked = Vec::new();
-        let err = bch(40, &mut |n| {
-            asked.push(n);
-            false
-        })
+        let err = bch(
+            40,
+            1,
+            &mut |n| {
+                asked.push(n);
+                false
+            },
+            &|| false,
+        )
         .unwrap_err();
         assert!(matches!(err, FreeLieError::Stopped { .. }));
         assert_eq!(asked, vec![witt_total(40)]);
@@ -689,8 +763,8 @@ mod tests {
                         .map_or(0, |c| i128::try_from(c.to_integer()).unwrap())
                 })
                 .collect();
-            let degree = Degree { lyn: &lyn, n };
-            let c = degree.solve::<i128>(&h, &mut |_| true).unwrap().unwrap();
+            let degree = Degree { lyn: &lyn, n, threads: 1, stop: &|| false };
+            let c = degree.solve::<i128>(&h).unwrap().unwrap();
             let got: Vec<(Word, BigRational)> = (lo..hi)
                 .zip(c)
                 .filter(|(_, c)| *c != 0)
