@@ -246,6 +246,8 @@ pub struct Session {
     pub(crate) run_depth: usize,
     /// Show timings in command summaries.
     pub show_timing: bool,
+    /// Integration tolerance of the numerical commands (`set tolerance`).
+    pub(crate) tolerance: f64,
 }
 
 impl Default for Session {
@@ -268,6 +270,7 @@ impl Session {
             base_dir: PathBuf::from("."),
             run_depth: 0,
             show_timing: true,
+            tolerance: crate::numeric::validate::DEFAULT_TOLERANCE,
         }
     }
 
