@@ -120,7 +120,10 @@ impl Session {
         if v.field.0.iter().any(Expr::is_time_varying) {
             return Err(SessionError::invalid(
                 e.span,
-                format!("`{}` needs an autonomous field (average it first)", what_word(what)),
+                format!(
+                    "`{}` needs an autonomous field (average it first)",
+                    what_word(what)
+                ),
             ));
         }
         Ok(v.field)
@@ -167,7 +170,10 @@ impl Session {
         let is_constant = |e: &Expr| e.symbols().iter().all(|s| *s == Sym::PI);
         match substituted {
             Ok((data, value)) => {
-                let jp = Matrix { data, ..jac.clone() };
+                let jp = Matrix {
+                    data,
+                    ..jac.clone()
+                };
                 let text = plain::matrix(&jp);
                 let all_constant = jp.data.iter().all(is_constant);
                 if longest_digit_run(&text) <= MAX_EXACT_DIGITS || !all_constant {
@@ -226,7 +232,11 @@ impl Session {
                 .collect();
             let x: Option<Vec<f64>> = point
                 .iter()
-                .map(|e| CompiledExpr::new(e, &[], floats).ok().map(|c| c.eval(0.0, &[])))
+                .map(|e| {
+                    CompiledExpr::new(e, &[], floats)
+                        .ok()
+                        .map(|c| c.eval(0.0, &[]))
+                })
                 .collect();
             match (residual, &numeric, x) {
                 (Some(r), Some(rows), Some(x)) => {
@@ -286,10 +296,7 @@ impl Session {
     /// to the accuracy of the point.
     fn residual_lines(&self, r: &[f64], rows: &[Vec<f64>], x: &[f64], report: &mut Report) {
         let size = norm(r);
-        let jnorm = rows
-            .iter()
-            .flatten()
-            .fold(0.0_f64, |m, v| m.max(v.abs()));
+        let jnorm = rows.iter().flatten().fold(0.0_f64, |m, v| m.max(v.abs()));
         let scale = 1.0 + jnorm * (1.0 + norm(x));
         if size <= RESIDUAL_RELATIVE * scale {
             report.push(
@@ -313,7 +320,8 @@ impl Session {
     }
 
     fn eigen_lines(&self, rows: &[Vec<f64>], span: Span, report: &mut Report) -> R<()> {
-        let eigs = eigen::eigenvalues(rows).map_err(|e| SessionError::invalid(span, e.to_string()))?;
+        let eigs =
+            eigen::eigenvalues(rows).map_err(|e| SessionError::invalid(span, e.to_string()))?;
         // Conjugate pairs are listed together as a ± bi.
         let shown: Vec<String> = eigs
             .iter()
@@ -345,8 +353,8 @@ impl Session {
         let f = self.autonomous(field, "the field of `equilibria`")?;
         let exact = self.with_values(with)?;
         let floats = float_values(&exact);
-        let cf =
-            CompiledField::new(&f, &self.states, &floats).map_err(|e| compile_err(field.span, e))?;
+        let cf = CompiledField::new(&f, &self.states, &floats)
+            .map_err(|e| compile_err(field.span, e))?;
         let jac = f
             .jacobian(&self.states)
             .map_err(|e| SessionError::core(span, e))?;

@@ -8,13 +8,13 @@ use std::collections::HashMap;
 use super::ast::{Assign, Command, CommandKind, Expr as Ast, PathArg, PhasePlot, Span};
 use super::progress::Progress;
 use super::session::{ErrorKind, Report, Session, SessionError, Style, SymKind};
+use super::value::AveragedInfo;
 use crate::core::{limits, CoreError, Expr, Sym, Q};
 use crate::numeric::compile::{float_values, CompileError, CompiledExpr, CompiledField};
 use crate::numeric::ode::{integrate_at, OdeError};
 use crate::numeric::sweep::{self, num};
 use crate::numeric::validate::{self, compare_errors, CompareResult, CompareRun};
 use crate::numeric::{plot, plot::PlotError};
-use super::value::AveragedInfo;
 
 pub(crate) type R<T> = Result<T, SessionError>;
 
@@ -246,7 +246,10 @@ impl Session {
             ));
         }
         self.tolerance = tol;
-        report.push(Style::Note, format!("integration tolerance {}", tolerance_text(tol)));
+        report.push(
+            Style::Note,
+            format!("integration tolerance {}", tolerance_text(tol)),
+        );
         Ok(())
     }
 
@@ -609,7 +612,10 @@ impl Session {
                     )
                 })
                 .collect();
-            let title = format!("{kind}: error against {eps_name}, {}", hz.describe(&eps_name));
+            let title = format!(
+                "{kind}: error against {eps_name}, {}",
+                hz.describe(&eps_name)
+            );
             let svg = plot::error_vs_eps_svg(
                 &title,
                 "largest distance to the system (log scale)",

@@ -91,9 +91,7 @@ pub fn asymptotic_fit(xs: &[f64], ys: &[f64], excluded: &[bool]) -> Option<Asymp
     let n = xs.len().min(ys.len());
     let mut usable: Vec<usize> = (0..n)
         .filter(|&i| {
-            !excluded.get(i).copied().unwrap_or(false)
-                && is_loggable(xs[i])
-                && is_loggable(ys[i])
+            !excluded.get(i).copied().unwrap_or(false) && is_loggable(xs[i]) && is_loggable(ys[i])
         })
         .collect();
     // Largest x first; ties keep input order.
@@ -176,7 +174,6 @@ mod tests {
         assert!((slope - 2.0).abs() < 1e-12);
     }
 
-
     #[test]
     fn local_slopes_between_neighbours() {
         let xs = [0.2, 0.1, 0.05];
@@ -193,7 +190,10 @@ mod tests {
     #[test]
     fn the_fit_leaves_out_the_pre_asymptotic_range() {
         let xs = [0.4, 0.2, 0.1, 0.05, 0.025, 0.0125];
-        let ys: Vec<f64> = xs.iter().map(|x: &f64| x.powi(3) * (1.0 + 20.0 * x * x)).collect();
+        let ys: Vec<f64> = xs
+            .iter()
+            .map(|x: &f64| x.powi(3) * (1.0 + 20.0 * x * x))
+            .collect();
         let all = loglog_slope(&xs, &ys).unwrap();
         assert!(all > 3.3, "{all}");
         let fit = asymptotic_fit(&xs, &ys, &[false; 6]).unwrap();

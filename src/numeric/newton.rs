@@ -4,7 +4,8 @@
 //!
 //! Method: J. E. Dennis and R. B. Schnabel, "Numerical Methods for
 //! Unconstrained Optimization and Nonlinear Equations" (1983), §6.3
-//! (from memory): the Newton step, halved until the residual decreases.
+//! (from memory): the Newton step, cut to a largest length and halved
+//! until the residual decreases.
 
 use std::fmt;
 
@@ -125,8 +126,11 @@ pub fn solve(
             Some(s) if s.iter().all(|v| v.is_finite()) => s,
             _ => return Err(NewtonError::Singular { at: x, residual: r }),
         };
-        // Backtracking: halve until the residual decreases.
-        let mut lambda = 1.0;
+        // A step longer than max(1, |x|) is cut to that length (so that a
+        // nearly singular Jacobian does not throw the iterate far from the
+        // guess), then halved until the residual decreases.
+        let cap = 1.0_f64.max(norm(&x));
+        let mut lambda = (cap / step.norm()).min(1.0);
         let mut accepted = false;
         for _ in 0..30 {
             for i in 0..n {

@@ -75,6 +75,9 @@ pub fn time_series_svg(
     let all = || lines.iter().flat_map(|(_, points)| points.iter());
     let x_range = linear_range(all().map(|p| p.0))?;
     let y_range = linear_range(all().map(|p| p.1))?;
+    let labels: Vec<&str> = names.iter().map(String::as_str).collect();
+    let legend = Legend::new(&labels, (684.0, 400.0));
+    let (corner, y_range) = legend.place(&x_range, y_range, all().copied());
 
     render(SIZE, |area| {
         let mut chart = ChartBuilder::on(area)
@@ -89,6 +92,8 @@ pub fn time_series_svg(
             .configure_mesh()
             .x_desc("t")
             .y_desc("state")
+            .x_label_formatter(&|v| tick_label(*v, x_range.end - x_range.start))
+            .y_label_formatter(&|v| tick_label(*v, y_range.end - y_range.start))
             .label_style(("sans-serif", 14))
             .axis_desc_style(("sans-serif", 16))
             .draw()
@@ -107,7 +112,7 @@ pub fn time_series_svg(
                     .map_err(render_error)?;
             }
         }
-        draw_legend(&mut chart, SeriesLabelPosition::UpperRight)
+        draw_legend(&mut chart, corner)
     })
 }
 
@@ -131,7 +136,11 @@ pub fn paths_svg(
     let mut panels = Vec::with_capacity(names.len());
     for (k, name) in names.iter().enumerate() {
         let mut lines = Vec::with_capacity(1 + models.len());
-        check_len(&format!("the system's {name}"), times.len(), system[k].len())?;
+        check_len(
+            &format!("the system's {name}"),
+            times.len(),
+            system[k].len(),
+        )?;
         lines.push(("system".to_string(), finite_points(times, &system[k])));
         for (label, values) in models {
             check_len(&format!("the states of {label}"), names.len(), values.len())?;
@@ -141,7 +150,10 @@ pub fn paths_svg(
         let all = || lines.iter().flat_map(|(_, points)| points.iter());
         let x_range = linear_range(all().map(|p| p.0))?;
         let y_range = linear_range(all().map(|p| p.1))?;
-        panels.push((name.clone(), lines, x_range, y_range));
+        let labels: Vec<&str> = lines.iter().map(|l| l.0.as_str()).collect();
+        let legend = Legend::new(&labels, (688.0, 244.0));
+        let (corner, y_range) = legend.place(&x_range, y_range, all().copied());
+        panels.push((name.clone(), lines, x_range, y_range, corner));
     }
     let height = (PANEL_HEIGHT * names.len() as u32 + 50).min(3000);
     render((SIZE.0, height), |area| {
@@ -149,7 +161,7 @@ pub fn paths_svg(
             .titled(&clean_text(title), ("sans-serif", 22))
             .map_err(render_error)?;
         let parts = area.split_evenly((panels.len(), 1));
-        for (part, (name, lines, x_range, y_range)) in parts.iter().zip(&panels) {
+        for (part, (name, lines, x_range, y_range, corner)) in parts.iter().zip(&panels) {
             let mut chart = ChartBuilder::on(part)
                 .margin(8)
                 .margin_right(24)
@@ -161,6 +173,8 @@ pub fn paths_svg(
                 .configure_mesh()
                 .x_desc("t")
                 .y_desc(clean_text(name))
+                .x_label_formatter(&|v| tick_label(*v, x_range.end - x_range.start))
+                .y_label_formatter(&|v| tick_label(*v, y_range.end - y_range.start))
                 .label_style(("sans-serif", 13))
                 .axis_desc_style(("sans-serif", 16))
                 .draw()
@@ -177,7 +191,7 @@ pub fn paths_svg(
                     .label(legend_label(label, points.is_empty()))
                     .legend(move |(x, y)| legend_mark(x, y, color));
             }
-            draw_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+            draw_legend(&mut chart, corner.clone())?;
         }
         Ok(())
     })
@@ -196,6 +210,8 @@ pub fn phase_svg(
     let points = finite_points(xs, ys);
     let x_range = linear_range(points.iter().map(|p| p.0))?;
     let y_range = linear_range(points.iter().map(|p| p.1))?;
+    let legend = Legend::new(&["trajectory", "start"], (524.0, 500.0));
+    let (corner, y_range) = legend.place(&x_range, y_range, points.iter().copied());
     let start = points.first().copied();
     render(SQUARE, |area| {
         let mut chart = ChartBuilder::on(area)
@@ -210,6 +226,8 @@ pub fn phase_svg(
             .configure_mesh()
             .x_desc(clean_text(x_name))
             .y_desc(clean_text(y_name))
+            .x_label_formatter(&|v| tick_label(*v, x_range.end - x_range.start))
+            .y_label_formatter(&|v| tick_label(*v, y_range.end - y_range.start))
             .label_style(("sans-serif", 14))
             .axis_desc_style(("sans-serif", 16))
             .draw()
@@ -228,7 +246,7 @@ pub fn phase_svg(
                 .label("start")
                 .legend(move |(x, y)| Circle::new((x + 9, y), 4, red.filled()));
         }
-        draw_legend(&mut chart, SeriesLabelPosition::UpperRight)
+        draw_legend(&mut chart, corner)
     })
 }
 
@@ -262,9 +280,25 @@ pub fn error_vs_eps_svg(
         any_floor |= points.iter().any(|(_, f)| *f);
         lines.push((label.clone(), points));
     }
-    let all = || lines.iter().flat_map(|(_, points)| points.iter().map(|p| p.0));
+    let all = || {
+        lines
+            .iter()
+            .flat_map(|(_, points)| points.iter().map(|p| p.0))
+    };
     let x_range = log_range(all().map(|p| p.0))?;
     let y_range = log_range(all().map(|p| p.1))?;
+    let mut labels: Vec<&str> = per_order.iter().map(|l| l.0.as_str()).collect();
+    if any_floor {
+        labels.push("at the integrator's floor (left out of fits)");
+    }
+    let legend = Legend::new(&labels, (684.0, 400.0));
+    let logs = |r: &Range<f64>| r.start.log10()..r.end.log10();
+    let (corner, log_y) = legend.place(
+        &logs(&x_range),
+        logs(&y_range),
+        all().map(|(x, y)| (x.log10(), y.log10())),
+    );
+    let y_range = y_range.start..10f64.powf(log_y.end);
 
     render(SIZE, |area| {
         let mut chart = ChartBuilder::on(area)
@@ -274,8 +308,14 @@ pub fn error_vs_eps_svg(
             .x_label_area_size(45)
             .y_label_area_size(80)
             .build_cartesian_2d(
-                x_range.clone().log_scale().with_key_points(log_ticks(&x_range)),
-                y_range.clone().log_scale().with_key_points(log_ticks(&y_range)),
+                x_range
+                    .clone()
+                    .log_scale()
+                    .with_key_points(log_ticks(&x_range)),
+                y_range
+                    .clone()
+                    .log_scale()
+                    .with_key_points(log_ticks(&y_range)),
             )
             .map_err(render_error)?;
         chart
@@ -321,7 +361,7 @@ pub fn error_vs_eps_svg(
                 .label("at the integrator's floor (left out of fits)")
                 .legend(|(x, y)| Circle::new((x + 9, y), 5, BLACK.stroke_width(2)));
         }
-        draw_legend(&mut chart, SeriesLabelPosition::LowerRight)
+        draw_legend(&mut chart, corner)
     })
 }
 
@@ -349,6 +389,22 @@ fn log_ticks(range: &Range<f64>) -> Vec<f64> {
     Vec::new()
 }
 
+/// A tick label on a linear axis spanning `span`: zero (also a rounded
+/// `-0`) as `0`, otherwise the value rounded to 12 significant digits in
+/// its shortest form.
+fn tick_label(v: f64, span: f64) -> String {
+    if v.abs() <= 1e-12 * span.abs() {
+        return "0".to_string();
+    }
+    let rounded: f64 = format!("{v:.11e}").parse().unwrap_or(v);
+    let plain = format!("{rounded}");
+    if plain.len() > 12 {
+        short_sci(rounded)
+    } else {
+        plain
+    }
+}
+
 /// Tick labels on a log axis: `1e-3`, `2.5e-2`.
 fn short_sci(v: f64) -> String {
     let s = format!("{v:.1e}");
@@ -364,6 +420,68 @@ fn finite_points(xs: &[f64], ys: &[f64]) -> Vec<(f64, f64)> {
         .filter(|(t, v)| t.is_finite() && v.is_finite())
         .map(|(t, v)| (*t, *v))
         .collect()
+}
+
+/// Where a legend goes: the corner of the plotting area with the fewest
+/// data points under the legend box; when every corner has some, the
+/// vertical axis grows at the top to make room and the legend goes there,
+/// so that it never hides data.
+struct Legend {
+    /// The box as fractions of the plotting area.
+    width: f64,
+    height: f64,
+}
+
+impl Legend {
+    /// A legend of `labels` on a plotting area of about `area` pixels.
+    fn new(labels: &[&str], area: (f64, f64)) -> Legend {
+        let chars = labels.iter().map(|l| l.chars().count()).max().unwrap_or(0) as f64;
+        let width = (40.0 + 7.5 * chars) / area.0;
+        let height = (12.0 + 19.0 * labels.len() as f64) / area.1;
+        Legend {
+            width: width.min(0.9),
+            height: height.min(0.6),
+        }
+    }
+
+    /// The corner and the (possibly grown) vertical range.
+    fn place(
+        &self,
+        x: &Range<f64>,
+        y: Range<f64>,
+        points: impl Iterator<Item = (f64, f64)>,
+    ) -> (SeriesLabelPosition, Range<f64>) {
+        let (xs, ys) = (x.end - x.start, y.end - y.start);
+        let mut counts = [0usize; 4];
+        for (px, py) in points {
+            let fx = (px - x.start) / xs;
+            let fy = (py - y.start) / ys;
+            // A margin of a few per cent around the box.
+            let right = fx >= 1.0 - self.width - 0.03;
+            let left = fx <= self.width + 0.03;
+            let top = fy >= 1.0 - self.height - 0.04;
+            let bottom = fy <= self.height + 0.04;
+            counts[0] += usize::from(right && top);
+            counts[1] += usize::from(left && top);
+            counts[2] += usize::from(right && bottom);
+            counts[3] += usize::from(left && bottom);
+        }
+        let corners = [
+            SeriesLabelPosition::UpperRight,
+            SeriesLabelPosition::UpperLeft,
+            SeriesLabelPosition::LowerRight,
+            SeriesLabelPosition::LowerLeft,
+        ];
+        match (0..4).find(|&i| counts[i] == 0) {
+            Some(i) => (corners[i].clone(), y),
+            None => {
+                let grow = ys * (self.height + 0.05) / (1.0 - self.height - 0.05);
+                let end = y.end + grow;
+                let y = if end.is_finite() { y.start..end } else { y };
+                (SeriesLabelPosition::UpperRight, y)
+            }
+        }
+    }
 }
 
 /// The system's colour in a plot of paths.
@@ -423,11 +541,7 @@ where
 
 /// The line through `points`, or nothing when there are none (an empty
 /// polyline would still be emitted as an element).
-fn polyline(
-    points: &[(f64, f64)],
-    color: RGBColor,
-    width: u32,
-) -> Option<PathElement<(f64, f64)>> {
+fn polyline(points: &[(f64, f64)], color: RGBColor, width: u32) -> Option<PathElement<(f64, f64)>> {
     (!points.is_empty()).then(|| PathElement::new(points.to_vec(), color.stroke_width(width)))
 }
 
@@ -536,8 +650,8 @@ const MAX_DECADES: f64 = 280.0;
 
 /// A logarithmic axis range around values that pass [`is_loggable`], with
 /// a margin of 5% of the decades spanned (a factor 1.5 each way when all
-/// values are equal), extended down to a power of ten so that the axis
-/// always carries a labelled tick.
+/// values are equal), extended down to a power of ten when that is needed
+/// for the axis to carry two labelled ticks.
 fn log_range(values: impl Iterator<Item = f64>) -> Result<Range<f64>, PlotError> {
     let (lo, hi) = extent(values.filter(|v| is_loggable(*v)))?;
     let (lo_log, hi_log) = (lo.log10(), hi.log10());
@@ -550,8 +664,11 @@ fn log_range(values: impl Iterator<Item = f64>) -> Result<Range<f64>, PlotError>
     } else {
         1.5f64.log10()
     };
-    let lo = 10f64.powf((lo_log - pad).min(lo_log.floor()).max(-305.0));
     let hi = 10f64.powf((hi_log + pad).min(305.0));
+    let mut lo = 10f64.powf((lo_log - pad).max(-305.0));
+    if log_ticks(&(lo..hi)).len() < 2 {
+        lo = 10f64.powf((lo_log - pad).min(lo_log.floor()).max(-305.0));
+    }
     if lo.is_normal() && hi.is_normal() && hi > lo {
         Ok(lo..hi)
     } else {
@@ -609,17 +726,27 @@ mod tests {
     fn paths_have_a_panel_per_state_with_every_line() {
         let times: Vec<f64> = (0..300).map(|i| i as f64 * 0.1).collect();
         let sys = vec![
-            times.iter().map(|t| (0.05 * t).cos() + 0.05 * (t * 7.0).sin()).collect(),
+            times
+                .iter()
+                .map(|t| (0.05 * t).cos() + 0.05 * (t * 7.0).sin())
+                .collect(),
             times.iter().map(|t| -(0.05 * t).sin()).collect(),
         ];
         let model: Vec<Vec<f64>> = vec![
             times.iter().map(|t| (0.05 * t).cos()).collect(),
             times.iter().map(|t| -(0.05 * t).sin()).collect(),
         ];
-        let models = vec![("order 1".to_string(), model.clone()), ("order 2".to_string(), model)];
+        let models = vec![
+            ("order 1".to_string(), model.clone()),
+            ("order 2".to_string(), model),
+        ];
         let text = paths_svg("paths", &names(&["x", "y"]), &times, &sys, &models).unwrap();
         // Two models per panel drawn 2 wide; the system 1 wide in grey.
-        check_svg(&text, 4, &["paths", "x", "y", "system", "order 1", "order 2"]);
+        check_svg(
+            &text,
+            4,
+            &["paths", "x", "y", "system", "order 1", "order 2"],
+        );
         assert_eq!(text.matches("stroke=\"#5A5A5A\"").count() >= 2, true);
     }
 
@@ -636,7 +763,11 @@ mod tests {
     fn error_plot_has_one_line_per_order_and_a_legend() {
         let eps = [0.2, 0.1, 0.05, 0.025];
         let per_order = vec![
-            ("order 1".to_string(), vec![4e-2, 1e-2, 2.5e-3, 6.25e-4], vec![false; 4]),
+            (
+                "order 1".to_string(),
+                vec![4e-2, 1e-2, 2.5e-3, 6.25e-4],
+                vec![false; 4],
+            ),
             (
                 "order 2".to_string(),
                 vec![8e-3, 1e-3, f64::NAN, 1.25e-4],
@@ -675,7 +806,11 @@ mod tests {
             &[vec![1.0, 2.0], vec![2.0, 1.0]],
         )
         .unwrap();
-        check_svg(&text, 2, &["&lt;title&gt;", "a&lt;b", "x &amp; &quot;y&quot; "]);
+        check_svg(
+            &text,
+            2,
+            &["&lt;title&gt;", "a&lt;b", "x &amp; &quot;y&quot; "],
+        );
         assert!(!text.contains("<title>") && !text.contains('\u{0}'));
     }
 
@@ -726,7 +861,10 @@ mod tests {
             time_series_svg("t", &one, &[], &[vec![]]),
             Err(PlotError::NoData)
         );
-        assert_eq!(time_series_svg("t", &[], &[1.0], &[]), Err(PlotError::NoData));
+        assert_eq!(
+            time_series_svg("t", &[], &[1.0], &[]),
+            Err(PlotError::NoData)
+        );
         assert_eq!(
             time_series_svg("t", &one, &[1.0, nan], &[vec![nan, 1.0]]),
             Err(PlotError::NoData)
@@ -751,12 +889,24 @@ mod tests {
             time_series_svg("t", &one, &[0.0, 1.0], &[vec![-f64::MAX, f64::MAX]]),
             Err(PlotError::RangeTooWide)
         );
-        assert_eq!(paths_svg("t", &[], &[1.0], &[], &[]), Err(PlotError::NoData));
+        assert_eq!(
+            paths_svg("t", &[], &[1.0], &[], &[]),
+            Err(PlotError::NoData)
+        );
         assert!(matches!(
-            paths_svg("t", &one, &[1.0], &[vec![1.0]], &[("m".to_string(), vec![])]),
+            paths_svg(
+                "t",
+                &one,
+                &[1.0],
+                &[vec![1.0]],
+                &[("m".to_string(), vec![])]
+            ),
             Err(PlotError::LengthMismatch { .. })
         ));
-        assert_eq!(phase_svg("t", "x", "y", &[nan], &[1.0]), Err(PlotError::NoData));
+        assert_eq!(
+            phase_svg("t", "x", "y", &[nan], &[1.0]),
+            Err(PlotError::NoData)
+        );
         let zeros = vec![("order 1".to_string(), vec![0.0, -1.0], vec![false; 2])];
         assert_eq!(
             error_vs_eps_svg("e", "error", &[0.1, 0.2], &zeros),

@@ -26,7 +26,11 @@ pub fn num(v: f64) -> String {
 /// (scientific notation outside 1e-4..1e6).
 pub fn decimal(v: f64, digits: usize) -> String {
     if v == 0.0 || !v.is_finite() {
-        return if v == 0.0 { "0".to_string() } else { format!("{v}") };
+        return if v == 0.0 {
+            "0".to_string()
+        } else {
+            format!("{v}")
+        };
     }
     let a = v.abs();
     if (1e-4..1e6).contains(&a) {
@@ -76,8 +80,7 @@ pub fn table_lines(eps: &[f64], results: &[CompareResult]) -> Vec<String> {
         if i > 0 {
             let cols: String = (0..n_orders)
                 .map(|k| {
-                    let floor =
-                        r.orders[k].at_floor() || results[i - 1].orders[k].at_floor();
+                    let floor = r.orders[k].at_floor() || results[i - 1].orders[k].at_floor();
                     let text = match slopes[k].get(i - 1).copied().flatten() {
                         Some(s) => format!("({s:.2}){}", if floor { "*" } else { " " }),
                         None => "(n/a) ".to_string(),
@@ -171,7 +174,9 @@ pub fn tol_lines(eps: &[f64], results: &[CompareResult], tol: f64) -> Vec<String
                 .zip(results)
                 .filter(|(_, r)| r.orders[k].max <= tol)
                 .map(|(e, _)| *e)
-                .fold(None, |acc: Option<f64>, e| Some(acc.map_or(e, |a| a.max(e))));
+                .fold(None, |acc: Option<f64>, e| {
+                    Some(acc.map_or(e, |a| a.max(e)))
+                });
             match best {
                 Some(e) => format!(
                     "tol {}: order {} meets it up to eps = {}",
@@ -237,9 +242,15 @@ mod tests {
         ];
         let table = table_lines(&eps, &results);
         assert!(table.iter().any(|l| l.contains("1.000e-12*")), "{table:?}");
-        assert!(table.iter().any(|l| l.contains("at the integrator's floor")));
+        assert!(table
+            .iter()
+            .any(|l| l.contains("at the integrator's floor")));
         let slopes = slope_lines(&eps, &results);
-        assert!(slopes[0].starts_with("slope order 1: 1.00 (fit over eps = 0.2, 0.1, 0.05, 0.025"), "{}", slopes[0]);
+        assert!(
+            slopes[0].starts_with("slope order 1: 1.00 (fit over eps = 0.2, 0.1, 0.05, 0.025"),
+            "{}",
+            slopes[0]
+        );
         assert!(
             slopes[1].starts_with("slope order 2: 3.00 (fit over eps = 0.2, 0.1, 0.05: local slopes settled; at the integrator's floor, left out: eps = 0.025)"),
             "{}",
