@@ -8,7 +8,7 @@
 use std::ffi::OsString;
 use std::path::PathBuf;
 
-use clap::{ArgMatches, CommandFactory, FromArgMatches, Parser};
+use clap::{ArgMatches, CommandFactory, FromArgMatches, Parser, Subcommand};
 
 /// The command-line arguments as clap sees them.
 #[derive(Debug, Parser)]
@@ -17,6 +17,8 @@ use clap::{ArgMatches, CommandFactory, FromArgMatches, Parser};
     version,
     about = "Exact series computations on nonlinear time-varying systems",
     long_about = None,
+    args_conflicts_with_subcommands = true,
+    disable_help_subcommand = true,
     after_help = "Without FILE or -e, ordex starts the interactive prompt. Files and -e lines run \
                   in the order given, in one session.\nExit status: 0 all well, 1 a check failed, 2 an error."
 )]
@@ -41,6 +43,40 @@ struct Args {
     /// Hide the time taken in command summaries (for reproducible output).
     #[arg(long)]
     no_timing: bool,
+
+    #[command(subcommand)]
+    command: Option<Command>,
+}
+
+/// Subcommands (a script named like one runs as `./NAME`).
+#[derive(Debug, Subcommand)]
+enum Command {
+    /// Jupyter: `ordex kernel install` registers ordex as a kernel for this
+    /// user; Jupyter starts `ordex kernel CONNECTION_FILE`.
+    #[command(args_conflicts_with_subcommands = true, subcommand_negates_reqs = true)]
+    Kernel {
+        /// The connection file Jupyter passes when it starts the kernel.
+        #[arg(value_name = "CONNECTION_FILE", required = true)]
+        connection_file: Option<PathBuf>,
+        #[command(subcommand)]
+        action: Option<KernelCommand>,
+    },
+}
+
+#[derive(Debug, Subcommand)]
+enum KernelCommand {
+    /// Write the kernel spec (kernel.json) into the user's Jupyter data
+    /// directory (JUPYTER_DATA_DIR when set).
+    Install,
+}
+
+/// What `ordex kernel …` asks for.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum Kernel {
+    /// Register the kernel spec.
+    Install,
+    /// Serve the kernel with this connection file.
+    Start(PathBuf),
 }
 
 /// One thing to run non-interactively.
@@ -61,6 +97,8 @@ pub struct Invocation {
     pub resume: bool,
     /// Show timings in command summaries.
     pub timing: bool,
+    /// `ordex kernel …` (then nothing else is run).
+    pub kernel: Option<Kernel>,
 }
 
 impl Invocation {
@@ -104,15 +142,32 @@ impl Invocation {
         }
         ordered.sort_by_key(|(idx, _)| *idx);
         // The typed view gives the flags; clap already validated everything.
-        let (resume, no_timing) = match Args::from_arg_matches(&matches) {
-            Ok(args) => (args.resume, args.no_timing),
-            Err(_) => (matches.get_flag("resume"), matches.get_flag("no_timing")),
+        let (resume, no_timing, kernel) = match Args::from_arg_matches(&matches) {
+            Ok(args) => (args.resume, args.no_timing, kernel_of(args.command)),
+            Err(_) => (
+                matches.get_flag("resume"),
+                matches.get_flag("no_timing"),
+                None,
+            ),
         };
         Invocation {
             sources: ordered.into_iter().map(|(_, source)| source).collect(),
             resume,
             timing: !no_timing,
+            kernel,
         }
+    }
+}
+
+fn kernel_of(command: Option<Command>) -> Option<Kernel> {
+    match command? {
+        Command::Kernel {
+            action: Some(KernelCommand::Install),
+            ..
+        } => Some(Kernel::Install),
+        Command::Kernel {
+            connection_file, ..
+        } => connection_file.map(Kernel::Start),
     }
 }
 
@@ -166,5 +221,17 @@ mod tests {
         assert!(Invocation::try_parse_from(["ordex", "--resume", "a.ordex"]).is_err());
         assert!(Invocation::try_parse_from(["ordex", "--resume", "-e", "names"]).is_err());
         assert!(Invocation::try_parse_from(["ordex", "--frobnicate"]).is_err());
+    }
+
+    #[test]
+    fn kernel_subcommands() {
+        assert_eq!(parse(&["kernel", "install"]).kernel, Some(Kernel::Install));
+        assert_eq!(
+            parse(&["kernel", "/run/user/1/kernel-1.json"]).kernel,
+            Some(Kernel::Start(PathBuf::from("/run/user/1/kernel-1.json")))
+        );
+        assert_eq!(parse(&["./kernel"]).kernel, None);
+        assert!(Invocation::try_parse_from(["ordex", "kernel"]).is_err());
+        assert!(Invocation::try_parse_from(["ordex", "a.ordex", "kernel", "install"]).is_err());
     }
 }

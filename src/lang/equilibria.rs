@@ -6,7 +6,7 @@
 use std::collections::HashMap;
 
 use super::ast::{Assign, Expr as Ast, Span};
-use super::numeric_cmds::{compile_err, sci, R};
+use super::numeric_cmds::{compile_err, refuse_functions, sci, R};
 use super::session::{Report, Session, SessionError, Style};
 use crate::core::{limits, CoreError, Expr, Field, Matrix, Sym, Q};
 use crate::numeric::compile::{float_values, CompiledExpr, CompiledField};
@@ -117,6 +117,7 @@ fn snap(x: f64) -> Option<Expr> {
 impl Session {
     fn autonomous(&self, e: &Ast, what: &str) -> R<Field> {
         let v = self.eval_field(e, what)?;
+        refuse_functions(&v.field, e.span, what_word(what))?;
         if v.field.0.iter().any(Expr::is_time_varying) {
             return Err(SessionError::invalid(
                 e.span,

@@ -5,6 +5,7 @@
 //! never sees raw text; the session returns reports and never prints.
 
 pub mod ast;
+pub mod chart;
 pub mod commands;
 pub mod diag;
 pub mod equilibria;
@@ -14,10 +15,11 @@ pub mod files;
 pub mod help;
 pub mod numeric_cmds;
 pub mod parse;
-mod progress;
+pub mod phase;
+pub mod progress;
 pub mod session;
 pub mod split;
 pub mod structural;
 pub mod value;
 
-pub use session::{Event, Report, RunStatus, Session, Style};
+pub use session::{Event, Line, Report, Rich, RunStatus, Session, Style};

@@ -6,6 +6,7 @@
 use std::collections::HashMap;
 
 use super::ast::{Assign, Command, CommandKind, Expr as Ast, PathArg, PhasePlot, Span};
+use super::files::FileKind;
 use super::progress::Progress;
 use super::session::{ErrorKind, Report, Session, SessionError, Style, SymKind};
 use super::value::AveragedInfo;
@@ -17,6 +18,23 @@ use crate::numeric::validate::{self, compare_errors, CompareResult, CompareRun};
 use crate::numeric::{plot, plot::PlotError};
 
 pub(crate) type R<T> = Result<T, SessionError>;
+
+/// Numerical commands need concrete functions: an unspecified one is
+/// refused, naming it, with the hint to plug a definition.
+pub(crate) fn refuse_functions(f: &crate::core::Field, span: Span, cmd: &str) -> R<()> {
+    match f.0.iter().find_map(Expr::first_atom) {
+        None => Ok(()),
+        Some(a) => Err(SessionError::invalid(
+            span,
+            format!(
+                "`{cmd}` needs numbers, and `{a}` is an unspecified function \
+                 (hint: plug a definition first, e.g. `plug(S, {}({}) = …)`)",
+                a.sig.name,
+                a.sig.params.join(", ")
+            ),
+        )),
+    }
+}
 
 pub(crate) fn compile_err(span: Span, e: CompileError) -> SessionError {
     SessionError::invalid(span, e.to_string())
@@ -189,22 +207,33 @@ impl Session {
 
     /// Writes `text` to a file named in the command (nothing while
     /// replaying a journal) and says so.
-    fn write_output(&self, p: &PathArg, text: &str, what: &str, report: &mut Report) -> R<()> {
+    fn write_output(
+        &self,
+        p: &PathArg,
+        text: &str,
+        kind: FileKind,
+        what: &str,
+        report: &mut Report,
+    ) -> R<()> {
         if self.replaying {
             return Ok(());
         }
-        super::files::write_atomic(&self.resolve_path(&p.path), text.as_bytes()).map_err(
-            |reason| {
-                SessionError::at(
-                    p.span,
-                    ErrorKind::File {
-                        path: p.path.clone(),
-                        reason,
-                    },
-                )
-            },
-        )?;
-        report.push(Style::Note, format!("{what} written to {}", p.path));
+        let path = self.resolve_path(&p.path);
+        super::files::write_file(&path, text.as_bytes(), kind).map_err(|reason| {
+            SessionError::at(
+                p.span,
+                ErrorKind::File {
+                    path: p.path.clone(),
+                    reason,
+                },
+            )
+        })?;
+        if kind == FileKind::Plot {
+            report.push(Style::Note, format!("{what} written to {}", p.path));
+            report.plots.push(path);
+        } else {
+            report.push(Style::Note, format!("{what} written to {}", p.path));
+        }
         Ok(())
     }
 
@@ -227,7 +256,7 @@ impl Session {
                 },
             )
         })?;
-        self.write_output(p, &svg, what, report)
+        self.write_output(p, &svg, FileKind::Plot, what, report)
     }
 
     /// `set tolerance E`.
@@ -280,6 +309,7 @@ impl Session {
             return Err(SessionError::invalid(cmd.span, "not `simulate`"));
         };
         let v = self.eval_field(field, "the field of `simulate`")?;
+        refuse_functions(&v.field, field.span, "simulate")?;
         let exact = self.with_values(with)?;
         let floats = float_values(&exact);
         let f = CompiledField::new(&v.field, &self.states, &floats)
@@ -465,6 +495,8 @@ impl Session {
         };
         let s = self.eval_field(system, "the system of `compare`")?;
         let m = self.eval_field(model, "the averaged model of `compare`")?;
+        refuse_functions(&s.field, system.span, "compare")?;
+        refuse_functions(&m.field, model.span, "compare")?;
         let info: std::sync::Arc<AveragedInfo> = m.averaged.clone().ok_or_else(|| {
             SessionError::invalid(
                 model.span,
@@ -511,6 +543,13 @@ impl Session {
             (Some(w), true) => Some(compile_all(w)?),
             _ => None,
         };
+        let outer = match (&info.outer, info.classic) {
+            (Some(y), true) => Some(
+                CompiledField::new(y, &self.states, &floats)
+                    .map_err(|e| compile_err(model.span, e))?,
+            ),
+            _ => None,
+        };
         let mut systems = Vec::with_capacity(eps_values.len());
         let mut n_periods = Vec::with_capacity(eps_values.len());
         for e in &eps_values {
@@ -537,6 +576,7 @@ impl Session {
             system: &systems[i],
             orders: &orders,
             transform: transform.as_deref(),
+            outer: outer.as_ref(),
             eps: eps_values[i],
             period,
             n_periods: n_periods[i],
@@ -600,7 +640,13 @@ impl Session {
             }
         }
         if let Some(p) = table {
-            self.write_output(p, &sweep::csv(&eps_values, &results), "table", report)?;
+            self.write_output(
+                p,
+                &sweep::csv(&eps_values, &results),
+                FileKind::Table,
+                "table",
+                report,
+            )?;
         }
         if let Some(p) = plot {
             let per: Vec<(String, Vec<f64>, Vec<bool>)> = (0..orders.len())

@@ -1,8 +1,25 @@
 //! Progress bars for long computations: shown on standard error only when
 //! it is a terminal and only after a second, so quick commands and scripts
-//! piped to files print nothing extra.
+//! piped to files print nothing extra. A front end that shows progress its
+//! own way (the notebook kernel) turns the bars off with [`use_bars`] and
+//! installs a core progress hook instead; every report then goes there.
 
+use std::cell::Cell;
 use std::time::Instant;
+
+thread_local! {
+    static BARS: Cell<bool> = const { Cell::new(true) };
+}
+
+/// Chooses terminal bars (the default) or, with `false`, the core's
+/// progress hook that the front end installed on this thread.
+pub fn use_bars(on: bool) {
+    BARS.with(|b| b.set(on));
+}
+
+fn bars() -> bool {
+    BARS.with(Cell::get)
+}
 
 /// A progress bar that appears only after a second, on a terminal.
 pub(crate) struct Progress {
@@ -24,6 +41,11 @@ impl Progress {
 
     pub(crate) fn set(&mut self, pos: u64) {
         use std::io::IsTerminal;
+        if !bars() {
+            let (done, total) = (pos as usize, self.total as usize);
+            crate::core::limits::progress(&self.label, done, total);
+            return;
+        }
         if self.bar.is_none()
             && self.started.elapsed().as_secs_f64() > 1.0
             && std::io::stderr().is_terminal()
@@ -55,7 +77,7 @@ impl Drop for Progress {
 /// disappears when the hook is removed.
 pub(crate) fn install() {
     use std::io::IsTerminal;
-    if !std::io::stderr().is_terminal() {
+    if !bars() || !std::io::stderr().is_terminal() {
         return;
     }
     let mut current: Option<(String, Progress)> = None;
@@ -71,5 +93,7 @@ pub(crate) fn install() {
 
 /// Removes the hook (and clears its bar).
 pub(crate) fn remove() {
-    crate::core::limits::set_progress_hook(None);
+    if bars() {
+        crate::core::limits::set_progress_hook(None);
+    }
 }

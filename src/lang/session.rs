@@ -15,7 +15,7 @@ use std::time::Instant;
 
 use super::ast::{Span, StmtKind};
 use super::parse::{parse_stmt, ParseError};
-use super::split::{split_statements, SourceStmt};
+use super::split::{split_runnable, SourceStmt};
 use super::value::Value;
 use crate::core::limits::{self, Limits};
 use crate::core::{CoreError, Sym};
@@ -58,6 +58,22 @@ pub struct Report {
     /// Lines to append to the journal for this statement (for `run FILE`,
     /// the lines that ran).
     pub journal: Vec<String>,
+    /// What the `Result` lines show, for front ends with rich output (the
+    /// notebook kernel); the lines stay what a terminal prints.
+    pub rich: Option<Rich>,
+    /// Plot files this statement wrote, resolved against the base directory.
+    pub plots: Vec<PathBuf>,
+}
+
+/// What the `Result` lines of a report show, for rich front ends.
+#[derive(Clone, Debug)]
+pub enum Rich {
+    /// The value of a bare expression line (its result line is the value in
+    /// input syntax), with the session's state order (the LaTeX of a
+    /// product puts parameters before states).
+    Value(Value, Vec<Sym>),
+    /// The result lines are LaTeX (`show … as latex`).
+    Latex,
 }
 
 impl Report {
@@ -67,6 +83,13 @@ impl Report {
             style,
             text: text.into(),
         });
+    }
+
+    /// Notes that a plot was written to `shown` (as the user typed it),
+    /// resolved to `path`.
+    pub fn plot_written(&mut self, shown: &str, path: PathBuf) {
+        self.push(Style::Note, format!("plot written to {shown}"));
+        self.plots.push(path);
     }
 }
 
@@ -94,8 +117,14 @@ pub enum ErrorKind {
     File { path: String, reason: String },
     /// An error inside a script run with `run FILE`, already rendered, with
     /// the journal lines of the statements that ran before it (they changed
-    /// the session and belong in the journal).
-    Nested { message: String, ran: Vec<String> },
+    /// the session and belong in the journal) and what they printed (shown
+    /// before the error: a failed check earlier in the script is not lost).
+    Nested {
+        message: String,
+        ran: Vec<String>,
+        printed: Vec<Line>,
+        check_failed: bool,
+    },
 }
 
 /// An error with the span of the offending input.
@@ -175,6 +204,27 @@ impl SessionError {
             _ => &[],
         }
     }
+
+    /// What the statements before the error printed (a `run FILE` that
+    /// failed partway): front ends print it before the error.
+    pub fn printed(&self) -> &[Line] {
+        match &self.kind {
+            ErrorKind::Nested { printed, .. } => printed,
+            _ => &[],
+        }
+    }
+
+    /// A check failed before the error (in a `run FILE` that failed
+    /// partway).
+    pub fn check_failed(&self) -> bool {
+        matches!(
+            self.kind,
+            ErrorKind::Nested {
+                check_failed: true,
+                ..
+            }
+        )
+    }
 }
 
 impl fmt::Display for SessionError {
@@ -194,6 +244,8 @@ pub enum SymKind {
     Param,
     /// An unspecified input function of time.
     Input,
+    /// An unspecified function of the state (`func V(s)`).
+    Func,
 }
 
 /// The outcome of running a whole text.
@@ -234,6 +286,11 @@ pub struct Session {
     pub(crate) states: Vec<Sym>,
     pub(crate) symbols: BTreeMap<String, SymKind>,
     pub(crate) names: BTreeMap<String, Value>,
+    /// The placeholders of a function definition being read (`plug(e,
+    /// V(s) = …)`), as names of the state while its body is evaluated.
+    pub(crate) placeholders: std::cell::RefCell<Vec<(String, Sym)>>,
+    /// Unspecified functions by name (`func V(s)`).
+    pub(crate) funcs: BTreeMap<String, std::sync::Arc<crate::core::func::Signature>>,
     /// Order in which names were defined (for `names`).
     pub(crate) order: Vec<String>,
     /// Accepted input lines, for `save`.
@@ -248,6 +305,8 @@ pub struct Session {
     pub show_timing: bool,
     /// Integration tolerance of the numerical commands (`set tolerance`).
     pub(crate) tolerance: f64,
+    /// Charts beyond the declared state, and the chart of each bound value.
+    pub(crate) charts: super::chart::Charts,
 }
 
 impl Default for Session {
@@ -264,6 +323,8 @@ impl Session {
             states: Vec::new(),
             symbols: BTreeMap::new(),
             names: BTreeMap::new(),
+            funcs: BTreeMap::new(),
+            placeholders: Default::default(),
             order: Vec::new(),
             accepted: Vec::new(),
             replaying: false,
@@ -271,6 +332,7 @@ impl Session {
             run_depth: 0,
             show_timing: true,
             tolerance: crate::numeric::validate::DEFAULT_TOLERANCE,
+            charts: Default::default(),
         }
     }
 
@@ -322,11 +384,24 @@ impl Session {
     ) -> Result<Report, SessionError> {
         limits::clear_interrupt();
         limits::start_work();
-        let parsed =
-            parse_stmt(&stmt.text).map_err(|e| SessionError::at(e.span, ErrorKind::Parse(e)))?;
+        let parsed = parse_stmt(&stmt.text).map_err(|e| {
+            match super::diag::misspelt_command(&stmt.text, |w| {
+                self.symbols.contains_key(w) || self.names.contains_key(w)
+            }) {
+                Some((span, msg)) => SessionError::invalid(span, msg),
+                None => SessionError::at(e.span, ErrorKind::Parse(e)),
+            }
+        })?;
         let started = Instant::now();
         super::progress::install();
-        let result = self.execute_parsed(&parsed, stmt, origin, started);
+        let result = match self.enter_chart(&parsed) {
+            Ok(scope) => {
+                let result = self.execute_parsed(&parsed, stmt, origin, started);
+                self.leave_chart(scope);
+                result
+            }
+            Err(e) => Err(e),
+        };
         super::progress::remove();
         let mut report = result?;
         let is_file_op = matches!(parsed.kind, StmtKind::Save(_) | StmtKind::RunFile(_));
@@ -348,17 +423,7 @@ impl Session {
         sink: &mut dyn FnMut(Event),
     ) -> RunStatus {
         let mut status = RunStatus::default();
-        let (stmts, split_error) = match split_statements(text) {
-            Ok(s) => (s, None),
-            Err(e) => {
-                // Run what comes before the broken line, then report it.
-                let prefix: String = text
-                    .split_inclusive('\n')
-                    .take(e.line.saturating_sub(1))
-                    .collect();
-                (split_statements(&prefix).unwrap_or_default(), Some(e))
-            }
-        };
+        let (stmts, split_error) = split_runnable(text);
         for stmt in &stmts {
             match self.execute(stmt, origin) {
                 Ok(report) => {
@@ -371,6 +436,19 @@ impl Session {
                     }
                 }
                 Err(err) => {
+                    if !err.printed().is_empty() || !err.journal_lines().is_empty() {
+                        // A nested `run` that failed partway: what it
+                        // printed and ran before the error still counts.
+                        status.check_failed |= err.check_failed();
+                        sink(Event::Report(Report {
+                            lines: err.printed().to_vec(),
+                            check_failed: err.check_failed(),
+                            quit: false,
+                            journal: err.journal_lines().to_vec(),
+                            rich: None,
+                            plots: Vec::new(),
+                        }));
+                    }
                     sink(Event::Error(render_error(stmt, origin, &err)));
                     status.error = true;
                     return status;

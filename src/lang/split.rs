@@ -228,6 +228,22 @@ pub fn split_statements(src: &str) -> Result<Vec<SourceStmt>, SplitError> {
     Ok(statements)
 }
 
+/// The statements of `src` that can run: all of them, or, when a line is
+/// broken (an unclosed bracket, a stray closing one), those before that
+/// line, with the error to report after running them.
+pub fn split_runnable(src: &str) -> (Vec<SourceStmt>, Option<SplitError>) {
+    match split_statements(src) {
+        Ok(statements) => (statements, None),
+        Err(e) => {
+            let before: String = src
+                .split_inclusive('\n')
+                .take(e.line.saturating_sub(1))
+                .collect();
+            (split_statements(&before).unwrap_or_default(), Some(e))
+        }
+    }
+}
+
 /// For an interactive prompt's validator: true while `src` has an open
 /// bracket or its last line ends with a continuation `\` (comments ignored).
 /// A stray or mismatched closing bracket gives false, so that the text is

@@ -6,6 +6,9 @@
 //! period, so the model starts at the same point. For a classical model the
 //! original starts at `x0 = y0 + W(0, y0)` and is compared with
 //! `y(t) + W(t, y(t))`; at multiples of the period `W(t, ·) = W(0, ·)`.
+//! A classical fast-oscillation model (zero-mean base) adds the outer map
+//! `exp(Y(0))`, the time-1 flow of `Y(0)`, the same at every multiple of
+//! the period: `x0 = exp(Y(0))(y0 + W(0, y0))`.
 //!
 //! Every integration is repeated at a ten times tighter tolerance; the
 //! change it makes estimates the integration error of the first, the
@@ -23,6 +26,9 @@ pub struct CompareRun<'a> {
     pub orders: &'a [CompiledField],
     /// `w_1..w_N` of a classical model (functions of t and y).
     pub transform: Option<&'a [CompiledField]>,
+    /// `Y(0)` of a classical fast-oscillation model, whose time-1 flow maps
+    /// `y + W` to `x` at multiples of the period.
+    pub outer: Option<&'a CompiledField>,
     /// The value of eps.
     pub eps: f64,
     /// The period of the averaged standard form.
@@ -99,6 +105,27 @@ fn transform_at(w: &[CompiledField], eps: f64, order: usize, t: f64, y: &[f64]) 
         }
     }
     out
+}
+
+/// `exp(Y)(x)`: the time-1 flow of the autonomous field `Y`.
+fn outer_map(
+    y: Option<&CompiledField>,
+    x: Vec<f64>,
+    tol: f64,
+    cancel: &dyn Fn() -> bool,
+) -> Result<Vec<f64>, OdeError> {
+    let Some(y) = y else { return Ok(x) };
+    let mut rhs = |t: f64, z: &[f64], dz: &mut [f64]| y.eval(t, z, dz);
+    let out = integrate_at(
+        &mut rhs,
+        0.0,
+        &x,
+        &[1.0],
+        &options_for(tol),
+        cancel,
+        &mut |_| {},
+    )?;
+    Ok(out.states.into_iter().next().unwrap_or(x))
 }
 
 fn distance(a: &[f64], b: &[f64]) -> f64 {
@@ -209,6 +236,7 @@ pub fn compare_errors(
                     Some(w) => transform_at(w, run.eps, order, 0.0, run.y0),
                     None => run.y0.to_vec(),
                 };
+                let x0 = outer_map(run.outer, x0, run.tolerance / TIGHTER, cancel)?;
                 let (a, b, s) = both(&mut sys, &x0, &times, run.tolerance, cancel, &mut work)?;
                 steps += s;
                 if transform.is_none() {
@@ -220,18 +248,21 @@ pub fn compare_errors(
         let mut model = model_rhs(run.orders, order, run.eps);
         let (ys, ys_check, s) = both(&mut model, run.y0, &times, run.tolerance, cancel, &mut work)?;
         steps += s;
-        let to_x = |t: f64, y: &[f64]| match run.transform {
-            Some(w) => transform_at(w, run.eps, order, t, y),
-            None => y.to_vec(),
+        let to_x = |t: f64, y: &[f64]| {
+            let z = match run.transform {
+                Some(w) => transform_at(w, run.eps, order, t, y),
+                None => y.to_vec(),
+            };
+            outer_map(run.outer, z, run.tolerance / TIGHTER, cancel)
         };
         let mut errors = Vec::with_capacity(times.len());
         let mut floor: f64 = 0.0;
         let mut size: f64 = 0.0;
         for (i, t) in times.iter().enumerate() {
             let x = &orig[i];
-            let y = to_x(*t, &ys[i]);
+            let y = to_x(*t, &ys[i])?;
             errors.push(distance(x, &y));
-            let change = distance(x, &orig_check[i]) + distance(&y, &to_x(*t, &ys_check[i]));
+            let change = distance(x, &orig_check[i]) + distance(&y, &to_x(*t, &ys_check[i])?);
             floor = floor.max(change);
             size = size.max(x.iter().fold(0.0, |m: f64, v| m.max(v.abs())));
         }
@@ -279,6 +310,7 @@ pub fn paths(
         Some(w) => transform_at(w, run.eps, run.orders.len(), 0.0, run.y0),
         None => run.y0.to_vec(),
     };
+    let x0 = outer_map(run.outer, x0, run.tolerance, cancel)?;
     let mut sys = |t: f64, x: &[f64], dx: &mut [f64]| run.system.eval(t, x, dx);
     let system = integrate_at(&mut sys, 0.0, &x0, &times, &opts, cancel, &mut |_| {})?.states;
     let mut models = Vec::with_capacity(run.orders.len());

@@ -5,4 +5,5 @@
 
 pub mod chrono;
 pub mod freelie;
+pub mod shuffle;
 pub mod taylor;
