@@ -15,6 +15,7 @@ use crate::core::{CoreError, CoreResult, Expr, Field, Sym, Q};
 use crate::render::latex;
 use crate::series::chrono;
 use crate::series::freelie::{self, Alphabet, Bracket, Coeff, FreeLieError, LiePoly, Tensor};
+use crate::series::lyndon as freelie_lyndon;
 
 thread_local! {
     static COEFF_ERROR: RefCell<Option<CoreError>> = const { RefCell::new(None) };
@@ -453,7 +454,7 @@ impl Session {
             .map_err(|e| SessionError::core(pos[2].span, e))?;
         let core = |e: CoreError| SessionError::core(span, e);
         let _ = take_error();
-        let poly: LiePoly<Expr> = checked(freelie::bch(n as u32)).map_err(core)?;
+        let poly = bch_series(n as u32).map_err(core)?;
         let label = |e: &super::ast::Expr, d: &str| match &e.kind {
             ExprKind::Name(n) => n.clone(),
             _ => d.to_string(),
@@ -484,6 +485,33 @@ impl Session {
             structure: Some(to_terms(&poly, &names)),
             averaged: None,
         }))
+    }
+}
+
+/// `log(e^X e^Y)` to degree `n` in the Lyndon basis (letters 0, 1), with
+/// the term budget asked before anything is built and the interrupt
+/// polled as it goes.
+pub fn bch_series(n: u32) -> CoreResult<LiePoly<Expr>> {
+    let mut stopped = None;
+    let terms = freelie_lyndon::bch(
+        n,
+        &mut |count| match crate::core::limits::check_terms(count) {
+            Ok(()) => true,
+            Err(e) => {
+                stopped = Some(e);
+                false
+            }
+        },
+    );
+    match (stopped, terms) {
+        (Some(e), _) => Err(e),
+        (None, Err(e)) => Err(lie_err(e)),
+        (None, Ok(terms)) => Ok(LiePoly::from_sorted_terms(
+            terms
+                .into_iter()
+                .map(|(w, c)| (w, Expr::num(Q::from_big(c))))
+                .collect(),
+        )),
     }
 }
 
