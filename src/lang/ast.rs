@@ -203,6 +203,8 @@ pub enum StmtKind {
     Help(Option<Ident>),
     /// `set budget N`
     SetBudget(Spanned<u64>),
+    /// `set tolerance E` (the integration tolerance of numerical commands)
+    SetTolerance(Expr),
     /// `quit`
     Quit,
 }
@@ -235,6 +237,17 @@ pub struct PathArg {
     pub path: String,
     /// Where it was written (quotes included).
     pub span: Span,
+}
+
+/// `plot q, p FILE` of `simulate`: a phase portrait of two states.
+#[derive(Clone, Debug, PartialEq)]
+pub struct PhasePlot {
+    /// The state on the horizontal axis.
+    pub x: Ident,
+    /// The state on the vertical axis.
+    pub y: Ident,
+    /// The file.
+    pub path: PathArg,
 }
 
 /// `q = 1` in a `from`, `at`, `with` list.
@@ -325,6 +338,8 @@ pub enum CommandKind {
         with: Vec<Assign>,
         /// Plot file after `plot`.
         plot: Option<PathArg>,
+        /// Phase portrait after `plot q, p`.
+        phase: Option<PhasePlot>,
     },
     /// `compare E with E from ... for E [with ...] sweep eps=0.2,0.1 [tol E] [plot PATH]`
     Compare {
@@ -346,6 +361,19 @@ pub enum CommandKind {
         tol: Option<Expr>,
         /// Plot file after `plot`.
         plot: Option<PathArg>,
+        /// Plot file of the trajectories after `plot paths`.
+        paths: Option<PathArg>,
+        /// CSV file after `table`.
+        table: Option<PathArg>,
+    },
+    /// `equilibria E near q=1, p=0 [with k=1]`
+    Equilibria {
+        /// The autonomous field.
+        field: Expr,
+        /// The guess.
+        near: Vec<Assign>,
+        /// Parameter values after `with`.
+        with: Vec<Assign>,
     },
     /// `stability E at q=pi, p=0 [with k=1]`
     Stability {
@@ -593,6 +621,7 @@ fn write_command(out: &mut String, command: &Command) {
             horizon,
             with,
             plot,
+            phase,
         } => {
             out.push_str("(simulate ");
             write_expr(out, field);
@@ -602,6 +631,9 @@ fn write_command(out: &mut String, command: &Command) {
                 write_assigns(out, "with", with);
             }
             write_plot(out, plot.as_ref());
+            if let Some(ph) = phase {
+                let _ = write!(out, " plot {} {} {:?}", ph.x.name, ph.y.name, ph.path.path);
+            }
             out.push(')');
         }
         CommandKind::Compare {
@@ -614,6 +646,8 @@ fn write_command(out: &mut String, command: &Command) {
             sweep,
             tol,
             plot,
+            paths,
+            table,
         } => {
             out.push_str("(compare ");
             write_expr(out, system);
@@ -628,6 +662,21 @@ fn write_command(out: &mut String, command: &Command) {
             out.push(']');
             write_optional_expr(out, "tol", tol.as_ref());
             write_plot(out, plot.as_ref());
+            if let Some(p) = paths {
+                let _ = write!(out, " plot-paths {:?}", p.path);
+            }
+            if let Some(p) = table {
+                let _ = write!(out, " table {:?}", p.path);
+            }
+            out.push(')');
+        }
+        CommandKind::Equilibria { field, near, with } => {
+            out.push_str("(equilibria ");
+            write_expr(out, field);
+            write_assigns(out, "near", near);
+            if !with.is_empty() {
+                write_assigns(out, "with", with);
+            }
             out.push(')');
         }
         CommandKind::Stability { field, at, with } => {
@@ -736,6 +785,11 @@ fn write_stmt(out: &mut String, stmt: &Stmt) {
         }
         StmtKind::SetBudget(budget) => {
             let _ = write!(out, "(set-budget {})", budget.value);
+        }
+        StmtKind::SetTolerance(value) => {
+            out.push_str("(set-tolerance ");
+            write_expr(out, value);
+            out.push(')');
         }
         StmtKind::Quit => out.push_str("(quit)"),
     }

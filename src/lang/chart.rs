@@ -536,6 +536,7 @@ fn stmt_mentions<'a>(stmt: &'a Stmt, out: &mut Vec<Mention<'a>>) {
         | StmtKind::Help(_)
         | StmtKind::SetBudget(_)
         | StmtKind::Quit => {}
+        StmtKind::SetTolerance(e) => expr_mentions(e, out, false),
     }
 }
 
@@ -607,7 +608,12 @@ fn command_mentions<'a>(c: &'a Command, out: &mut Vec<Mention<'a>>) {
                 expr_mentions(e, out, false);
             }
         }
-        CommandKind::Stability { field, at, with } => {
+        CommandKind::Stability { field, at, with }
+        | CommandKind::Equilibria {
+            field,
+            near: at,
+            with,
+        } => {
             expr_mentions(field, out, false);
             assign_mentions(at, out);
             assign_mentions(with, out);

@@ -166,7 +166,8 @@ impl Session {
             }
             CommandKind::Simulate { .. }
             | CommandKind::Compare { .. }
-            | CommandKind::Stability { .. } => {
+            | CommandKind::Stability { .. }
+            | CommandKind::Equilibria { .. } => {
                 want(0, span)?;
                 self.run_numeric(cmd, report)?;
                 Vec::new()

@@ -132,6 +132,7 @@ impl Session {
                 limits::set_limits(l);
                 report.push(Style::Note, format!("term budget {}", l.max_terms));
             }
+            StmtKind::SetTolerance(value) => self.set_tolerance(value, &mut report)?,
             StmtKind::Quit => report.quit = true,
         }
         Ok(report)

@@ -8,6 +8,7 @@ pub mod ast;
 pub mod chart;
 pub mod commands;
 pub mod diag;
+pub mod equilibria;
 pub mod eval;
 pub mod exec;
 pub mod files;

@@ -1,36 +1,27 @@
-//! The numerical commands `simulate`, `compare` and `stability`: the
-//! language side (names, values, output); the floating point lives in
-//! `crate::numeric`.
+//! The numerical commands `simulate` and `compare`, and `set tolerance`:
+//! the language side (names, values, output, files); the floating point
+//! lives in `crate::numeric`. `stability` and `equilibria` are in
+//! `equilibria.rs`.
 
 use std::collections::HashMap;
 
-use super::ast::{Assign, Command, CommandKind, Expr as Ast, Span};
+use super::ast::{Assign, Command, CommandKind, Expr as Ast, PathArg, PhasePlot, Span};
+use super::files::FileKind;
 use super::progress::Progress;
 use super::session::{ErrorKind, Report, Session, SessionError, Style, SymKind};
+use super::value::AveragedInfo;
 use crate::core::{limits, CoreError, Expr, Sym, Q};
-use crate::numeric::compile::{CompileError, CompiledExpr, CompiledField};
-use crate::numeric::ode::{integrate_at, OdeError, OdeOptions};
-use crate::numeric::validate::{compare_errors, CompareRun};
-use crate::numeric::{eigen, fit, plot};
-use crate::render::plain;
+use crate::numeric::compile::{float_values, CompileError, CompiledExpr, CompiledField};
+use crate::numeric::ode::{integrate_at, OdeError};
+use crate::numeric::sweep::{self, num};
+use crate::numeric::validate::{self, compare_errors, CompareResult, CompareRun};
+use crate::numeric::{plot, plot::PlotError};
 
-type R<T> = Result<T, SessionError>;
+pub(crate) type R<T> = Result<T, SessionError>;
 
-fn compile_err(span: Span, e: CompileError) -> SessionError {
-    SessionError::invalid(span, e.to_string())
-}
-
-fn ode_err(span: Span, e: OdeError) -> SessionError {
-    match e {
-        OdeError::Cancelled { .. } => SessionError::core(span, CoreError::Interrupted),
-        other => SessionError::invalid(span, format!("integration failed: {other}")),
-    }
-}
-
-/// Formats a float compactly and deterministically.
 /// Numerical commands need concrete functions: an unspecified one is
 /// refused, naming it, with the hint to plug a definition.
-fn refuse_functions(f: &crate::core::Field, span: Span, cmd: &str) -> R<()> {
+pub(crate) fn refuse_functions(f: &crate::core::Field, span: Span, cmd: &str) -> R<()> {
     match f.0.iter().find_map(Expr::first_atom) {
         None => Ok(()),
         Some(a) => Err(SessionError::invalid(
@@ -45,21 +36,46 @@ fn refuse_functions(f: &crate::core::Field, span: Span, cmd: &str) -> R<()> {
     }
 }
 
-fn num(v: f64) -> String {
-    if v == 0.0 {
-        "0".to_string()
-    } else if v.abs() >= 1e-3 && v.abs() < 1e5 {
-        let s = format!("{v:.6}");
-        let s = s.trim_end_matches('0').trim_end_matches('.');
-        s.to_string()
-    } else {
-        format!("{v:.3e}")
+pub(crate) fn compile_err(span: Span, e: CompileError) -> SessionError {
+    SessionError::invalid(span, e.to_string())
+}
+
+fn ode_err(span: Span, e: OdeError) -> SessionError {
+    match e {
+        OdeError::Cancelled { .. } => SessionError::core(span, CoreError::Interrupted),
+        other => SessionError::invalid(span, format!("integration failed: {other}")),
+    }
+}
+
+/// Smallest and largest integration tolerance `set tolerance` accepts:
+/// the check run goes ten times tighter, and below 1e-14 double precision
+/// cannot meet a tolerance; above 1e-3 the numbers would mislead.
+const TOLERANCE_RANGE: (f64, f64) = (1e-13, 1e-3);
+
+/// Largest power k in a horizon `L/eps^k`.
+const MAX_HORIZON_POWER: i64 = 12;
+
+/// A horizon `eps^k * t <= slow`.
+struct Horizon {
+    slow: f64,
+    power: i32,
+}
+
+impl Horizon {
+    fn t_end(&self, eps: f64) -> f64 {
+        self.slow / eps.powi(self.power)
+    }
+    fn describe(&self, eps: &str) -> String {
+        match self.power {
+            1 => format!("{eps}*t <= {}", num(self.slow)),
+            k => format!("{eps}^{k}*t <= {}", num(self.slow)),
+        }
     }
 }
 
 impl Session {
     /// Exact values of `with` assignments (parameters only).
-    fn with_values(&self, with: &[Assign]) -> R<HashMap<Sym, Q>> {
+    pub(crate) fn with_values(&self, with: &[Assign]) -> R<HashMap<Sym, Q>> {
         let mut out = HashMap::new();
         for a in with {
             if self.sym_kind(&a.name.name) != Some(SymKind::Param) {
@@ -83,9 +99,24 @@ impl Session {
         Ok(out)
     }
 
-    /// Exact values of a point (`from`/`at`): every state coordinate once;
-    /// values are numbers or constants such as `pi/2`.
-    fn point_values(&self, point: &[Assign], span: Span) -> R<Vec<Expr>> {
+    /// `with` values as a substitution.
+    pub(crate) fn with_map(exact: &HashMap<Sym, Q>) -> HashMap<Sym, Expr> {
+        exact
+            .iter()
+            .map(|(s, q)| (*s, Expr::num(q.clone())))
+            .collect()
+    }
+
+    /// Exact values of a point (`from`, `at`, `near`): every state
+    /// coordinate once; values are constant expressions (numbers, `pi`,
+    /// parameters), with the `with` values substituted.
+    pub(crate) fn point_values(
+        &self,
+        point: &[Assign],
+        exact: &HashMap<Sym, Q>,
+        span: Span,
+    ) -> R<Vec<Expr>> {
+        let subst = Self::with_map(exact);
         let mut vals: HashMap<String, Expr> = HashMap::new();
         for a in point {
             if self.sym_kind(&a.name.name) != Some(SymKind::State) {
@@ -95,12 +126,20 @@ impl Session {
                 ));
             }
             let v = self.eval_scalar(&a.value, "a coordinate value")?;
-            if v.symbols().iter().any(|s| *s != Sym::PI) {
+            let v = v
+                .subst(&subst, &self.states)
+                .map_err(|e| SessionError::core(a.value.span, e))?;
+            if let Some(bad) = v
+                .symbols()
+                .into_iter()
+                .find(|s| *s == Sym::T || self.states.contains(s))
+            {
                 return Err(SessionError::invalid(
                     a.value.span,
                     format!(
-                        "the value of `{}` must be a constant, got `{v}`",
-                        a.name.name
+                        "the value of `{}` must be a constant (numbers, `pi`, parameters), not depend on `{}`",
+                        a.name.name,
+                        bad.name()
                     ),
                 ));
             }
@@ -133,14 +172,30 @@ impl Session {
             .collect())
     }
 
-    fn float_of(&self, e: &Expr, span: Span) -> R<f64> {
-        let c = CompiledExpr::new(e, &[], &HashMap::new()).map_err(|err| compile_err(span, err))?;
+    /// The value of a constant expression in floating point (`pi` and the
+    /// given parameter values known).
+    pub(crate) fn float_of(&self, e: &Expr, floats: &HashMap<Sym, f64>, span: Span) -> R<f64> {
+        let c = CompiledExpr::new(e, &[], floats).map_err(|err| compile_err(span, err))?;
         Ok(c.eval(0.0, &[]))
     }
 
-    fn positive(&self, e: &Ast, what: &str) -> R<f64> {
+    /// A point in floating point.
+    pub(crate) fn float_point(
+        &self,
+        point: &[Assign],
+        exact: &HashMap<Sym, Q>,
+        span: Span,
+    ) -> R<Vec<f64>> {
+        let floats = float_values(exact);
+        self.point_values(point, exact, span)?
+            .iter()
+            .map(|e| self.float_of(e, &floats, span))
+            .collect()
+    }
+
+    fn positive(&self, e: &Ast, floats: &HashMap<Sym, f64>, what: &str) -> R<f64> {
         let v = self.eval_scalar(e, what)?;
-        let f = self.float_of(&v, e.span)?;
+        let f = self.float_of(&v, floats, e.span)?;
         if !(f.is_finite() && f > 0.0) {
             return Err(SessionError::invalid(
                 e.span,
@@ -150,396 +205,542 @@ impl Session {
         Ok(f)
     }
 
+    /// Writes `text` to a file named in the command (nothing while
+    /// replaying a journal) and says so.
+    fn write_output(
+        &self,
+        p: &PathArg,
+        text: &str,
+        kind: FileKind,
+        what: &str,
+        report: &mut Report,
+    ) -> R<()> {
+        if self.replaying {
+            return Ok(());
+        }
+        let path = self.resolve_path(&p.path);
+        super::files::write_file(&path, text.as_bytes(), kind).map_err(|reason| {
+            SessionError::at(
+                p.span,
+                ErrorKind::File {
+                    path: p.path.clone(),
+                    reason,
+                },
+            )
+        })?;
+        if kind == FileKind::Plot {
+            report.push(Style::Note, format!("{what} written to {}", p.path));
+            report.plots.push(path);
+        } else {
+            report.push(Style::Note, format!("{what} written to {}", p.path));
+        }
+        Ok(())
+    }
+
+    fn plot_output(
+        &self,
+        p: &PathArg,
+        svg: Result<String, PlotError>,
+        what: &str,
+        report: &mut Report,
+    ) -> R<()> {
+        if self.replaying {
+            return Ok(());
+        }
+        let svg = svg.map_err(|e| {
+            SessionError::at(
+                p.span,
+                ErrorKind::File {
+                    path: p.path.clone(),
+                    reason: e.to_string(),
+                },
+            )
+        })?;
+        self.write_output(p, &svg, FileKind::Plot, what, report)
+    }
+
+    /// `set tolerance E`.
+    pub(crate) fn set_tolerance(&mut self, value: &Ast, report: &mut Report) -> R<()> {
+        let v = self.eval_scalar(value, "the tolerance")?;
+        let tol = v.as_number().map(|q| q.to_f64()).unwrap_or(f64::NAN);
+        let (lo, hi) = TOLERANCE_RANGE;
+        if !(lo..=hi).contains(&tol) {
+            return Err(SessionError::invalid(
+                value.span,
+                format!(
+                    "the integration tolerance must be a number from {} to {}, got `{v}`",
+                    num(lo),
+                    num(hi)
+                ),
+            ));
+        }
+        self.tolerance = tol;
+        report.push(
+            Style::Note,
+            format!("integration tolerance {}", tolerance_text(tol)),
+        );
+        Ok(())
+    }
+
     pub(crate) fn run_numeric(&mut self, cmd: &Command, report: &mut Report) -> R<()> {
         match &cmd.kind {
-            CommandKind::Simulate {
-                field,
-                from,
-                horizon,
-                with,
-                plot,
-            } => {
-                let v = self.eval_field(field, "the field of `simulate`")?;
-                refuse_functions(&v.field, field.span, "simulate")?;
-                let exact = self.with_values(with)?;
-                let floats = crate::numeric::compile::float_values(&exact);
-                let f = CompiledField::new(&v.field, &self.states, &floats)
-                    .map_err(|e| compile_err(field.span, e))?;
-                let x0: Vec<f64> = self
-                    .point_values(from, cmd.span)?
-                    .iter()
-                    .map(|e| self.float_of(e, cmd.span))
-                    .collect::<R<_>>()?;
-                let len = self.positive(horizon, "the horizon")?;
-                let n_rows = 10;
-                let n_dense = if plot.is_some() { 400 } else { n_rows };
-                let times: Vec<f64> = (1..=n_dense)
-                    .map(|i| len * i as f64 / n_dense as f64)
-                    .collect();
-                let mut rhs = |t: f64, x: &[f64], dx: &mut [f64]| f.eval(t, x, dx);
-                let mut bar = Progress::new(1000, "simulate");
-                let out = integrate_at(
-                    &mut rhs,
-                    0.0,
-                    &x0,
-                    &times,
-                    &OdeOptions::default(),
-                    &limits::is_interrupted,
-                    &mut |t| bar.set((t / len * 1000.0) as u64),
-                )
-                .map_err(|e| ode_err(cmd.span, e))?;
-                drop(bar);
-                let names: Vec<String> = self.states.iter().map(|s| s.name()).collect();
-                report.push(
-                    Style::Result,
-                    format!(
-                        "{:>12}  {}",
-                        "t",
-                        names.iter().map(|n| format!("{n:>14}")).collect::<String>()
-                    ),
-                );
-                let row = |t: f64, x: &[f64]| {
-                    format!(
-                        "{:>12}  {}",
-                        num(t),
-                        x.iter()
-                            .map(|v| format!("{:>14}", num(*v)))
-                            .collect::<String>()
-                    )
-                };
-                report.push(Style::Result, row(0.0, &x0));
-                let step = n_dense / n_rows;
-                for i in (step - 1..n_dense).step_by(step) {
-                    report.push(Style::Result, row(times[i], &out.states[i]));
-                }
-                report.push(
-                    Style::Note,
-                    format!(
-                        "adaptive Runge–Kutta 5(4), {} steps ({} rejected)",
-                        out.stats.steps, out.stats.rejected
-                    ),
-                );
-                if let Some(p) = plot {
-                    if !self.replaying {
-                        let mut all_t = vec![0.0];
-                        all_t.extend(&times);
-                        let series: Vec<Vec<f64>> = (0..x0.len())
-                            .map(|k| {
-                                std::iter::once(x0[k])
-                                    .chain(out.states.iter().map(|s| s[k]))
-                                    .collect()
-                            })
-                            .collect();
-                        plot::time_series_svg(
-                            &self.resolve_path(&p.path),
-                            "simulate",
-                            &names,
-                            &all_t,
-                            &series,
-                        )
-                        .map_err(|e| {
-                            SessionError::at(
-                                p.span,
-                                ErrorKind::File {
-                                    path: p.path.clone(),
-                                    reason: e.to_string(),
-                                },
-                            )
-                        })?;
-                        report.plot_written(&p.path, self.resolve_path(&p.path));
-                    }
-                }
-                Ok(())
-            }
-            CommandKind::Compare {
-                system,
-                model,
-                from,
-                horizon,
-                with,
-                sweep_param,
-                sweep,
-                tol,
-                plot,
-            } => {
-                let s = self.eval_field(system, "the system of `compare`")?;
-                let m = self.eval_field(model, "the averaged model of `compare`")?;
-                refuse_functions(&s.field, system.span, "compare")?;
-                refuse_functions(&m.field, model.span, "compare")?;
-                let info = m.averaged.clone().ok_or_else(|| {
-                    SessionError::invalid(model.span, "the model must be the result of `average` (e.g. `A = average S to 3 in eps`)")
-                })?;
-                if sweep_param.name != info.eps.name() {
-                    return Err(SessionError::invalid(
-                        sweep_param.span,
-                        format!(
-                            "the sweep must be over the averaging parameter `{}`",
-                            info.eps.name()
-                        ),
-                    ));
-                }
-                let exact = self.with_values(with)?;
-                if exact.contains_key(&info.eps) {
-                    return Err(SessionError::invalid(
-                        sweep_param.span,
-                        "eps is given by the sweep, not by `with`",
-                    ));
-                }
-                let y0: Vec<f64> = self
-                    .point_values(from, cmd.span)?
-                    .iter()
-                    .map(|e| self.float_of(e, cmd.span))
-                    .collect::<R<_>>()?;
-                let slow = self.positive(horizon, "the horizon")?;
-                let mut eps_values = Vec::with_capacity(sweep.len());
-                for e in sweep {
-                    eps_values.push(self.positive(e, "an eps value")?);
-                }
-                let tol = match tol {
-                    Some(t) => Some(self.positive(t, "the tolerance")?),
-                    None => None,
-                };
-                let period = self.float_of(&info.period.to_expr(), cmd.span)?;
-                let floats = crate::numeric::compile::float_values(&exact);
-                let orders: Vec<CompiledField> = info
-                    .orders
-                    .iter()
-                    .map(|f| CompiledField::new(f, &self.states, &floats))
-                    .collect::<Result<_, _>>()
-                    .map_err(|e| compile_err(model.span, e))?;
-                let transform: Option<Vec<CompiledField>> = match (&info.transform, info.classic) {
-                    (Some(w), true) => Some(
-                        w.iter()
-                            .map(|f| CompiledField::new(f, &self.states, &floats))
-                            .collect::<Result<_, _>>()
-                            .map_err(|e| compile_err(model.span, e))?,
-                    ),
-                    _ => None,
-                };
-                let outer = match (&info.outer, info.classic) {
-                    (Some(y), true) => Some(
-                        CompiledField::new(y, &self.states, &floats)
-                            .map_err(|e| compile_err(model.span, e))?,
-                    ),
-                    _ => None,
-                };
-                let n_orders = orders.len();
-                let mut table: Vec<Vec<f64>> = Vec::new();
-                let mut bar = Progress::new(eps_values.len() as u64, "compare");
-                for (i, e) in eps_values.iter().enumerate() {
-                    let mut vals = floats.clone();
-                    vals.insert(info.eps, *e);
-                    let sys = CompiledField::new(&s.field, &self.states, &vals)
-                        .map_err(|err| compile_err(system.span, err))?;
-                    let n_periods = ((slow / e) / period).ceil().max(1.0) as usize;
-                    if n_periods > 1_000_000 {
-                        return Err(SessionError::invalid(cmd.span, format!("eps = {e} needs {n_periods} periods: too many (shorten the horizon)")));
-                    }
-                    let run = CompareRun {
-                        system: &sys,
-                        orders: &orders,
-                        transform: transform.as_deref(),
-                        outer: outer.as_ref(),
-                        eps: *e,
-                        period,
-                        n_periods,
-                        y0: &y0,
-                    };
-                    let errs =
-                        compare_errors(&run, &limits::is_interrupted, &mut |_| bar.set(i as u64))
-                            .map_err(|err| ode_err(cmd.span, err))?;
-                    table.push(errs);
-                    bar.set(i as u64 + 1);
-                }
-                drop(bar);
-                let kind = if info.classic {
-                    "classical (through its transform)"
-                } else {
-                    "stroboscopic"
-                };
-                report.push(
-                    Style::Note,
-                    format!("{kind} model vs the system at multiples of the period {}, over eps*t <= {}", info.period, num(slow)),
-                );
-                let header: String = (1..=n_orders)
-                    .map(|k| format!("{:>12}", format!("order {k}")))
-                    .collect();
-                report.push(Style::Result, format!("{:>10}{header}", "eps"));
-                for (e, errs) in eps_values.iter().zip(&table) {
-                    let cols: String = errs
-                        .iter()
-                        .map(|v| format!("{:>12}", format!("{v:.3e}")))
-                        .collect();
-                    report.push(Style::Result, format!("{:>10}{cols}", num(*e)));
-                }
-                for k in 0..n_orders {
-                    let ys: Vec<f64> = table.iter().map(|r| r[k]).collect();
-                    match fit::loglog_slope(&eps_values, &ys) {
-                        Some(sl) => {
-                            report.push(Style::Result, format!("slope order {}: {sl:.2}", k + 1))
-                        }
-                        None => report.push(
-                            Style::Result,
-                            format!("slope order {}: n/a (fewer than two usable points)", k + 1),
-                        ),
-                    }
-                }
-                if let Some(tol) = tol {
-                    for k in 0..n_orders {
-                        let best = eps_values
-                            .iter()
-                            .zip(&table)
-                            .filter(|(_, r)| r[k] <= tol)
-                            .map(|(e, _)| *e)
-                            .fold(None, |acc: Option<f64>, e| {
-                                Some(acc.map_or(e, |a| a.max(e)))
-                            });
-                        report.push(
-                            Style::Result,
-                            match best {
-                                Some(e) => format!(
-                                    "tol {}: order {} meets it up to eps = {}",
-                                    num(tol),
-                                    k + 1,
-                                    num(e)
-                                ),
-                                None => format!(
-                                    "tol {}: order {} meets it for no eps in the sweep",
-                                    num(tol),
-                                    k + 1
-                                ),
-                            },
-                        );
-                    }
-                }
-                if let Some(p) = plot {
-                    if !self.replaying {
-                        let per: Vec<(String, Vec<f64>)> = (0..n_orders)
-                            .map(|k| {
-                                (
-                                    format!("order {}", k + 1),
-                                    table.iter().map(|r| r[k]).collect(),
-                                )
-                            })
-                            .collect();
-                        plot::error_vs_eps_svg(
-                            &self.resolve_path(&p.path),
-                            "error against eps",
-                            &eps_values,
-                            &per,
-                        )
-                        .map_err(|e| {
-                            SessionError::at(
-                                p.span,
-                                ErrorKind::File {
-                                    path: p.path.clone(),
-                                    reason: e.to_string(),
-                                },
-                            )
-                        })?;
-                        report.plot_written(&p.path, self.resolve_path(&p.path));
-                    }
-                }
-                report.push(Style::Warn, "an averaged model is an approximation: validate it before it drives a real machine (help compare)");
-                Ok(())
-            }
+            CommandKind::Simulate { .. } => self.simulate(cmd, report),
+            CommandKind::Compare { .. } => self.compare(cmd, report),
             CommandKind::Stability { field, at, with } => {
-                let v = self.eval_field(field, "the field of `stability`")?;
-                refuse_functions(&v.field, field.span, "stability")?;
-                if v.field.0.iter().any(Expr::is_time_varying) {
-                    return Err(SessionError::invalid(
-                        field.span,
-                        "`stability` needs an autonomous field (average it first)",
-                    ));
-                }
-                let exact = self.with_values(with)?;
-                let point = self.point_values(at, cmd.span)?;
-                let mut map: HashMap<Sym, Expr> = exact
-                    .iter()
-                    .map(|(s, q)| (*s, Expr::num(q.clone())))
-                    .collect();
-                for (s, e) in self.states.iter().zip(&point) {
-                    map.insert(*s, e.clone());
-                }
-                let core = |e: CoreError| SessionError::core(cmd.span, e);
-                let jac = v.field.jacobian(&self.states).map_err(core)?;
-                let jp = crate::core::Matrix {
-                    data: jac
-                        .data
-                        .iter()
-                        .map(|e| e.subst(&map, &self.states))
-                        .collect::<Result<_, _>>()
-                        .map_err(core)?,
-                    ..jac
-                };
-                let value = v.field.map(|e| e.subst(&map, &self.states)).map_err(core)?;
-                report.push(Style::Result, format!("Jacobian {}", plain::matrix(&jp)));
-                if !value.is_zero() {
-                    report.push(
-                        Style::Warn,
-                        format!(
-                            "warning: not an equilibrium: the field there is {}",
-                            plain::field(&value)
-                        ),
-                    );
-                }
-                let numeric: Option<Vec<Vec<f64>>> = (0..jp.rows)
-                    .map(|i| {
-                        jp.row(i)
-                            .iter()
-                            .map(|e| {
-                                let ok = e.symbols().iter().all(|s| *s == Sym::PI);
-                                ok.then(|| {
-                                    CompiledExpr::new(e, &[], &HashMap::new())
-                                        .ok()
-                                        .map(|c| c.eval(0.0, &[]))
-                                })
-                                .flatten()
-                            })
-                            .collect::<Option<Vec<f64>>>()
-                    })
-                    .collect();
-                match numeric {
-                    Some(rows) => {
-                        let eigs = eigen::eigenvalues(&rows)
-                            .map_err(|e| SessionError::invalid(cmd.span, e.to_string()))?;
-                        // Conjugate pairs are listed together as a ± bi.
-                        let shown: Vec<String> = eigs
-                            .iter()
-                            .filter(|(_, im)| *im >= 0.0)
-                            .map(|(re, im)| match (*re == 0.0, *im == 0.0) {
-                                (_, true) => num(*re),
-                                (true, false) => format!("±{}i", num(*im)),
-                                (false, false) => format!("{} ± {}i", num(*re), num(*im)),
-                            })
-                            .collect();
-                        report.push(Style::Result, format!("eigenvalues {}", shown.join(", ")));
-                        report.push(
-                            Style::Result,
-                            format!("equilibrium of this model: {}", eigen::classify(&eigs)),
-                        );
-                    }
-                    None => {
-                        let cp = jp.charpoly().map_err(core)?;
-                        let lam = Expr::sym(Sym::new("lambda"));
-                        let mut poly = Expr::zero();
-                        for (k, c) in cp.iter().enumerate() {
-                            poly =
-                                poly.add(&c.mul(&lam.pow(k as i64).map_err(core)?).map_err(core)?);
-                        }
-                        report.push(
-                            Style::Result,
-                            format!("characteristic polynomial det(lambda*I - J) = {poly}"),
-                        );
-                        report.push(
-                            Style::Note,
-                            "give every parameter a value with `with` for numerical eigenvalues",
-                        );
-                    }
-                }
-                Ok(())
+                self.stability(cmd.span, field, at, with, report)
+            }
+            CommandKind::Equilibria { field, near, with } => {
+                self.equilibria(cmd.span, field, near, with, report)
             }
             _ => Err(SessionError::invalid(cmd.span, "not a numerical command")),
         }
     }
+
+    fn simulate(&mut self, cmd: &Command, report: &mut Report) -> R<()> {
+        let CommandKind::Simulate {
+            field,
+            from,
+            horizon,
+            with,
+            plot,
+            phase,
+        } = &cmd.kind
+        else {
+            return Err(SessionError::invalid(cmd.span, "not `simulate`"));
+        };
+        let v = self.eval_field(field, "the field of `simulate`")?;
+        refuse_functions(&v.field, field.span, "simulate")?;
+        let exact = self.with_values(with)?;
+        let floats = float_values(&exact);
+        let f = CompiledField::new(&v.field, &self.states, &floats)
+            .map_err(|e| compile_err(field.span, e))?;
+        let x0 = self.float_point(from, &exact, cmd.span)?;
+        let len = self.positive(horizon, &floats, "the horizon")?;
+        let names: Vec<String> = self.states.iter().map(|s| s.name()).collect();
+        let phase_idx = match phase {
+            Some(ph) => Some(self.phase_indices(ph)?),
+            None => None,
+        };
+        let n_rows = 10;
+        let n_dense = if plot.is_some() || phase.is_some() {
+            2000
+        } else {
+            n_rows
+        };
+        let times: Vec<f64> = (1..=n_dense)
+            .map(|i| len * i as f64 / n_dense as f64)
+            .collect();
+        let mut rhs = |t: f64, x: &[f64], dx: &mut [f64]| f.eval(t, x, dx);
+        let mut bar = Progress::new(1000, "simulate");
+        let out = integrate_at(
+            &mut rhs,
+            0.0,
+            &x0,
+            &times,
+            &validate::options_for(self.tolerance),
+            &limits::is_interrupted,
+            &mut |t| bar.set((t / len * 1000.0) as u64),
+        )
+        .map_err(|e| ode_err(cmd.span, e))?;
+        drop(bar);
+        report.push(
+            Style::Result,
+            format!(
+                "{:>12}  {}",
+                "t",
+                names.iter().map(|n| format!("{n:>14}")).collect::<String>()
+            ),
+        );
+        let row = |t: f64, x: &[f64]| {
+            format!(
+                "{:>12}  {}",
+                num(t),
+                x.iter()
+                    .map(|v| format!("{:>14}", num(*v)))
+                    .collect::<String>()
+            )
+        };
+        report.push(Style::Result, row(0.0, &x0));
+        let step = n_dense / n_rows;
+        for i in (step - 1..n_dense).step_by(step) {
+            report.push(Style::Result, row(times[i], &out.states[i]));
+        }
+        report.push(
+            Style::Note,
+            format!(
+                "adaptive Runge–Kutta 5(4), tolerance {}, {} steps ({} rejected)",
+                tolerance_text(self.tolerance),
+                out.stats.steps,
+                out.stats.rejected
+            ),
+        );
+        let mut all_t = vec![0.0];
+        all_t.extend(&times);
+        let series: Vec<Vec<f64>> = (0..x0.len())
+            .map(|k| {
+                std::iter::once(x0[k])
+                    .chain(out.states.iter().map(|s| s[k]))
+                    .collect()
+            })
+            .collect();
+        if let Some(p) = plot {
+            let title = format!("simulate from {}", point_text(&names, &x0));
+            let svg = plot::time_series_svg(&title, &names, &all_t, &series);
+            self.plot_output(p, svg, "plot", report)?;
+        }
+        if let (Some(ph), Some((i, j))) = (phase, phase_idx) {
+            let title = format!("phase portrait, t from 0 to {}", num(len));
+            let svg = plot::phase_svg(&title, &names[i], &names[j], &series[i], &series[j]);
+            self.plot_output(&ph.path, svg, "phase portrait", report)?;
+        }
+        Ok(())
+    }
+
+    fn phase_indices(&self, ph: &PhasePlot) -> R<(usize, usize)> {
+        let find = |id: &super::ast::Ident| {
+            self.states
+                .iter()
+                .position(|s| s.name() == id.name)
+                .ok_or_else(|| {
+                    SessionError::invalid(
+                        id.span,
+                        format!(
+                            "`{}` is not a state coordinate: a phase portrait plots two of {}",
+                            id.name,
+                            self.states
+                                .iter()
+                                .map(|s| s.name())
+                                .collect::<Vec<_>>()
+                                .join(", ")
+                        ),
+                    )
+                })
+        };
+        let (i, j) = (find(&ph.x)?, find(&ph.y)?);
+        if i == j {
+            return Err(SessionError::invalid(
+                ph.y.span,
+                "a phase portrait needs two different states",
+            ));
+        }
+        Ok((i, j))
+    }
+
+    /// The horizon of `compare`: `L` (meaning `eps*t <= L`) or `L/eps^k`.
+    fn compare_horizon(
+        &self,
+        horizon: &Ast,
+        eps: Sym,
+        exact: &HashMap<Sym, Q>,
+        floats: &HashMap<Sym, f64>,
+    ) -> R<Horizon> {
+        let v = self.eval_scalar(horizon, "the horizon")?;
+        let v = v
+            .subst(&Self::with_map(exact), &self.states)
+            .map_err(|e| SessionError::core(horizon.span, e))?;
+        let mut found = None;
+        if !v.symbols().contains(&eps) {
+            found = Some((v.clone(), 1));
+        } else {
+            let e = Expr::sym(eps);
+            for k in 1..=MAX_HORIZON_POWER {
+                let scaled = e
+                    .pow(k)
+                    .and_then(|p| v.mul(&p))
+                    .map_err(|err| SessionError::core(horizon.span, err))?;
+                if !scaled.symbols().contains(&eps) {
+                    found = Some((scaled, k as i32));
+                    break;
+                }
+            }
+        }
+        let Some((slow, power)) = found else {
+            return Err(SessionError::invalid(
+                horizon.span,
+                format!(
+                    "the horizon must be `L` (meaning {0}*t <= L) or `L/{0}^k` with k a whole number from 1 to {MAX_HORIZON_POWER}, got `{v}`",
+                    eps.name()
+                ),
+            ));
+        };
+        let slow_f = self.float_of(&slow, floats, horizon.span)?;
+        if !(slow_f.is_finite() && slow_f > 0.0) {
+            return Err(SessionError::invalid(
+                horizon.span,
+                format!("the horizon must be positive, got `{v}`"),
+            ));
+        }
+        Ok(Horizon {
+            slow: slow_f,
+            power,
+        })
+    }
+
+    fn compare(&mut self, cmd: &Command, report: &mut Report) -> R<()> {
+        let CommandKind::Compare {
+            system,
+            model,
+            from,
+            horizon,
+            with,
+            sweep_param,
+            sweep,
+            tol,
+            plot,
+            paths,
+            table,
+        } = &cmd.kind
+        else {
+            return Err(SessionError::invalid(cmd.span, "not `compare`"));
+        };
+        let s = self.eval_field(system, "the system of `compare`")?;
+        let m = self.eval_field(model, "the averaged model of `compare`")?;
+        refuse_functions(&s.field, system.span, "compare")?;
+        refuse_functions(&m.field, model.span, "compare")?;
+        let info: std::sync::Arc<AveragedInfo> = m.averaged.clone().ok_or_else(|| {
+            SessionError::invalid(
+                model.span,
+                "the model must be the result of `average` (e.g. `A = average S to 3 in eps`)",
+            )
+        })?;
+        if sweep_param.name != info.eps.name() {
+            return Err(SessionError::invalid(
+                sweep_param.span,
+                format!(
+                    "the sweep must be over the averaging parameter `{}`",
+                    info.eps.name()
+                ),
+            ));
+        }
+        let exact = self.with_values(with)?;
+        if exact.contains_key(&info.eps) {
+            return Err(SessionError::invalid(
+                sweep_param.span,
+                "eps is given by the sweep, not by `with`",
+            ));
+        }
+        let floats = float_values(&exact);
+        let y0 = self.float_point(from, &exact, cmd.span)?;
+        let hz = self.compare_horizon(horizon, info.eps, &exact, &floats)?;
+        let mut eps_values = Vec::with_capacity(sweep.len());
+        for e in sweep {
+            eps_values.push(self.positive(e, &floats, "an eps value")?);
+        }
+        let tol = match tol {
+            Some(t) => Some(self.positive(t, &floats, "the tolerance")?),
+            None => None,
+        };
+        let period = self.float_of(&info.period.to_expr(), &floats, cmd.span)?;
+        let compile_all = |fields: &[crate::core::Field]| -> R<Vec<CompiledField>> {
+            fields
+                .iter()
+                .map(|f| CompiledField::new(f, &self.states, &floats))
+                .collect::<Result<_, _>>()
+                .map_err(|e| compile_err(model.span, e))
+        };
+        let orders = compile_all(&info.orders)?;
+        let transform = match (&info.transform, info.classic) {
+            (Some(w), true) => Some(compile_all(w)?),
+            _ => None,
+        };
+        let outer = match (&info.outer, info.classic) {
+            (Some(y), true) => Some(
+                CompiledField::new(y, &self.states, &floats)
+                    .map_err(|e| compile_err(model.span, e))?,
+            ),
+            _ => None,
+        };
+        let mut systems = Vec::with_capacity(eps_values.len());
+        let mut n_periods = Vec::with_capacity(eps_values.len());
+        for e in &eps_values {
+            let mut vals = floats.clone();
+            vals.insert(info.eps, *e);
+            systems.push(
+                CompiledField::new(&s.field, &self.states, &vals)
+                    .map_err(|err| compile_err(system.span, err))?,
+            );
+            let n = (hz.t_end(*e) / period * (1.0 + 1e-12)).floor().max(1.0);
+            if !(n <= 1e6) {
+                return Err(SessionError::invalid(
+                    horizon.span,
+                    format!(
+                        "eps = {} needs {} periods: too many (at most 1000000; shorten the horizon or drop the smallest eps)",
+                        num(*e),
+                        num(n)
+                    ),
+                ));
+            }
+            n_periods.push(n as usize);
+        }
+        let run_at = |i: usize| CompareRun {
+            system: &systems[i],
+            orders: &orders,
+            transform: transform.as_deref(),
+            outer: outer.as_ref(),
+            eps: eps_values[i],
+            period,
+            n_periods: n_periods[i],
+            y0: &y0,
+            tolerance: self.tolerance,
+        };
+        let mut results: Vec<CompareResult> = Vec::with_capacity(eps_values.len());
+        let mut bar = Progress::new(1000 * eps_values.len() as u64, "compare");
+        for i in 0..eps_values.len() {
+            let r = compare_errors(&run_at(i), &limits::is_interrupted, &mut |f| {
+                bar.set((1000.0 * (i as f64 + f)) as u64)
+            })
+            .map_err(|err| ode_err(cmd.span, err))?;
+            results.push(r);
+        }
+        drop(bar);
+
+        let eps_name = info.eps.name();
+        let kind = if info.classic {
+            "classical model (through its transform)"
+        } else {
+            "stroboscopic model"
+        };
+        let names: Vec<String> = self.states.iter().map(|s| s.name()).collect();
+        report.push(
+            Style::Note,
+            format!(
+                "{kind} vs the system at multiples of the period {}, over {}",
+                info.period,
+                hz.describe(&eps_name)
+            ),
+        );
+        report.push(
+            Style::Note,
+            format!(
+                "error: the largest Euclidean distance in ({}) between system and model at t = m*({}) <= {}",
+                names.join(", "),
+                info.period,
+                match hz.power {
+                    1 => format!("{}/{eps_name}", num(hz.slow)),
+                    k => format!("{}/{eps_name}^{k}", num(hz.slow)),
+                }
+            ),
+        );
+        report.push(
+            Style::Note,
+            format!(
+                "integration: adaptive Runge–Kutta 5(4), tolerance {} (`set tolerance`), checked against a 10 times tighter run",
+                tolerance_text(self.tolerance)
+            ),
+        );
+        for l in sweep::table_lines(&eps_values, &results) {
+            report.push(Style::Result, l);
+        }
+        for l in sweep::slope_lines(&eps_values, &results) {
+            report.push(Style::Result, l);
+        }
+        if let Some(tol) = tol {
+            for l in sweep::tol_lines(&eps_values, &results, tol) {
+                report.push(Style::Result, l);
+            }
+        }
+        if let Some(p) = table {
+            self.write_output(
+                p,
+                &sweep::csv(&eps_values, &results),
+                FileKind::Table,
+                "table",
+                report,
+            )?;
+        }
+        if let Some(p) = plot {
+            let per: Vec<(String, Vec<f64>, Vec<bool>)> = (0..orders.len())
+                .map(|k| {
+                    (
+                        format!("order {}", k + 1),
+                        results.iter().map(|r| r.orders[k].max).collect(),
+                        results.iter().map(|r| r.orders[k].at_floor()).collect(),
+                    )
+                })
+                .collect();
+            let title = format!(
+                "{kind}: error against {eps_name}, {}",
+                hz.describe(&eps_name)
+            );
+            let svg = plot::error_vs_eps_svg(
+                &title,
+                "largest distance to the system (log scale)",
+                &eps_values,
+                &per,
+            );
+            self.plot_output(p, svg, "plot", report)?;
+        }
+        if let Some(p) = paths {
+            if !self.replaying {
+                // The largest eps shows the difference best.
+                let i = (0..eps_values.len())
+                    .max_by(|a, b| eps_values[*a].total_cmp(&eps_values[*b]))
+                    .unwrap_or(0);
+                let run = run_at(i);
+                let t_end = hz.t_end(eps_values[i]);
+                let n = ((t_end / period) * 60.0).clamp(600.0, 6000.0) as usize;
+                let tr = validate::paths(&run, t_end, n, &limits::is_interrupted)
+                    .map_err(|err| ode_err(cmd.span, err))?;
+                let per_state = |states: &[Vec<f64>]| -> Vec<Vec<f64>> {
+                    (0..names.len())
+                        .map(|k| states.iter().map(|s| s[k]).collect())
+                        .collect()
+                };
+                let models: Vec<(String, Vec<Vec<f64>>)> = tr
+                    .models
+                    .iter()
+                    .enumerate()
+                    .map(|(k, st)| (format!("averaged, order {}", k + 1), per_state(st)))
+                    .collect();
+                let title = format!(
+                    "system and averaged model at {eps_name} = {}{}",
+                    num(eps_values[i]),
+                    if info.classic {
+                        " (model in averaged coordinates)"
+                    } else {
+                        ""
+                    }
+                );
+                let svg =
+                    plot::paths_svg(&title, &names, &tr.times, &per_state(&tr.system), &models);
+                self.plot_output(p, svg, "plot of paths", report)?;
+            }
+        }
+        report.push(
+            Style::Warn,
+            "an averaged model is an approximation: validate it before it drives a real machine (help compare)",
+        );
+        Ok(())
+    }
+}
+
+/// `1e-11 (relative; absolute 1e-13)`.
+pub(crate) fn tolerance_text(tol: f64) -> String {
+    format!("{} (relative; absolute {})", sci(tol), sci(tol / 100.0))
+}
+
+/// A number in scientific notation with at most three significant digits
+/// and no trailing zeros: `1e-13`, `2.5e-12`.
+pub(crate) fn sci(v: f64) -> String {
+    let s = format!("{v:.2e}");
+    match s.split_once('e') {
+        Some((m, e)) => {
+            let m = if m.contains('.') {
+                m.trim_end_matches('0').trim_end_matches('.')
+            } else {
+                m
+            };
+            format!("{m}e{e}")
+        }
+        None => s,
+    }
+}
+
+/// `(q, p) = (1, 0)`.
+fn point_text(names: &[String], x: &[f64]) -> String {
+    format!(
+        "({}) = ({})",
+        names.join(", "),
+        x.iter().map(|v| num(*v)).collect::<Vec<_>>().join(", ")
+    )
 }

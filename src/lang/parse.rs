@@ -49,8 +49,8 @@ use nom::{
 };
 
 use super::ast::{
-    Arg, Assign, BinOp, Command, CommandKind, Expr, ExprKind, FuncDecl, Ident, PathArg, Rhs, Span,
-    Spanned, Stmt, StmtKind,
+    Arg, Assign, BinOp, Command, CommandKind, Expr, ExprKind, FuncDecl, Ident, PathArg, PhasePlot,
+    Rhs, Span, Spanned, Stmt, StmtKind,
 };
 use super::split::{closer_of, scan_line, BracketFault};
 
@@ -108,6 +108,8 @@ pub const RESERVED_WORDS: &[&str] = &[
     "tol",
     "stability",
     "at",
+    "equilibria",
+    "near",
     "check",
     "show",
     "as",
@@ -131,6 +133,7 @@ pub const COMMAND_WORDS: &[&str] = &[
     "simulate",
     "compare",
     "stability",
+    "equilibria",
 ];
 
 /// The words that start the other statements.
@@ -1477,8 +1480,14 @@ impl<'a> Parser<'a> {
                     return Ok((rest, StmtKind::Help(Some(topic))));
                 }
                 "set" => {
+                    if let Some(after_tol) = self.keyword(after, "tolerance") {
+                        let (rest, value) =
+                            self.expect_expr(after_tol, "a number after `tolerance`")?;
+                        self.end(rest, None)?;
+                        return Ok((rest, StmtKind::SetTolerance(value)));
+                    }
                     let Some(after_budget) = self.keyword(after, "budget") else {
-                        return self.expected(after, "`budget` after `set`");
+                        return self.expected(after, "`budget` or `tolerance` after `set`");
                     };
                     let (rest, budget) =
                         self.uint(after_budget, "a whole number after `budget`")?;
@@ -1646,6 +1655,7 @@ impl<'a> Parser<'a> {
             "simulate" => self.simulate(after)?,
             "compare" => self.compare(after)?,
             "stability" => self.stability(after)?,
+            "equilibria" => self.equilibria(after)?,
             _ => return self.expected(input, "a command"),
         };
         let span = Span::new(start, self.off(rest));
@@ -1847,6 +1857,7 @@ impl<'a> Parser<'a> {
         let (mut rest, horizon) = self.horizon(rest)?;
         let mut with: Option<Vec<Assign>> = None;
         let mut plot: Option<PathArg> = None;
+        let mut phase: Option<PhasePlot> = None;
         loop {
             let at = ws(rest);
             let Ok((after, word)) = ident(at) else {
@@ -1863,6 +1874,14 @@ impl<'a> Parser<'a> {
                     rest = next;
                 }
                 "plot" => {
+                    if let Some((next, pair)) = self.phase_plot(after)? {
+                        if phase.is_some() {
+                            return self.duplicate(span, "`plot` of a state pair");
+                        }
+                        phase = Some(pair);
+                        rest = next;
+                        continue;
+                    }
                     if plot.is_some() {
                         return self.duplicate(span, "`plot`");
                     }
@@ -1882,6 +1901,7 @@ impl<'a> Parser<'a> {
                 horizon,
                 with: with.unwrap_or_default(),
                 plot,
+                phase,
             },
         ))
     }
@@ -1907,6 +1927,8 @@ impl<'a> Parser<'a> {
         let mut sweep: Option<(Ident, Vec<Expr>)> = None;
         let mut tol: Option<Expr> = None;
         let mut plot: Option<PathArg> = None;
+        let mut paths: Option<PathArg> = None;
+        let mut table: Option<PathArg> = None;
         loop {
             let at = ws(rest);
             let Ok((after, word)) = ident(at) else {
@@ -1939,11 +1961,27 @@ impl<'a> Parser<'a> {
                     rest = next;
                 }
                 "plot" => {
+                    if let Some((next, path)) = self.paths_plot(after)? {
+                        if paths.is_some() {
+                            return self.duplicate(span, "`plot paths`");
+                        }
+                        paths = Some(path);
+                        rest = next;
+                        continue;
+                    }
                     if plot.is_some() {
                         return self.duplicate(span, "`plot`");
                     }
                     let (next, path) = self.path(after, "a file name after `plot`")?;
                     plot = Some(path);
+                    rest = next;
+                }
+                "table" => {
+                    if table.is_some() {
+                        return self.duplicate(span, "`table`");
+                    }
+                    let (next, path) = self.path(after, "a file name after `table`")?;
+                    table = Some(path);
                     rest = next;
                 }
                 _ => break,
@@ -1954,11 +1992,14 @@ impl<'a> Parser<'a> {
             let what = if at.is_empty() {
                 "`sweep` and values such as `eps = 0.2, 0.1` in `compare`"
             } else {
-                "`with`, `sweep`, `tol`, `plot` or the end of the line"
+                "`with`, `sweep`, `tol`, `plot`, `table` or the end of the line"
             };
             return self.expected(at, what);
         };
-        self.end(rest, Some("`with`, `tol`, `plot` or the end of the line"))?;
+        self.end(
+            rest,
+            Some("`with`, `tol`, `plot`, `table` or the end of the line"),
+        )?;
         Ok((
             rest,
             CommandKind::Compare {
@@ -1971,8 +2012,63 @@ impl<'a> Parser<'a> {
                 sweep,
                 tol,
                 plot,
+                paths,
+                table,
             },
         ))
+    }
+
+    /// `paths FILE` after `plot` in `compare`; `None` when `paths` is the
+    /// file name itself.
+    fn paths_plot(&self, input: &'a str) -> Result<Option<(&'a str, PathArg)>, NomErr<PErr>> {
+        let Some(after) = self.keyword(input, "paths") else {
+            return Ok(None);
+        };
+        let next = ws(after);
+        if next.is_empty() || next.starts_with('#') {
+            return Ok(None);
+        }
+        let (rest, path) = self.path(after, "a file name after `plot paths`")?;
+        Ok(Some((rest, path)))
+    }
+
+    /// `q, p FILE` after `plot` in `simulate` (a phase portrait); `None`
+    /// when no `NAME,` follows.
+    fn phase_plot(&self, input: &'a str) -> Result<Option<(&'a str, PhasePlot)>, NomErr<PErr>> {
+        let at = ws(input);
+        let Ok((after_x, x)) = ident(at) else {
+            return Ok(None);
+        };
+        let Some(after_comma) = ws(after_x).strip_prefix(',') else {
+            return Ok(None);
+        };
+        let x = Ident::new(x, Span::new(self.off(at), self.off(after_x)));
+        let (rest, y) = self.name(after_comma, "the second state of the phase portrait")?;
+        let (rest, path) = self.path(rest, "a file name after `plot q, p`")?;
+        Ok(Some((rest, PhasePlot { x, y, path })))
+    }
+
+    fn equilibria(&self, input: &'a str) -> PResult<'a, CommandKind> {
+        let (rest, field) = self.expect_expr(input, "the field after `equilibria`")?;
+        let Some(after_near) = self.keyword(rest, "near") else {
+            return self.expected(
+                rest,
+                "`near` and a guess such as `q = 1, p = 0` after the field in `equilibria`",
+            );
+        };
+        let (rest, near) = self.assigns(after_near, "near")?;
+        let (rest, with) = match self.keyword(rest, "with") {
+            Some(after) => {
+                let (rest, values) = self.assigns(after, "with")?;
+                self.end(rest, None)?;
+                (rest, values)
+            }
+            None => {
+                self.end(rest, Some("`with` or the end of the line"))?;
+                (rest, Vec::new())
+            }
+        };
+        Ok((rest, CommandKind::Equilibria { field, near, with }))
     }
 
     fn stability(&self, input: &'a str) -> PResult<'a, CommandKind> {

@@ -323,6 +323,8 @@ pub struct Session {
     pub(crate) run_depth: usize,
     /// Show timings in command summaries.
     pub show_timing: bool,
+    /// Integration tolerance of the numerical commands (`set tolerance`).
+    pub(crate) tolerance: f64,
     /// Charts beyond the declared state, and the chart of each bound value.
     pub(crate) charts: super::chart::Charts,
 }
@@ -352,6 +354,7 @@ impl Session {
             base_dir: PathBuf::from("."),
             run_depth: 0,
             show_timing: true,
+            tolerance: crate::numeric::validate::DEFAULT_TOLERANCE,
             charts: Default::default(),
         }
     }

@@ -38,6 +38,101 @@ pub fn loglog_slope(xs: &[f64], ys: &[f64]) -> Option<f64> {
     slope.is_finite().then_some(slope)
 }
 
+/// Local slopes `ln(y_i / y_{i+1}) / ln(x_i / x_{i+1})` between consecutive
+/// points; `None` where either point cannot sit on a log axis or the two
+/// `x` are equal.
+pub fn local_slopes(xs: &[f64], ys: &[f64]) -> Vec<Option<f64>> {
+    let n = xs.len().min(ys.len());
+    (1..n)
+        .map(|i| {
+            let (x0, x1, y0, y1) = (xs[i - 1], xs[i], ys[i - 1], ys[i]);
+            if !(is_loggable(x0) && is_loggable(x1) && is_loggable(y0) && is_loggable(y1)) {
+                return None;
+            }
+            let dx = (x0 / x1).ln();
+            if dx.abs() <= 1e-12 {
+                return None;
+            }
+            let s = (y0 / y1).ln() / dx;
+            s.is_finite().then_some(s)
+        })
+        .collect()
+}
+
+/// How far local slopes may spread and still count as settled: 0.2, or a
+/// tenth of their size for steep slopes (common practice for observed
+/// orders, where a few per cent of noise is usual).
+fn settled_band(slopes: &[f64]) -> f64 {
+    let mean = slopes.iter().sum::<f64>() / slopes.len().max(1) as f64;
+    (0.1 * mean.abs()).max(0.2)
+}
+
+/// A slope fitted over the asymptotic range of a sweep.
+#[derive(Clone, Debug, PartialEq)]
+pub struct AsymptoticFit {
+    /// The fitted slope of `ln y` against `ln x` over `used`.
+    pub slope: f64,
+    /// Indices (into the input) of the points the fit used, in input order.
+    pub used: Vec<usize>,
+    /// Whether the local slopes over `used` agree within the band
+    /// (false: only the last two usable points were fitted, and the
+    /// slope may still be changing).
+    pub settled: bool,
+}
+
+/// Fits the slope over the asymptotic range: the points are taken in order
+/// of decreasing `x` (the sweep goes towards the limit `x -> 0`), points
+/// flagged in `excluded` (at the integrator's floor) and points that cannot
+/// sit on a log axis are left out, and the range is the longest run of
+/// usable points ending at the smallest usable `x` over which the local
+/// slopes stay within a band (0.2, or 10% for steep slopes). `None` when
+/// fewer than two points are usable.
+pub fn asymptotic_fit(xs: &[f64], ys: &[f64], excluded: &[bool]) -> Option<AsymptoticFit> {
+    let n = xs.len().min(ys.len());
+    let mut usable: Vec<usize> = (0..n)
+        .filter(|&i| {
+            !excluded.get(i).copied().unwrap_or(false) && is_loggable(xs[i]) && is_loggable(ys[i])
+        })
+        .collect();
+    // Largest x first; ties keep input order.
+    usable.sort_by(|&a, &b| xs[b].total_cmp(&xs[a]).then(a.cmp(&b)));
+    usable.dedup_by(|a, b| xs[*a] == xs[*b]);
+    if usable.len() < 2 {
+        return None;
+    }
+    let ux: Vec<f64> = usable.iter().map(|&i| xs[i]).collect();
+    let uy: Vec<f64> = usable.iter().map(|&i| ys[i]).collect();
+    let local: Vec<f64> = local_slopes(&ux, &uy).into_iter().flatten().collect();
+    if local.len() + 1 != usable.len() {
+        return None;
+    }
+    // Grow the range from the smallest x while the local slopes agree.
+    let last = local.len() - 1;
+    let mut start = last;
+    while start > 0 {
+        let window = &local[start - 1..];
+        let lo = window.iter().copied().fold(f64::INFINITY, f64::min);
+        let hi = window.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        if hi - lo > settled_band(window) {
+            break;
+        }
+        start -= 1;
+    }
+    // `start..=last` are local slopes, so points `start..=last + 1`.
+    let chosen = &usable[start..];
+    let settled = chosen.len() >= 3;
+    let cx: Vec<f64> = chosen.iter().map(|&i| xs[i]).collect();
+    let cy: Vec<f64> = chosen.iter().map(|&i| ys[i]).collect();
+    let slope = loglog_slope(&cx, &cy)?;
+    let mut used = chosen.to_vec();
+    used.sort_unstable();
+    Some(AsymptoticFit {
+        slope,
+        used,
+        settled,
+    })
+}
+
 fn is_loggable(value: f64) -> bool {
     value.is_finite() && value > 0.0
 }
@@ -77,6 +172,54 @@ mod tests {
     fn unequal_lengths_use_the_common_prefix() {
         let slope = loglog_slope(&[1.0, 2.0, 4.0], &[1.0, 4.0]).unwrap();
         assert!((slope - 2.0).abs() < 1e-12);
+    }
+
+    #[test]
+    fn local_slopes_between_neighbours() {
+        let xs = [0.2, 0.1, 0.05];
+        let ys = [0.04, 0.01, 0.0];
+        let s = local_slopes(&xs, &ys);
+        assert_eq!(s.len(), 2);
+        assert!((s[0].unwrap() - 2.0).abs() < 1e-12);
+        assert_eq!(s[1], None);
+    }
+
+    // A pre-asymptotic first point (the error has not yet reached its
+    // power law) must not enter the fit: y = x^3 (1 + 20 x^2) has local
+    // slopes that approach 3 only for small x.
+    #[test]
+    fn the_fit_leaves_out_the_pre_asymptotic_range() {
+        let xs = [0.4, 0.2, 0.1, 0.05, 0.025, 0.0125];
+        let ys: Vec<f64> = xs
+            .iter()
+            .map(|x: &f64| x.powi(3) * (1.0 + 20.0 * x * x))
+            .collect();
+        let all = loglog_slope(&xs, &ys).unwrap();
+        assert!(all > 3.3, "{all}");
+        let fit = asymptotic_fit(&xs, &ys, &[false; 6]).unwrap();
+        assert!((fit.slope - 3.0).abs() < 0.15, "{fit:?}");
+        assert!(!fit.used.contains(&0) && fit.used.contains(&5), "{fit:?}");
+        assert!(fit.settled);
+    }
+
+    #[test]
+    fn excluded_points_stay_out_and_too_few_give_none() {
+        let xs = [0.2, 0.1, 0.05, 0.025];
+        let ys = [4e-3, 1e-3, 2.5e-4, 2e-4];
+        let fit = asymptotic_fit(&xs, &ys, &[false, false, false, true]).unwrap();
+        assert_eq!(fit.used, vec![0, 1, 2]);
+        assert!((fit.slope - 2.0).abs() < 1e-12);
+        assert_eq!(asymptotic_fit(&xs, &ys, &[true, true, true, false]), None);
+    }
+
+    #[test]
+    fn unsettled_slopes_fit_the_last_two_points() {
+        let xs = [0.2, 0.1, 0.05];
+        let ys = [1.0, 0.5, 0.0625];
+        let fit = asymptotic_fit(&xs, &ys, &[false; 3]).unwrap();
+        assert_eq!(fit.used, vec![1, 2]);
+        assert!(!fit.settled);
+        assert!((fit.slope - 3.0).abs() < 1e-12);
     }
 
     proptest! {

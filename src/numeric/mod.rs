@@ -6,6 +6,8 @@
 pub mod compile;
 pub mod eigen;
 pub mod fit;
+pub mod newton;
 pub mod ode;
 pub mod plot;
+pub mod sweep;
 pub mod validate;
