@@ -26,6 +26,7 @@ const TOPICS: &[(&str, &str)] = &[
     ("names", "names\n  list declarations and definitions."),
     ("forget", "forget NAME\n  remove a definition."),
     ("set", "set budget N\n  the most terms one result may hold (a large coefficient counts as a term per 64 bytes),\n  and with it the work of one statement (250*N term products), before the computation\n  stops with a message. Digits (100,000), order (40) and nesting (256) are fixed limits."),
+    ("kernel", "ordex kernel install   (at the shell, once)\n  register ordex as a Jupyter kernel for this user (kernel.json in the Jupyter data directory,\n  JUPYTER_DATA_DIR when set); then pick the kernel \"ordex\" in a notebook. A cell runs as a script:\n  results in input syntax and LaTeX, plots inline, errors with the caret, failed checks as errors;\n  interrupt keeps the session; `save FILE` writes the accepted lines as a script."),
     ("quit", "quit\n  leave the prompt (Ctrl-D too)."),
     ("builtins", "built-in functions\n  sin cos exp (of linear arguments), ad(X, Y, k), pd(h, q), jac(X), div(X), det(M), trace(M),\n  plug(e, q = v, ...), order(e, eps, k), mean(e), bch(X, Y, N), iint(u1, ...), X(h) (Lie derivative),\n  [X, Y] (Lie bracket: [X,Y](h) = X(Y(h)) - Y(X(h)))."),
 ];
