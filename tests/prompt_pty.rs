@@ -320,3 +320,44 @@ fn ctrl_c_interrupts_a_long_computation_and_keeps_the_session() {
     term.send("quit\r");
     assert!(term.wait_exit().success());
 }
+
+#[test]
+fn a_burst_of_typed_ahead_lines_runs_every_line_whole() {
+    // 200 lines arrive at once, as an unbracketed paste or fast typing
+    // does: some while the prompt reads, some while a statement runs.
+    // Every line must run, whole and in order: a dropped line or a
+    // fragment (` 61*p`) changes the sum or is an error.
+    let home = temp_home();
+    let mut term = Terminal::start(home.path(), &["--no-timing"]);
+    term.expect(PROMPT);
+    term.enter("state q, p", PROMPT);
+    term.enter("param eps", PROMPT);
+    term.enter("s0 = 0", "s0: scalar");
+    let mut burst = String::new();
+    // A statement that runs a moment, so that the lines after it arrive
+    // while the terminal is not in the editor's raw mode.
+    burst.push_str("average eps*[p, -q + cos(t)*q^2] to 6 in eps\r");
+    for i in 1..=200 {
+        burst.push_str(&format!("s{i} = s{} + {i}*p\r", i - 1));
+    }
+    burst.push_str("check s200 == 20100*p\r");
+    let mut writer = term.master.try_clone().expect("a second handle");
+    let typing = std::thread::spawn(move || {
+        writer.write_all(burst.as_bytes()).expect("typing");
+        writer.flush().expect("typing");
+    });
+    term.expect("s200: scalar");
+    let reply = term.expect("holds");
+    typing.join().expect("the typing thread");
+    let transcript = term.transcript();
+    assert!(!transcript.contains("error"), "{transcript}");
+    assert!(!reply.contains("check failed"), "{reply}");
+    for i in [1, 61, 137, 200] {
+        assert!(
+            transcript.contains(&format!("s{i}: scalar")),
+            "line {i} did not run:\n{transcript}"
+        );
+    }
+    term.send("quit\r");
+    assert!(term.wait_exit().success());
+}

@@ -283,3 +283,155 @@ fn a_second_prompt_leaves_the_journal_in_use_alone() {
     assert!(stdout(&out).contains("resumed 4 lines"), "{}", stdout(&out));
     assert_eq!(stderr(&out), "");
 }
+
+#[test]
+fn a_session_that_accepts_nothing_does_not_rotate_the_journal() {
+    let work = tempfile::tempdir().expect("a temporary directory");
+    let home = tempfile::tempdir().expect("a temporary directory");
+    let (work, home) = (work.path(), home.path());
+    let first = session(work, home, &[], "state q, p\nX = [p, -q]\n");
+    assert_eq!(first.status.code(), Some(0), "{}", stderr(&first));
+    let before = std::fs::read_to_string(home.join("journal.ordex")).expect("a journal");
+    // `ordex </dev/null`, and a session of comments only.
+    let out = prompt(work, home, &[])
+        .stdin(Stdio::null())
+        .output()
+        .expect("ordex runs");
+    assert_eq!(out.status.code(), Some(0), "{}", stderr(&out));
+    let blank = session(work, home, &[], "\n# nothing\n\n");
+    assert_eq!(blank.status.code(), Some(0), "{}", stderr(&blank));
+    let after = std::fs::read_to_string(home.join("journal.ordex")).expect("a journal");
+    assert_eq!(after, before);
+    assert!(!home.join("journal.prev.ordex").exists());
+    let resumed = session(work, home, &["--resume"], "names\n");
+    assert!(
+        stdout(&resumed).contains("resumed 2 lines"),
+        "{}",
+        stdout(&resumed)
+    );
+}
+
+#[test]
+fn a_failing_resume_keeps_every_line_in_a_numbered_backup() {
+    let work = tempfile::tempdir().expect("a temporary directory");
+    let home = tempfile::tempdir().expect("a temporary directory");
+    let (work, home) = (work.path(), home.path());
+    let journal = "state q, p\nX = [p, -q]\nY = [q, nosuch]\nZ = [q, p]\nW = [p, p]\n";
+    std::fs::write(home.join("journal.ordex"), journal).expect("journal");
+    let out = session(work, home, &["--resume"], "names\n");
+    let err = stderr(&out);
+    assert!(stdout(&out).contains("resumed 2 lines"), "{}", stdout(&out));
+    let backup = home.join("journal.backup-1.ordex");
+    assert!(
+        err.contains(&format!("all of it is kept in {}", backup.display())),
+        "{err}"
+    );
+    assert_eq!(std::fs::read_to_string(&backup).expect("a backup"), journal);
+    // Two plain starts later (each rotating the journal), the lines that
+    // were not replayed are still there, and a second failure gets a
+    // backup of its own.
+    session(work, home, &[], "names\n");
+    session(work, home, &[], "names\n");
+    std::fs::write(home.join("journal.ordex"), "state q\nbad = [q,\n").expect("journal");
+    let again = session(work, home, &["--resume"], "names\n");
+    assert!(
+        stderr(&again).contains("journal.backup-2.ordex"),
+        "{}",
+        stderr(&again)
+    );
+    assert_eq!(std::fs::read_to_string(&backup).expect("a backup"), journal);
+}
+
+#[test]
+fn an_unterminated_last_record_is_reported_and_not_run() {
+    let work = tempfile::tempdir().expect("a temporary directory");
+    let home = tempfile::tempdir().expect("a temporary directory");
+    let (work, home) = (work.path(), home.path());
+    // What a write cut off by a full disk left: `k0 = 1234567` cut short.
+    std::fs::write(home.join("journal.ordex"), "state q\nk1 = 7\nk0 = 1234").expect("journal");
+    let out = session(work, home, &["--resume"], "k1\nk0\n");
+    let err = stderr(&out);
+    assert!(stdout(&out).contains("resumed 2 lines"), "{}", stdout(&out));
+    assert!(err.contains("never finished"), "{err}");
+    assert!(err.contains("`k0 = 1234` was not run"), "{err}");
+    assert!(err.contains("journal.backup-1.ordex"), "{err}");
+    assert!(err.contains("unknown name `k0`"), "{err}");
+    assert!(stdout(&out).contains("  7\n"), "{}", stdout(&out));
+    let now = std::fs::read_to_string(home.join("journal.ordex")).expect("a journal");
+    assert!(!now.contains("k0 = 1234"), "{now}");
+    assert!(now.contains("k1 = 7\nk1\n"), "{now}");
+}
+
+/// A small tmpfs mounted for a test, unmounted when dropped.
+struct SmallDisk(std::path::PathBuf);
+
+impl SmallDisk {
+    /// Mounts a 64 KiB tmpfs on `dir`; `None` where mounting is not
+    /// allowed (not root, a container without the capability).
+    fn mount(dir: &Path) -> Option<SmallDisk> {
+        let status = Command::new("mount")
+            .args(["-t", "tmpfs", "-o", "size=64k", "tmpfs"])
+            .arg(dir)
+            .stderr(Stdio::null())
+            .status()
+            .ok()?;
+        status.success().then(|| SmallDisk(dir.to_path_buf()))
+    }
+}
+
+impl Drop for SmallDisk {
+    fn drop(&mut self) {
+        let _ = Command::new("umount").arg(&self.0).status();
+    }
+}
+
+#[test]
+fn a_full_disk_cuts_the_journal_back_to_its_last_complete_record() {
+    let work = tempfile::tempdir().expect("a temporary directory");
+    let mount = tempfile::tempdir().expect("a temporary directory");
+    let Some(disk) = SmallDisk::mount(mount.path()) else {
+        eprintln!("cannot mount a tmpfs here: the injected failure test in src/app/journal.rs covers this");
+        return;
+    };
+    let home = disk.0.join("home");
+    let work = work.path();
+    let first = session(work, &home, &[], "state q\nk1 = 7\n");
+    assert_eq!(first.status.code(), Some(0), "{}", stderr(&first));
+    // Fill the disk: the journal's page has a few KiB left after it.
+    {
+        let mut filler = std::fs::File::create(disk.0.join("filler")).expect("filler");
+        let block = [b'x'; 1024];
+        while filler
+            .write_all(&block)
+            .and_then(|()| filler.sync_all())
+            .is_ok()
+        {}
+    }
+    let digits = "1234567".repeat(1000);
+    let input = format!("k0 = {digits}\nk2 = 9\n");
+    let out = session(work, &home, &["--resume"], &input);
+    let err = stderr(&out);
+    assert!(err.contains("cannot be written"), "{err}");
+    assert!(err.contains("partial record was removed"), "{err}");
+    let journal = std::fs::read_to_string(home.join("journal.ordex")).expect("a journal");
+    assert!(journal.ends_with("k1 = 7\n"), "{journal:?}");
+    // With room again, a resume has exactly the complete records.
+    std::fs::remove_file(disk.0.join("filler")).expect("filler removed");
+    let again = session(work, &home, &["--resume"], "k1\nk0\n");
+    assert!(
+        stdout(&again).contains("resumed 2 lines"),
+        "{}",
+        stdout(&again)
+    );
+    assert!(
+        !stderr(&again).contains("never finished"),
+        "{}",
+        stderr(&again)
+    );
+    assert!(
+        stderr(&again).contains("unknown name `k0`"),
+        "{}",
+        stderr(&again)
+    );
+    drop(disk);
+}

@@ -23,7 +23,7 @@ use std::path::PathBuf;
 use crate::lang::files::read_script;
 use crate::lang::session::render_error;
 use crate::lang::split::split_statements;
-use crate::lang::{Report, RunStatus, Session};
+use crate::lang::{Line, Report, RunStatus, Session};
 
 pub use cli::{Invocation, Source};
 pub use style::Painter;
@@ -50,8 +50,9 @@ pub fn run(invocation: &Invocation) -> u8 {
 
 /// Runs scripts and inline lines in order in one session. Failed checks
 /// are reported and the run goes on; the first error is printed to
-/// standard error and stops everything. A closed standard output ends the
-/// run quietly.
+/// standard error and stops everything. Standard output that cannot be
+/// written stops the run with status 2: a closed pipe quietly, any other
+/// failure (a full disk) with a message on standard error.
 pub fn run_sources(sources: &[Source], timing: bool, painter: Painter) -> u8 {
     let mut session = new_session(timing);
     let output = Output {
@@ -59,6 +60,11 @@ pub fn run_sources(sources: &[Source], timing: bool, painter: Painter) -> u8 {
         indent: "",
     };
     let mut status = RunStatus::default();
+    let n_inline = sources
+        .iter()
+        .filter(|s| matches!(s, Source::Inline(_)))
+        .count();
+    let mut inline_index = 0;
     for source in sources {
         let (text, origin) = match source {
             Source::File(path) => {
@@ -72,7 +78,10 @@ pub fn run_sources(sources: &[Source], timing: bool, painter: Painter) -> u8 {
                     }
                 }
             }
-            Source::Inline(text) => (text.clone(), INLINE_ORIGIN.to_string()),
+            Source::Inline(text) => {
+                inline_index += 1;
+                (text.clone(), inline_origin(inline_index, n_inline))
+            }
         };
         match run_text(&mut session, &text, &origin, &output) {
             Ok(one) => {
@@ -82,11 +91,24 @@ pub fn run_sources(sources: &[Source], timing: bool, painter: Painter) -> u8 {
                     break;
                 }
             }
-            // Standard output is gone (a closed pipe): nobody is listening.
-            Err(_) => break,
+            Err(err) => {
+                output.stdout_failed(&err);
+                return 2;
+            }
         }
     }
     u8::try_from(status.exit_code()).unwrap_or(2)
+}
+
+/// The origin of the `index`-th of `count` `-e` arguments in messages:
+/// `-e` alone, `-e#2` for the second of several (line numbers count within
+/// the argument: `-e#2:3:5`).
+pub fn inline_origin(index: usize, count: usize) -> String {
+    if count > 1 {
+        format!("{INLINE_ORIGIN}#{index}")
+    } else {
+        INLINE_ORIGIN.to_string()
+    }
 }
 
 /// Runs one text statement by statement, printing as it goes; stops at the
@@ -117,6 +139,8 @@ fn run_text(
                 }
             }
             Err(err) => {
+                // A `run FILE` that failed partway: what it printed first.
+                output.lines(err.printed())?;
                 output.error(&render_error(statement, Some(origin), &err));
                 status.error = true;
                 break;
@@ -169,9 +193,17 @@ pub(crate) struct Output {
 impl Output {
     /// Prints a report's lines to standard output and flushes.
     pub(crate) fn report(&self, report: &Report) -> io::Result<()> {
+        self.lines(&report.lines)
+    }
+
+    /// Prints lines to standard output and flushes.
+    pub(crate) fn lines(&self, lines: &[Line]) -> io::Result<()> {
+        if lines.is_empty() {
+            return Ok(());
+        }
         let stdout = io::stdout();
         let mut out = stdout.lock();
-        for line in &report.lines {
+        for line in lines {
             let painted = self.painter.line(line.style, &line.text);
             writeln!(out, "{}{}", self.indent, painted)?;
         }
@@ -193,6 +225,18 @@ impl Output {
         let mut err = stderr.lock();
         let _ = writeln!(err, "{}", self.painter.error(rendered));
         let _ = err.flush();
+    }
+
+    /// Reports that standard output could not be written: nothing for a
+    /// closed pipe (the reader left on purpose, as `head` does), a message
+    /// on standard error otherwise (a full disk must not pass unseen).
+    pub(crate) fn stdout_failed(&self, err: &io::Error) {
+        if err.kind() != io::ErrorKind::BrokenPipe {
+            self.error(&format!(
+                "ordex: error: cannot write to standard output: {}",
+                crate::lang::files::io_reason(err)
+            ));
+        }
     }
 
     /// Prints a warning of the binary's own to standard error.

@@ -27,14 +27,14 @@ use rustyline::history::FileHistory;
 use rustyline::validate::{ValidationContext, ValidationResult, Validator};
 use rustyline::{CompletionType, Config, Context, Editor, Helper};
 
-use super::journal::Journal;
+use super::journal::{Claim, Journal, Resumed, Unterminated};
 use super::{home_dir, new_session, HomeKind, Invocation, Output, Painter};
 use crate::core::limits;
 use crate::lang::eval::BUILTINS;
 use crate::lang::parse::RESERVED_WORDS;
 use crate::lang::session::render_error;
 use crate::lang::split::{needs_more, split_statements, SourceStmt};
-use crate::lang::{Report, Session};
+use crate::lang::{Line, Report, Session};
 
 /// The prompt string.
 pub const PROMPT: &str = "» ";
@@ -51,7 +51,7 @@ static RUNNING: AtomicBool = AtomicBool::new(false);
 static PRESSES: AtomicUsize = AtomicUsize::new(0);
 
 /// Runs the prompt until `quit`, Ctrl-D or the end of input; returns the
-/// exit status (0).
+/// exit status: 0, or 2 when standard output could not be written.
 pub fn run_prompt(invocation: &Invocation, painter: Painter) -> u8 {
     let interactive = io::stdin().is_terminal();
     let output = Output {
@@ -78,8 +78,9 @@ pub fn run_prompt(invocation: &Invocation, painter: Painter) -> u8 {
             "ordex {}: exact series workbench. `help` lists the topics; Ctrl-D leaves.",
             env!("CARGO_PKG_VERSION")
         );
-        if output.note(&banner).is_err() {
-            return 0;
+        if let Err(err) = output.note(&banner) {
+            output.stdout_failed(&err);
+            return 2;
         }
     }
     let mut journal = open_journal(invocation.resume, &mut session, &output);
@@ -95,6 +96,10 @@ pub fn run_prompt(invocation: &Invocation, painter: Painter) -> u8 {
         match execute_input(&mut session, &text, &output, &mut journal) {
             Flow::Continue => {}
             Flow::Quit => break,
+            Flow::OutputFailed(err) => {
+                output.stdout_failed(&err);
+                return 2;
+            }
         }
     }
     0
@@ -104,8 +109,57 @@ pub fn run_prompt(invocation: &Invocation, painter: Painter) -> u8 {
 enum Flow {
     /// Prompt again.
     Continue,
-    /// Leave the prompt (`quit`, or standard output is gone).
+    /// Leave the prompt (`quit`).
     Quit,
+    /// Standard output cannot be written: leave with status 2.
+    OutputFailed(io::Error),
+}
+
+/// The journal of a prompt session: claimed (locked) at the start, started
+/// (rotating the old one) only when the first statement is accepted, so
+/// that a session that accepts nothing (`ordex </dev/null`) rotates
+/// nothing.
+enum JournalSlot {
+    /// No journal for this session.
+    Off,
+    /// Locked, not started yet.
+    Claimed(Claim),
+    /// Appending.
+    Open(Journal),
+}
+
+impl JournalSlot {
+    /// Appends accepted statements (starting the journal first if needed);
+    /// on failure warns once and turns the journal off.
+    fn append(&mut self, statements: &[String], output: &Output) {
+        if statements.is_empty() {
+            return;
+        }
+        if matches!(self, JournalSlot::Claimed(_)) {
+            let JournalSlot::Claimed(claim) = std::mem::replace(self, JournalSlot::Off) else {
+                return;
+            };
+            let home = claim.home().display().to_string();
+            match claim.start_new() {
+                Ok(journal) => *self = JournalSlot::Open(journal),
+                Err(err) => {
+                    output.warning(&format!(
+                        "warning: the journal in {home} cannot be started ({err}); this session has no journal"
+                    ));
+                    return;
+                }
+            }
+        }
+        if let JournalSlot::Open(open) = self {
+            if let Err(err) = open.append(statements) {
+                output.warning(&format!(
+                    "warning: the journal {} cannot be written ({err}); it is off for this session",
+                    open.path().display()
+                ));
+                *self = JournalSlot::Off;
+            }
+        }
+    }
 }
 
 /// Runs every statement of one input; the first error stops the rest.
@@ -113,7 +167,7 @@ fn execute_input(
     session: &mut Session,
     text: &str,
     output: &Output,
-    journal: &mut Option<Journal>,
+    journal: &mut JournalSlot,
 ) -> Flow {
     let statements = match split_statements(text) {
         Ok(statements) => statements,
@@ -125,32 +179,23 @@ fn execute_input(
     for statement in &statements {
         match run_one(session, statement, None) {
             Ok(report) => {
-                if let Some(open) = journal.as_mut() {
-                    if let Err(err) = open.append(&report.journal) {
-                        output.warning(&format!(
-                            "warning: the journal {} cannot be written ({err}); it is off for this session",
-                            open.path().display()
-                        ));
-                        *journal = None;
-                    }
-                }
-                if output.report(&report).is_err() {
-                    // Standard output is gone: nobody can see the prompt.
-                    return Flow::Quit;
+                journal.append(&report.journal, output);
+                if let Err(err) = output.report(&report) {
+                    return Flow::OutputFailed(err);
                 }
                 if report.quit {
                     return Flow::Quit;
                 }
             }
-            Err((rendered, ran)) => {
+            Err(failed) => {
                 // Statements of a `run FILE` before its error changed the
-                // session: they are journalled like accepted lines.
-                if let Some(open) = journal.as_mut() {
-                    if !ran.is_empty() && open.append(&ran).is_err() {
-                        *journal = None;
-                    }
+                // session: they are journalled like accepted lines, and
+                // what they printed is shown before the error.
+                journal.append(&failed.ran, output);
+                if let Err(err) = output.lines(&failed.printed) {
+                    return Flow::OutputFailed(err);
                 }
-                output.error(&rendered);
+                output.error(&failed.rendered);
                 break;
             }
         }
@@ -158,21 +203,30 @@ fn execute_input(
     Flow::Continue
 }
 
+/// A statement that ended with an error.
+struct Failed {
+    /// The error with place and caret.
+    rendered: String,
+    /// Journal lines of what ran before it (a `run FILE` failed partway).
+    ran: Vec<String>,
+    /// What ran before it printed.
+    printed: Vec<Line>,
+}
+
 /// Executes one statement with Ctrl-C armed; an error comes back rendered.
 fn run_one(
     session: &mut Session,
     statement: &SourceStmt,
     origin: Option<&str>,
-) -> Result<Report, (String, Vec<String>)> {
+) -> Result<Report, Failed> {
     PRESSES.store(0, Ordering::SeqCst);
     RUNNING.store(true, Ordering::SeqCst);
     let result = session.execute(statement, origin);
     RUNNING.store(false, Ordering::SeqCst);
-    result.map_err(|err| {
-        (
-            render_error(statement, origin, &err),
-            err.journal_lines().to_vec(),
-        )
+    result.map_err(|err| Failed {
+        rendered: render_error(statement, origin, &err),
+        ran: err.journal_lines().to_vec(),
+        printed: err.printed().to_vec(),
     })
 }
 
@@ -195,39 +249,76 @@ fn install_interrupt_handler() -> bool {
     .is_ok()
 }
 
-/// Opens (and for `--resume` replays) the journal; `None` when there is no
-/// place for one or it cannot be written (with a warning).
-fn open_journal(resume: bool, session: &mut Session, output: &Output) -> Option<Journal> {
+/// Claims the journal (and for `--resume` opens and replays it);
+/// `JournalSlot::Off` when there is no place for one or it cannot be
+/// used (with a warning).
+fn open_journal(resume: bool, session: &mut Session, output: &Output) -> JournalSlot {
     let Some(home) = home_dir(HomeKind::State) else {
         output.warning("warning: no state directory (set ORDEX_HOME): this session has no journal");
-        return None;
+        return JournalSlot::Off;
     };
-    let opened = if resume {
-        Journal::resume(&home).map(|(journal, text)| {
-            let mut journal = journal;
-            replay(session, &text, &mut journal, output);
-            journal
-        })
-    } else {
-        Journal::start_new(&home)
-    };
+    let opened = Journal::claim(&home).and_then(|claim| {
+        if resume {
+            claim.resume().map(|resumed| {
+                let Resumed {
+                    mut journal,
+                    text,
+                    unterminated,
+                } = resumed;
+                replay(session, &text, unterminated, &mut journal, output);
+                JournalSlot::Open(journal)
+            })
+        } else {
+            Ok(JournalSlot::Claimed(claim))
+        }
+    });
     match opened {
-        Ok(journal) => Some(journal),
+        Ok(slot) => slot,
         Err(err) => {
             output.warning(&format!(
                 "warning: the journal in {} cannot be opened ({err}); this session has no journal",
                 home.display()
             ));
-            None
+            JournalSlot::Off
         }
     }
 }
 
+/// At most this many characters of a cut record are quoted.
+const QUOTE_CHARS: usize = 60;
+
+/// `text` shortened for a message.
+fn quote(text: &str) -> String {
+    let one_line = text.replace('\n', " ");
+    if one_line.chars().count() <= QUOTE_CHARS {
+        one_line
+    } else {
+        let head: String = one_line.chars().take(QUOTE_CHARS).collect();
+        format!("{head}…")
+    }
+}
+
 /// Replays a journal's text into the session without file writes and
-/// without printing reports. If something does not replay, the journal is
-/// cut back to what did (the full text stays in the previous journal).
-fn replay(session: &mut Session, text: &str, journal: &mut Journal, output: &Output) {
+/// without printing reports. An unterminated last record (already cut
+/// off) is reported and not run. If something does not replay, the
+/// journal is cut back to what did; the whole text is kept in a numbered
+/// backup and the message says where.
+fn replay(
+    session: &mut Session,
+    text: &str,
+    unterminated: Option<Unterminated>,
+    journal: &mut Journal,
+    output: &Output,
+) {
     let origin = journal.path().display().to_string();
+    if let Some(cut) = unterminated {
+        output.warning(&format!(
+            "warning: {origin}: the last record was never finished (a write was cut off): \
+             `{}` was not run; the whole journal is kept in {}",
+            quote(&cut.record),
+            cut.backup.display()
+        ));
+    }
     let (statements, mut complete) = match split_statements(text) {
         Ok(statements) => (statements, true),
         Err(err) => {
@@ -254,9 +345,9 @@ fn replay(session: &mut Session, text: &str, journal: &mut Journal, output: &Out
                 complete = false;
                 break;
             }
-            Err((rendered, ran)) => {
-                replayed.extend(ran);
-                output.error(&rendered);
+            Err(failed) => {
+                replayed.extend(failed.ran);
+                output.error(&failed.rendered);
                 output.warning("the lines from there on were not replayed");
                 complete = false;
                 break;
@@ -265,8 +356,15 @@ fn replay(session: &mut Session, text: &str, journal: &mut Journal, output: &Out
     }
     session.replaying = false;
     if !complete {
-        if let Err(err) = journal.rewrite(&replayed) {
-            output.warning(&format!("warning: cannot trim the journal ({err})"));
+        match journal.rewrite(&replayed) {
+            Ok(backup) => output.warning(&format!(
+                "the journal now holds the {} lines that replayed; all of it is kept in {}",
+                replayed.len(),
+                backup.display()
+            )),
+            Err(err) => output.warning(&format!(
+                "warning: the journal was left as it was, lines not replayed included ({err})"
+            )),
         }
     }
     let _ = output.note(&format!("resumed {} lines from {}", replayed.len(), origin));

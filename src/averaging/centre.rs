@@ -292,6 +292,11 @@ pub(super) fn linear_centre(
                     "rotating coordinates put time-varying combinations inside a function of \
                      `{e}`: the linear-centre form needs f_j polynomial in the state"
                 )),
+                CoreError::FunctionArgument { call, .. } => refuse(format!(
+                    "rotating coordinates turn `{e}` into `{call}`, an argument that depends on \
+                     time: the linear-centre form needs f_j free of unspecified functions of the \
+                     rotating coordinates (plug a definition first)"
+                )),
                 other => other,
             })
         })?;

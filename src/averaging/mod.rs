@@ -39,8 +39,14 @@ pub enum Form {
     Standard,
     /// Fast oscillation `f_0 = Σ u_i(t) g_i`, pulled back by `exp(Σ U_i g_i)`.
     FastOscillation {
-        /// `(U_i(t), g_i)`: the antiderivatives from 0 and the fields.
+        /// `(U_i(t), g_i)`: the antiderivatives (from 0, or of zero mean:
+        /// see `zero_mean`) and the fields.
         generator: Vec<(Expr, Field)>,
+        /// The base of the antiderivatives: `U_i = ∫_0^t u_i` (false; so
+        /// that x = z at multiples of the period, stroboscopic averaging)
+        /// or the zero-mean `Ū_i = ∫_0^t u_i − mean(∫_0^t u_i)` (true;
+        /// classical averaging, the vibrational transform).
+        zero_mean: bool,
         /// Depth reached by the ad-series.
         depth: u64,
         /// True when the ad-series ended by itself (nilpotent).
@@ -75,6 +81,23 @@ impl Averaged {
     /// `Σ eps^k F_k`.
     pub fn total(&self, eps: Sym) -> CoreResult<Field> {
         sum_with_powers(&self.orders, eps)
+    }
+
+    /// The field whose time-1 flow is the change of coordinates at
+    /// `t = 0` (and at every multiple of the period): `Σ U_i(0) g_i` of a
+    /// fast-oscillation form, `None` when that is the identity (the base
+    /// `∫_0^t`, every other form). A classical fast-oscillation result
+    /// maps `y` to `x = exp(Y(0))(y + W(0, y))` there.
+    pub fn outer_at_zero(&self) -> Option<Field> {
+        let Form::FastOscillation { generator, .. } = &self.form else {
+            return None;
+        };
+        let dim = generator.first().map_or(0, |(_, g)| g.dim());
+        let mut y = Field::zero(dim);
+        for (u, g) in generator {
+            y = y.add(&g.mul_expr(&u.at_time_zero()).ok()?).ok()?;
+        }
+        (!y.is_zero()).then_some(y)
     }
 
     /// `Σ eps^k w_k`, when computed.
@@ -165,7 +188,13 @@ pub fn average(v: &Field, eps: Sym, opts: &Options, states: &[Sym]) -> CoreResul
     let (form, standard) = if f0.is_zero() {
         (Form::Standard, parts[1..].to_vec())
     } else if f0.0.iter().any(Expr::is_time_varying) {
-        fast_oscillation(f0, &parts[1..], opts.depth, states)?
+        fast_oscillation(
+            f0,
+            &parts[1..],
+            opts.depth,
+            opts.method == Method::Classic,
+            states,
+        )?
     } else {
         centre::linear_centre(f0, &parts[1..], states)?
     };
@@ -504,14 +533,18 @@ pub fn classical(
     Ok((g_out, w_out))
 }
 
-/// Recognises `f_0 = Σ u_i(t) g_i` and pulls the higher orders back.
+/// Recognises `f_0 = Σ u_i(t) g_i` and pulls the higher orders back, with
+/// `U_i = ∫_0^t u_i`, or its zero-mean shift when `zero_mean` (DESIGN §2.6).
 fn fast_oscillation(
     f0: &Field,
     higher: &[Field],
     depth: u64,
+    zero_mean: bool,
     states: &[Sym],
 ) -> CoreResult<(Form, Vec<Field>)> {
     let pieces = split_field_time(f0);
+    let f0_freqs: Vec<Q> = f0.0.iter().flat_map(Expr::frequencies).collect();
+    let f0_period = common_period(&f0_freqs).unwrap_or(Period(Q::int(2)));
     let mut generator: Vec<(Expr, Field)> = Vec::new();
     for (tk, g) in &pieces {
         if tk.tpow != 0 {
@@ -529,8 +562,13 @@ fn fast_oscillation(
                 ),
             });
         }
-        let u = tk.to_expr();
-        generator.push((u.integral_from_zero()?, g.clone()));
+        let u = tk.to_expr().integral_from_zero()?;
+        let u = if zero_mean {
+            u.sub(&u.mean_over(&f0_period)?)
+        } else {
+            u
+        };
+        generator.push((u, g.clone()));
     }
     for i in 0..generator.len() {
         for j in i + 1..generator.len() {
@@ -570,6 +608,7 @@ fn fast_oscillation(
     Ok((
         Form::FastOscillation {
             generator,
+            zero_mean,
             depth: needed,
             ended: all_ended,
         },

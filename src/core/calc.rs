@@ -15,6 +15,8 @@ impl Expr {
     /// Partial derivative with respect to `s` (a state, a parameter or `t`).
     pub fn pd(&self, s: Sym) -> Expr {
         let mut out: Vec<(Key, Q)> = Vec::new();
+        let atoms = super::func::any();
+        let mut chain = Vec::new();
         for (k, c) in self.terms() {
             // Monomial factor.
             let e = k.mono.exp_of(s);
@@ -27,6 +29,18 @@ impl Expr {
                 }
                 key.mono.0.retain(|(_, ex)| *ex != 0);
                 out.push((key, c.mul(&Q::int(e as i64))));
+            }
+            // Unspecified functions: the chain rule.
+            if atoms {
+                chain.clear();
+                super::func::chain_rule(&k.mono, s, &mut chain);
+                for (m, f) in chain.drain(..) {
+                    let key = Key {
+                        mono: m,
+                        ..k.clone()
+                    };
+                    out.push((key, c.mul(&f)));
+                }
             }
             // Exponential factor.
             let m = k.exp.coeff(s);
@@ -90,6 +104,9 @@ impl Expr {
             return Ok(self.clone());
         }
         let mut pow_cache: HashMap<(Sym, i32), Expr> = HashMap::new();
+        let atoms = super::func::any();
+        // Atoms with their arguments evaluated (`None`: untouched).
+        let mut atom_cache: HashMap<Sym, Option<Expr>> = HashMap::new();
         // Collect the terms of every substituted term and normalise once:
         // merging into a running sum would be quadratic in the size.
         let mut out: Vec<(Key, Q)> = Vec::new();
@@ -100,7 +117,17 @@ impl Expr {
             let mut rest = Key::one();
             let mut factor = Expr::int(1);
             for (s, e) in &k.mono.0 {
-                match map.get(s) {
+                if atoms && !map.contains_key(s) && !atom_cache.contains_key(s) {
+                    let v = match super::func::atom(*s) {
+                        Some(a) => super::func::subst_args(&a, map, states)?,
+                        None => None,
+                    };
+                    atom_cache.insert(*s, v);
+                }
+                let moved = map
+                    .get(s)
+                    .or_else(|| atom_cache.get(s).and_then(Option::as_ref));
+                match moved {
                     None => rest.mono.0.push((*s, *e)),
                     Some(v) => {
                         let p = match pow_cache.get(&(*s, *e)) {

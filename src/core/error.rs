@@ -37,6 +37,9 @@ pub enum CoreError {
     BadExponent { exponent: String },
     /// `sin`, `cos` or `exp` of an argument that is not linear in the state.
     NonlinearArgument { func: &'static str, arg: String },
+    /// An unspecified function applied to something other than a linear
+    /// form in the state plus a constant, or with the wrong arity.
+    FunctionArgument { call: String, reason: String },
     /// A parameter inside `sin`, `cos` or `exp`.
     ParameterInArgument { func: &'static str, name: String },
     /// A constant inside `sin`/`cos`/`exp` that is not a rational multiple of pi
@@ -83,6 +86,11 @@ impl fmt::Display for CoreError {
             NonlinearArgument { func, arg } => write!(
                 f,
                 "`{func}` needs an argument linear in the state variables, got `{arg}`"
+            ),
+            FunctionArgument { call, reason } => write!(
+                f,
+                "`{call}`: an unspecified function takes arguments linear in the state plus a \
+                 constant (a number and/or a multiple of pi); {reason}"
             ),
             ParameterInArgument { func, name } => write!(
                 f,

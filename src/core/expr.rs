@@ -1115,8 +1115,14 @@ impl Expr {
     /// True if and only if some term mentions `s` (in a monomial, an
     /// argument, or time factors for `Sym::T`).
     pub fn mentions(&self, s: Sym) -> bool {
+        let atoms = super::func::any();
         self.terms.iter().any(|(k, _)| {
             k.mono.exp_of(s) != 0
+                || (atoms
+                    && k.mono
+                        .0
+                        .iter()
+                        .any(|(a, _)| super::func::atom(*a).is_some_and(|a| a.mentions(s))))
                 || !k.exp.coeff(s).is_zero()
                 || match &k.wave {
                     Wave::One => false,
@@ -1126,11 +1132,20 @@ impl Expr {
         })
     }
 
-    /// All symbols mentioned, sorted.
+    /// All symbols mentioned, sorted (with those of the arguments of
+    /// unspecified functions, see [`super::func`]).
     pub fn symbols(&self) -> Vec<Sym> {
         let mut out = Vec::new();
+        let atoms = super::func::any();
         for (k, _) in &self.terms {
             out.extend(k.mono.0.iter().map(|(s, _)| *s));
+            if atoms {
+                for (s, _) in &k.mono.0 {
+                    if let Some(a) = super::func::atom(*s) {
+                        out.extend(a.arg_syms());
+                    }
+                }
+            }
             out.extend(k.exp.0.iter().map(|(s, _)| *s));
             if let Wave::Cos(l) | Wave::Sin(l) = &k.wave {
                 out.extend(l.0.iter().map(|(s, _)| *s));
@@ -1500,6 +1515,9 @@ fn linear_arg(func: &'static str, arg: &Expr, states: &[Sym]) -> CoreResult<Line
                     .iter()
                     .find(|(s, _)| *s != Sym::T && *s != Sym::PI && !states.contains(s))
                 {
+                    if super::func::atom(*p).is_some() {
+                        return Err(nonlinear());
+                    }
                     if k.mono.exp_of(Sym::T) != 0 {
                         return Err(CoreError::SymbolicFrequency {
                             arg: arg.to_string(),
@@ -1664,7 +1682,7 @@ impl Expr {
 // ---------------------------------------------------------------------------
 // Plain rendering in the input syntax.
 
-fn fmt_lin(l: &Lin) -> String {
+pub(crate) fn fmt_lin(l: &Lin) -> String {
     let mut s = String::new();
     for (i, (sym, c)) in l.0.iter().enumerate() {
         let neg = c.is_negative();

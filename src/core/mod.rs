@@ -4,9 +4,11 @@
 //! language, the prompt or floating point. Coefficients are exact rationals.
 
 pub mod calc;
+pub mod chart;
 pub mod error;
 pub mod expr;
 pub mod field;
+pub mod func;
 pub mod limits;
 pub mod num;
 pub mod packed;

@@ -454,6 +454,12 @@ impl Packed {
     /// `∂/∂s`, `None` when a coefficient overflows: `∂(m cos L) = ∂m cos L
     /// − L_s m sin L`, `∂(m sin L) = ∂m sin L + L_s m cos L`.
     pub fn derivative(&self, s: Sym) -> Option<Packed> {
+        // Unspecified functions (see [`super::func`]) need the chain rule:
+        // the general path takes parts that hold them.
+        let atoms = super::func::packed_lanes();
+        if atoms != 0 && self.terms.iter().any(|(m, _)| m & atoms != 0) {
+            return None;
+        }
         if s.0 >= SLOTS {
             return Some(Packed::new(self.freq, self.odd, self.denom, Vec::new()));
         }

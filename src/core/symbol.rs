@@ -61,6 +61,18 @@ impl Sym {
         })
     }
 
+    /// A new symbol shown as `name` that no name lookup returns (for
+    /// applications of unspecified functions, see [`super::func`]: their
+    /// printed form is not a name a user can declare).
+    pub fn fresh(name: &str) -> Sym {
+        INTERNER.with(|cell| {
+            let mut it = cell.borrow_mut();
+            let id = it.names.len() as u32;
+            it.names.push(name.to_string());
+            Sym(id)
+        })
+    }
+
     /// The symbol's name.
     pub fn name(self) -> String {
         INTERNER.with(|cell| {

@@ -125,6 +125,18 @@ pub enum Arg {
     Pos(Expr),
     /// `q = v`, as in `plug(e, q = v)`.
     Bind(Ident, Expr),
+    /// `V(s) = body`, as in `plug(e, V(s) = -cos(s))`: a definition of an
+    /// unspecified function (name, placeholders, body).
+    BindFunc(Ident, Vec<Ident>, Expr),
+}
+
+/// One function of a `func` declaration: `J(a, b)`.
+#[derive(Clone, Debug, PartialEq)]
+pub struct FuncDecl {
+    /// The function's name.
+    pub name: Ident,
+    /// The argument names (placeholders).
+    pub params: Vec<Ident>,
 }
 
 /// One statement with its span (leading and trailing blanks and comments excluded).
@@ -145,6 +157,8 @@ pub enum StmtKind {
     Param(Vec<Ident>),
     /// `input u1, u2`
     Input(Vec<Ident>),
+    /// `func V(s), J(a, b)`
+    Func(Vec<FuncDecl>),
     /// `A = ...` or `A, W = average ... with transform`.
     Define {
         /// The names being bound (one, or several for a command).
@@ -263,14 +277,27 @@ pub enum CommandKind {
         field: Expr,
         /// The order after `to`.
         to: Spanned<u64>,
-        /// The small parameter after `in`.
+        /// The small parameter after `in` (the frequency of `in 1/w`).
         param: Ident,
+        /// `in 1/w`: a symbolic frequency w, eps = 1/w (DESIGN §2.7c).
+        inverse: bool,
         /// `strobo` or `classic` as typed.
         method: Option<Ident>,
         /// The ad-series depth after `depth`.
         depth: Option<Spanned<u64>>,
         /// Whether `with transform` was given.
         with_transform: bool,
+        /// Names for the averaged state after `as` (empty: the system's chart).
+        chart: Vec<Ident>,
+    },
+    /// `change E to r, phi by x = r*cos(phi), v = r*sin(phi)`
+    Change {
+        /// The field or scalar to rewrite.
+        field: Expr,
+        /// The new coordinates after `to`.
+        to: Vec<Ident>,
+        /// The old coordinates as expressions in the new ones, after `by`.
+        by: Vec<Assign>,
     },
     /// `carleman E degree N`
     Carleman {
@@ -352,7 +379,7 @@ impl Arg {
     pub fn span(&self) -> Span {
         match self {
             Arg::Pos(expr) => expr.span,
-            Arg::Bind(name, value) => name.span.join(value.span),
+            Arg::Bind(name, value) | Arg::BindFunc(name, _, value) => name.span.join(value.span),
         }
     }
 }
@@ -448,6 +475,14 @@ fn write_arg(out: &mut String, arg: &Arg) {
             write_expr(out, value);
             out.push(')');
         }
+        Arg::BindFunc(name, params, value) => {
+            out.push_str("(= (");
+            out.push_str(&name.name);
+            write_names(out, params);
+            out.push_str(") ");
+            write_expr(out, value);
+            out.push(')');
+        }
     }
 }
 
@@ -502,13 +537,16 @@ fn write_command(out: &mut String, command: &Command) {
             field,
             to,
             param,
+            inverse,
             method,
             depth,
             with_transform,
+            chart,
         } => {
             out.push_str("(average ");
             write_expr(out, field);
-            let _ = write!(out, " to {} in {}", to.value, param.name);
+            let per = if *inverse { "1/" } else { "" };
+            let _ = write!(out, " to {} in {per}{}", to.value, param.name);
             if let Some(method) = method {
                 out.push(' ');
                 out.push_str(&method.name);
@@ -518,6 +556,22 @@ fn write_command(out: &mut String, command: &Command) {
             }
             if *with_transform {
                 out.push_str(" transform");
+            }
+            if !chart.is_empty() {
+                let names: Vec<&str> = chart.iter().map(|c| c.name.as_str()).collect();
+                let _ = write!(out, " as {}", names.join(" "));
+            }
+            out.push(')');
+        }
+        CommandKind::Change { field, to, by } => {
+            out.push_str("(change ");
+            write_expr(out, field);
+            let names: Vec<&str> = to.iter().map(|c| c.name.as_str()).collect();
+            let _ = write!(out, " to {} by", names.join(" "));
+            for a in by {
+                let _ = write!(out, " (= {} ", a.name.name);
+                write_expr(out, &a.value);
+                out.push(')');
             }
             out.push(')');
         }
@@ -603,6 +657,16 @@ fn write_stmt(out: &mut String, stmt: &Stmt) {
         StmtKind::Input(names) => {
             out.push_str("(input");
             write_names(out, names);
+            out.push(')');
+        }
+        StmtKind::Func(decls) => {
+            out.push_str("(func");
+            for d in decls {
+                out.push_str(" (");
+                out.push_str(&d.name.name);
+                write_names(out, &d.params);
+                out.push(')');
+            }
             out.push(')');
         }
         StmtKind::Define { names, rhs } => {

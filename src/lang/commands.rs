@@ -72,6 +72,7 @@ impl Session {
                 want(1, span)?;
                 let n = order_arg(to.value, to.span)?;
                 let v = self.eval_field(field, "the field of `flow`")?;
+                self.refuse_phase(&v.field.0, field.span, "the field of `flow`")?;
                 let h = match on {
                     Some(h) => Some(self.eval_scalar(h, "the output of `flow … on h`")?),
                     None => None,
@@ -82,6 +83,7 @@ impl Session {
                 want(1, span)?;
                 let n = order_arg(to.value, to.span)?;
                 let v = self.eval_field(field, "the field of `magnus`")?;
+                self.refuse_phase(&v.field.0, field.span, "the field of `magnus`")?;
                 let period = match over {
                     Some(t) => Some((
                         self.eval_scalar(t, "the horizon of `magnus … over T`")?,
@@ -95,13 +97,18 @@ impl Session {
                 field,
                 to,
                 param,
+                inverse,
                 method,
                 depth,
                 with_transform,
+                chart,
             } => {
                 let n = order_arg(to.value, to.span)?;
                 let v = self.eval_field(field, "the system of `average`")?;
                 let eps = self.param_sym(param)?;
+                if !*inverse {
+                    self.refuse_phase(&v.field.0, field.span, "the system of `average … in eps`")?;
+                }
                 let method = match method.as_ref().map(|m| m.name.as_str()) {
                     None | Some("strobo") => Method::Strobo,
                     Some("classic") => Method::Classic,
@@ -130,7 +137,21 @@ impl Session {
                     depth,
                     with_transform: *with_transform,
                 };
-                self.average(&v, eps, &opts, span, report)?
+                let results = if *inverse {
+                    self.average_in_frequency(&v, eps, &opts, span, report)?
+                } else {
+                    self.average(&v, eps, &opts, span, report)?
+                };
+                if chart.is_empty() {
+                    self.note_averaged_chart(report);
+                    results
+                } else {
+                    self.name_averaged_state(chart, results, span, report)?
+                }
+            }
+            CommandKind::Change { field, to, by } => {
+                want(1, span)?;
+                vec![self.change(field, to, by, span, report)?]
             }
             CommandKind::Carleman { field, degree } => {
                 want(1, span)?;
@@ -255,8 +276,10 @@ impl Session {
         report: &mut Report,
     ) -> R<Value> {
         let core = |e: CoreError| SessionError::core(span, e);
+        let mut horizon_span = span;
         let (horizon, period) = match over {
             Some((t, tspan)) => {
+                horizon_span = tspan;
                 let p = period_from_expr(&t);
                 if t.as_number().is_none() && p.is_none() {
                     return Err(SessionError::invalid(
@@ -282,7 +305,12 @@ impl Session {
                 Some(p) => chrono::field_at_period(wk, p),
                 None => wk.map(|e| chrono::at_time(e, &horizon, &self.states)),
             }
-            .map_err(core)?;
+            .map_err(|e| match e {
+                CoreError::Irrational { what } => {
+                    irrational_horizon(&what, &horizon, &v.field, horizon_span)
+                }
+                other => core(other),
+            })?;
             orders.push(at);
         }
         report.push(
@@ -339,7 +367,8 @@ impl Session {
         report: &mut Report,
     ) -> R<Vec<Value>> {
         let core = |e: CoreError| SessionError::core(span, e);
-        let res = averaging::average(&v.field, eps, opts, &self.states).map_err(core)?;
+        let res = averaging::average(&v.field, eps, opts, &self.states)
+            .map_err(|e| core(name_small_parameter(e, eps)))?;
         let e = eps.name();
         match &res.form {
             Form::Standard => report.push(
@@ -351,6 +380,7 @@ impl Session {
             ),
             Form::FastOscillation {
                 generator,
+                zero_mean,
                 depth,
                 ended,
             } => {
@@ -365,6 +395,15 @@ impl Session {
                         g.join(" + "),
                         res.period
                     ),
+                );
+                report.push(
+                    Style::Note,
+                    if *zero_mean {
+                        "base: zero-mean antiderivatives U_i = ∫_0^t u_i - mean(∫_0^t u_i) (classical, \
+                         the vibrational transform); full transform x = exp(Y(t))(y + W(t, y))"
+                    } else {
+                        "base: U_i = ∫_0^t u_i (stroboscopic: x = z at multiples of the period)"
+                    },
                 );
                 if *ended {
                     report.push(Style::Note, format!("ad-series ends at depth {depth}"));
@@ -422,6 +461,39 @@ impl Session {
                         .map_err(core)?
                 }
             },
+            (Some(combo), Form::FastOscillation { zero_mean, .. }) => {
+                let s = optional_structure(
+                    super::structural::fast_oscillation_structure(
+                        combo,
+                        opts.order,
+                        &res.period,
+                        eps,
+                        *zero_mean,
+                        opts.depth,
+                        &self.states,
+                    ),
+                    report,
+                )
+                .map_err(core)?;
+                if s.is_some() {
+                    let g: Vec<&str> = combo
+                        .parts
+                        .iter()
+                        .filter(|(_, _, c)| !c.coeff_of_power(eps, 0).is_zero())
+                        .map(|(n, _, _)| n.as_str())
+                        .collect();
+                    report.push(
+                        Style::Note,
+                        format!(
+                            "bracket form in the letters with {} commuting (as the fast-oscillation \
+                             form needs): over ad-words [G, [G, …]], those that vanish on these \
+                             fields left out",
+                            g.join(", ")
+                        ),
+                    );
+                }
+                s
+            }
             _ => None,
         };
         if structure.is_some() {
@@ -442,6 +514,7 @@ impl Session {
             transform: res.transform.clone(),
             period: res.period.clone(),
             classic: opts.method == Method::Classic,
+            outer: res.outer_at_zero(),
         };
         let mut out = vec![Value::Field(FieldValue {
             field: total,
@@ -465,6 +538,18 @@ impl Session {
 
     fn carleman(&self, x: &Field, degree: u32, span: Span, report: &mut Report) -> R<Value> {
         let core = |e: CoreError| SessionError::core(span, e);
+        if let Some(a) = x.0.iter().find_map(Expr::first_atom) {
+            return Err(SessionError::invalid(
+                span,
+                format!(
+                    "`carleman` needs a polynomial field, and `{a}` is an unspecified function: \
+                     its section on monomials is not finite (plug a polynomial definition first, \
+                     e.g. `plug(X, {}({}) = …)`)",
+                    a.sig.name,
+                    a.sig.params.join(", ")
+                ),
+            ));
+        }
         // The section is a dense N x N matrix on the C(n + d, d) monomials:
         // with many states it is astronomically large, so count its entries
         // against the term budget before building anything.
@@ -516,6 +601,42 @@ impl Session {
         );
         Ok(Value::Matrix(m))
     }
+}
+
+/// The averaging core calls the order-0 part of the system "the eps^0
+/// part"; say it with the small parameter actually used (`in k`).
+fn name_small_parameter(e: CoreError, eps: Sym) -> CoreError {
+    match e {
+        CoreError::Refused { reason } => CoreError::Refused {
+            reason: reason.replace("eps^0", &format!("{}^0", eps.name())),
+        },
+        other => other,
+    }
+}
+
+/// A horizon at which some `cos`/`sin` of time is irrational: ordex keeps
+/// coefficients rational (no algebraic numbers such as sqrt(3)), so say
+/// where the values are rational for this field's frequencies.
+fn irrational_horizon(what: &str, horizon: &Expr, field: &Field, span: Span) -> SessionError {
+    let mut g: Option<Q> = None;
+    for f in field.0.iter().flat_map(Expr::frequencies) {
+        g = Some(match g {
+            None => f,
+            Some(h) => h.gcd(&f),
+        });
+    }
+    let at = g
+        .and_then(|g| Q::ratio(1, 2).and_then(|h| h.div(&g)))
+        .map(|c| format!("{}", Expr::sym(Sym::PI).scale(&c)))
+        .unwrap_or_else(|| "pi/2".to_string());
+    SessionError::invalid(
+        span,
+        format!(
+            "over {horizon}, `{what}` is irrational: ordex keeps every coefficient rational \
+             (it has no sqrt(3)), so cos and sin of time are evaluated only where they are rational; \
+             for this field both are at the multiples of {at} (or omit `over` for the period)"
+        ),
+    )
 }
 
 /// The binomial coefficient `C(n, k)`, saturating.

@@ -124,6 +124,46 @@ pub(super) fn floor_boundary(text: &str, byte: usize) -> usize {
     byte
 }
 
+/// The candidate nearest to a misspelt `word` (at most two edits, fewer
+/// than its length, never the word itself), for "did you mean" hints.
+pub fn nearest<'a>(word: &str, candidates: impl IntoIterator<Item = &'a str>) -> Option<&'a str> {
+    let mut best: Option<(usize, &str)> = None;
+    for c in candidates {
+        let d = super::session::edit_distance(word, c);
+        if d > 0 && d <= 2 && d < word.len().max(2) && best.is_none_or(|(bd, _)| d < bd) {
+            best = Some((d, c));
+        }
+    }
+    best.map(|(_, c)| c)
+}
+
+/// For a statement that did not parse: when its first word is an unknown
+/// name close to a command or statement word (`averge S to 2 in eps`), the
+/// word's span and a message with the suggestion.
+pub fn misspelt_command(text: &str, is_known: impl Fn(&str) -> bool) -> Option<(Span, String)> {
+    let start = text.len() - text.trim_start().len();
+    let rest = &text[start..];
+    let len = rest
+        .find(|c: char| !(c.is_ascii_alphanumeric() || c == '_'))
+        .unwrap_or(rest.len());
+    let word = &rest[..len];
+    if word.is_empty() || word.starts_with(|c: char| c.is_ascii_digit()) || is_known(word) {
+        return None;
+    }
+    if super::parse::is_reserved(word) {
+        return None;
+    }
+    let words = super::parse::COMMAND_WORDS
+        .iter()
+        .chain(super::parse::STATEMENT_WORDS)
+        .copied();
+    let hint = nearest(word, words)?;
+    Some((
+        Span::new(start, start + len),
+        format!("unknown command `{word}` (did you mean `{hint}`?)"),
+    ))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -214,6 +254,17 @@ mod tests {
             let (_, column) = line_col(&text, start);
             proptest::prop_assert!(column >= 1);
         }
+    }
+
+    #[test]
+    fn misspelt_command_words_get_a_suggestion() {
+        let (span, msg) = misspelt_command("averge S to 2 in eps", |_| false).unwrap();
+        assert_eq!(span, Span::new(0, 6));
+        assert_eq!(msg, "unknown command `averge` (did you mean `average`?)");
+        assert!(misspelt_command("  chek x == 1", |_| false).is_some());
+        // A known name or a far word gets none.
+        assert!(misspelt_command("averge S", |w| w == "averge").is_none());
+        assert!(misspelt_command("zzzzzz + ", |_| false).is_none());
     }
 
     #[test]

@@ -4,9 +4,11 @@
 use std::collections::HashMap;
 
 use super::ast::{Arg, BinOp, Expr as Ast, ExprKind, Ident, Span};
-use super::session::{edit_distance, ErrorKind, Session, SessionError, SymKind};
+use super::session::{ErrorKind, Session, SessionError, SymKind};
 use super::value::{Combo, FieldValue, Value};
 use crate::core::calc::common_period;
+use crate::core::func::{Arg as FuncArg, Definition, Signature};
+use std::sync::Arc;
 use crate::core::{CoreError, Expr, Field, Matrix, Sym, Q};
 
 /// Names of the built-in functions.
@@ -30,7 +32,28 @@ fn kind_err(span: Span, op: &str, left: &Value, right: Option<&Value>) -> Sessio
 
 /// The symbol name of an iterated integral `iint(u1, u2)`.
 pub fn iint_name(args: &[String]) -> String {
-    format!("iint({})", args.join(", "))
+    crate::series::shuffle::iint_name(args)
+}
+
+/// A value with its products of iterated integrals rewritten as sums
+/// (shuffle identity), so that its normal form is canonical.
+pub(crate) fn reduce_iint_products(v: Value) -> Result<Value, CoreError> {
+    use crate::series::shuffle::reduce_products;
+    Ok(match v {
+        Value::Scalar(x) => Value::Scalar(reduce_products(&x)?),
+        Value::Field(mut f) => {
+            f.field = f.field.map(reduce_products)?;
+            Value::Field(f)
+        }
+        Value::Matrix(m) => Value::Matrix(Matrix {
+            data: m
+                .data
+                .iter()
+                .map(reduce_products)
+                .collect::<Result<_, _>>()?,
+            ..m
+        }),
+    })
 }
 
 impl Session {
@@ -46,19 +69,13 @@ impl Session {
 
     /// Suggests the nearest known name.
     pub(crate) fn suggest(&self, name: &str) -> Option<String> {
-        let mut best: Option<(usize, String)> = None;
-        let candidates = self
-            .known_names()
-            .into_iter()
-            .chain(BUILTINS.iter().map(|s| s.to_string()))
-            .chain(["t", "pi"].iter().map(|s| s.to_string()));
-        for c in candidates {
-            let d = edit_distance(name, &c);
-            if d <= 2 && d < name.len().max(2) && best.as_ref().is_none_or(|(bd, _)| d < *bd) {
-                best = Some((d, c));
-            }
-        }
-        best.map(|(_, c)| c)
+        let known = self.known_names();
+        let candidates = known
+            .iter()
+            .map(String::as_str)
+            .chain(BUILTINS.iter().copied())
+            .chain(["t", "pi"]);
+        super::diag::nearest(name, candidates).map(str::to_string)
     }
 
     fn unknown(&self, name: &str, span: Span) -> SessionError {
@@ -94,9 +111,18 @@ impl Session {
                 )),
                 Value::Matrix(m) => Ok(Value::Matrix(m.mul_expr(&Expr::int(-1)).map_err(core)?)),
             },
-            ExprKind::Bin(op, a, b) => self.eval_bin(*op, a, b, e.span),
+            ExprKind::Bin(op, a, b) => {
+                let v = self.eval_bin(*op, a, b, e.span)?;
+                match op {
+                    BinOp::Mul | BinOp::Div | BinOp::Pow => reduce_iint_products(v).map_err(core),
+                    BinOp::Add | BinOp::Sub => Ok(v),
+                }
+            }
             ExprKind::Call(name, args) => self.eval_call(name, args, e.span),
             ExprKind::Apply(target, args) => {
+                if let Some(v) = self.eval_derivative_call(target, args, e.span)? {
+                    return Ok(v);
+                }
                 let v = self.eval(target)?;
                 self.apply_field(v, target.span, args, e.span)
             }
@@ -154,6 +180,18 @@ impl Session {
             "t" => return Ok(Value::Scalar(Expr::sym(Sym::T))),
             "pi" => return Ok(Value::Scalar(Expr::sym(Sym::PI))),
             _ => {}
+        }
+        if let Some(p) = self.placeholder(name) {
+            return Ok(Value::Scalar(Expr::sym(p)));
+        }
+        if let Some(f) = self.funcs.get(name) {
+            return Err(SessionError::invalid(
+                span,
+                format!(
+                    "`{name}` is an unspecified function: apply it to the state, e.g. `{name}({})`",
+                    f.params.join(", ")
+                ),
+            ));
         }
         if self.symbols.contains_key(name) {
             return Ok(Value::Scalar(Expr::sym(Sym::new(name))));
@@ -372,7 +410,7 @@ impl Session {
         for a in args {
             match a {
                 Arg::Pos(e) => out.push(e),
-                Arg::Bind(id, _) => {
+                Arg::Bind(id, _) | Arg::BindFunc(id, _, _) => {
                     return Err(SessionError::invalid(
                         id.span,
                         format!(
@@ -419,10 +457,16 @@ impl Session {
             f @ ("sin" | "cos" | "exp") => {
                 let a = self.pos_args(name, args, 1, &format!("{f}(x)"))?;
                 let x = self.eval_scalar(a[0], &format!("the argument of `{f}`"))?;
+                // `w*t` (w a parameter) is a symbolic-frequency phase (DESIGN §2.7c).
+                let (x, mut st) = match f {
+                    "exp" => (x, self.states.clone()),
+                    _ => self.phase_arg(&x),
+                };
+                st.extend(self.placeholders.borrow().iter().map(|(_, s)| *s));
                 let r = match f {
-                    "sin" => Expr::sin_of(&x, &self.states),
-                    "cos" => Expr::cos_of(&x, &self.states),
-                    _ => Expr::exp_of(&x, &self.states),
+                    "sin" => Expr::sin_of(&x, &st),
+                    "cos" => Expr::cos_of(&x, &st),
+                    _ => Expr::exp_of(&x, &st),
                 };
                 Ok(Value::Scalar(
                     r.map_err(|e| SessionError::core(a[0].span, e))?,
@@ -449,12 +493,33 @@ impl Session {
             }
             "pd" => {
                 let a = self.pos_args(name, args, 2, "pd(h, q)")?;
+                if let ExprKind::Name(n) = &a[0].kind {
+                    if let Some(f) = self.funcs.get(n) {
+                        return Err(SessionError::invalid(
+                            span,
+                            format!(
+                                "a derivative of the function `{n}` is applied to arguments: \
+                                 write `pd({n}, {})(…)` (or `{n}'(…)` for one argument)",
+                                f.params[0],
+                            ),
+                        ));
+                    }
+                }
                 let s = self.symbol_arg(
                     a[1],
                     &[SymKind::State, SymKind::Param],
                     "the second argument of `pd` must be a state, a parameter or t",
                 )?;
-                match self.eval(a[0])? {
+                let v = self.eval(a[0])?;
+                if s == Sym::T {
+                    let es: Vec<&Expr> = match &v {
+                        Value::Scalar(x) => vec![x],
+                        Value::Field(f) => f.field.0.iter().collect(),
+                        Value::Matrix(m) => m.data.iter().collect(),
+                    };
+                    self.refuse_phase(es, a[0].span, "`pd(…, t)` of this expression")?;
+                }
+                match v {
                     Value::Scalar(h) => Ok(Value::Scalar(h.pd(s))),
                     Value::Field(f) => Ok(Value::field(Field(
                         f.field.0.iter().map(|c| c.pd(s)).collect(),
@@ -535,6 +600,7 @@ impl Session {
                     Value::Field(f) => f.field.0.iter().collect(),
                     Value::Matrix(m) => m.data.iter().collect(),
                 };
+                self.refuse_phase(exprs.iter().copied(), a[0].span, "the argument of `mean`")?;
                 let mut freqs = Vec::new();
                 for x in &exprs {
                     x.check_periodic()
@@ -572,7 +638,7 @@ impl Session {
                             kind: ExprKind::Num(n),
                             ..
                         }) if n == "1" => names.push("1".to_string()),
-                        Arg::Pos(e) | Arg::Bind(_, e) => {
+                        Arg::Pos(e) | Arg::Bind(_, e) | Arg::BindFunc(_, _, e) => {
                             return Err(SessionError::invalid(
                                 e.span,
                                 "`iint` takes input names (declared with `input`) or 1",
@@ -589,6 +655,32 @@ impl Session {
                 Ok(Value::Scalar(Expr::sym(Sym::new(&iint_name(&names)))))
             }
             other => {
+                let base = other.trim_end_matches('\'');
+                if let Some(sig) = self.funcs.get(base) {
+                    let primes = (other.len() - base.len()) as u32;
+                    if primes > 0 && sig.params.len() != 1 {
+                        return Err(SessionError::invalid(
+                            name.span,
+                            format!(
+                                "primes mark derivatives of a function of one argument; \
+                                 `{base}` takes {}: write `pd({base}, {})(…)`",
+                                sig.params.len(),
+                                sig.params[0],
+                            ),
+                        ));
+                    }
+                    let deriv = if primes > 0 { vec![primes] } else { vec![0; sig.params.len()] };
+                    let sig = sig.clone();
+                    return self.apply_func(&sig, &deriv, name.span, args, span);
+                }
+                if base.len() != other.len() {
+                    return Err(SessionError::invalid(
+                        name.span,
+                        format!(
+                            "`{base}` is not an unspecified function (declare it with `func {base}(s)`)"
+                        ),
+                    ));
+                }
                 if let Some(v) = self.names.get(other) {
                     return self.apply_field(v.clone(), name.span, args, span);
                 }
@@ -606,13 +698,29 @@ impl Session {
     fn eval_plug(&self, name: &Ident, args: &[Arg], span: Span) -> R<Value> {
         let mut target = None;
         let mut map: HashMap<Sym, Expr> = HashMap::new();
+        let mut defs: Vec<Definition> = Vec::new();
+        let mut inputs: HashMap<String, Expr> = HashMap::new();
         for a in args {
             match a {
+                Arg::BindFunc(id, params, body) => defs.push(self.definition(id, params, body)?),
                 Arg::Pos(e) if target.is_none() => target = Some(e),
                 Arg::Pos(e) => {
                     return Err(SessionError::invalid(e.span, "usage: plug(e, q = v, …)"))
                 }
                 Arg::Bind(id, v) => {
+                    if self.sym_kind(&id.name) == Some(SymKind::Input) {
+                        let val = self.eval_scalar(v, "a plugged input")?;
+                        if !self.is_state_free(&val) {
+                            return Err(SessionError::invalid(
+                                v.span,
+                                format!(
+                                    "an input is a function of time (and parameters): `{val}` mentions the state"
+                                ),
+                            ));
+                        }
+                        inputs.insert(id.name.clone(), val);
+                        continue;
+                    }
                     let s = match id.name.as_str() {
                         "t" => Sym::T,
                         n if matches!(self.sym_kind(n), Some(SymKind::State | SymKind::Param)) => {
@@ -622,7 +730,7 @@ impl Session {
                             return Err(SessionError::invalid(
                                 id.span,
                                 format!(
-                                "`{n}` is not a state or a parameter: only those can be plugged"
+                                "`{n}` is not a state, a parameter or an input: only those can be plugged"
                             ),
                             ))
                         }
@@ -636,20 +744,238 @@ impl Session {
             return Err(SessionError::invalid(name.span, "usage: plug(e, q = v, …)"));
         };
         let core = |err: CoreError| SessionError::core(span, err);
-        let st = &self.states;
-        Ok(match self.eval(target)? {
-            Value::Scalar(x) => Value::Scalar(x.subst(&map, st).map_err(core)?),
-            Value::Field(f) => Value::field(f.field.map(|c| c.subst(&map, st)).map_err(core)?),
+        let mut value = self.eval(target)?;
+        for def in &mut defs {
+            value = map_value(value, &mut |c: &Expr| c.plug_definition(def, &self.states))
+                .map_err(core)?;
+        }
+        let es: Vec<&Expr> = match &value {
+            Value::Scalar(x) => vec![x],
+            Value::Field(f) => f.field.0.iter().collect(),
+            Value::Matrix(m) => m.data.iter().collect(),
+        };
+        let st = &self.plug_phases(&es, &mut map, span)?;
+        let sub = |c: &Expr| {
+            if inputs.is_empty() {
+                c.subst(&map, st)
+            } else {
+                crate::series::shuffle::evaluate(c, &inputs, &map, st)
+            }
+        };
+        let v = match value {
+            Value::Scalar(x) => Value::Scalar(sub(&x).map_err(core)?),
+            Value::Field(f) => Value::field(f.field.map(sub).map_err(core)?),
             Value::Matrix(m) => Value::Matrix(Matrix {
                 data: m
                     .data
                     .iter()
-                    .map(|c| c.subst(&map, st))
+                    .map(sub)
                     .collect::<Result<_, _>>()
                     .map_err(core)?,
                 ..m
             }),
-        })
+        };
+        reduce_iint_products(v).map_err(core)
+    }
+}
+
+/// A value with `f` applied to every scalar entry (the field's extra
+/// structure is dropped: the value changed).
+fn map_value(v: Value, f: &mut dyn FnMut(&Expr) -> Result<Expr, CoreError>) -> Result<Value, CoreError> {
+    Ok(match v {
+        Value::Scalar(x) => Value::Scalar(f(&x)?),
+        Value::Field(fv) => Value::field(fv.field.map(f)?),
+        Value::Matrix(m) => Value::Matrix(Matrix {
+            data: m.data.iter().map(&mut *f).collect::<Result<_, _>>()?,
+            ..m
+        }),
+    })
+}
+
+impl Session {
+    /// The states for the arguments of `sin`, `cos`, `exp` and unspecified
+    /// functions: the state, and while a definition's body is read, its
+    /// placeholders.
+    fn arg_states(&self) -> Vec<Sym> {
+        let mut st = self.states.clone();
+        st.extend(self.placeholders.borrow().iter().map(|(_, s)| *s));
+        st
+    }
+
+    /// The placeholder `name` of a definition being read.
+    fn placeholder(&self, name: &str) -> Option<Sym> {
+        self.placeholders
+            .borrow()
+            .iter()
+            .find(|(n, _)| n == name)
+            .map(|(_, s)| *s)
+    }
+
+    /// `f^(deriv)(args)` for a declared function.
+    fn apply_func(
+        &self,
+        sig: &Arc<Signature>,
+        deriv: &[u32],
+        name_span: Span,
+        args: &[Arg],
+        span: Span,
+    ) -> R<Value> {
+        let n = sig.params.len();
+        let shown = format!("{}({})", sig.name, sig.params.join(", "));
+        let mut values = Vec::with_capacity(n);
+        let st = self.arg_states();
+        for (i, a) in args.iter().enumerate() {
+            let Arg::Pos(e) = a else {
+                return Err(SessionError::invalid(
+                    a.span(),
+                    format!("`{}` takes positional arguments, as declared: `{shown}`", sig.name),
+                ));
+            };
+            let x = self.eval_scalar(e, &format!("an argument of `{}`", sig.name))?;
+            if let Err(reason) = FuncArg::from_expr(&x, &st) {
+                return Err(SessionError::core(
+                    e.span,
+                    CoreError::FunctionArgument {
+                        call: {
+                            let mut shown: Vec<String> = vec!["…".to_string(); args.len()];
+                            shown[i] = x.to_string();
+                            format!("{}({})", sig.name, shown.join(", "))
+                        },
+                        reason,
+                    },
+                ));
+            }
+            values.push(x);
+        }
+        if values.len() != n {
+            return Err(SessionError::invalid(
+                name_span,
+                format!(
+                    "`{}` takes {n} argument{}, as declared (`{shown}`), got {}",
+                    sig.name,
+                    if n == 1 { "" } else { "s" },
+                    values.len()
+                ),
+            ));
+        }
+        Expr::apply_function(sig, deriv, &values, &st)
+            .map(Value::Scalar)
+            .map_err(|e| SessionError::core(span, e))
+    }
+
+    /// `pd(J, a, …)(x, y)`: a derivative of a declared function applied;
+    /// `None` when `target` is not `pd` of a function.
+    fn eval_derivative_call(&self, target: &Ast, args: &[Arg], span: Span) -> R<Option<Value>> {
+        let ExprKind::Call(head, pd_args) = &target.kind else {
+            return Ok(None);
+        };
+        if head.name != "pd" {
+            return Ok(None);
+        }
+        let Some(Arg::Pos(Ast {
+            kind: ExprKind::Name(fname),
+            ..
+        })) = pd_args.first()
+        else {
+            return Ok(None);
+        };
+        let Some(sig) = self.funcs.get(fname).cloned() else {
+            return Ok(None);
+        };
+        let mut deriv = vec![0u32; sig.params.len()];
+        for a in &pd_args[1..] {
+            let j = match a {
+                Arg::Pos(Ast {
+                    kind: ExprKind::Name(p),
+                    ..
+                }) => sig.params.iter().position(|q| q == p),
+                _ => None,
+            };
+            let Some(j) = j else {
+                return Err(SessionError::invalid(
+                    a.span(),
+                    format!(
+                        "`pd({fname}, …)` takes argument names of `{fname}({})`",
+                        sig.params.join(", ")
+                    ),
+                ));
+            };
+            deriv[j] += 1;
+        }
+        if pd_args.len() < 2 {
+            return Err(SessionError::invalid(
+                target.span,
+                format!("`pd({fname}, …)` needs an argument name to differentiate in"),
+            ));
+        }
+        self.apply_func(&sig, &deriv, head.span, args, span).map(Some)
+    }
+
+    /// Reads `V(s) = body` of `plug`.
+    fn definition(&self, id: &Ident, params: &[Ident], body: &Ast) -> R<Definition> {
+        let Some(sig) = self.funcs.get(&id.name).cloned() else {
+            return Err(SessionError::invalid(
+                id.span,
+                format!(
+                    "`{}` is not an unspecified function (declared with `func`): only those take a definition",
+                    id.name
+                ),
+            ));
+        };
+        if params.len() != sig.params.len() {
+            return Err(SessionError::invalid(
+                id.span,
+                format!(
+                    "`{}` takes {} argument{} (`{}({})`), the definition names {}",
+                    sig.name,
+                    sig.params.len(),
+                    if sig.params.len() == 1 { "" } else { "s" },
+                    sig.name,
+                    sig.params.join(", "),
+                    params.len()
+                ),
+            ));
+        }
+        let mut names: Vec<(String, Sym)> = Vec::new();
+        for p in params {
+            if names.iter().any(|(n, _)| *n == p.name) {
+                return Err(SessionError::invalid(
+                    p.span,
+                    format!("argument `{}` is listed twice", p.name),
+                ));
+            }
+            if matches!(self.sym_kind(&p.name), Some(k) if k != SymKind::State) || p.name == "t" || p.name == "pi" {
+                return Err(SessionError::invalid(
+                    p.span,
+                    format!(
+                        "`{}` is already declared: name the argument of the definition otherwise",
+                        p.name
+                    ),
+                ));
+            }
+            names.push((p.name.clone(), Sym::new(&p.name)));
+        }
+        let syms: Vec<Sym> = names.iter().map(|(_, s)| *s).collect();
+        *self.placeholders.borrow_mut() = names;
+        let value = self.eval_scalar(body, "the definition of a function");
+        self.placeholders.borrow_mut().clear();
+        let value = value?;
+        if let Some(bad) = value
+            .symbols()
+            .into_iter()
+            .find(|s| *s == Sym::T || (self.states.contains(s) && !syms.contains(s)))
+        {
+            return Err(SessionError::invalid(
+                body.span,
+                format!(
+                    "the definition of `{}` may use its arguments ({}) and parameters only, not `{}`",
+                    sig.name,
+                    sig.params.join(", "),
+                    bad.name()
+                ),
+            ));
+        }
+        Ok(Definition::new(sig, syms, value))
     }
 }
 

@@ -27,6 +27,7 @@ impl Session {
             StmtKind::State(ids) => self.declare_state(ids)?,
             StmtKind::Param(ids) => self.declare(ids, SymKind::Param)?,
             StmtKind::Input(ids) => self.declare(ids, SymKind::Input)?,
+            StmtKind::Func(decls) => self.declare_funcs(decls)?,
             StmtKind::Define { names, rhs } => match rhs {
                 Rhs::Expr(e) => {
                     if names.len() != 1 {
@@ -43,7 +44,7 @@ impl Session {
             StmtKind::Print(e) => {
                 let v = self.eval(e)?;
                 report.push(Style::Result, plain::value(&v));
-                report.rich = Some(Rich::Value(v));
+                report.rich = Some(Rich::Value(v, self.states.clone()));
             }
             StmtKind::Run(c) => self.run_command(c, &[], &mut report, started)?,
             StmtKind::Check { lhs, rhs } => self.check(lhs, rhs, &mut report, src, origin)?,
@@ -51,7 +52,9 @@ impl Session {
                 let v = self.eval(expr)?;
                 match how.name.as_str() {
                     "latex" => {
-                        report.push(Style::Result, latex::value(&v));
+                        for l in latex::value(&v, &self.states).lines() {
+                            report.push(Style::Result, l);
+                        }
                         report.rich = Some(Rich::Latex);
                     }
                     "brackets" => match &v {
@@ -85,7 +88,12 @@ impl Session {
                     let p = self.resolve_path(&path.path);
                     let mut text = self.accepted.join("\n");
                     text.push('\n');
-                    crate::lang::files::write_atomic(&p, text.as_bytes()).map_err(|e| {
+                    crate::lang::files::write_file(
+                        &p,
+                        text.as_bytes(),
+                        crate::lang::files::FileKind::Script,
+                    )
+                    .map_err(|e| {
                         SessionError::at(
                             path.span,
                             ErrorKind::File {
@@ -102,26 +110,17 @@ impl Session {
             }
             StmtKind::RunFile(path) => self.run_file(&path.path, path.span, &mut report)?,
             StmtKind::Names => self.list_names(&mut report),
-            StmtKind::Forget(id) => {
-                if self.names.remove(&id.name).is_none() {
-                    return Err(SessionError::at(
-                        id.span,
-                        ErrorKind::UnknownName {
-                            name: id.name.clone(),
-                            suggestion: self.suggest(&id.name),
-                        },
-                    ));
-                }
-                self.order.retain(|n| n != &id.name);
-                report.push(Style::Note, format!("forgot {}", id.name));
-            }
+            StmtKind::Forget(id) => self.forget(id, &mut report)?,
             StmtKind::Help(word) => {
                 let text =
                     super::help::help(word.as_ref().map(|w| w.name.as_str())).ok_or_else(|| {
                         let w = word.as_ref().map_or(String::new(), |w| w.name.clone());
+                        let hint = super::diag::nearest(&w, super::help::topic_words())
+                            .map(|h| format!(" (did you mean `help {h}`?)"))
+                            .unwrap_or_default();
                         SessionError::invalid(
                             word.as_ref().map_or(stmt.span, |w| w.span),
-                            format!("no help for `{w}`; `help` lists the topics"),
+                            format!("no help for `{w}`{hint}; `help` lists the topics"),
                         )
                     })?;
                 for l in text.lines() {
@@ -142,12 +141,13 @@ impl Session {
         Ok(report)
     }
 
-    fn check_new_name(&self, id: &Ident, allow_redefine_value: bool) -> R<()> {
+    pub(crate) fn check_new_name(&self, id: &Ident, allow_redefine_value: bool) -> R<()> {
         if let Some(k) = self.symbols.get(&id.name) {
             let what = match k {
                 SymKind::State => "a state coordinate",
                 SymKind::Param => "a parameter",
                 SymKind::Input => "an input",
+                SymKind::Func => "an unspecified function",
             };
             return Err(SessionError::invalid(
                 id.span,
@@ -199,12 +199,62 @@ impl Session {
                 self.check_new_name(id, false)?;
             }
         }
+        self.check_state_against_charts(ids)?;
         for s in &old {
             self.symbols.remove(s);
         }
         self.states = ids.iter().map(|i| Sym::new(&i.name)).collect();
         for id in ids {
             self.symbols.insert(id.name.clone(), SymKind::State);
+        }
+        Ok(())
+    }
+
+    /// `func V(s), J(a, b)`: checks every declaration before recording
+    /// any; declaring a function again with the same arguments is a no-op.
+    fn declare_funcs(&mut self, decls: &[super::ast::FuncDecl]) -> R<()> {
+        use crate::core::func::Signature;
+        let mut new: Vec<Signature> = Vec::new();
+        for (i, d) in decls.iter().enumerate() {
+            let sig = Signature {
+                name: d.name.name.clone(),
+                params: d.params.iter().map(|p| p.name.clone()).collect(),
+            };
+            if decls[..i].iter().any(|e| e.name.name == d.name.name) {
+                return Err(SessionError::invalid(
+                    d.name.span,
+                    format!("`{}` is listed twice", d.name.name),
+                ));
+            }
+            for (j, p) in d.params.iter().enumerate() {
+                if d.params[..j].iter().any(|o| o.name == p.name) {
+                    return Err(SessionError::invalid(
+                        p.span,
+                        format!("argument `{}` is listed twice", p.name),
+                    ));
+                }
+            }
+            if let Some(old) = self.funcs.get(&d.name.name) {
+                if **old == sig {
+                    continue;
+                }
+                return Err(SessionError::invalid(
+                    d.name.span,
+                    format!(
+                        "`{}` is already declared as `{}({})`",
+                        old.name,
+                        old.name,
+                        old.params.join(", ")
+                    ),
+                ));
+            }
+            self.check_new_name(&d.name, false)?;
+            new.push(sig);
+        }
+        for sig in new {
+            self.symbols.insert(sig.name.clone(), SymKind::Func);
+            self.funcs
+                .insert(sig.name.clone(), std::sync::Arc::new(sig));
         }
         Ok(())
     }
@@ -227,6 +277,7 @@ impl Session {
     pub(crate) fn bind(&mut self, id: &Ident, v: Value, report: &mut Report) -> R<()> {
         self.check_new_name(id, true)?;
         let summary = self.describe(&v);
+        self.record_chart(&id.name, &v);
         if self.names.insert(id.name.clone(), v).is_some() {
             report.push(
                 Style::Note,
@@ -239,8 +290,13 @@ impl Session {
         Ok(())
     }
 
-    /// A one-line description of a value's kind.
+    /// A one-line description of a value's kind (a field on the current chart).
     pub(crate) fn describe(&self, v: &Value) -> String {
+        self.describe_on(v, &self.states)
+    }
+
+    /// A one-line description of a value's kind, a field on `chart`.
+    fn describe_on(&self, v: &Value, chart: &[Sym]) -> String {
         match v {
             Value::Scalar(e) => {
                 let tv = if e.is_time_varying() {
@@ -258,9 +314,9 @@ impl Session {
                 let tv = f.field.0.iter().any(|e| e.is_time_varying());
                 let n = f.field.n_terms();
                 let mut s = format!(
-                    "{}field on ({}), {} term{}",
+                    "{}field on {}, {} term{}",
                     if tv { "time-varying " } else { "" },
-                    self.state_list(),
+                    super::chart::chart_name(chart),
                     n,
                     if n == 1 { "" } else { "s" }
                 );
@@ -297,14 +353,87 @@ impl Session {
         if !inputs.is_empty() {
             report.push(Style::Plain, format!("input  {}", inputs.join(", ")));
         }
+        if !self.funcs.is_empty() {
+            let shown: Vec<String> = self
+                .funcs
+                .values()
+                .map(|f| format!("{}({})", f.name, f.params.join(", ")))
+                .collect();
+            report.push(Style::Plain, format!("func   {}", shown.join(", ")));
+        }
+        for line in self.chart_lines() {
+            report.push(Style::Plain, line);
+        }
         for n in &self.order {
             if let Some(v) = self.names.get(n) {
-                report.push(Style::Plain, format!("{n}: {}", self.describe(v)));
+                let chart = self.chart_of_name(n).unwrap_or(&self.states);
+                report.push(Style::Plain, format!("{n}: {}", self.describe_on(v, chart)));
             }
         }
         if report.lines.is_empty() {
             report.push(Style::Plain, "nothing declared or defined yet");
         }
+    }
+
+    /// `forget NAME`: a defined value, or a parameter or input that no
+    /// defined value uses. Coordinates stay (a new `state` replaces the state).
+    fn forget(&mut self, id: &Ident, report: &mut Report) -> R<()> {
+        let name = id.name.as_str();
+        if self.names.remove(name).is_some() {
+            self.order.retain(|n| n != name);
+            self.forget_chart(name);
+            report.push(Style::Note, format!("forgot {name}"));
+            return Ok(());
+        }
+        let what = match self.symbols.get(name) {
+            None => {
+                return Err(SessionError::at(
+                    id.span,
+                    ErrorKind::UnknownName {
+                        name: name.to_string(),
+                        suggestion: self.suggest(name),
+                    },
+                ))
+            }
+            Some(SymKind::State) => {
+                let msg = if self.is_chart_coordinate(name) {
+                    format!("`{name}` is a coordinate of a chart made by `change` or `average … as`: charts stay for the session")
+                } else {
+                    format!(
+                        "`{name}` is a state coordinate: it goes only with the whole state \
+                         (`state …` declares a new one, refused while fields are defined)"
+                    )
+                };
+                return Err(SessionError::invalid(id.span, msg));
+            }
+            Some(SymKind::Param) => "parameter",
+            Some(SymKind::Input) => "input",
+            Some(SymKind::Func) => {
+                return Err(SessionError::invalid(
+                    id.span,
+                    format!("`{name}` is a declared function: functions stay for the session"),
+                ))
+            }
+        };
+        let users: Vec<&String> = self
+            .order
+            .iter()
+            .filter(|n| self.names.get(*n).is_some_and(|v| value_uses(v, name)))
+            .collect();
+        if !users.is_empty() {
+            let list: Vec<&str> = users.iter().map(|n| n.as_str()).collect();
+            return Err(SessionError::invalid(
+                id.span,
+                format!(
+                    "the {what} `{name}` is used by {}: forget {} first",
+                    list.join(", "),
+                    if list.len() == 1 { "it" } else { "them" }
+                ),
+            ));
+        }
+        self.symbols.remove(name);
+        report.push(Style::Note, format!("forgot the {what} {name}"));
+        Ok(())
     }
 
     fn check(
@@ -399,11 +528,38 @@ impl Session {
         }
         if let Some(message) = nested_error {
             let ran = std::mem::take(&mut report.journal);
-            return Err(SessionError::at(span, ErrorKind::Nested { message, ran }));
+            let printed = std::mem::take(&mut report.lines);
+            return Err(SessionError::at(
+                span,
+                ErrorKind::Nested {
+                    message,
+                    ran,
+                    printed,
+                    check_failed: report.check_failed,
+                },
+            ));
         }
         if status.quit {
             report.quit = true;
         }
         Ok(())
+    }
+}
+
+/// Whether a value mentions the symbol `name` (or an iterated integral of it).
+fn value_uses(v: &Value, name: &str) -> bool {
+    let uses = |e: &crate::core::Expr| {
+        e.symbols().iter().any(|s| {
+            let n = s.name();
+            n == name
+                || n.strip_prefix("iint(")
+                    .and_then(|r| r.strip_suffix(')'))
+                    .is_some_and(|args| args.split(", ").any(|a| a == name))
+        })
+    };
+    match v {
+        Value::Scalar(e) => uses(e),
+        Value::Field(f) => f.field.0.iter().any(uses),
+        Value::Matrix(m) => m.data.iter().any(uses),
     }
 }

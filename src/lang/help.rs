@@ -3,7 +3,7 @@
 
 const CAUTION: &str = "\
 caution: an averaged model is an approximation, valid only for fast enough
-oscillation (small enough eps). Before a result drives a real machine,
+oscillation (small enough eps, large enough w). Before a result drives a real machine,
 validate it numerically (`compare`), then physically, and follow the
 applicable engineering codes and licensed professional practice.";
 
@@ -11,10 +11,11 @@ const TOPICS: &[(&str, &str)] = &[
     ("state", "state q, p\n  declare the state coordinates, in this order (fields list one entry per coordinate).\n  Changing the state after fields exist is refused."),
     ("param", "param eps, k\n  declare exact symbolic constants; negative integer powers (eps^-1) are allowed."),
     ("input", "input u1, u2\n  declare unspecified time functions; `flow` then gives the Chen–Fliess series with\n  iterated integrals iint(u1, u2) (first argument at the latest time).\n  example: input u1\n           flow u1*[1, x] on y to 2"),
+    ("func", "func V(s), J(a, b)\n  declare unspecified smooth functions of the state (the names in brackets are argument\n  placeholders). Apply them to linear forms of the state plus a constant (a number and/or a\n  multiple of pi): V(q), V(q + pi), J(x - 1, y), V(1/2); parameters, t and nonlinear arguments\n  are refused. Derivatives: V'(q), V''(q), ... for one argument, pd(J, a)(x, y), pd(J, a, b)(x, y)\n  for several; the chain rule is exact (pd(V(2*q), q) == 2*V'(2*q)). Every series command takes\n  them, so averaged results hold for any V; `carleman` and the numerical commands need concrete\n  functions: plug(e, V(s) = -k*cos(s)) replaces V and all its derivatives, plug(e, q = pi)\n  evaluates arguments. A result for any V is still an approximation: check it on the concrete\n  machine (plug, then `compare`) before relying on it.\n  example: func V(s)\n           A = average eps*[p, -V'(q)] + cos(t)*[0, b*sin(q)] to 1 in eps classic"),
     ("define", "NAME = EXPRESSION\n  bind a value (scalar, field or matrix); redefining replaces it (and says so).\n  example: X = [p, -q]"),
     ("flow", "flow V on h to N   |   flow V to N\n  the chronological expansion of h(x(t)) for x' = V(t, x), x(0) = x, term by term to order N\n  (earliest time outermost); without `on`, every coordinate. An output that depends on t is\n  read along the solution, h(t, x(t)). A truncated series is good only for short times or\n  small fields: check it numerically before relying on it.\n  example: flow cos(t)*[1, 0] + [0, q] on p to 3"),
     ("magnus", "magnus V to N [over T]\n  the chronological logarithm W_T (exp(W_T) = the time-T flow) by order; T is the period by default.\n  When V = Σ c_i(t)*X_i with named fields, `show W as brackets` gives the Lie polynomial.\n  example: W = magnus cos(t)*X + sin(t)*Y to 3"),
-    ("average", "average V to N in eps [strobo | classic] [depth D]\nA, W = average V to N in eps classic with transform\n  higher-order averaging of x' = f_0 + Σ eps^j f_j (T-periodic in t).\n  forms: standard (f_0 = 0), fast oscillation (f_0 = Σ u_i(t) g_i, zero-mean u_i, commuting g_i),\n  linear centre (f_0 = A x with eigenvalues ±i*k).\n  strobo (default): the field whose time-T flow is the period map; classic: zero-mean\n  near-identity transform x = y + W(t, y).\n  example: A = average eps*[p, -q + cos(t)*q^2] to 2 in eps\n           order(A, eps, 1)"),
+    ("average", "average V to N in eps [strobo | classic] [depth D]\nA, W = average V to N in eps classic with transform\naverage V to N in 1/w [strobo | classic]\n  higher-order averaging of x' = f_0 + Σ eps^j f_j (T-periodic in t).\n  forms: standard (f_0 = 0), fast oscillation (f_0 = Σ u_i(t) g_i, zero-mean u_i, commuting g_i),\n  linear centre (f_0 = A x with eigenvalues ±i*k).\n  strobo (default): the field whose time-T flow is the period map; classic: zero-mean\n  near-identity transform x = y + W(t, y).\n  fast oscillation: x = exp(Σ U_i(t) g_i)(z) removes f_0. The base of U_i differs:\n  strobo uses U_i = ∫_0^t u_i (x = z at multiples of the period; u = sin(t) gives\n  U = 1 - cos(t) and a [g, f_1] term); classic uses the zero-mean antiderivative\n  U_i = ∫_0^t u_i - mean(∫_0^t u_i), the textbook vibrational transform, with the full\n  transform x = exp(Y(t))(y + W(t, y)). The output says which base it used. With named\n  fields (eps*F0 + cos(t)*G1 + sin(t)*G2), `show A as brackets` gives the Lie polynomial\n  (strobo at every order, classic to order 2).\n  in 1/w: a symbolic frequency, the time dependence written through w*t (w a parameter,\n  rational multiples 2*w*t too): time is rescaled s = w*t, eps = 1/w, the system averaged\n  in s and the result given in the original time as a series in 1/w (order k carries\n  w^(1-k)). A term that grows with w after rescaling is refused: hold an amplitude times\n  w fixed, e.g. plug(S, a = b/w). One symbolic frequency at a time.\n  example: A = average eps*[p, -q + cos(t)*q^2] to 2 in eps\n           order(A, eps, 1)\n           B = average [p, -sin(q)] + b*w*cos(w*t)*[0, sin(q)] to 2 in 1/w\n           order(B, w, 0)"),
     ("carleman", "carleman X degree d\n  the finite section of h -> X(h) on monomials of degree <= d (1 first, graded lexicographic);\n  column j holds the coefficients of X(m_j).\n  example: carleman [p, -q - q^2] degree 2"),
     ("simulate", "simulate V from q=1, p=0 for L [with eps=1/20, k=1] [plot FILE.svg]\n  integrate x' = V numerically (adaptive Runge–Kutta of order 5) over [0, L] and print a table;\n  `plot` writes an SVG."),
     ("compare", "compare S with A from q=1, p=0 for L [with k=1] sweep eps=0.2,0.1,0.05 [tol E] [plot FILE.svg]\n  integrate the system S and each order of the averaged model A at multiples of the period over\n  the slow horizon L/eps, print the error per eps and order, the fitted slope of log(error)\n  against log(eps) per order, and with `tol` the largest eps whose error meets it."),
@@ -58,6 +59,16 @@ pub fn help(word: Option<&str>) -> Option<String> {
             Some(s)
         }
     }
+}
+
+/// The help topics and the words `help` also answers for, for suggestions.
+pub fn topic_words() -> Vec<&'static str> {
+    let mut v: Vec<&'static str> = TOPICS.iter().map(|(w, _)| *w).collect();
+    v.extend(super::parse::COMMAND_WORDS);
+    v.extend([
+        "sin", "cos", "exp", "pd", "jac", "plug", "order", "mean", "bch", "iint", "chart",
+    ]);
+    v
 }
 
 /// The caution shown in the README and in help texts.

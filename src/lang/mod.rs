@@ -5,6 +5,7 @@
 //! never sees raw text; the session returns reports and never prints.
 
 pub mod ast;
+pub mod chart;
 pub mod commands;
 pub mod diag;
 pub mod eval;
@@ -13,10 +14,11 @@ pub mod files;
 pub mod help;
 pub mod numeric_cmds;
 pub mod parse;
+pub mod phase;
 pub mod progress;
 pub mod session;
 pub mod split;
 pub mod structural;
 pub mod value;
 
-pub use session::{Event, Report, Rich, RunStatus, Session, Style};
+pub use session::{Event, Line, Report, Rich, RunStatus, Session, Style};

@@ -28,6 +28,23 @@ fn ode_err(span: Span, e: OdeError) -> SessionError {
 }
 
 /// Formats a float compactly and deterministically.
+/// Numerical commands need concrete functions: an unspecified one is
+/// refused, naming it, with the hint to plug a definition.
+fn refuse_functions(f: &crate::core::Field, span: Span, cmd: &str) -> R<()> {
+    match f.0.iter().find_map(Expr::first_atom) {
+        None => Ok(()),
+        Some(a) => Err(SessionError::invalid(
+            span,
+            format!(
+                "`{cmd}` needs numbers, and `{a}` is an unspecified function \
+                 (hint: plug a definition first, e.g. `plug(S, {}({}) = …)`)",
+                a.sig.name,
+                a.sig.params.join(", ")
+            ),
+        )),
+    }
+}
+
 fn num(v: f64) -> String {
     if v == 0.0 {
         "0".to_string()
@@ -143,6 +160,7 @@ impl Session {
                 plot,
             } => {
                 let v = self.eval_field(field, "the field of `simulate`")?;
+                refuse_functions(&v.field, field.span, "simulate")?;
                 let exact = self.with_values(with)?;
                 let floats = crate::numeric::compile::float_values(&exact);
                 let f = CompiledField::new(&v.field, &self.states, &floats)
@@ -246,6 +264,8 @@ impl Session {
             } => {
                 let s = self.eval_field(system, "the system of `compare`")?;
                 let m = self.eval_field(model, "the averaged model of `compare`")?;
+                refuse_functions(&s.field, system.span, "compare")?;
+                refuse_functions(&m.field, model.span, "compare")?;
                 let info = m.averaged.clone().ok_or_else(|| {
                     SessionError::invalid(model.span, "the model must be the result of `average` (e.g. `A = average S to 3 in eps`)")
                 })?;
@@ -296,6 +316,13 @@ impl Session {
                     ),
                     _ => None,
                 };
+                let outer = match (&info.outer, info.classic) {
+                    (Some(y), true) => Some(
+                        CompiledField::new(y, &self.states, &floats)
+                            .map_err(|e| compile_err(model.span, e))?,
+                    ),
+                    _ => None,
+                };
                 let n_orders = orders.len();
                 let mut table: Vec<Vec<f64>> = Vec::new();
                 let mut bar = Progress::new(eps_values.len() as u64, "compare");
@@ -312,6 +339,7 @@ impl Session {
                         system: &sys,
                         orders: &orders,
                         transform: transform.as_deref(),
+                        outer: outer.as_ref(),
                         eps: *e,
                         period,
                         n_periods,
@@ -417,6 +445,7 @@ impl Session {
             }
             CommandKind::Stability { field, at, with } => {
                 let v = self.eval_field(field, "the field of `stability`")?;
+                refuse_functions(&v.field, field.span, "stability")?;
                 if v.field.0.iter().any(Expr::is_time_varying) {
                     return Err(SessionError::invalid(
                         field.span,

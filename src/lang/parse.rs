@@ -49,8 +49,8 @@ use nom::{
 };
 
 use super::ast::{
-    Arg, Assign, BinOp, Command, CommandKind, Expr, ExprKind, Ident, PathArg, Rhs, Span, Spanned,
-    Stmt, StmtKind,
+    Arg, Assign, BinOp, Command, CommandKind, Expr, ExprKind, FuncDecl, Ident, PathArg, Rhs, Span,
+    Spanned, Stmt, StmtKind,
 };
 use super::split::{closer_of, scan_line, BracketFault};
 
@@ -73,6 +73,7 @@ pub const RESERVED_WORDS: &[&str] = &[
     "state",
     "param",
     "input",
+    "func",
     "flow",
     "on",
     "to",
@@ -87,6 +88,8 @@ pub const RESERVED_WORDS: &[&str] = &[
     "transform",
     "carleman",
     "degree",
+    "change",
+    "by",
     "simulate",
     "from",
     "for",
@@ -115,6 +118,7 @@ pub const COMMAND_WORDS: &[&str] = &[
     "magnus",
     "average",
     "carleman",
+    "change",
     "simulate",
     "compare",
     "stability",
@@ -122,7 +126,7 @@ pub const COMMAND_WORDS: &[&str] = &[
 
 /// The words that start the other statements.
 pub const STATEMENT_WORDS: &[&str] = &[
-    "state", "param", "input", "check", "show", "save", "run", "names", "forget", "help", "set",
+    "state", "param", "input", "func", "check", "show", "save", "run", "names", "forget", "help", "set",
     "quit",
 ];
 
@@ -1031,6 +1035,9 @@ impl<'a> Parser<'a> {
     /// `pi` are not names; `sin`, `cos` and `exp` must be called.
     fn name_atom(&self, at: &'a str) -> PResult<'a, Node> {
         let (rest, word) = ident(at)?;
+        if rest.starts_with('\'') {
+            return self.primed_call(at, rest, word);
+        }
         let name_span = Span::new(self.off(at), self.off(rest));
         let after = ws(rest);
         let is_call = after.starts_with('(');
@@ -1046,6 +1053,23 @@ impl<'a> Parser<'a> {
             return Ok((rest, Node { expr, depth: 1 }));
         }
         self.call(Ident::new(word, name_span), after)
+    }
+
+    /// `V'(q)`, `V''(q)`, …: a derivative of an unspecified function of
+    /// one argument (the primes are kept in the called name).
+    fn primed_call(&self, at: &'a str, rest: &'a str, word: &str) -> PResult<'a, Node> {
+        let after_primes = rest.trim_start_matches('\'');
+        let name_span = Span::new(self.off(at), self.off(after_primes));
+        if is_reserved(word) {
+            return self.fail(name_span, ParseErrorKind::Reserved(word.to_string()));
+        }
+        let after = ws(after_primes);
+        if !after.starts_with('(') {
+            let primed = &at[..name_span.end - name_span.start];
+            return self.expected(after, &format!("`(` and an argument after `{primed}`"));
+        }
+        let primed = &at[..name_span.end - name_span.start];
+        self.call(Ident::new(primed, name_span), after)
     }
 
     /// `name(args)` (`at` starts with `(`).
@@ -1167,6 +1191,13 @@ impl<'a> Parser<'a> {
         if let Some((name, value_in)) = self.binding(at)? {
             return self.bound_arg(name, value_in, args);
         }
+        if let Some((name, params, value_in)) = self.function_binding(at) {
+            let (rest, depth) = self.bound_arg(name, value_in, args)?;
+            if let Some(Arg::Bind(name, value)) = args.pop() {
+                args.push(Arg::BindFunc(name, params, value));
+            }
+            return Ok((rest, depth));
+        }
         let (rest, node) = self.require(self.expr(at), at, what)?;
         args.push(Arg::Pos(*node.expr));
         Ok((rest, node.depth))
@@ -1199,6 +1230,33 @@ impl<'a> Parser<'a> {
             self.fail::<()>(span, ParseErrorKind::Reserved(word.to_string()))?;
         }
         Ok(Some((Ident::new(word, span), eq.get(1..).unwrap_or(""))))
+    }
+
+    /// `NAME(a, b) =` (not `==`) at `at`, placeholders bare names: the
+    /// name, the placeholders and the input after `=` (as in
+    /// `plug(e, V(s) = -cos(s))`). Anything else is not a definition.
+    fn function_binding(&self, at: &'a str) -> Option<(Ident, Vec<Ident>, &'a str)> {
+        let (after_name, word) = ident(at).ok()?;
+        let mut rest = ws(after_name).strip_prefix('(')?;
+        let mut params = Vec::new();
+        loop {
+            let p_at = ws(rest);
+            let (after, p) = ident(p_at).ok()?;
+            params.push(Ident::new(p, Span::new(self.off(p_at), self.off(after))));
+            let next = ws(after);
+            if let Some(r) = next.strip_prefix(',') {
+                rest = r;
+            } else {
+                rest = next.strip_prefix(')')?;
+                break;
+            }
+        }
+        let eq = ws(rest);
+        if !single_eq(eq) || is_reserved(word) {
+            return None;
+        }
+        let span = Span::new(self.off(at), self.off(after_name));
+        Some((Ident::new(word, span), params, eq.get(1..).unwrap_or("")))
     }
 
     /// A required expression.
@@ -1239,6 +1297,7 @@ impl<'a> Parser<'a> {
                 "state" => return self.declaration(after, word, StmtKind::State),
                 "param" => return self.declaration(after, word, StmtKind::Param),
                 "input" => return self.declaration(after, word, StmtKind::Input),
+                "func" => return self.func_declaration(after),
                 "check" => return self.check(after),
                 "show" => return self.show(after),
                 "save" => {
@@ -1316,6 +1375,48 @@ impl<'a> Parser<'a> {
                 None => {
                     self.end(rest, Some("`,` or the end of the line"))?;
                     return Ok((rest, make(names)));
+                }
+            }
+        }
+    }
+
+    /// `func V(s), J(a, b)`.
+    fn func_declaration(&self, input: &'a str) -> PResult<'a, StmtKind> {
+        let mut decls = Vec::new();
+        let mut next_in = input;
+        loop {
+            let what = if decls.is_empty() {
+                "a function name after `func`, e.g. `func V(s)`"
+            } else {
+                "a function name after `,`"
+            };
+            let (rest, name) = self.name(next_in, what)?;
+            let at = ws(rest);
+            let Some(mut inner) = at.strip_prefix('(') else {
+                return self.expected(
+                    at,
+                    &format!("`(` and argument names after `{}` (e.g. `{}(s)`)", name.name, name.name),
+                );
+            };
+            let mut params = Vec::new();
+            let rest = loop {
+                let (after, p) = self.name(inner, "an argument name")?;
+                params.push(p);
+                let next = ws(after);
+                if let Some(r) = next.strip_prefix(',') {
+                    inner = r;
+                } else if let Some(r) = next.strip_prefix(')') {
+                    break r;
+                } else {
+                    return self.expected(next, "`,` or `)`");
+                }
+            };
+            decls.push(FuncDecl { name, params });
+            match ws(rest).strip_prefix(',') {
+                Some(after) => next_in = after,
+                None => {
+                    self.end(rest, Some("`,` or the end of the line"))?;
+                    return Ok((rest, StmtKind::Func(decls)));
                 }
             }
         }
@@ -1403,6 +1504,7 @@ impl<'a> Parser<'a> {
             "magnus" => self.magnus(after)?,
             "average" => self.average(after)?,
             "carleman" => self.carleman(after)?,
+            "change" => self.change(after)?,
             "simulate" => self.simulate(after)?,
             "compare" => self.compare(after)?,
             "stability" => self.stability(after)?,
@@ -1466,10 +1568,16 @@ impl<'a> Parser<'a> {
                 "`in` and the small parameter after the order in `average`",
             );
         };
+        // `in 1/w`: a symbolic frequency (DESIGN §2.7c).
+        let (after_in, inverse) = match ws(after_in).strip_prefix('1') {
+            Some(r) if ws(r).starts_with('/') => (&ws(r)[1..], true),
+            _ => (after_in, false),
+        };
         let (mut rest, param) = self.name(after_in, "the small parameter after `in`")?;
         let mut method: Option<Ident> = None;
         let mut depth: Option<Spanned<u64>> = None;
         let mut with_transform = false;
+        let mut chart: Vec<Ident> = Vec::new();
         loop {
             let at = ws(rest);
             let Ok((after, word)) = ident(at) else {
@@ -1503,12 +1611,20 @@ impl<'a> Parser<'a> {
                     with_transform = true;
                     rest = next;
                 }
+                "as" => {
+                    if !chart.is_empty() {
+                        return self.duplicate(span, "`as`");
+                    }
+                    let (next, names) = self.name_list(after, "as")?;
+                    chart = names;
+                    rest = next;
+                }
                 _ => break,
             }
         }
         self.end(
             rest,
-            Some("`strobo`, `classic`, `depth`, `with transform` or the end of the line"),
+            Some("`strobo`, `classic`, `depth`, `with transform`, `as` or the end of the line"),
         )?;
         Ok((
             rest,
@@ -1516,11 +1632,56 @@ impl<'a> Parser<'a> {
                 field,
                 to,
                 param,
+                inverse,
                 method,
                 depth,
                 with_transform,
+                chart,
             },
         ))
+    }
+
+    /// `NAME, NAME, …` after `word` (stops before anything that is not `,`).
+    fn name_list(&self, input: &'a str, word: &str) -> PResult<'a, Vec<Ident>> {
+        let mut names = Vec::new();
+        let mut next_in = input;
+        loop {
+            let what = if names.is_empty() {
+                format!("a name after `{word}`")
+            } else {
+                "a name after `,`".to_string()
+            };
+            let (rest, name) = self.name(next_in, &what)?;
+            names.push(name);
+            match ws(rest).strip_prefix(',') {
+                Some(after) => next_in = after,
+                None => return Ok((rest, names)),
+            }
+        }
+    }
+
+    /// `change E to r, phi by x = r*cos(phi), v = r*sin(phi)`.
+    fn change(&self, input: &'a str) -> PResult<'a, CommandKind> {
+        let (rest, field) = self.expect_expr(input, "the field or scalar after `change`")?;
+        let Some(after_to) = self.keyword(rest, "to") else {
+            return self.expected(
+                rest,
+                "`to` and the new coordinates after the value in `change`",
+            );
+        };
+        let (rest, to) = self.name_list(after_to, "to")?;
+        let Some(after_by) = self.keyword(rest, "by") else {
+            return self.expected(
+                rest,
+                "`,` or `by` and the old coordinates in the new ones (`by x = r*cos(phi), …`)",
+            );
+        };
+        let (rest, by) = self.assigns(after_by, "by")?;
+        self.end(
+            rest,
+            Some("`,` and another `name = value` or the end of the line"),
+        )?;
+        Ok((rest, CommandKind::Change { field, to, by }))
     }
 
     fn carleman(&self, input: &'a str) -> PResult<'a, CommandKind> {
@@ -2756,7 +2917,7 @@ mod tests {
                 let args: Vec<String> = args
                     .iter()
                     .map(|arg| match arg {
-                        Arg::Pos(e) | Arg::Bind(_, e) => print_min(e, 0),
+                        Arg::Pos(e) | Arg::Bind(_, e) | Arg::BindFunc(_, _, e) => print_min(e, 0),
                     })
                     .collect();
                 format!("{}({})", name.name, args.join(", "))

@@ -69,8 +69,9 @@ pub struct Report {
 #[derive(Clone, Debug)]
 pub enum Rich {
     /// The value of a bare expression line (its result line is the value in
-    /// input syntax).
-    Value(Value),
+    /// input syntax), with the session's state order (the LaTeX of a
+    /// product puts parameters before states).
+    Value(Value, Vec<Sym>),
     /// The result lines are LaTeX (`show … as latex`).
     Latex,
 }
@@ -116,8 +117,14 @@ pub enum ErrorKind {
     File { path: String, reason: String },
     /// An error inside a script run with `run FILE`, already rendered, with
     /// the journal lines of the statements that ran before it (they changed
-    /// the session and belong in the journal).
-    Nested { message: String, ran: Vec<String> },
+    /// the session and belong in the journal) and what they printed (shown
+    /// before the error: a failed check earlier in the script is not lost).
+    Nested {
+        message: String,
+        ran: Vec<String>,
+        printed: Vec<Line>,
+        check_failed: bool,
+    },
 }
 
 /// An error with the span of the offending input.
@@ -197,6 +204,27 @@ impl SessionError {
             _ => &[],
         }
     }
+
+    /// What the statements before the error printed (a `run FILE` that
+    /// failed partway): front ends print it before the error.
+    pub fn printed(&self) -> &[Line] {
+        match &self.kind {
+            ErrorKind::Nested { printed, .. } => printed,
+            _ => &[],
+        }
+    }
+
+    /// A check failed before the error (in a `run FILE` that failed
+    /// partway).
+    pub fn check_failed(&self) -> bool {
+        matches!(
+            self.kind,
+            ErrorKind::Nested {
+                check_failed: true,
+                ..
+            }
+        )
+    }
 }
 
 impl fmt::Display for SessionError {
@@ -216,6 +244,8 @@ pub enum SymKind {
     Param,
     /// An unspecified input function of time.
     Input,
+    /// An unspecified function of the state (`func V(s)`).
+    Func,
 }
 
 /// The outcome of running a whole text.
@@ -256,6 +286,11 @@ pub struct Session {
     pub(crate) states: Vec<Sym>,
     pub(crate) symbols: BTreeMap<String, SymKind>,
     pub(crate) names: BTreeMap<String, Value>,
+    /// The placeholders of a function definition being read (`plug(e,
+    /// V(s) = …)`), as names of the state while its body is evaluated.
+    pub(crate) placeholders: std::cell::RefCell<Vec<(String, Sym)>>,
+    /// Unspecified functions by name (`func V(s)`).
+    pub(crate) funcs: BTreeMap<String, std::sync::Arc<crate::core::func::Signature>>,
     /// Order in which names were defined (for `names`).
     pub(crate) order: Vec<String>,
     /// Accepted input lines, for `save`.
@@ -268,6 +303,8 @@ pub struct Session {
     pub(crate) run_depth: usize,
     /// Show timings in command summaries.
     pub show_timing: bool,
+    /// Charts beyond the declared state, and the chart of each bound value.
+    pub(crate) charts: super::chart::Charts,
 }
 
 impl Default for Session {
@@ -284,12 +321,15 @@ impl Session {
             states: Vec::new(),
             symbols: BTreeMap::new(),
             names: BTreeMap::new(),
+            funcs: BTreeMap::new(),
+            placeholders: Default::default(),
             order: Vec::new(),
             accepted: Vec::new(),
             replaying: false,
             base_dir: PathBuf::from("."),
             run_depth: 0,
             show_timing: true,
+            charts: Default::default(),
         }
     }
 
@@ -341,11 +381,24 @@ impl Session {
     ) -> Result<Report, SessionError> {
         limits::clear_interrupt();
         limits::start_work();
-        let parsed =
-            parse_stmt(&stmt.text).map_err(|e| SessionError::at(e.span, ErrorKind::Parse(e)))?;
+        let parsed = parse_stmt(&stmt.text).map_err(|e| {
+            match super::diag::misspelt_command(&stmt.text, |w| {
+                self.symbols.contains_key(w) || self.names.contains_key(w)
+            }) {
+                Some((span, msg)) => SessionError::invalid(span, msg),
+                None => SessionError::at(e.span, ErrorKind::Parse(e)),
+            }
+        })?;
         let started = Instant::now();
         super::progress::install();
-        let result = self.execute_parsed(&parsed, stmt, origin, started);
+        let result = match self.enter_chart(&parsed) {
+            Ok(scope) => {
+                let result = self.execute_parsed(&parsed, stmt, origin, started);
+                self.leave_chart(scope);
+                result
+            }
+            Err(e) => Err(e),
+        };
         super::progress::remove();
         let mut report = result?;
         let is_file_op = matches!(parsed.kind, StmtKind::Save(_) | StmtKind::RunFile(_));
@@ -380,6 +433,19 @@ impl Session {
                     }
                 }
                 Err(err) => {
+                    if !err.printed().is_empty() || !err.journal_lines().is_empty() {
+                        // A nested `run` that failed partway: what it
+                        // printed and ran before the error still counts.
+                        status.check_failed |= err.check_failed();
+                        sink(Event::Report(Report {
+                            lines: err.printed().to_vec(),
+                            check_failed: err.check_failed(),
+                            quit: false,
+                            journal: err.journal_lines().to_vec(),
+                            rich: None,
+                            plots: Vec::new(),
+                        }));
+                    }
                     sink(Event::Error(render_error(stmt, origin, &err)));
                     status.error = true;
                     return status;

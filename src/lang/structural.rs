@@ -15,6 +15,7 @@ use crate::core::{CoreError, CoreResult, Expr, Field, Sym, Q};
 use crate::render::latex;
 use crate::series::chrono;
 use crate::series::freelie::{self, Alphabet, Bracket, Coeff, FreeLieError, LiePoly, Tensor};
+use crate::series::lyndon as freelie_lyndon;
 
 thread_local! {
     static COEFF_ERROR: RefCell<Option<CoreError>> = const { RefCell::new(None) };
@@ -94,19 +95,25 @@ fn checked<T>(r: Result<T, FreeLieError>) -> CoreResult<T> {
 }
 
 /// Renders a bracket of names.
-fn bracket_text(b: &Bracket, names: &[String]) -> (String, String) {
+fn bracket_text(b: &Bracket, names: &[String], tex: &[String]) -> (String, String) {
     let plain = b.render(&|l| names.get(l as usize).cloned().unwrap_or_default());
-    let tex = b.render(&|l| latex::name(names.get(l as usize).map_or("", String::as_str)));
+    let tex = b.render(&|l| tex.get(l as usize).cloned().unwrap_or_default());
     (plain, tex.replace('[', "\\left[").replace(']', "\\right]"))
 }
 
 /// Turns a Lie polynomial into display terms.
 fn to_terms(poly: &LiePoly<Expr>, names: &[String]) -> Vec<BracketTerm> {
+    let tex: Vec<String> = names.iter().map(|n| latex::name(n)).collect();
+    to_terms_named(poly, names, &tex)
+}
+
+/// As `to_terms`, with the LaTeX of each letter given.
+fn to_terms_named(poly: &LiePoly<Expr>, names: &[String], tex: &[String]) -> Vec<BracketTerm> {
     poly.terms()
         .iter()
         .filter_map(|(w, c)| {
             let b = freelie::standard_bracketing(w)?;
-            let (bracket, latex) = bracket_text(&b, names);
+            let (bracket, latex) = bracket_text(&b, names, tex);
             Some(BracketTerm {
                 coeff: c.clone(),
                 bracket,
@@ -196,6 +203,19 @@ pub fn magnus_structure(
     eps: Option<Sym>,
     states: &[Sym],
 ) -> CoreResult<Option<Vec<BracketTerm>>> {
+    let names: Vec<String> = combo.parts.iter().map(|(n, _, _)| n.clone()).collect();
+    Ok(magnus_poly(combo, n, horizon, period, eps, states)?.map(|log| to_terms(&log, &names)))
+}
+
+/// The Lie polynomial of `magnus_structure`.
+fn magnus_poly(
+    combo: &Combo,
+    n: usize,
+    horizon: &Expr,
+    period: Option<&Period>,
+    eps: Option<Sym>,
+    states: &[Sym],
+) -> CoreResult<Option<LiePoly<Expr>>> {
     if combo.parts.is_empty() || combo.parts.len() > 16 {
         return Ok(None);
     }
@@ -263,8 +283,7 @@ pub fn magnus_structure(
     } else {
         log
     };
-    let names: Vec<String> = combo.parts.iter().map(|(n, _, _)| n.clone()).collect();
-    Ok(Some(to_terms(&log, &names)))
+    Ok(Some(log))
 }
 
 /// The classical averaged field in bracket form, orders 1 and 2
@@ -278,7 +297,23 @@ pub fn classic_structure(
     if n > 2 {
         return Ok(None);
     }
+    for (_, _, c) in &combo.parts {
+        if let Some((lo, _)) = c.power_range(eps) {
+            if lo < 1 {
+                return Ok(None);
+            }
+        }
+    }
     let names: Vec<String> = combo.parts.iter().map(|(n, _, _)| n.clone()).collect();
+    Ok(Some(to_terms(
+        &classic_poly(combo, n, period, eps)?,
+        &names,
+    )))
+}
+
+/// The Lie polynomial of `classic_structure` (n ≤ 2, every coefficient
+/// of order eps or higher).
+fn classic_poly(combo: &Combo, n: usize, period: &Period, eps: Sym) -> CoreResult<LiePoly<Expr>> {
     let a: Vec<Expr> = combo
         .parts
         .iter()
@@ -289,13 +324,6 @@ pub fn classic_structure(
         .iter()
         .map(|(_, _, c)| c.coeff_of_power(eps, 2))
         .collect();
-    for (_, _, c) in &combo.parts {
-        if let Some((lo, _)) = c.power_range(eps) {
-            if lo < 1 {
-                return Ok(None);
-            }
-        }
-    }
     let e1 = Expr::sym(eps);
     let e2 = e1.pow(2)?;
     let mut poly: Vec<(Vec<u16>, Expr)> = Vec::new();
@@ -321,10 +349,8 @@ pub fn classic_structure(
             }
         }
     }
-    let alphabet = Alphabet::uniform(names.len() as u16);
-    let lp = LiePoly::from_terms(poly.into_iter().filter(|(_, c)| !c.is_zero()), &alphabet)
-        .map_err(lie_err)?;
-    Ok(Some(to_terms(&lp, &names)))
+    let alphabet = Alphabet::uniform(combo.parts.len() as u16);
+    LiePoly::from_terms(poly.into_iter().filter(|(_, c)| !c.is_zero()), &alphabet).map_err(lie_err)
 }
 
 /// Terms `k = 1..=n` of the Chen–Fliess series of `h` along
@@ -428,7 +454,7 @@ impl Session {
             .map_err(|e| SessionError::core(pos[2].span, e))?;
         let core = |e: CoreError| SessionError::core(span, e);
         let _ = take_error();
-        let poly: LiePoly<Expr> = checked(freelie::bch(n as u32)).map_err(core)?;
+        let poly = bch_series(n as u32).map_err(core)?;
         let label = |e: &super::ast::Expr, d: &str| match &e.kind {
             ExprKind::Name(n) => n.clone(),
             _ => d.to_string(),
@@ -462,6 +488,33 @@ impl Session {
     }
 }
 
+/// `log(e^X e^Y)` to degree `n` in the Lyndon basis (letters 0, 1), with
+/// the term budget asked before anything is built and the interrupt
+/// polled as it goes.
+pub fn bch_series(n: u32) -> CoreResult<LiePoly<Expr>> {
+    let mut stopped = None;
+    let terms = freelie_lyndon::bch(
+        n,
+        &mut |count| match crate::core::limits::check_terms(count) {
+            Ok(()) => true,
+            Err(e) => {
+                stopped = Some(e);
+                false
+            }
+        },
+    );
+    match (stopped, terms) {
+        (Some(e), _) => Err(e),
+        (None, Err(e)) => Err(lie_err(e)),
+        (None, Ok(terms)) => Ok(LiePoly::from_sorted_terms(
+            terms
+                .into_iter()
+                .map(|(w, c)| (w, Expr::num(Q::from_big(c))))
+                .collect(),
+        )),
+    }
+}
+
 enum BchError {
     Core(CoreError),
     Lie(FreeLieError),
@@ -471,4 +524,149 @@ impl From<FreeLieError> for BchError {
     fn from(e: FreeLieError) -> Self {
         BchError::Lie(e)
     }
+}
+
+/// The letters of a fast-oscillation system `Σ c_a(t, eps) X_a` after the
+/// pull-back by `exp(Σ U_i G_i)`: the standard form as a combination of
+/// ad-words `ad_G^α X_b = [G_i1, [G_i2, … X_b]]` (DESIGN §2.6, §2.7).
+///
+/// The oscillating letters `G_i` are those whose coefficient has an eps^0
+/// part `u_i(t)`; they commute (the averaging refused otherwise), so the
+/// result lives in the Lie algebra generated by the letters with
+/// `[G_i, G_j] = 0`. By Lazard elimination that algebra is spanned by the
+/// `G_i` and the free Lie algebra on the ad-words `ad_G^α X_b` with α a
+/// multiset (the operators `ad_{G_i}` commute there). The pulled-back
+/// field is `Σ_b r_b Σ_α U^α/α! ad_G^α X_b` (with `r_b` the eps ≥ 1 part of
+/// `c_b`), a combination of ad-words with time coefficients: a standard form
+/// over them, averaged by the same free-Lie route as any standard form.
+/// Ad-words that vanish on the concrete fields are left out, as the
+/// concrete ad-series ends there (or is truncated at `depth`).
+fn pulled_back_combo(
+    combo: &Combo,
+    eps: Sym,
+    period: &Period,
+    zero_mean: bool,
+    depth: u64,
+    states: &[Sym],
+) -> CoreResult<Option<(Combo, Vec<String>)>> {
+    // u_a (eps^0 part) and r_a (the rest) of each letter.
+    let mut osc: Vec<(usize, Expr)> = Vec::new();
+    let mut slow: Vec<(usize, Expr)> = Vec::new();
+    for (a, (_, _, c)) in combo.parts.iter().enumerate() {
+        if let Some((lo, _)) = c.power_range(eps) {
+            if lo < 0 {
+                return Ok(None);
+            }
+        }
+        let u = c.coeff_of_power(eps, 0);
+        let r = c.sub(&u);
+        if c.symbols().iter().any(|s| states.contains(s)) {
+            return Ok(None);
+        }
+        if !u.is_zero() {
+            let big_u = u.integral_from_zero()?;
+            let big_u = if zero_mean {
+                big_u.sub(&big_u.mean_over(period)?)
+            } else {
+                big_u
+            };
+            osc.push((a, big_u));
+        }
+        if !r.is_zero() {
+            slow.push((a, r));
+        }
+    }
+    if osc.is_empty() {
+        return Ok(None);
+    }
+    let name = |a: usize| combo.parts[a].0.clone();
+    let mut parts: Vec<(String, Field, Expr)> = Vec::new();
+    let mut tex: Vec<String> = Vec::new();
+    for (b, r) in &slow {
+        // Multisets over the oscillating letters, grown one letter at a
+        // time in nondecreasing order: (last index, word, field, U^α/α!).
+        let xb = &combo.parts[*b].1;
+        let mut layer: Vec<(usize, Vec<usize>, Field, Expr)> =
+            vec![(0, Vec::new(), xb.clone(), Expr::int(1))];
+        for k in 0..=depth {
+            let mut next = Vec::new();
+            for (last, word, field, coeff) in &layer {
+                crate::core::limits::poll()?;
+                if field.is_zero() {
+                    continue;
+                }
+                let mut plain = name(*b);
+                let mut tx = latex::name(&plain);
+                for &i in word.iter().rev() {
+                    let g = name(osc[i].0);
+                    plain = format!("[{g}, {plain}]");
+                    tx = format!("[{}, {tx}]", latex::name(&g));
+                }
+                parts.push((plain, field.clone(), r.mul(coeff)?));
+                tex.push(tx);
+                crate::core::limits::check_terms(parts.len())?;
+                if k == depth {
+                    continue;
+                }
+                for (i, (ga, ui)) in osc.iter().enumerate().skip(*last) {
+                    // ad_{G_i} applied outside: [G_i, field]; the power of
+                    // G_i in α grows by one, so 1/α! gains 1/(its new power).
+                    let power = word.iter().filter(|&&j| j == i).count() as i64 + 1;
+                    let f = combo.parts[*ga].1.bracket(field, states)?;
+                    let c = coeff.mul(ui)?.scale(&Q::ratio(1, power).unwrap_or(Q::ZERO));
+                    let mut w = word.clone();
+                    w.push(i);
+                    next.push((i, w, f, c));
+                }
+            }
+            layer = next;
+            if layer.is_empty() {
+                break;
+            }
+        }
+    }
+    // Letters with equal names (a letter both slow and oscillating) stay
+    // apart: the display names them the same, and evaluation agrees.
+    Ok(Some((Combo { parts }, tex)))
+}
+
+/// The bracket form of a fast-oscillation result written over named fields
+/// (`eps*F0 + cos(t)*G1 + sin(t)*G2`): stroboscopic at every order,
+/// classical to order 2 (DESIGN §2.7). `None` when the system is not of
+/// that shape or has too many ad-words for the free-Lie route.
+pub fn fast_oscillation_structure(
+    combo: &Combo,
+    n: usize,
+    period: &Period,
+    eps: Sym,
+    classic: bool,
+    depth: u64,
+    states: &[Sym],
+) -> CoreResult<Option<Vec<BracketTerm>>> {
+    if classic && n > 2 {
+        return Ok(None);
+    }
+    let Some((pulled, tex)) = pulled_back_combo(combo, eps, period, classic, depth, states)? else {
+        return Ok(None);
+    };
+    if pulled.parts.is_empty() || pulled.parts.len() > 16 {
+        return Ok(None);
+    }
+    let poly = if classic {
+        classic_poly(&pulled, n, period, eps)?
+    } else {
+        match magnus_poly(
+            &pulled,
+            n,
+            &period.to_expr(),
+            Some(period),
+            Some(eps),
+            states,
+        )? {
+            Some(p) => p,
+            None => return Ok(None),
+        }
+    };
+    let names: Vec<String> = pulled.parts.iter().map(|(n, _, _)| n.clone()).collect();
+    Ok(Some(to_terms_named(&poly, &names, &tex)))
 }

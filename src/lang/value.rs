@@ -57,6 +57,10 @@ pub struct AveragedInfo {
     pub period: Period,
     /// Classical (near-identity transform) rather than stroboscopic.
     pub classic: bool,
+    /// The field whose time-1 flow is the change of coordinates at
+    /// multiples of the period, when it is not the identity (a classical
+    /// fast-oscillation result: `x = exp(Y(0))(y + W(0, y))`).
+    pub outer: Option<Field>,
 }
 
 /// A value.

@@ -8,8 +8,6 @@
 //! sessions or where the data came from.
 
 use std::fmt;
-use std::fs;
-use std::io::Write;
 use std::ops::Range;
 use std::panic::{catch_unwind, AssertUnwindSafe};
 use std::path::{Path, PathBuf};
@@ -374,38 +372,23 @@ fn log_range(values: impl Iterator<Item = f64>) -> Result<Range<f64>, PlotError>
     }
 }
 
-/// Write `text` to a temporary file next to `path`, then rename it over
-/// `path`, so a reader never sees a half-written plot.
+/// Write `text` to `path` through the one safe writer of the crate
+/// (`lang::files::write_file`, a leaf module of std calls only): atomic,
+/// through symbolic links, keeping permissions, refusing devices,
+/// directories and `.ordex` scripts.
 fn write_atomically(path: &Path, text: &str) -> Result<(), PlotError> {
-    let io_error = |error: std::io::Error| PlotError::Io {
-        path: path.to_path_buf(),
-        message: error.to_string(),
-    };
-    let file_name = path.file_name().ok_or_else(|| PlotError::Io {
-        path: path.to_path_buf(),
-        message: "the path does not name a file".to_string(),
-    })?;
-    let mut temp_name = std::ffi::OsString::from(".");
-    temp_name.push(file_name);
-    temp_name.push(format!(".{}.tmp", std::process::id()));
-    let temp_path = path.with_file_name(temp_name);
-    let written = fs::File::create(&temp_path).and_then(|mut file| {
-        file.write_all(text.as_bytes())?;
-        file.sync_all()
-    });
-    let renamed = written.and_then(|()| fs::rename(&temp_path, path));
-    if let Err(error) = renamed {
-        // Best effort: the temporary file may not exist at all.
-        let _ = fs::remove_file(&temp_path);
-        return Err(io_error(error));
-    }
-    Ok(())
+    crate::lang::files::write_file(path, text.as_bytes(), crate::lang::files::FileKind::Plot)
+        .map_err(|message| PlotError::Io {
+            path: path.to_path_buf(),
+            message,
+        })
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
     use proptest::prelude::*;
+    use std::fs;
 
     /// A fresh directory under the system temporary directory.
     struct TempDir(PathBuf);

@@ -6,6 +6,9 @@
 //! period, so the model starts at the same point. For a classical model the
 //! original starts at `x0 = y0 + W(0, y0)` and is compared with
 //! `y(t) + W(t, y(t))`; at multiples of the period `W(t, ·) = W(0, ·)`.
+//! A classical fast-oscillation model (zero-mean base) adds the outer map
+//! `exp(Y(0))`, the time-1 flow of `Y(0)`, the same at every multiple of
+//! the period: `x0 = exp(Y(0))(y0 + W(0, y0))`.
 
 use super::compile::CompiledField;
 use super::ode::{integrate_at, OdeError, OdeOptions};
@@ -18,6 +21,9 @@ pub struct CompareRun<'a> {
     pub orders: &'a [CompiledField],
     /// `w_1..w_N` of a classical model (functions of t and y).
     pub transform: Option<&'a [CompiledField]>,
+    /// `Y(0)` of a classical fast-oscillation model, whose time-1 flow maps
+    /// `y + W` to `x` at multiples of the period.
+    pub outer: Option<&'a CompiledField>,
     /// The value of eps.
     pub eps: f64,
     /// The period of the averaged standard form.
@@ -52,6 +58,26 @@ fn transform_at(w: &[CompiledField], eps: f64, order: usize, t: f64, y: &[f64]) 
     out
 }
 
+/// `exp(Y)(x)`: the time-1 flow of the autonomous field `Y`.
+fn outer_map(
+    y: Option<&CompiledField>,
+    x: Vec<f64>,
+    cancel: &dyn Fn() -> bool,
+) -> Result<Vec<f64>, OdeError> {
+    let Some(y) = y else { return Ok(x) };
+    let mut rhs = |t: f64, z: &[f64], dz: &mut [f64]| y.eval(t, z, dz);
+    let out = integrate_at(
+        &mut rhs,
+        0.0,
+        &x,
+        &[1.0],
+        &compare_options(),
+        cancel,
+        &mut |_| {},
+    )?;
+    Ok(out.states.into_iter().next().unwrap_or(x))
+}
+
 /// The largest Euclidean distance between the original and the model of
 /// each order `1..=orders.len()` at the sample times `m·T`, `m = 1..=n`.
 pub fn compare_errors(
@@ -74,6 +100,7 @@ pub fn compare_errors(
                     Some(w) => transform_at(w, run.eps, order, 0.0, run.y0),
                     None => run.y0.to_vec(),
                 };
+                let x0 = outer_map(run.outer, x0, cancel)?;
                 let out = integrate_at(&mut sys, 0.0, &x0, &times, &opts, cancel, progress)?;
                 if transform.is_none() {
                     cached_original = Some(out.states.clone());
@@ -102,6 +129,7 @@ pub fn compare_errors(
                 Some(w) => transform_at(w, run.eps, order, *t, y),
                 None => y.clone(),
             };
+            let y_in_x = outer_map(run.outer, y_in_x, cancel)?;
             let d: f64 = x
                 .iter()
                 .zip(&y_in_x)

@@ -5,4 +5,6 @@
 
 pub mod chrono;
 pub mod freelie;
+pub mod lyndon;
+pub mod shuffle;
 pub mod taylor;

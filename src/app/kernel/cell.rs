@@ -552,7 +552,7 @@ impl Outputs<'_> {
             .collect();
         let plain = results.join("\n");
         let tex = match &report.rich {
-            Some(Rich::Value(v)) => latex::value(v),
+            Some(Rich::Value(v, states)) => latex::value(v, states),
             Some(Rich::Latex) => plain.clone(),
             None => return,
         };
