@@ -195,7 +195,10 @@ fn latex_outputs() -> Vec<(String, Vec<String>)> {
             let o = run(&f);
             assert_eq!(o.exit, 0, "{} did not pass:\n{}", f.display(), o.text);
             if !o.latex.is_empty() {
-                all.push((format!("{dir}/{}", f.file_name().unwrap().to_string_lossy()), o.latex));
+                all.push((
+                    format!("{dir}/{}", f.file_name().unwrap().to_string_lossy()),
+                    o.latex,
+                ));
             }
         }
     }
@@ -211,7 +214,9 @@ fn latex_document(outputs: &[(String, Vec<String>)]) -> String {
         "\\documentclass[11pt]{article}\n\\usepackage{amsmath}\n\\usepackage[margin=2cm]{geometry}\n\\begin{document}\n",
     );
     for (name, formulas) in outputs {
-        doc.push_str(&format!("\\section*{{\\texttt{{\\detokenize{{{name}}}}}}}\n"));
+        doc.push_str(&format!(
+            "\\section*{{\\texttt{{\\detokenize{{{name}}}}}}}\n"
+        ));
         for f in formulas {
             doc.push_str("\\[\n");
             doc.push_str(f);
@@ -262,12 +267,19 @@ fn latex_compiles_with_pdflatex() {
     }
     let outputs = latex_outputs();
     let n: usize = outputs.iter().map(|(_, f)| f.len()).sum();
-    assert!(n >= 8, "expected the worked scripts to show LaTeX, found {n} formulas");
+    assert!(
+        n >= 8,
+        "expected the worked scripts to show LaTeX, found {n} formulas"
+    );
     let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("target/latex-check");
     std::fs::create_dir_all(&dir).unwrap();
     std::fs::write(dir.join("ordex-latex.tex"), latex_document(&outputs)).unwrap();
     let run = std::process::Command::new("pdflatex")
-        .args(["-interaction=nonstopmode", "-halt-on-error", "ordex-latex.tex"])
+        .args([
+            "-interaction=nonstopmode",
+            "-halt-on-error",
+            "ordex-latex.tex",
+        ])
         .current_dir(&dir)
         .output()
         .expect("run pdflatex");

@@ -8,8 +8,8 @@ use super::session::{ErrorKind, Session, SessionError, SymKind};
 use super::value::{Combo, FieldValue, Value};
 use crate::core::calc::common_period;
 use crate::core::func::{Arg as FuncArg, Definition, Signature};
-use std::sync::Arc;
 use crate::core::{CoreError, Expr, Field, Matrix, Sym, Q};
+use std::sync::Arc;
 
 /// Names of the built-in functions.
 pub const BUILTINS: &[&str] = &[
@@ -669,7 +669,11 @@ impl Session {
                             ),
                         ));
                     }
-                    let deriv = if primes > 0 { vec![primes] } else { vec![0; sig.params.len()] };
+                    let deriv = if primes > 0 {
+                        vec![primes]
+                    } else {
+                        vec![0; sig.params.len()]
+                    };
                     let sig = sig.clone();
                     return self.apply_func(&sig, &deriv, name.span, args, span);
                 }
@@ -781,7 +785,10 @@ impl Session {
 
 /// A value with `f` applied to every scalar entry (the field's extra
 /// structure is dropped: the value changed).
-fn map_value(v: Value, f: &mut dyn FnMut(&Expr) -> Result<Expr, CoreError>) -> Result<Value, CoreError> {
+fn map_value(
+    v: Value,
+    f: &mut dyn FnMut(&Expr) -> Result<Expr, CoreError>,
+) -> Result<Value, CoreError> {
     Ok(match v {
         Value::Scalar(x) => Value::Scalar(f(&x)?),
         Value::Field(fv) => Value::field(fv.field.map(f)?),
@@ -828,7 +835,10 @@ impl Session {
             let Arg::Pos(e) = a else {
                 return Err(SessionError::invalid(
                     a.span(),
-                    format!("`{}` takes positional arguments, as declared: `{shown}`", sig.name),
+                    format!(
+                        "`{}` takes positional arguments, as declared: `{shown}`",
+                        sig.name
+                    ),
                 ));
             };
             let x = self.eval_scalar(e, &format!("an argument of `{}`", sig.name))?;
@@ -908,7 +918,8 @@ impl Session {
                 format!("`pd({fname}, …)` needs an argument name to differentiate in"),
             ));
         }
-        self.apply_func(&sig, &deriv, head.span, args, span).map(Some)
+        self.apply_func(&sig, &deriv, head.span, args, span)
+            .map(Some)
     }
 
     /// Reads `V(s) = body` of `plug`.
@@ -944,7 +955,10 @@ impl Session {
                     format!("argument `{}` is listed twice", p.name),
                 ));
             }
-            if matches!(self.sym_kind(&p.name), Some(k) if k != SymKind::State) || p.name == "t" || p.name == "pi" {
+            if matches!(self.sym_kind(&p.name), Some(k) if k != SymKind::State)
+                || p.name == "t"
+                || p.name == "pi"
+            {
                 return Err(SessionError::invalid(
                     p.span,
                     format!(

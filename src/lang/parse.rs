@@ -126,8 +126,8 @@ pub const COMMAND_WORDS: &[&str] = &[
 
 /// The words that start the other statements.
 pub const STATEMENT_WORDS: &[&str] = &[
-    "state", "param", "input", "func", "check", "show", "save", "run", "names", "forget", "help", "set",
-    "quit",
+    "state", "param", "input", "func", "check", "show", "save", "run", "names", "forget", "help",
+    "set", "quit",
 ];
 
 /// Whether `word` is reserved (see [`RESERVED_WORDS`]).
@@ -1395,7 +1395,10 @@ impl<'a> Parser<'a> {
             let Some(mut inner) = at.strip_prefix('(') else {
                 return self.expected(
                     at,
-                    &format!("`(` and argument names after `{}` (e.g. `{}(s)`)", name.name, name.name),
+                    &format!(
+                        "`(` and argument names after `{}` (e.g. `{}(s)`)",
+                        name.name, name.name
+                    ),
                 );
             };
             let mut params = Vec::new();
