@@ -26,14 +26,10 @@ const TOPICS: &[(&str, &str)] = &[
     ("save", "save FILE   |   save FILE with checks\n  write the session's accepted lines as a script (atomically; `help` and `names` lines are\n  not saved). `with checks` also writes, after each line that defines a name,\n  `check NAME == VALUE` with its exact value, so a replay (`ordex FILE`) re-derives and\n  re-checks every result: exit 0 when all hold, 1 naming the line of a result that changed.\n  example: save boom_derivation.ordex with checks"),
     ("run", "run FILE\n  replay a script into this session."),
     ("names", "names\n  list declarations and definitions."),
-<<<<<<< HEAD
     ("forget", "forget NAME\n  remove a definition, or a parameter or input that no definition uses (otherwise it names\n  the definitions that do). State and chart coordinates stay: `state …` declares a new state."),
-    ("set", "set budget N\n  the most terms one result may hold (a large coefficient counts as a term per 64 bytes),\n  and with it the work of one statement (250*N term products), before the computation\n  stops with a message. Digits (100,000), order (40) and nesting (256) are fixed limits."),
-=======
-    ("forget", "forget NAME\n  remove a definition."),
     ("equilibria", "equilibria F near q=1, p=0 [with k=1]\n  find an equilibrium of the autonomous field F by Newton's method from the guess (steps cut to\n  at most max(1, |x|), halved until |F| decreases); print it in decimals with its residual |F|,\n  say so when it is exactly a rational multiple of 1 or pi, then the `stability` report there.\n  A failure (no convergence, singular Jacobian) says why and where the iterates ended.\n  example: equilibria order(A, eps, 1) near th=3, p=0 with gam=1, bet=2"),
     ("set", "set tolerance E\n  the integration tolerance of `simulate` and `compare` (relative E, absolute E/100; from 1e-13\n  to 1e-3; default 1e-11).\nset budget N\n  the most terms one result may hold (a large coefficient counts as a term per 64 bytes),\n  and with it the work of one statement (250*N term products), before the computation\n  stops with a message. Digits (100,000), order (40) and nesting (256) are fixed limits."),
->>>>>>> f19
+    ("kernel", "ordex kernel install   (at the shell, once)\n  register ordex as a Jupyter kernel for this user (kernel.json in the Jupyter data directory,\n  JUPYTER_DATA_DIR when set); then pick the kernel \"ordex\" in a notebook. A cell runs as a script:\n  results in input syntax and LaTeX, plots inline, errors with the caret, failed checks as errors;\n  interrupt keeps the session; `save FILE` writes the accepted lines as a script."),
     ("quit", "quit\n  leave the prompt (Ctrl-D too)."),
     ("builtins", "built-in functions\n  sin cos exp (of linear arguments), ad(X, Y, k), pd(h, q), jac(X), div(X), det(M), trace(M),\n  plug(e, q = v, ...), order(e, eps, k), mean(e), bch(X, Y, N), iint(u1, ...), X(h) (Lie derivative),\n  [X, Y] (Lie bracket: [X,Y](h) = X(Y(h)) - Y(X(h)))."),
 ];
@@ -62,28 +58,20 @@ pub fn help(word: Option<&str>) -> Option<String> {
             let key = match w {
                 "sin" | "cos" | "exp" | "ad" | "pd" | "jac" | "div" | "det" | "trace" | "plug"
                 | "order" | "mean" | "bch" | "iint" => "builtins",
-<<<<<<< HEAD
-                "budget" => "set",
-                "chart" | "charts" | "coordinates" => "change",
-=======
                 "budget" | "tolerance" => "set",
->>>>>>> f19
+                "chart" | "charts" | "coordinates" => "change",
                 other => other,
             };
             let (_, text) = TOPICS.iter().find(|(k, _)| *k == key)?;
             let mut s = text.to_string();
-<<<<<<< HEAD
             if let Some(extra) = EXTRA.iter().find(|(k, _)| *k == key).map(|(_, e)| e) {
                 s.push('\n');
                 s.push_str(extra);
             }
-            if matches!(key, "average" | "compare" | "stability") {
-=======
             if matches!(
                 key,
                 "average" | "compare" | "stability" | "equilibria" | "simulate"
             ) {
->>>>>>> f19
                 s.push('\n');
                 s.push_str(CAUTION);
             }

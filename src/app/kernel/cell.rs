@@ -153,52 +153,50 @@ impl Kernel {
 
     fn handle(&mut self, msg: &Message) {
         self.publish(Some(msg), "status", json!({"execution_state": "busy"}));
-        let stopped = match msg.msg_type() {
+        let waiting = match msg.msg_type() {
             "execute_request" => self.execute(msg),
             "kernel_info_request" => {
                 self.reply(msg, "kernel_info_reply", kernel_info());
-                false
+                Vec::new()
             }
             "complete_request" => {
                 let content = self.complete(&msg.content);
                 self.reply(msg, "complete_reply", content);
-                false
+                Vec::new()
             }
             "is_complete_request" => {
                 let code = msg.content["code"].as_str().unwrap_or("");
                 self.reply(msg, "is_complete_reply", is_complete(code));
-                false
+                Vec::new()
             }
             "inspect_request" => {
                 let content = self.inspect(&msg.content);
                 self.reply(msg, "inspect_reply", content);
-                false
+                Vec::new()
             }
             "history_request" => {
                 self.reply(msg, "history_reply", json!({"status": "ok", "history": []}));
-                false
+                Vec::new()
             }
             "comm_info_request" => {
                 self.reply(msg, "comm_info_reply", json!({"status": "ok", "comms": {}}));
-                false
+                Vec::new()
             }
             other => {
                 log(&format!("ignored a {other} on shell"));
-                false
+                Vec::new()
             }
         };
         self.publish(Some(msg), "status", json!({"execution_state": "idle"}));
-        if stopped {
-            self.abort_queued();
-        }
+        self.abort_waiting(waiting);
     }
 
-    /// After an error with `stop_on_error`, execute requests already
+    /// After an error with `stop_on_error`, execute requests that were
     /// waiting are answered `aborted` (as "run all" expects); other
     /// requests are served.
-    fn abort_queued(&mut self) {
+    fn abort_waiting(&mut self, waiting: Vec<Message>) {
         let mut others = Vec::new();
-        while let Ok(next) = self.links.requests.try_recv() {
+        for next in waiting {
             if next.msg_type() == "execute_request" {
                 self.publish(Some(&next), "status", json!({"execution_state": "busy"}));
                 self.reply(
@@ -216,8 +214,9 @@ impl Kernel {
         }
     }
 
-    /// Runs a cell; true when it failed and asked to stop on errors.
-    fn execute(&mut self, msg: &Message) -> bool {
+    /// Runs a cell; when it failed and asked to stop on errors, returns
+    /// the requests that were waiting when it ended.
+    fn execute(&mut self, msg: &Message) -> Vec<Message> {
         let content = &msg.content;
         let code = content["code"].as_str().unwrap_or("");
         let silent = content["silent"].as_bool().unwrap_or(false);
@@ -246,9 +245,16 @@ impl Kernel {
                 "traceback": traceback,
             }),
         };
-        let failed = reply["status"] == "error";
+        // Requests already waiting are taken before the reply goes out, so
+        // that what a client sends after seeing the error is never aborted.
+        let waiting =
+            if reply["status"] == "error" && content["stop_on_error"].as_bool().unwrap_or(true) {
+                self.links.requests.try_iter().collect()
+            } else {
+                Vec::new()
+            };
         self.reply(msg, "execute_reply", reply);
-        failed && content["stop_on_error"].as_bool().unwrap_or(true)
+        waiting
     }
 
     fn run_cell(&mut self, code: &str, msg: &Message, silent: bool, count: u64) -> Outcome {
@@ -498,6 +504,14 @@ fn word_at(code: &str, pos: usize) -> &str {
     code.get(start..end).unwrap_or("")
 }
 
+/// The last part of a path, for messages.
+fn file_name(path: &std::path::Path) -> String {
+    path.file_name().map_or_else(
+        || path.display().to_string(),
+        |n| n.to_string_lossy().into_owned(),
+    )
+}
+
 /// Publishes the outputs of one execute request.
 struct Outputs<'a> {
     kernel: &'a Kernel,
@@ -556,7 +570,8 @@ impl Outputs<'_> {
         }
     }
 
-    /// A plot file shown inline.
+    /// A plot file shown inline (its text form names the file, not the
+    /// folder, so that a notebook run elsewhere shows the same).
     fn plot(&self, path: &std::path::Path) {
         match std::fs::read_to_string(path) {
             Ok(svg) => self.send(
@@ -564,7 +579,7 @@ impl Outputs<'_> {
                 json!({
                     "data": {
                         "image/svg+xml": svg,
-                        "text/plain": format!("plot {}", path.display()),
+                        "text/plain": format!("plot {}", file_name(path)),
                     },
                     "metadata": {},
                 }),
