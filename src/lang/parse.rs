@@ -2898,7 +2898,7 @@ mod tests {
                 ),
                 3,
             ),
-            ("set x 3", expected("`budget` after `set`", "`x`"), 5),
+            ("set x 3", expected("`budget` or `tolerance` after `set`", "`x`"), 5),
             ("set budget", expected("a whole number after `budget`", END), 11),
             (
                 "help +",
