@@ -532,3 +532,47 @@ fn names_that_are_not_ascii_get_a_hint() {
         stderr(&out)
     );
 }
+
+#[test]
+fn a_system_outside_the_bracket_form_still_averages() {
+    // `k*[p, -x]` is autonomous: its averaged field is itself. The bracket
+    // form cannot grade a letter without a positive power of k; the
+    // concrete result must still come, with a note saying why there is no
+    // Lie polynomial.
+    let dir = temp();
+    let out = ordex(
+        dir.path(),
+        &[
+            "-e",
+            "state x, p\nparam k\nS = k*[p, -x]\nA = average S to 2 in k\ncheck A == k*[p, -x]",
+        ],
+    );
+    assert_eq!(code(&out), 0, "{}{}", stdout(&out), stderr(&out));
+    assert!(stdout(&out).contains("no bracket form"), "{}", stdout(&out));
+}
+
+#[test]
+fn code_for_simulation_refuses_unspecified_functions_and_phases() {
+    let dir = temp();
+    let out = ordex(
+        dir.path(),
+        &["-e", "state q, p\nfunc V(s)\nshow [p, -V'(q)] as python"],
+    );
+    assert_eq!(code(&out), 2, "{}", stdout(&out));
+    assert!(
+        stderr(&out).contains("unspecified function"),
+        "{}",
+        stderr(&out)
+    );
+    assert!(!stdout(&out).contains("def "), "{}", stdout(&out));
+    let out = ordex(
+        dir.path(),
+        &["-e", "state q, p\nparam w\nshow [p, -cos(w*t)*q] as c"],
+    );
+    assert_eq!(code(&out), 2, "{}", stdout(&out));
+    assert!(
+        stderr(&out).contains("symbolic frequency"),
+        "{}",
+        stderr(&out)
+    );
+}

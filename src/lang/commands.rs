@@ -41,6 +41,13 @@ fn optional_structure<T>(
             report.push(Style::Warn, format!("no bracket form: {e}"));
             Ok(None)
         }
+        // A system the bracket form does not cover (a letter without a
+        // positive power of the small parameter, too many ad-words, …):
+        // the concrete result stands; say why there is no Lie polynomial.
+        Err(CoreError::Refused { reason }) => {
+            report.push(Style::Note, format!("no bracket form: {reason}"));
+            Ok(None)
+        }
         other => other,
     }
 }
@@ -457,10 +464,11 @@ impl Session {
                     report,
                 )
                 .map_err(core)?,
-                Method::Classic => {
-                    super::structural::classic_structure(combo, opts.order, &res.period, eps)
-                        .map_err(core)?
-                }
+                Method::Classic => optional_structure(
+                    super::structural::classic_structure(combo, opts.order, &res.period, eps),
+                    report,
+                )
+                .map_err(core)?,
             },
             (Some(combo), Form::FastOscillation { zero_mean, .. }) => {
                 let s = optional_structure(

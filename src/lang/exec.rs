@@ -179,6 +179,25 @@ impl Session {
                         ),
                     ));
                 };
+                let entries: Vec<&crate::core::Expr> = match &v {
+                    Value::Scalar(e) => vec![e],
+                    Value::Field(f) => f.field.0.iter().collect(),
+                    Value::Matrix(m) => m.data.iter().collect(),
+                };
+                // Floating-point code needs numbers: no unspecified function,
+                // no symbolic-frequency phase.
+                if let Some(a) = entries.iter().find_map(|e| e.first_atom()) {
+                    return Err(SessionError::invalid(
+                        expr.span,
+                        format!(
+                            "code needs numbers, and `{a}` is an unspecified function \
+                             (hint: plug a definition first, e.g. `plug(E, {}({}) = …)`)",
+                            a.sig.name,
+                            a.sig.params.join(", ")
+                        ),
+                    ));
+                }
+                self.refuse_phase(entries.iter().copied(), expr.span, "the value")?;
                 let shape = match &v {
                     Value::Scalar(e) => code::Shape::Scalar(e),
                     Value::Field(f) => code::Shape::Field(&f.field),
