@@ -2049,37 +2049,39 @@ impl<'a> Parser<'a> {
     }
 
     fn equilibria(&self, input: &'a str) -> PResult<'a, CommandKind> {
-        let (rest, field) = self.expect_expr(input, "the field after `equilibria`")?;
-        let Some(after_near) = self.keyword(rest, "near") else {
-            return self.expected(
-                rest,
-                "`near` and a guess such as `q = 1, p = 0` after the field in `equilibria`",
-            );
-        };
-        let (rest, near) = self.assigns(after_near, "near")?;
-        let (rest, with) = match self.keyword(rest, "with") {
-            Some(after) => {
-                let (rest, values) = self.assigns(after, "with")?;
-                self.end(rest, None)?;
-                (rest, values)
-            }
-            None => {
-                self.end(rest, Some("`with` or the end of the line"))?;
-                (rest, Vec::new())
-            }
-        };
+        let (rest, (field, near, with)) = self.field_point_with(
+            input,
+            "equilibria",
+            "near",
+            "a guess such as `q = 1, p = 0`",
+        )?;
         Ok((rest, CommandKind::Equilibria { field, near, with }))
     }
 
     fn stability(&self, input: &'a str) -> PResult<'a, CommandKind> {
-        let (rest, field) = self.expect_expr(input, "the field after `stability`")?;
-        let Some(after_at) = self.keyword(rest, "at") else {
+        let (rest, (field, at, with)) =
+            self.field_point_with(input, "stability", "at", "a point such as `q = 0, p = 0`")?;
+        Ok((rest, CommandKind::Stability { field, at, with }))
+    }
+
+    /// `FIELD WORD q = …, p = … [with k = …]`, the shape of `stability`
+    /// and `equilibria`.
+    #[allow(clippy::type_complexity)]
+    fn field_point_with(
+        &self,
+        input: &'a str,
+        command: &str,
+        word: &str,
+        point: &str,
+    ) -> PResult<'a, (Expr, Vec<Assign>, Vec<Assign>)> {
+        let (rest, field) = self.expect_expr(input, &format!("the field after `{command}`"))?;
+        let Some(after_word) = self.keyword(rest, word) else {
             return self.expected(
                 rest,
-                "`at` and a point such as `q = 0, p = 0` after the field in `stability`",
+                &format!("`{word}` and {point} after the field in `{command}`"),
             );
         };
-        let (rest, at) = self.assigns(after_at, "at")?;
+        let (rest, at) = self.assigns(after_word, word)?;
         let (rest, with) = match self.keyword(rest, "with") {
             Some(after) => {
                 let (rest, values) = self.assigns(after, "with")?;
@@ -2091,7 +2093,7 @@ impl<'a> Parser<'a> {
                 (rest, Vec::new())
             }
         };
-        Ok((rest, CommandKind::Stability { field, at, with }))
+        Ok((rest, (field, at, with)))
     }
 
     /// `for E` after the initial values of `simulate` and `compare`.
