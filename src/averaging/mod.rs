@@ -32,6 +32,16 @@ pub enum Method {
     Classic,
 }
 
+impl Method {
+    /// The adjective the reports use: `stroboscopic` or `classical`.
+    pub fn adjective(self) -> &'static str {
+        match self {
+            Method::Strobo => "stroboscopic",
+            Method::Classic => "classical",
+        }
+    }
+}
+
 /// The shape in which the system was recognised.
 #[derive(Clone, Debug, PartialEq)]
 pub enum Form {

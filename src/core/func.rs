@@ -219,31 +219,36 @@ impl Atom {
     }
 }
 
+/// Appends `± body(|c|)` to a sum being written (`-` alone at the start);
+/// nothing for `c = 0`. Shared by the argument printers of the input syntax
+/// and of LaTeX.
+pub fn push_signed(s: &mut String, c: &Q, body: impl FnOnce(&Q) -> String) {
+    if c.is_zero() {
+        return;
+    }
+    let neg = c.is_negative();
+    if s.is_empty() {
+        if neg {
+            s.push('-');
+        }
+    } else {
+        s.push_str(if neg { " - " } else { " + " });
+    }
+    s.push_str(&body(&c.abs()));
+}
+
 /// An argument in the input syntax: the linear form, then the constant,
 /// then the multiple of pi (`q - 1`, `x + pi`, `1/2`).
 pub fn show_arg(a: &Arg) -> String {
     let mut s = super::expr::fmt_lin(&a.lin);
-    let mut push = |c: &Q, what: Option<&str>| {
-        if c.is_zero() {
-            return;
-        }
-        let neg = c.is_negative();
-        let abs = c.abs();
-        if s.is_empty() {
-            if neg {
-                s.push('-');
-            }
+    push_signed(&mut s, &a.constant, |abs| abs.to_string());
+    push_signed(&mut s, &a.pi, |abs| {
+        if abs.is_one() {
+            "pi".to_string()
         } else {
-            s.push_str(if neg { " - " } else { " + " });
+            format!("{abs}*pi")
         }
-        match what {
-            None => s.push_str(&abs.to_string()),
-            Some(w) if abs.is_one() => s.push_str(w),
-            Some(w) => s.push_str(&format!("{abs}*{w}")),
-        }
-    };
-    push(&a.constant, None);
-    push(&a.pi, Some("pi"));
+    });
     if s.is_empty() {
         s.push('0');
     }

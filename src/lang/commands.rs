@@ -431,11 +431,7 @@ impl Session {
                 );
             }
         }
-        let method = if opts.method == Method::Strobo {
-            "stroboscopic"
-        } else {
-            "classical"
-        };
+        let method = opts.method.adjective();
         report.push(
             Style::Note,
             format!("{method} averaging in {e} to order {}", opts.order),

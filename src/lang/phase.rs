@@ -15,7 +15,7 @@ use std::collections::HashMap;
 use super::ast::Span;
 use super::session::{Report, Session, SessionError, Style, SymKind};
 use super::value::{FieldValue, Value};
-use crate::averaging::{self, Form, Method, Options};
+use crate::averaging::{self, Form, Options};
 use crate::core::expr::{Beat, Wave};
 use crate::core::{CoreError, Expr, Field, Sym};
 use crate::render::plain;
@@ -269,11 +269,7 @@ impl Session {
                 },
             );
         }
-        let method = if opts.method == Method::Strobo {
-            "stroboscopic"
-        } else {
-            "classical"
-        };
+        let method = opts.method.adjective();
         report.push(
             Style::Note,
             format!(

@@ -164,29 +164,16 @@ fn sym_tex(s: Sym) -> String {
 
 /// An argument of an unspecified function in LaTeX.
 fn arg_tex(a: &crate::core::func::Arg) -> String {
+    use crate::core::func::push_signed;
     let mut s = lin(&a.lin, None);
-    let mut push = |c: &Q, what: &str| {
-        if c.is_zero() {
-            return;
-        }
-        let neg = c.is_negative();
-        let abs = c.abs();
-        if s.is_empty() {
-            if neg {
-                s.push('-');
-            }
+    push_signed(&mut s, &a.constant, |abs| {
+        if abs.is_one() {
+            "1".to_string()
         } else {
-            s.push_str(if neg { " - " } else { " + " });
+            coeff_prefix(abs)
         }
-        if what.is_empty() && abs.is_one() {
-            s.push('1');
-        } else {
-            s.push_str(&coeff_prefix(&abs));
-            s.push_str(what);
-        }
-    };
-    push(&a.constant, "");
-    push(&a.pi, "\\pi");
+    });
+    push_signed(&mut s, &a.pi, |abs| format!("{}\\pi", coeff_prefix(abs)));
     if s.is_empty() {
         s.push('0');
     }
