@@ -30,7 +30,7 @@ use proptest::test_runner::TestCaseError;
 
 /// Stack of the thread a case runs on.
 const CASE_STACK: usize = 64 << 20;
-/// Part of that stack painted before the run, to measure the deepest use
+/// TimePart of that stack painted before the run, to measure the deepest use
 /// (a case using all of it used more than [`MAIN_STACK`]).
 const PAINTED: usize = 12 << 20;
 /// The main thread's stack on common systems: a case using more would crash

@@ -21,7 +21,7 @@ use std::collections::HashMap;
 use std::fmt::Display;
 
 use ordex::core::calc::Period;
-use ordex::core::expr::{Acc, Beat, Keep, Key, Wave};
+use ordex::core::expr::{Keep, Key, SumBuilder, TimeFactor, TrigFactor};
 use ordex::core::{Expr, Field, Sym, Q};
 use ordex::lang::value::Value;
 use ordex::lang::{Event, Session, Style};
@@ -370,10 +370,10 @@ proptest! {
         }
         for (k, c) in a.terms() {
             prop_assert!(!c.is_zero(), "zero coefficient in {}", a);
-            if let Wave::Cos(l) | Wave::Sin(l) = &k.wave {
+            if let TrigFactor::Cos(l) | TrigFactor::Sin(l) = &k.wave {
                 prop_assert!(!l.is_zero() && !l.is_negative(), "non-canonical argument in {}", a);
             }
-            if let Beat::Cos(f) | Beat::Sin(f) = &k.beat {
+            if let TimeFactor::Cos(f) | TimeFactor::Sin(f) = &k.beat {
                 prop_assert!(!f.is_zero() && !f.is_negative(), "non-canonical frequency in {}", a);
             }
         }
@@ -588,7 +588,7 @@ proptest! {
             big.into_by_frequency(),
         );
         let sum = |keep: Keep| -> Result<(Expr, Expr), TestCaseError> {
-            let mut acc = Acc::new();
+            let mut acc = SumBuilder::new();
             acc.add_scaled(&c, &third, keep).or_fail("c/3")?;
             acc.add_product_harmonics(&pa, &pb, false, keep).or_fail("ab")?;
             acc.add_product_harmonics(&pb, &pc, true, keep).or_fail("bc")?;
@@ -599,8 +599,8 @@ proptest! {
         let capq = q(cap, 2);
         let kept = full.filter(|k, _| k.beat.frequency() <= capq);
         let sines = full.map_terms(|k, c| match &k.beat {
-            Beat::Sin(h) if *h > capq => Some((
-                Key { beat: Beat::One, ..k.clone() },
+            TimeFactor::Sin(h) if *h > capq => Some((
+                Key { beat: TimeFactor::One, ..k.clone() },
                 c.div(h).unwrap_or(Q::ZERO),
             )),
             _ => None,

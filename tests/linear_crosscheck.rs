@@ -17,7 +17,7 @@ use std::fmt::Display;
 
 use nalgebra::{Matrix3, Vector3};
 use ordex::core::calc::Period;
-use ordex::core::expr::{Beat, Lin, Wave};
+use ordex::core::expr::{LinearForm, TimeFactor, TrigFactor};
 use ordex::core::{Expr, Field, Sym, Q};
 use ordex::lang::value::Value;
 use ordex::lang::{Event, Session};
@@ -148,7 +148,7 @@ fn eval_f64(e: &Expr, vals: &HashMap<Sym, f64>) -> f64 {
             vals.get(s).copied().unwrap_or(f64::NAN)
         }
     };
-    let lin = |l: &Lin| -> f64 { l.0.iter().map(|(s, c)| c.to_f64() * val(s)).sum() };
+    let lin = |l: &LinearForm| -> f64 { l.0.iter().map(|(s, c)| c.to_f64() * val(s)).sum() };
     let tv = val(&Sym::T);
     e.terms()
         .iter()
@@ -161,14 +161,14 @@ fn eval_f64(e: &Expr, vals: &HashMap<Sym, f64>) -> f64 {
                 v *= lin(&k.exp).exp();
             }
             match &k.wave {
-                Wave::One => {}
-                Wave::Cos(l) => v *= lin(l).cos(),
-                Wave::Sin(l) => v *= lin(l).sin(),
+                TrigFactor::One => {}
+                TrigFactor::Cos(l) => v *= lin(l).cos(),
+                TrigFactor::Sin(l) => v *= lin(l).sin(),
             }
             match &k.beat {
-                Beat::One => {}
-                Beat::Cos(w) => v *= (w.to_f64() * tv).cos(),
-                Beat::Sin(w) => v *= (w.to_f64() * tv).sin(),
+                TimeFactor::One => {}
+                TimeFactor::Cos(w) => v *= (w.to_f64() * tv).cos(),
+                TimeFactor::Sin(w) => v *= (w.to_f64() * tv).sin(),
             }
             v
         })

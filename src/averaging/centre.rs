@@ -10,7 +10,7 @@ use num_integer::Integer;
 use num_traits::{Signed, ToPrimitive, Zero};
 
 use super::Form;
-use crate::core::expr::{Beat, Key};
+use crate::core::expr::{Key, TimeFactor};
 use crate::core::{CoreError, CoreResult, Expr, Field, Matrix, Sym, Q};
 
 fn refuse(reason: String) -> CoreError {
@@ -239,14 +239,14 @@ fn rotation(a: &Matrix) -> CoreResult<(Matrix, Matrix)> {
         }
         let cos = Expr::term(
             Key {
-                beat: Beat::Cos(kj.clone()),
+                beat: TimeFactor::Cos(kj.clone()),
                 ..Key::one()
             },
             Q::ONE,
         );
         let sin = Expr::term(
             Key {
-                beat: Beat::Sin(kj.clone()),
+                beat: TimeFactor::Sin(kj.clone()),
                 ..Key::one()
             },
             Q::ONE,

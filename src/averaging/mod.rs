@@ -16,10 +16,12 @@ mod centre;
 use std::collections::HashMap;
 
 use crate::core::calc::{common_period, Period, TimeKey};
-use crate::core::expr::Beat;
 use crate::core::expr::Keep;
-use crate::core::expr::{Harmonics, Part};
-use crate::core::field::{bracket_sum_onto_parts, bracket_sum_onto_prepared, Prepared, Start};
+use crate::core::expr::TimeFactor;
+use crate::core::expr::{TimePart, TimeParts};
+use crate::core::field::{
+    bracket_sum_onto_parts, bracket_sum_onto_prepared, BracketStart, Prepared,
+};
 use crate::core::{limits, CoreError, CoreResult, Expr, Field, Matrix, Sym, Q};
 use crate::series::chrono::{magnus_generator, Graded};
 
@@ -324,7 +326,7 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
             Keep::All
         };
         let pairs = grade_pairs(&w, &h[1], k);
-        let start = [(Start::Field(&standard[k - 1]), Q::ONE)];
+        let start = [(BracketStart::Field(&standard[k - 1]), Q::ONE)];
         let (rest, sines) = bracket_sum_onto_parts(&start, &pairs, false, states, cap)?;
         let step = split_and_integrate(rest, &sines, period, states)?;
         let fk = step.mean;
@@ -351,9 +353,12 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
             let cap = (p + k == n).then(|| rho1.mul(&Q::int(p as i64)));
             let keep = cap.as_ref().map_or(Keep::All, Keep::UpTo);
             let u = [
-                (Start::Parts(&fk_parts), fact[p].recip().unwrap_or(Q::ZERO)),
                 (
-                    Start::Parts(&wk_dot),
+                    BracketStart::Parts(&fk_parts),
+                    fact[p].recip().unwrap_or(Q::ZERO),
+                ),
+                (
+                    BracketStart::Parts(&wk_dot),
                     fact[p + 1].recip().unwrap_or(Q::ZERO),
                 ),
             ];
@@ -372,8 +377,8 @@ struct Step {
     mean: Field,
     /// The mean split by time factor (packed when it was): the sums
     /// `H_{p,k}` start from it without packing `F_k` again for each `p`.
-    mean_parts: Vec<Harmonics>,
-    oscillating: Vec<Harmonics>,
+    mean_parts: Vec<TimeParts>,
+    oscillating: Vec<TimeParts>,
     integral: Prepared,
 }
 
@@ -383,7 +388,7 @@ struct Step {
 /// completes whole cycles in the period (then the mean is the part without
 /// time factor); through the normal forms otherwise.
 fn split_and_integrate(
-    rest: Vec<Harmonics>,
+    rest: Vec<TimeParts>,
     sines: &Field,
     period: &Period,
     states: &[Sym],
@@ -420,14 +425,14 @@ fn split_and_integrate(
     let mut oscillating = Vec::with_capacity(rest.len());
     let mut integral = Vec::with_capacity(rest.len());
     for (parts, s) in rest.into_iter().zip(&sines.0) {
-        let (constant, osc): (Vec<Part>, Vec<Part>) =
+        let (constant, osc): (Vec<TimePart>, Vec<TimePart>) =
             parts.into_iter().partition(|p| p.freq.is_zero());
         // The constant part has no sine (sin 0 = 0): it is the mean.
         let m = constant
             .first()
             .map_or_else(Expr::zero, |p| p.expr().clone());
         let mut c = s.clone();
-        let mut waves: Harmonics = Vec::with_capacity(osc.len());
+        let mut waves: TimeParts = Vec::with_capacity(osc.len());
         for p in &osc {
             for q in p.integral_from_zero()? {
                 if q.freq.is_zero() {
@@ -445,7 +450,7 @@ fn split_and_integrate(
         oscillating.push(osc);
         integral.push(w_parts);
     }
-    let terms: usize = integral.iter().flatten().map(Part::len).sum();
+    let terms: usize = integral.iter().flatten().map(TimePart::len).sum();
     limits::check_terms(terms)?;
     Ok(Step {
         mean: Field(mean),
@@ -562,7 +567,7 @@ fn fast_oscillation(
                 term: format!("{}*{}", tk.to_expr(), show_field(g)),
             });
         }
-        if tk.beat == Beat::One {
+        if tk.beat == TimeFactor::One {
             return Err(CoreError::Refused {
                 reason: format!(
                     "the eps^0 part has a nonzero mean {}: it is not a fast oscillation \

@@ -7,7 +7,7 @@
 use std::collections::HashMap;
 
 use super::error::{CoreError, CoreResult};
-use super::expr::{Beat, Expr, Key, Lin, Mono, Wave};
+use super::expr::{Expr, Key, LinearForm, Monomial, TimeFactor, TrigFactor};
 use super::num::Q;
 use super::symbol::Sym;
 
@@ -19,7 +19,7 @@ impl Expr {
         let mut chain = Vec::new();
         for (k, c) in self.terms() {
             // Monomial factor.
-            let e = k.mono.exp_of(s);
+            let e = k.mono.power_of(s);
             if e != 0 {
                 let mut key = k.clone();
                 for (x, ex) in key.mono.0.iter_mut() {
@@ -49,22 +49,22 @@ impl Expr {
             }
             // Trigonometric factor in the state.
             match &k.wave {
-                Wave::One => {}
-                Wave::Cos(l) => {
+                TrigFactor::One => {}
+                TrigFactor::Cos(l) => {
                     let a = l.coeff(s);
                     if !a.is_zero() {
                         let key = Key {
-                            wave: Wave::Sin(l.clone()),
+                            wave: TrigFactor::Sin(l.clone()),
                             ..k.clone()
                         };
                         out.push((key, c.mul(&a).neg()));
                     }
                 }
-                Wave::Sin(l) => {
+                TrigFactor::Sin(l) => {
                     let a = l.coeff(s);
                     if !a.is_zero() {
                         let key = Key {
-                            wave: Wave::Cos(l.clone()),
+                            wave: TrigFactor::Cos(l.clone()),
                             ..k.clone()
                         };
                         out.push((key, c.mul(&a)));
@@ -74,17 +74,17 @@ impl Expr {
             // Trigonometric factor in time.
             if s == Sym::T {
                 match &k.beat {
-                    Beat::One => {}
-                    Beat::Cos(w) => out.push((
+                    TimeFactor::One => {}
+                    TimeFactor::Cos(w) => out.push((
                         Key {
-                            beat: Beat::Sin(w.clone()),
+                            beat: TimeFactor::Sin(w.clone()),
                             ..k.clone()
                         },
                         c.mul(w).neg(),
                     )),
-                    Beat::Sin(w) => out.push((
+                    TimeFactor::Sin(w) => out.push((
                         Key {
-                            beat: Beat::Cos(w.clone()),
+                            beat: TimeFactor::Cos(w.clone()),
                             ..k.clone()
                         },
                         c.mul(w),
@@ -153,17 +153,17 @@ impl Expr {
                     }
                 }
             }
-            let lin_touched = |l: &Lin| l.0.iter().any(|(s, _)| map.contains_key(s));
+            let lin_touched = |l: &LinearForm| l.0.iter().any(|(s, _)| map.contains_key(s));
             if lin_touched(&k.exp) {
                 factor = factor.mul(&Expr::exp_of(&lin_value(&k.exp, map), states)?)?;
             } else {
                 rest.exp = k.exp.clone();
             }
             match &k.wave {
-                Wave::One => {}
-                Wave::Cos(l) | Wave::Sin(l) if lin_touched(l) => {
+                TrigFactor::One => {}
+                TrigFactor::Cos(l) | TrigFactor::Sin(l) if lin_touched(l) => {
                     let arg = lin_value(l, map);
-                    let w = if matches!(k.wave, Wave::Cos(_)) {
+                    let w = if matches!(k.wave, TrigFactor::Cos(_)) {
                         Expr::cos_of(&arg, states)?
                     } else {
                         Expr::sin_of(&arg, states)?
@@ -173,12 +173,12 @@ impl Expr {
                 w => rest.wave = w.clone(),
             }
             match (&k.beat, map.get(&Sym::T)) {
-                (Beat::One, _) => {}
+                (TimeFactor::One, _) => {}
                 (b, None) => rest.beat = b.clone(),
-                (Beat::Cos(w), Some(v)) => {
+                (TimeFactor::Cos(w), Some(v)) => {
                     factor = factor.mul(&Expr::cos_of(&v.scale(w), states)?)?;
                 }
-                (Beat::Sin(w), Some(v)) => {
+                (TimeFactor::Sin(w), Some(v)) => {
                     factor = factor.mul(&Expr::sin_of(&v.scale(w), states)?)?;
                 }
             }
@@ -204,7 +204,7 @@ impl Expr {
     }
 }
 
-fn lin_value(l: &Lin, map: &HashMap<Sym, Expr>) -> Expr {
+fn lin_value(l: &LinearForm, map: &HashMap<Sym, Expr>) -> Expr {
     let mut acc = Expr::zero();
     for (s, c) in l.0.iter() {
         let v = map.get(s).cloned().unwrap_or_else(|| Expr::sym(*s));
@@ -222,7 +222,7 @@ pub struct TimeKey {
     /// Power of `t`.
     pub tpow: i32,
     /// Oscillating factor.
-    pub beat: Beat,
+    pub beat: TimeFactor,
 }
 
 impl TimeKey {
@@ -261,12 +261,12 @@ impl Expr {
         let mut groups: HashMap<TimeKey, Vec<(Key, Q)>> = HashMap::new();
         for (k, c) in self.terms() {
             let tk = TimeKey {
-                tpow: k.mono.exp_of(Sym::T),
+                tpow: k.mono.power_of(Sym::T),
                 beat: k.beat.clone(),
             };
             let mut rest = k.clone();
             rest.mono.0.retain(|(s, _)| *s != Sym::T);
-            rest.beat = Beat::One;
+            rest.beat = TimeFactor::One;
             groups.entry(tk).or_default().push((rest, c.clone()));
         }
         let mut out: Vec<(TimeKey, Expr)> = groups
@@ -283,8 +283,8 @@ impl Expr {
             .terms()
             .iter()
             .filter_map(|(k, _)| match &k.beat {
-                Beat::One => None,
-                Beat::Cos(w) | Beat::Sin(w) => Some(w.clone()),
+                TimeFactor::One => None,
+                TimeFactor::Cos(w) | TimeFactor::Sin(w) => Some(w.clone()),
             })
             .collect();
         out.sort();
@@ -295,7 +295,7 @@ impl Expr {
     /// Fails with `NotPeriodic` naming the first term with a power of `t`.
     pub fn check_periodic(&self) -> CoreResult<()> {
         for (k, c) in self.terms() {
-            if k.mono.exp_of(Sym::T) != 0 {
+            if k.mono.power_of(Sym::T) != 0 {
                 return Err(CoreError::NotPeriodic {
                     term: Expr::term(k.clone(), c.clone()).to_string(),
                 });
@@ -309,7 +309,7 @@ impl Expr {
     pub fn antiderivative_t(&self) -> CoreResult<Expr> {
         let mut out: Vec<(Key, Q)> = Vec::new();
         for (k, c) in self.terms() {
-            let n = k.mono.exp_of(Sym::T);
+            let n = k.mono.power_of(Sym::T);
             if n < 0 {
                 return Err(CoreError::Refused {
                     reason: "cannot integrate a negative power of t".to_string(),
@@ -317,11 +317,11 @@ impl Expr {
             }
             let mut base = k.clone();
             base.mono.0.retain(|(s, _)| *s != Sym::T);
-            base.beat = Beat::One;
+            base.beat = TimeFactor::One;
             for (p, beat, q) in integrate_time_monomial(n, &k.beat)? {
                 let mut key = base.clone();
                 if p != 0 {
-                    key.mono = key.mono.mul(&Mono(smallvec::smallvec![(Sym::T, p)]))?;
+                    key.mono = key.mono.mul(&Monomial(smallvec::smallvec![(Sym::T, p)]))?;
                 }
                 key.beat = beat;
                 out.push((key, c.mul(&q)));
@@ -348,27 +348,30 @@ impl Expr {
     fn integral_from_zero_of_harmonics(&self) -> Option<Expr> {
         let mut out: Vec<(Key, Q)> = Vec::with_capacity(self.len() + self.len() / 2);
         for (k, c) in self.terms() {
-            if k.mono.exp_of(Sym::T) != 0 {
+            if k.mono.power_of(Sym::T) != 0 {
                 return None;
             }
             match &k.beat {
-                Beat::One => {
+                TimeFactor::One => {
                     let mut key = k.clone();
-                    key.mono = key.mono.mul(&Mono(smallvec::smallvec![(Sym::T, 1)])).ok()?;
+                    key.mono = key
+                        .mono
+                        .mul(&Monomial(smallvec::smallvec![(Sym::T, 1)]))
+                        .ok()?;
                     out.push((key, c.clone()));
                 }
-                Beat::Cos(h) => {
+                TimeFactor::Cos(h) => {
                     let mut key = k.clone();
-                    key.beat = Beat::Sin(h.clone());
+                    key.beat = TimeFactor::Sin(h.clone());
                     out.push((key, c.div(h)?));
                 }
-                Beat::Sin(h) => {
+                TimeFactor::Sin(h) => {
                     let v = c.div(h)?;
                     let mut key = k.clone();
-                    key.beat = Beat::Cos(h.clone());
+                    key.beat = TimeFactor::Cos(h.clone());
                     out.push((key, v.neg()));
                     let mut key = k.clone();
-                    key.beat = Beat::One;
+                    key.beat = TimeFactor::One;
                     out.push((key, v));
                 }
             }
@@ -382,29 +385,29 @@ impl Expr {
     fn mean_of_harmonics(&self, period: &Period) -> Option<Expr> {
         let half = period.0.half();
         for (k, _) in self.terms() {
-            if k.mono.exp_of(Sym::T) != 0 {
+            if k.mono.power_of(Sym::T) != 0 {
                 return None;
             }
-            if let Beat::Cos(h) | Beat::Sin(h) = &k.beat {
+            if let TimeFactor::Cos(h) | TimeFactor::Sin(h) = &k.beat {
                 if !h.mul(&half).is_integer() {
                     return None;
                 }
             }
         }
-        Some(self.filter(|k, _| k.beat == Beat::One))
+        Some(self.filter(|k, _| k.beat == TimeFactor::One))
     }
 
     /// The value at `t = 0`.
     pub fn at_time_zero(&self) -> Expr {
         self.map_terms(|k, c| {
-            if k.mono.exp_of(Sym::T) > 0 {
+            if k.mono.power_of(Sym::T) > 0 {
                 return None;
             }
             match &k.beat {
-                Beat::Sin(_) => None,
+                TimeFactor::Sin(_) => None,
                 _ => {
                     let mut key = k.clone();
-                    key.beat = Beat::One;
+                    key.beat = TimeFactor::One;
                     Some((key, c.clone()))
                 }
             }
@@ -416,7 +419,7 @@ impl Expr {
     pub fn at_time_pi_multiple(&self, c: &Q) -> CoreResult<Expr> {
         let mut out: Vec<(Key, Q)> = Vec::new();
         for (k, coeff) in self.terms() {
-            let n = k.mono.exp_of(Sym::T);
+            let n = k.mono.power_of(Sym::T);
             let mut key = k.clone();
             key.mono.0.retain(|(s, _)| *s != Sym::T);
             let mut q = coeff.clone();
@@ -424,18 +427,18 @@ impl Expr {
                 // c^n for a power of t as high as `t^1000000000`: check its size first.
                 super::limits::check_bits(c.bits().saturating_mul(n.unsigned_abs() as u64))?;
                 q = q.mul(&c.pow(n as i64).ok_or(CoreError::DivisionByZero)?);
-                key.mono = key.mono.mul(&Mono(smallvec::smallvec![(Sym::PI, n)]))?;
+                key.mono = key.mono.mul(&Monomial(smallvec::smallvec![(Sym::PI, n)]))?;
             }
             match &k.beat {
-                Beat::One => {}
-                Beat::Cos(w) | Beat::Sin(w) => {
-                    let is_sin = matches!(k.beat, Beat::Sin(_));
+                TimeFactor::One => {}
+                TimeFactor::Cos(w) | TimeFactor::Sin(w) => {
+                    let is_sin = matches!(k.beat, TimeFactor::Sin(_));
                     let arg = w.mul(c);
                     let v = trig_value(is_sin, &arg).ok_or_else(|| CoreError::Irrational {
                         what: format!("{}({}*pi)", if is_sin { "sin" } else { "cos" }, arg),
                     })?;
                     q = q.mul(&v);
-                    key.beat = Beat::One;
+                    key.beat = TimeFactor::One;
                 }
             }
             out.push((key, q));
@@ -482,33 +485,36 @@ fn trig_value(is_sin: bool, c: &Q) -> Option<Q> {
 }
 
 /// `∫ t^n · beat dt` as a list of `(power, beat, coefficient)`.
-pub(crate) fn integrate_time_monomial(n: i32, beat: &Beat) -> CoreResult<Vec<(i32, Beat, Q)>> {
+pub(crate) fn integrate_time_monomial(
+    n: i32,
+    beat: &TimeFactor,
+) -> CoreResult<Vec<(i32, TimeFactor, Q)>> {
     match beat {
-        Beat::One => Ok(vec![(
+        TimeFactor::One => Ok(vec![(
             n.checked_add(1).ok_or(CoreError::Limit {
                 kind: super::error::LimitKind::Exponent,
                 limit: i32::MAX as u64,
             })?,
-            Beat::One,
+            TimeFactor::One,
             Q::ratio(1, n as i64 + 1).unwrap_or(Q::ZERO),
         )]),
-        Beat::Cos(k) | Beat::Sin(k) => {
+        TimeFactor::Cos(k) | TimeFactor::Sin(k) => {
             // I_c(n) = t^n sin/k - (n/k) I_s(n-1); I_s(n) = -t^n cos/k + (n/k) I_c(n-1).
             // That is n + 1 terms with coefficients up to n!/k^n: ask the
             // limits before building them (`t^1000000000*cos(t)`).
             super::limits::check_terms(usize::try_from(n).unwrap_or(0).saturating_add(1))?;
             let mut out = Vec::new();
             let mut size = 0usize;
-            let mut is_sin = matches!(beat, Beat::Sin(_));
+            let mut is_sin = matches!(beat, TimeFactor::Sin(_));
             let mut factor = Q::ONE;
             let mut p = n;
             let inv_k = k.recip().unwrap_or(Q::ZERO);
             loop {
                 if is_sin {
-                    out.push((p, Beat::Cos(k.clone()), factor.mul(&inv_k).neg()));
+                    out.push((p, TimeFactor::Cos(k.clone()), factor.mul(&inv_k).neg()));
                     factor = factor.mul(&Q::int(p as i64)).mul(&inv_k);
                 } else {
-                    out.push((p, Beat::Sin(k.clone()), factor.mul(&inv_k)));
+                    out.push((p, TimeFactor::Sin(k.clone()), factor.mul(&inv_k)));
                     factor = factor.mul(&Q::int(p as i64)).mul(&inv_k).neg();
                 }
                 if p == 0 {

@@ -23,34 +23,34 @@ use std::sync::Arc;
 use super::error::{CoreError, CoreResult, LimitKind};
 use super::limits;
 use super::num::Q;
-use super::packed::{self, Cut, Packed, PackedSum, Route};
+use super::packed::{self, Packed, PackedKeep, PackedSum, ProductRoute};
 use super::symbol::Sym;
 
 /// A monomial: sorted `(symbol, exponent)` pairs with nonzero exponents.
 #[derive(Clone, PartialEq, Eq, Hash, PartialOrd, Ord, Debug, Default)]
-pub struct Mono(pub SmallVec<[(Sym, i32); 4]>);
+pub struct Monomial(pub SmallVec<[(Sym, i32); 4]>);
 
 /// A linear form without constant: sorted `(symbol, coefficient)` pairs with
 /// nonzero coefficients. Shared (reference-counted): terms are copied far
 /// more often than their arguments change, and a small key keeps products
 /// and hashing cheap.
 #[derive(Clone, PartialEq, Eq, Hash, PartialOrd, Ord, Debug, Default)]
-pub struct Lin(pub Arc<[(Sym, Q)]>);
+pub struct LinearForm(pub Arc<[(Sym, Q)]>);
 
 /// The trigonometric factor in the state variables.
 #[derive(Clone, PartialEq, Eq, Hash, PartialOrd, Ord, Debug)]
-pub enum Wave {
+pub enum TrigFactor {
     /// No trigonometric factor.
     One,
     /// `cos(L)`, `L` with positive leading coefficient.
-    Cos(Lin),
+    Cos(LinearForm),
     /// `sin(L)`, `L` with positive leading coefficient.
-    Sin(Lin),
+    Sin(LinearForm),
 }
 
 /// The trigonometric factor in time: `cos(k t)` or `sin(k t)` with `k > 0`.
 #[derive(Clone, PartialEq, Eq, Hash, PartialOrd, Ord, Debug)]
-pub enum Beat {
+pub enum TimeFactor {
     /// No time oscillation.
     One,
     /// `cos(k t)`.
@@ -63,13 +63,13 @@ pub enum Beat {
 #[derive(Clone, PartialEq, Eq, Hash, PartialOrd, Ord, Debug)]
 pub struct Key {
     /// Powers of symbols (parameters, states, `t`, `pi`).
-    pub mono: Mono,
+    pub mono: Monomial,
     /// The exponential factor's argument (empty: no factor).
-    pub exp: Lin,
+    pub exp: LinearForm,
     /// The trigonometric factor in the state.
-    pub wave: Wave,
+    pub wave: TrigFactor,
     /// The trigonometric factor in time.
-    pub beat: Beat,
+    pub beat: TimeFactor,
 }
 
 /// An expression in normal form: terms sorted by key, no zero coefficients.
@@ -78,19 +78,19 @@ pub struct Expr {
     terms: Vec<(Key, Q)>,
 }
 
-impl Mono {
+impl Monomial {
     /// The constant monomial 1.
-    pub fn one() -> Mono {
-        Mono(SmallVec::new())
+    pub fn one() -> Monomial {
+        Monomial(SmallVec::new())
     }
 
     /// Exponent of `s`.
-    pub fn exp_of(&self, s: Sym) -> i32 {
+    pub fn power_of(&self, s: Sym) -> i32 {
         self.0.iter().find(|(x, _)| *x == s).map_or(0, |(_, e)| *e)
     }
 
     /// Product (exponents add); fails on exponent overflow.
-    pub fn mul(&self, other: &Mono) -> CoreResult<Mono> {
+    pub fn mul(&self, other: &Monomial) -> CoreResult<Monomial> {
         let mut out: SmallVec<[(Sym, i32); 4]> = SmallVec::new();
         let (a, b) = (&self.0, &other.0);
         let (mut i, mut j) = (0, 0);
@@ -114,7 +114,7 @@ impl Mono {
         }
         out.extend_from_slice(&a[i..]);
         out.extend_from_slice(&b[j..]);
-        Ok(Mono(out))
+        Ok(Monomial(out))
     }
 
     /// Total degree in the given symbols.
@@ -154,7 +154,7 @@ const PACKED_PRODUCT: usize = 256;
 
 /// A sum of products under construction: every term product goes straight
 /// into one hash map and the normal form (sorting) is built once, by
-/// [`Acc::finish`]. Sums of many products (Lie derivatives, brackets, sums
+/// [`SumBuilder::finish`]. Sums of many products (Lie derivatives, brackets, sums
 /// of brackets) cost the products only, not a sorted intermediate and a
 /// merge per product.
 ///
@@ -162,7 +162,7 @@ const PACKED_PRODUCT: usize = 256;
 /// work, and the accumulated terms plus the size of large coefficients are
 /// checked against the term budget after every row of a product.
 #[derive(Debug, Default)]
-pub struct Acc {
+pub struct SumBuilder {
     map: FxHashMap<Key, Q>,
     big_words: usize,
     /// With [`Keep::UpToWithSines`]: `Σ c/h` over the dropped terms
@@ -184,7 +184,7 @@ pub enum Keep<'a> {
     /// The terms of frequency at most the cap; of the others, the
     /// constant `Σ c/h` that the terms `c·sin(h t)` give to an integral
     /// from 0 (`∫_0^t sin(h s) ds = (1 − cos(h t))/h`), see
-    /// [`Acc::finish_with_sines`].
+    /// [`SumBuilder::finish_with_sines`].
     UpToWithSines(&'a Q),
 }
 
@@ -200,7 +200,7 @@ impl Keep<'_> {
 /// One part of an expression split by time factor: the terms with
 /// `cos(h t)` (or none, for `h = 0`) or with `sin(h t)` (`odd`).
 #[derive(Clone, Debug, Default)]
-pub struct Part {
+pub struct TimePart {
     /// The frequency `h` (0 for terms without a time factor).
     pub freq: Q,
     /// True for the `sin(h t)` terms.
@@ -212,7 +212,7 @@ pub struct Part {
     packed: Option<Packed>,
 }
 
-impl Part {
+impl TimePart {
     /// The terms.
     pub fn expr(&self) -> &Expr {
         self.expr
@@ -220,12 +220,12 @@ impl Part {
     }
 
     /// `∂/∂s` of the part (the same time factor), `None` when zero.
-    pub fn derivative(&self, s: Sym) -> Option<Part> {
+    pub fn derivative(&self, s: Sym) -> Option<TimePart> {
         if let Some(dp) = self.packed.as_ref().and_then(|p| p.derivative(s)) {
-            return (!dp.is_empty()).then(|| Part::from_packed(dp));
+            return (!dp.is_empty()).then(|| TimePart::from_packed(dp));
         }
         let e = self.expr().pd(s);
-        (!e.is_zero()).then(|| Part {
+        (!e.is_zero()).then(|| TimePart {
             freq: self.freq.clone(),
             odd: self.odd,
             packed: Packed::pack(e.terms(), &self.freq, self.odd),
@@ -234,8 +234,8 @@ impl Part {
     }
 
     /// A part from its packed terms.
-    pub fn from_packed(p: Packed) -> Part {
-        Part {
+    pub fn from_packed(p: Packed) -> TimePart {
+        TimePart {
             freq: Q::int(p.freq()),
             odd: p.odd(),
             expr: std::sync::OnceLock::new(),
@@ -251,18 +251,18 @@ impl Part {
                 .expr()
                 .terms
                 .iter()
-                .any(|(k, _)| k.mono.exp_of(Sym::T) != 0),
+                .any(|(k, _)| k.mono.power_of(Sym::T) != 0),
         }
     }
 
     /// `∫_0^t` of a part with a time factor and no power of `t`, as parts
     /// (see [`Packed::integral_from_zero`]); computed packed when the part
     /// is, through the normal form otherwise.
-    pub fn integral_from_zero(&self) -> CoreResult<Harmonics> {
+    pub fn integral_from_zero(&self) -> CoreResult<TimeParts> {
         if let Some((osc, constant)) = self.packed.as_ref().and_then(Packed::integral_from_zero) {
             let mut out = Vec::with_capacity(2);
-            out.extend(constant.map(Part::from_packed));
-            out.push(Part::from_packed(osc));
+            out.extend(constant.map(TimePart::from_packed));
+            out.push(TimePart::from_packed(osc));
             return Ok(out);
         }
         Ok(self.expr().integral_from_zero()?.into_by_frequency())
@@ -289,15 +289,15 @@ impl Part {
     }
 }
 
-impl Acc {
+impl SumBuilder {
     /// An empty sum.
-    pub fn new() -> Acc {
-        Acc::default()
+    pub fn new() -> SumBuilder {
+        SumBuilder::default()
     }
 
     /// An empty sum with room for about `n` terms.
-    pub fn with_capacity(n: usize) -> Acc {
-        Acc {
+    pub fn with_capacity(n: usize) -> SumBuilder {
+        SumBuilder {
             map: FxHashMap::with_capacity_and_hasher(n.min(1 << 16), Default::default()),
             big_words: 0,
             sines: FxHashMap::default(),
@@ -376,7 +376,7 @@ impl Acc {
             if let Some(cap) = keep.cap() {
                 let h = k.beat.frequency();
                 if h > *cap {
-                    if !(with_sines && matches!(k.beat, Beat::Sin(_))) {
+                    if !(with_sines && matches!(k.beat, TimeFactor::Sin(_))) {
                         continue;
                     }
                     c = c.div(&h).unwrap_or(Q::ZERO);
@@ -390,7 +390,7 @@ impl Acc {
                 if packed.add_terms(
                     &[(m, *n)],
                     *d,
-                    &Route::new(freq, odd, to_sines, 1, 1),
+                    &ProductRoute::new(freq, odd, to_sines, 1, 1),
                     wave,
                     &mut spill,
                 ) {
@@ -399,7 +399,7 @@ impl Acc {
             }
             let mut key = k.clone();
             if to_sines {
-                key.beat = Beat::One;
+                key.beat = TimeFactor::One;
                 add_into(&mut self.sines, key, c);
             } else {
                 self.big_words += coeff_words(&c);
@@ -416,8 +416,8 @@ impl Acc {
     /// `sin(h₁t)cos(h₂t)` the same frequencies as sines, and `sin(0) = 0`.
     pub fn add_product_harmonics(
         &mut self,
-        a: &[Part],
-        b: &[Part],
+        a: &[TimePart],
+        b: &[TimePart],
         negate: bool,
         keep: Keep,
     ) -> CoreResult<()> {
@@ -427,7 +427,7 @@ impl Acc {
             limits::add_work((a.len() as u64).saturating_mul(b.len() as u64))?;
         }
         // The cut for packed parts (integer frequencies: at most the floor).
-        let cut = Cut {
+        let cut = PackedKeep {
             cap: keep.cap().map(|c| c.floor().to_i64().unwrap_or(i64::MAX)),
             sines: matches!(keep, Keep::UpToWithSines(_)),
         };
@@ -437,15 +437,15 @@ impl Acc {
         result
     }
 
-    /// The loop of [`Acc::add_product_harmonics`]: packed products add their
+    /// The loop of [`SumBuilder::add_product_harmonics`]: packed products add their
     /// work to `work`.
     fn product_parts(
         &mut self,
-        a: &[Part],
-        b: &[Part],
+        a: &[TimePart],
+        b: &[TimePart],
         negate: bool,
         keep: Keep,
-        cut: Cut,
+        cut: PackedKeep,
         work: &mut u64,
     ) -> CoreResult<()> {
         for pa in a {
@@ -502,7 +502,7 @@ impl Acc {
         a: &Packed,
         b: &Packed,
         negate: bool,
-        cut: Cut,
+        cut: PackedKeep,
         work: &mut u64,
     ) -> CoreResult<bool> {
         let Some(routes) = packed::routes(a, b, cut) else {
@@ -586,8 +586,8 @@ impl Acc {
                     if let Some(cap) = cap {
                         let h = k.beat.frequency();
                         if h > *cap {
-                            if with_sines && matches!(k.beat, Beat::Sin(_)) {
-                                k.beat = Beat::One;
+                            if with_sines && matches!(k.beat, TimeFactor::Sin(_)) {
+                                k.beat = TimeFactor::One;
                                 add_into(&mut self.sines, k, c.div(&h).unwrap_or(Q::ZERO));
                             }
                             return;
@@ -632,16 +632,16 @@ impl Acc {
     /// [`Expr::into_by_frequency`] would give them (the sine constants are
     /// dropped). When everything was packed the parts stay packed: no
     /// normal form is built until a part's terms are asked for.
-    pub fn finish_parts(self) -> Harmonics {
+    pub fn finish_parts(self) -> TimeParts {
         self.finish_parts_with_sines().0
     }
 
-    /// [`Acc::finish_parts`], with the sine constants (see
+    /// [`SumBuilder::finish_parts`], with the sine constants (see
     /// [`Keep::UpToWithSines`]) in normal form.
-    pub fn finish_parts_with_sines(self) -> (Harmonics, Expr) {
+    pub fn finish_parts_with_sines(self) -> (TimeParts, Expr) {
         if self.map.is_empty() && self.sines.is_empty() {
             if let Some(parts) = self.packed.to_parts() {
-                let parts = parts.into_iter().map(Part::from_packed).collect();
+                let parts = parts.into_iter().map(TimePart::from_packed).collect();
                 let sines = self.packed.into_sorted_sines();
                 return (parts, Expr { terms: sines });
             }
@@ -653,12 +653,12 @@ impl Acc {
     /// `self += ∫_0^t part dτ`; packed parts stay packed (each power of
     /// `t` times the part's time factor integrated by parts), others go
     /// through the normal form.
-    pub fn add_integral_from_zero(&mut self, part: &Part) -> CoreResult<()> {
+    pub fn add_integral_from_zero(&mut self, part: &TimePart) -> CoreResult<()> {
         if let Some(p) = &part.packed {
             let beat = match (p.freq(), p.odd()) {
-                (0, _) => Beat::One,
-                (f, false) => Beat::Cos(Q::int(f)),
-                (f, true) => Beat::Sin(Q::int(f)),
+                (0, _) => TimeFactor::One,
+                (f, false) => TimeFactor::Cos(Q::int(f)),
+                (f, true) => TimeFactor::Sin(Q::int(f)),
             };
             let mut pieces = |n: i32| -> Option<Vec<packed::TimePiece>> {
                 let list = super::calc::integrate_time_monomial(n, &beat).ok()?;
@@ -668,9 +668,9 @@ impl Acc {
                         return None;
                     };
                     let (freq, odd) = match &b {
-                        Beat::One => (0, false),
-                        Beat::Cos(h) => (h.to_i64()?, false),
-                        Beat::Sin(h) => (h.to_i64()?, true),
+                        TimeFactor::One => (0, false),
+                        TimeFactor::Cos(h) => (h.to_i64()?, false),
+                        TimeFactor::Sin(h) => (h.to_i64()?, true),
                     };
                     out.push(packed::TimePiece {
                         power,
@@ -706,8 +706,8 @@ impl Acc {
     }
 
     /// `self += q·Σ parts`, keeping the terms `keep` asks for (as
-    /// [`Acc::add_scaled`]); packed parts go in whole.
-    pub fn add_parts(&mut self, parts: &[Part], q: &Q, keep: Keep) -> CoreResult<()> {
+    /// [`SumBuilder::add_scaled`]); packed parts go in whole.
+    pub fn add_parts(&mut self, parts: &[TimePart], q: &Q, keep: Keep) -> CoreResult<()> {
         if q.is_zero() {
             return Ok(());
         }
@@ -727,8 +727,11 @@ impl Acc {
                 };
                 if let Some((freq, odd, to_sines, num, den)) = route {
                     let (packed, mut spill) = self.packed_and_spill();
-                    if packed.add_packed(p, &Route::new(freq, odd, to_sines, num, den), &mut spill)
-                    {
+                    if packed.add_packed(
+                        p,
+                        &ProductRoute::new(freq, odd, to_sines, num, den),
+                        &mut spill,
+                    ) {
                         continue;
                     }
                 }
@@ -759,7 +762,7 @@ fn exp_overflow() -> CoreError {
     }
 }
 
-impl Lin {
+impl LinearForm {
     /// Coefficient of `s`.
     pub fn coeff(&self, s: Sym) -> Q {
         self.0
@@ -774,7 +777,7 @@ impl Lin {
     }
 
     /// `self + sign·other`.
-    pub fn add_signed(&self, other: &Lin, negate: bool) -> Lin {
+    pub fn add_signed(&self, other: &LinearForm, negate: bool) -> LinearForm {
         let mut out: SmallVec<[(Sym, Q); 2]> = SmallVec::new();
         let (a, b) = (&self.0, &other.0);
         let (mut i, mut j) = (0, 0);
@@ -801,20 +804,20 @@ impl Lin {
         }
         out.extend(a[i..].iter().cloned());
         out.extend(b[j..].iter().map(|(s, q)| (*s, sgn(q))));
-        Lin(out.into_iter().collect())
+        LinearForm(out.into_iter().collect())
     }
 
     /// Negation.
-    pub fn neg(&self) -> Lin {
-        Lin(self.0.iter().map(|(s, q)| (*s, q.neg())).collect())
+    pub fn neg(&self) -> LinearForm {
+        LinearForm(self.0.iter().map(|(s, q)| (*s, q.neg())).collect())
     }
 
     /// Multiplies every coefficient by `q`.
-    pub fn scale(&self, q: &Q) -> Lin {
+    pub fn scale(&self, q: &Q) -> LinearForm {
         if q.is_zero() {
-            return Lin::default();
+            return LinearForm::default();
         }
-        Lin(self.0.iter().map(|(s, c)| (*s, c.mul(q))).collect())
+        LinearForm(self.0.iter().map(|(s, c)| (*s, c.mul(q))).collect())
     }
 
     /// True if and only if the leading coefficient is negative.
@@ -824,42 +827,42 @@ impl Lin {
 }
 
 /// `cos(L)` as (sign, wave) in canonical form; `None` when `L = 0` means 1.
-fn cos_wave(l: Lin) -> Wave {
+fn cos_wave(l: LinearForm) -> TrigFactor {
     if l.is_zero() {
-        Wave::One
+        TrigFactor::One
     } else if l.is_negative() {
-        Wave::Cos(l.neg())
+        TrigFactor::Cos(l.neg())
     } else {
-        Wave::Cos(l)
+        TrigFactor::Cos(l)
     }
 }
 
 /// `sin(L)` in canonical form: (negated?, wave); `None` when `L = 0` (zero).
-fn sin_wave(l: Lin) -> Option<(bool, Wave)> {
+fn sin_wave(l: LinearForm) -> Option<(bool, TrigFactor)> {
     if l.is_zero() {
         None
     } else if l.is_negative() {
-        Some((true, Wave::Sin(l.neg())))
+        Some((true, TrigFactor::Sin(l.neg())))
     } else {
-        Some((false, Wave::Sin(l)))
+        Some((false, TrigFactor::Sin(l)))
     }
 }
 
-fn cos_beat(k: Q) -> Beat {
+fn cos_beat(k: Q) -> TimeFactor {
     if k.is_zero() {
-        Beat::One
+        TimeFactor::One
     } else {
-        Beat::Cos(k.abs())
+        TimeFactor::Cos(k.abs())
     }
 }
 
-fn sin_beat(k: Q) -> Option<(bool, Beat)> {
+fn sin_beat(k: Q) -> Option<(bool, TimeFactor)> {
     if k.is_zero() {
         None
     } else if k.is_negative() {
-        Some((true, Beat::Sin(k.neg())))
+        Some((true, TimeFactor::Sin(k.neg())))
     } else {
-        Some((false, Beat::Sin(k)))
+        Some((false, TimeFactor::Sin(k)))
     }
 }
 
@@ -874,22 +877,22 @@ fn times_factor(c: Q, f: &Q) -> Q {
 }
 
 /// Product of two waves as at most two (coefficient factor, wave) pairs.
-fn wave_mul(a: &Wave, b: &Wave) -> SmallVec<[(Q, Wave); 2]> {
+fn wave_mul(a: &TrigFactor, b: &TrigFactor) -> SmallVec<[(Q, TrigFactor); 2]> {
     let half = Q::Small(1, 2);
     let mut out = SmallVec::new();
     match (a, b) {
-        (Wave::One, w) | (w, Wave::One) => out.push((Q::ONE, w.clone())),
-        (Wave::Cos(x), Wave::Cos(y)) => {
+        (TrigFactor::One, w) | (w, TrigFactor::One) => out.push((Q::ONE, w.clone())),
+        (TrigFactor::Cos(x), TrigFactor::Cos(y)) => {
             // cos x cos y = (cos(x-y) + cos(x+y))/2
             out.push((half.clone(), cos_wave(x.add_signed(y, true))));
             out.push((half, cos_wave(x.add_signed(y, false))));
         }
-        (Wave::Sin(x), Wave::Sin(y)) => {
+        (TrigFactor::Sin(x), TrigFactor::Sin(y)) => {
             // sin x sin y = (cos(x-y) - cos(x+y))/2
             out.push((half.clone(), cos_wave(x.add_signed(y, true))));
             out.push((half.neg(), cos_wave(x.add_signed(y, false))));
         }
-        (Wave::Sin(x), Wave::Cos(y)) | (Wave::Cos(y), Wave::Sin(x)) => {
+        (TrigFactor::Sin(x), TrigFactor::Cos(y)) | (TrigFactor::Cos(y), TrigFactor::Sin(x)) => {
             // sin x cos y = (sin(x+y) + sin(x-y))/2
             if let Some((neg, w)) = sin_wave(x.add_signed(y, false)) {
                 out.push((if neg { half.neg() } else { half.clone() }, w));
@@ -903,20 +906,20 @@ fn wave_mul(a: &Wave, b: &Wave) -> SmallVec<[(Q, Wave); 2]> {
 }
 
 /// Product of two beats, as `wave_mul` does for waves.
-fn beat_mul(a: &Beat, b: &Beat) -> SmallVec<[(Q, Beat); 2]> {
+fn beat_mul(a: &TimeFactor, b: &TimeFactor) -> SmallVec<[(Q, TimeFactor); 2]> {
     let half = Q::Small(1, 2);
     let mut out = SmallVec::new();
     match (a, b) {
-        (Beat::One, w) | (w, Beat::One) => out.push((Q::ONE, w.clone())),
-        (Beat::Cos(x), Beat::Cos(y)) => {
+        (TimeFactor::One, w) | (w, TimeFactor::One) => out.push((Q::ONE, w.clone())),
+        (TimeFactor::Cos(x), TimeFactor::Cos(y)) => {
             out.push((half.clone(), cos_beat(x.sub(y))));
             out.push((half, cos_beat(x.add(y))));
         }
-        (Beat::Sin(x), Beat::Sin(y)) => {
+        (TimeFactor::Sin(x), TimeFactor::Sin(y)) => {
             out.push((half.clone(), cos_beat(x.sub(y))));
             out.push((half.neg(), cos_beat(x.add(y))));
         }
-        (Beat::Sin(x), Beat::Cos(y)) | (Beat::Cos(y), Beat::Sin(x)) => {
+        (TimeFactor::Sin(x), TimeFactor::Cos(y)) | (TimeFactor::Cos(y), TimeFactor::Sin(x)) => {
             if let Some((neg, w)) = sin_beat(x.add(y)) {
                 out.push((if neg { half.neg() } else { half.clone() }, w));
             }
@@ -928,29 +931,29 @@ fn beat_mul(a: &Beat, b: &Beat) -> SmallVec<[(Q, Beat); 2]> {
     out
 }
 
-impl Beat {
+impl TimeFactor {
     /// The frequency `k` of `cos(k t)`/`sin(k t)`; 0 for no time factor.
     pub fn frequency(&self) -> Q {
         match self {
-            Beat::One => Q::ZERO,
-            Beat::Cos(k) | Beat::Sin(k) => k.clone(),
+            TimeFactor::One => Q::ZERO,
+            TimeFactor::Cos(k) | TimeFactor::Sin(k) => k.clone(),
         }
     }
 }
 
-/// An expression split by its time factor into nonzero [`Part`]s, by
+/// An expression split by its time factor into nonzero [`TimePart`]s, by
 /// increasing frequency, cosines before sines (see
 /// [`Expr::into_by_frequency`]).
-pub type Harmonics = Vec<Part>;
+pub type TimeParts = Vec<TimePart>;
 
 impl Key {
     /// The key of the constant 1.
     pub fn one() -> Key {
         Key {
-            mono: Mono::one(),
-            exp: Lin::default(),
-            wave: Wave::One,
-            beat: Beat::One,
+            mono: Monomial::one(),
+            exp: LinearForm::default(),
+            wave: TrigFactor::One,
+            beat: TimeFactor::One,
         }
     }
 
@@ -958,8 +961,8 @@ impl Key {
     pub fn is_one(&self) -> bool {
         self.mono.0.is_empty()
             && self.exp.is_zero()
-            && self.wave == Wave::One
-            && self.beat == Beat::One
+            && self.wave == TrigFactor::One
+            && self.beat == TimeFactor::One
     }
 
     /// Multiplies two terms `ca·self` and `cb·other`, pushing up to four
@@ -1126,7 +1129,7 @@ impl Expr {
     pub fn mentions(&self, s: Sym) -> bool {
         let atoms = super::func::any();
         self.terms.iter().any(|(k, _)| {
-            k.mono.exp_of(s) != 0
+            k.mono.power_of(s) != 0
                 || (atoms
                     && k.mono
                         .0
@@ -1134,10 +1137,10 @@ impl Expr {
                         .any(|(a, _)| super::func::atom(*a).is_some_and(|a| a.mentions(s))))
                 || !k.exp.coeff(s).is_zero()
                 || match &k.wave {
-                    Wave::One => false,
-                    Wave::Cos(l) | Wave::Sin(l) => !l.coeff(s).is_zero(),
+                    TrigFactor::One => false,
+                    TrigFactor::Cos(l) | TrigFactor::Sin(l) => !l.coeff(s).is_zero(),
                 }
-                || (s == Sym::T && k.beat != Beat::One)
+                || (s == Sym::T && k.beat != TimeFactor::One)
         })
     }
 
@@ -1156,10 +1159,10 @@ impl Expr {
                 }
             }
             out.extend(k.exp.0.iter().map(|(s, _)| *s));
-            if let Wave::Cos(l) | Wave::Sin(l) = &k.wave {
+            if let TrigFactor::Cos(l) | TrigFactor::Sin(l) = &k.wave {
                 out.extend(l.0.iter().map(|(s, _)| *s));
             }
-            if k.beat != Beat::One {
+            if k.beat != TimeFactor::One {
                 out.push(Sym::T);
             }
         }
@@ -1264,8 +1267,9 @@ impl Expr {
         if let Some(q) = other.as_number() {
             return self.scale_checked(&q);
         }
-        let mut acc =
-            Acc::with_capacity((2 * (self.len() + other.len())).min(self.len() * other.len()));
+        let mut acc = SumBuilder::with_capacity(
+            (2 * (self.len() + other.len())).min(self.len() * other.len()),
+        );
         if self.len().saturating_mul(other.len()) >= PACKED_PRODUCT {
             // Large products split both sides by time factor, so that plain
             // polynomial parts multiply packed (the rest term by term).
@@ -1318,9 +1322,9 @@ impl Expr {
             return inv.pow(-e);
         }
         if let [(k, c)] = self.terms.as_slice() {
-            if k.wave == Wave::One && k.beat == Beat::One {
+            if k.wave == TrigFactor::One && k.beat == TimeFactor::One {
                 let e32 = i32::try_from(e).map_err(|_| exp_overflow())?;
-                let mut mono = Mono::one();
+                let mut mono = Monomial::one();
                 for (s, x) in &k.mono.0 {
                     mono.0.push((*s, x.checked_mul(e32).ok_or(exp_overflow())?));
                 }
@@ -1338,8 +1342,8 @@ impl Expr {
                     Key {
                         mono,
                         exp,
-                        wave: Wave::One,
-                        beat: Beat::One,
+                        wave: TrigFactor::One,
+                        beat: TimeFactor::One,
                     },
                     coeff,
                 ));
@@ -1402,7 +1406,8 @@ impl Expr {
     /// True when every term is a plain monomial (no `exp`, no trigonometric
     /// factor) and the exponent vectors are affinely independent.
     fn has_independent_exponents(&self) -> bool {
-        let plain = |k: &Key| k.exp.is_zero() && k.wave == Wave::One && k.beat == Beat::One;
+        let plain =
+            |k: &Key| k.exp.is_zero() && k.wave == TrigFactor::One && k.beat == TimeFactor::One;
         if !self.terms.iter().all(|(k, _)| plain(k)) {
             return false;
         }
@@ -1417,8 +1422,11 @@ impl Expr {
         if m - 1 > syms.len() {
             return false;
         }
-        let vector =
-            |k: &Key| -> Vec<i128> { syms.iter().map(|s| i128::from(k.mono.exp_of(*s))).collect() };
+        let vector = |k: &Key| -> Vec<i128> {
+            syms.iter()
+                .map(|s| i128::from(k.mono.power_of(*s)))
+                .collect()
+        };
         let Some((first, rest)) = self.terms.split_first() else {
             return false;
         };
@@ -1434,8 +1442,8 @@ impl Expr {
     pub fn recip(&self) -> CoreResult<Expr> {
         match self.terms.as_slice() {
             [] => Err(CoreError::DivisionByZero),
-            [(k, c)] if k.wave == Wave::One && k.beat == Beat::One => {
-                let mut mono = Mono::one();
+            [(k, c)] if k.wave == TrigFactor::One && k.beat == TimeFactor::One => {
+                let mut mono = Monomial::one();
                 for (s, x) in &k.mono.0 {
                     if *s == Sym::T {
                         return Err(CoreError::DivisionBySum {
@@ -1449,8 +1457,8 @@ impl Expr {
                     Key {
                         mono,
                         exp: k.exp.neg(),
-                        wave: Wave::One,
-                        beat: Beat::One,
+                        wave: TrigFactor::One,
+                        beat: TimeFactor::One,
                     },
                     coeff,
                 ))
@@ -1485,22 +1493,22 @@ impl Expr {
     /// The expression split by its time factor: the terms with `cos(h t)`
     /// (or none, `h = 0`) and those with `sin(h t)` for each frequency `h`;
     /// the parts sum to `self`.
-    pub fn into_by_frequency(self) -> Harmonics {
+    pub fn into_by_frequency(self) -> TimeParts {
         // One denominator for all packed parts (when it fits a word).
         let denom = packed::common_denominator(&self.terms);
         let mut parts: std::collections::BTreeMap<(Q, bool), Vec<(Key, Q)>> = Default::default();
         for (k, c) in self.terms {
             let slot = match &k.beat {
-                Beat::One => (Q::ZERO, false),
-                Beat::Cos(w) => (w.clone(), false),
-                Beat::Sin(w) => (w.clone(), true),
+                TimeFactor::One => (Q::ZERO, false),
+                TimeFactor::Cos(w) => (w.clone(), false),
+                TimeFactor::Sin(w) => (w.clone(), true),
             };
             parts.entry(slot).or_default().push((k, c));
         }
         // Each part is a subsequence of sorted terms: still sorted.
         parts
             .into_iter()
-            .map(|((freq, odd), terms)| Part {
+            .map(|((freq, odd), terms)| TimePart {
                 packed: denom
                     .and_then(|d| Packed::pack_over(&terms, &freq, odd, d))
                     .or_else(|| Packed::pack(&terms, &freq, odd)),
@@ -1520,7 +1528,7 @@ impl Expr {
     /// The coefficient of `s^k` (other powers of `s` dropped).
     pub fn coeff_of_power(&self, s: Sym, k: i32) -> Expr {
         self.map_terms(|key, c| {
-            if key.mono.exp_of(s) != k {
+            if key.mono.power_of(s) != k {
                 return None;
             }
             let mut key = key.clone();
@@ -1531,7 +1539,7 @@ impl Expr {
 
     /// The range of powers of `s` present (min, max); `None` for zero.
     pub fn power_range(&self, s: Sym) -> Option<(i32, i32)> {
-        let mut it = self.terms.iter().map(|(k, _)| k.mono.exp_of(s));
+        let mut it = self.terms.iter().map(|(k, _)| k.mono.power_of(s));
         let first = it.next()?;
         Some(it.fold((first, first), |(lo, hi), e| (lo.min(e), hi.max(e))))
     }
@@ -1574,7 +1582,7 @@ fn linear_arg(func: &'static str, arg: &Expr, states: &[Sym]) -> CoreResult<Line
         arg: arg.to_string(),
     };
     for (k, c) in &arg.terms {
-        if !k.exp.is_zero() || k.wave != Wave::One || k.beat != Beat::One {
+        if !k.exp.is_zero() || k.wave != TrigFactor::One || k.beat != TimeFactor::One {
             return Err(nonlinear());
         }
         match k.mono.0.as_slice() {
@@ -1592,7 +1600,7 @@ fn linear_arg(func: &'static str, arg: &Expr, states: &[Sym]) -> CoreResult<Line
                     if super::func::atom(*p).is_some() {
                         return Err(nonlinear());
                     }
-                    if k.mono.exp_of(Sym::T) != 0 {
+                    if k.mono.power_of(Sym::T) != 0 {
                         return Err(CoreError::SymbolicFrequency {
                             arg: arg.to_string(),
                         });
@@ -1603,8 +1611,8 @@ fn linear_arg(func: &'static str, arg: &Expr, states: &[Sym]) -> CoreResult<Line
                     });
                 }
                 // Distinguish a parameter factor from genuine nonlinearity.
-                let has_t = k.mono.exp_of(Sym::T) != 0;
-                if has_t && k.mono.0.len() >= 2 && k.mono.exp_of(Sym::T) == 1 {
+                let has_t = k.mono.power_of(Sym::T) != 0;
+                if has_t && k.mono.0.len() >= 2 && k.mono.power_of(Sym::T) == 1 {
                     return Err(CoreError::SymbolicFrequency {
                         arg: arg.to_string(),
                     });
@@ -1667,7 +1675,7 @@ impl Expr {
                 arg: arg.to_string(),
             });
         }
-        let state = Lin(la.state.iter().cloned().collect());
+        let state = LinearForm(la.state.iter().cloned().collect());
         if state.is_zero() && la.freq.is_zero() {
             // A pure constant c*pi.
             return match trig_at_pi_multiple(is_sin, &la.pi_multiple) {
@@ -1745,7 +1753,7 @@ impl Expr {
         }
         Ok(Expr::term(
             Key {
-                exp: Lin(la.state.into_iter().collect()),
+                exp: LinearForm(la.state.into_iter().collect()),
                 ..Key::one()
             },
             Q::ONE,
@@ -1756,7 +1764,7 @@ impl Expr {
 // ---------------------------------------------------------------------------
 // Plain rendering in the input syntax.
 
-pub(crate) fn fmt_lin(l: &Lin) -> String {
+pub(crate) fn fmt_lin(l: &LinearForm) -> String {
     let mut s = String::new();
     for (i, (sym, c)) in l.0.iter().enumerate() {
         let neg = c.is_negative();
@@ -1800,14 +1808,14 @@ impl Key {
             f.push(format!("exp({})", fmt_lin(&self.exp)));
         }
         match &self.wave {
-            Wave::One => {}
-            Wave::Cos(l) => f.push(format!("cos({})", fmt_lin(l))),
-            Wave::Sin(l) => f.push(format!("sin({})", fmt_lin(l))),
+            TrigFactor::One => {}
+            TrigFactor::Cos(l) => f.push(format!("cos({})", fmt_lin(l))),
+            TrigFactor::Sin(l) => f.push(format!("sin({})", fmt_lin(l))),
         }
         match &self.beat {
-            Beat::One => {}
-            Beat::Cos(k) => f.push(format!("cos({})", fmt_freq(k))),
-            Beat::Sin(k) => f.push(format!("sin({})", fmt_freq(k))),
+            TimeFactor::One => {}
+            TimeFactor::Cos(k) => f.push(format!("cos({})", fmt_freq(k))),
+            TimeFactor::Sin(k) => f.push(format!("sin({})", fmt_freq(k))),
         }
         f
     }
@@ -1900,14 +1908,14 @@ mod tests {
         let full = a.mul(&b).unwrap();
         let (pa, pb) = (a.into_by_frequency(), b.into_by_frequency());
 
-        let mut acc = Acc::new();
+        let mut acc = SumBuilder::new();
         acc.add_product_harmonics(&pa, &pb, false, Keep::All)
             .unwrap();
         assert_eq!(acc.finish(), full);
 
         // Up to frequency 2: only sin(2t)/2 is kept; the constants are
         // 1/2·(1/4) + 1/2·(1/6) = 5/24.
-        let mut acc = Acc::new();
+        let mut acc = SumBuilder::new();
         acc.add_product_harmonics(&pa, &pb, false, Keep::UpToWithSines(&Q::int(2)))
             .unwrap();
         let (kept, sines) = acc.finish_with_sines();
@@ -1921,7 +1929,7 @@ mod tests {
 
         // The mean (cap 0): sine times cosine has none, and is not formed.
         limits::start_work();
-        let mut acc = Acc::new();
+        let mut acc = SumBuilder::new();
         acc.add_product_harmonics(&pa, &pb, false, Keep::UpTo(&Q::ZERO))
             .unwrap();
         assert!(acc.finish().is_zero());

@@ -7,7 +7,7 @@
 //! flow `(Φ^Y_s)^* X = Σ s^k/k! ad_Y^k X`.
 
 use super::error::{CoreError, CoreResult};
-use super::expr::{Acc, Expr, Harmonics, Keep, Part};
+use super::expr::{Expr, Keep, SumBuilder, TimePart, TimeParts};
 use super::limits;
 use super::num::Q;
 use super::symbol::Sym;
@@ -122,7 +122,7 @@ impl Field {
     /// The Lie derivative `X(h) = Σ X_i ∂h/∂x_i`.
     pub fn lie_derivative(&self, h: &Expr, states: &[Sym]) -> CoreResult<Expr> {
         self.check_states(states)?;
-        let mut acc = Acc::new();
+        let mut acc = SumBuilder::new();
         for (xi, s) in self.0.iter().zip(states) {
             if xi.is_zero() {
                 continue;
@@ -150,7 +150,7 @@ impl Field {
     /// it more than once (see [`bracket_sum`]).
     pub fn prepare(self, states: &[Sym]) -> CoreResult<Prepared> {
         self.check_states(states)?;
-        let parts: Vec<Harmonics> = self.0.into_iter().map(Expr::into_by_frequency).collect();
+        let parts: Vec<TimeParts> = self.0.into_iter().map(Expr::into_by_frequency).collect();
         Ok(Prepared::from_parts(parts, states))
     }
 
@@ -229,16 +229,16 @@ impl Field {
 /// want low harmonics.
 #[derive(Clone, Debug)]
 pub struct Prepared {
-    parts: Vec<Harmonics>,
-    d: Vec<Vec<Harmonics>>,
+    parts: Vec<TimeParts>,
+    d: Vec<Vec<TimeParts>>,
     n_terms: usize,
 }
 
 impl Prepared {
     /// From components split by time frequency (their derivatives are
     /// taken part by part: a part's derivative keeps its time factor).
-    pub fn from_parts(parts: Vec<Harmonics>, states: &[Sym]) -> Prepared {
-        let n_terms = parts.iter().flatten().map(Part::len).sum();
+    pub fn from_parts(parts: Vec<TimeParts>, states: &[Sym]) -> Prepared {
+        let n_terms = parts.iter().flatten().map(TimePart::len).sum();
         let d = parts
             .iter()
             .map(|xi| {
@@ -252,7 +252,7 @@ impl Prepared {
     }
 
     /// The components, split by time frequency.
-    pub fn parts(&self) -> &[Harmonics] {
+    pub fn parts(&self) -> &[TimeParts] {
         &self.parts
     }
 
@@ -280,25 +280,25 @@ pub fn bracket_sum(
         false,
         states,
         keep,
-        Acc::finish,
+        SumBuilder::finish,
     )?))
 }
 
 /// The start of a sum of brackets (see [`bracket_sum_onto_parts`]): a field, or
 /// a field split by time factor (one list of parts per component).
 #[derive(Clone, Copy, Debug)]
-pub enum Start<'a> {
+pub enum BracketStart<'a> {
     /// A field.
     Field(&'a Field),
     /// A field split by time factor.
-    Parts(&'a [Harmonics]),
+    Parts(&'a [TimeParts]),
 }
 
-impl Start<'_> {
+impl BracketStart<'_> {
     fn dim(&self) -> usize {
         match self {
-            Start::Field(f) => f.dim(),
-            Start::Parts(p) => p.len(),
+            BracketStart::Field(f) => f.dim(),
+            BracketStart::Parts(p) => p.len(),
         }
     }
 }
@@ -309,19 +309,19 @@ impl Start<'_> {
 /// constant of the dropped sine terms (see [`Keep::UpToWithSines`]) as an
 /// autonomous field.
 pub fn bracket_sum_onto_parts(
-    init: &[(Start, Q)],
+    init: &[(BracketStart, Q)],
     pairs: &[(&Prepared, &Prepared)],
     negate: bool,
     states: &[Sym],
     keep: Keep,
-) -> CoreResult<(Vec<Harmonics>, Field)> {
+) -> CoreResult<(Vec<TimeParts>, Field)> {
     let sums = component_sums(
         init,
         pairs,
         negate,
         states,
         keep,
-        Acc::finish_parts_with_sines,
+        SumBuilder::finish_parts_with_sines,
     )?;
     let (parts, sines) = sums.into_iter().unzip();
     Ok((parts, Field(sines)))
@@ -331,13 +331,13 @@ pub fn bracket_sum_onto_parts(
 /// further brackets: when every product was packed, its parts stay packed
 /// and no normal form is built.
 pub fn bracket_sum_onto_prepared(
-    init: &[(Start, Q)],
+    init: &[(BracketStart, Q)],
     pairs: &[(&Prepared, &Prepared)],
     negate: bool,
     states: &[Sym],
     keep: Keep,
 ) -> CoreResult<Prepared> {
-    let parts = component_sums(init, pairs, negate, states, keep, Acc::finish_parts)?;
+    let parts = component_sums(init, pairs, negate, states, keep, SumBuilder::finish_parts)?;
     Ok(Prepared::from_parts(parts, states))
 }
 
@@ -346,12 +346,12 @@ pub fn bracket_sum_onto_prepared(
 /// available cores (each worker gets this thread's limits and counts its
 /// work against this statement).
 fn component_sums<T: Send>(
-    init: &[(Start, Q)],
+    init: &[(BracketStart, Q)],
     pairs: &[(&Prepared, &Prepared)],
     negate: bool,
     states: &[Sym],
     keep: Keep,
-    finish: impl Fn(Acc) -> T + Sync,
+    finish: impl Fn(SumBuilder) -> T + Sync,
 ) -> CoreResult<Vec<T>> {
     let n = states.len();
     if let Some((f, _)) = init.iter().find(|(f, _)| f.dim() != n) {
@@ -374,11 +374,11 @@ fn component_sums<T: Send>(
         }
     }
     let component = |i: usize| -> CoreResult<T> {
-        let mut acc = Acc::new();
+        let mut acc = SumBuilder::new();
         for (start, q) in init {
             match start {
-                Start::Field(f) => acc.add_scaled(&f.0[i], q, keep)?,
-                Start::Parts(p) => acc.add_parts(&p[i], q, keep)?,
+                BracketStart::Field(f) => acc.add_scaled(&f.0[i], q, keep)?,
+                BracketStart::Parts(p) => acc.add_parts(&p[i], q, keep)?,
             }
         }
         for (x, y) in pairs {

@@ -26,7 +26,7 @@ use std::sync::Arc;
 use smallvec::SmallVec;
 
 use super::error::{CoreError, CoreResult};
-use super::expr::{Beat, Expr, Key, Lin, Mono, Wave};
+use super::expr::{Expr, Key, LinearForm, Monomial, TimeFactor, TrigFactor};
 use super::num::Q;
 use super::packed::SLOTS;
 use super::symbol::Sym;
@@ -45,7 +45,7 @@ pub struct Signature {
 #[derive(Clone, PartialEq, Eq, Hash, Debug)]
 pub struct Arg {
     /// The linear form in the state.
-    pub lin: Lin,
+    pub lin: LinearForm,
     /// The rational constant.
     pub constant: Q,
     /// The coefficient of pi.
@@ -137,14 +137,14 @@ impl Arg {
         let mut lin: Vec<(Sym, Q)> = Vec::new();
         let (mut constant, mut pi) = (Q::ZERO, Q::ZERO);
         for (k, c) in e.terms() {
-            if k.beat != Beat::One || k.mono.exp_of(Sym::T) != 0 {
+            if k.beat != TimeFactor::One || k.mono.power_of(Sym::T) != 0 {
                 return Err(
                     "time `t` cannot stand inside (the argument is a point of the \
                             state space)"
                         .to_string(),
                 );
             }
-            if !k.exp.is_zero() || k.wave != Wave::One {
+            if !k.exp.is_zero() || k.wave != TrigFactor::One {
                 return Err("the argument is not linear in the state".to_string());
             }
             match k.mono.0.as_slice() {
@@ -162,7 +162,7 @@ impl Arg {
             }
         }
         Ok(Arg {
-            lin: Lin(lin.into()),
+            lin: LinearForm(lin.into()),
             constant,
             pi,
         })
@@ -352,7 +352,7 @@ impl Expr {
         for (k, c) in self.terms() {
             super::limits::poll()?;
             let mut rest = k.clone();
-            rest.mono = Mono::one();
+            rest.mono = Monomial::one();
             let mut factor: Option<Expr> = None;
             for (s, e) in &k.mono.0 {
                 if !cache.contains_key(s) {
@@ -406,7 +406,7 @@ pub fn subst_args(a: &Atom, map: &HashMap<Sym, Expr>, states: &[Sym]) -> CoreRes
         }
         v = v.add(
             &Arg {
-                lin: Lin::default(),
+                lin: LinearForm::default(),
                 ..arg.clone()
             }
             .to_expr(),
@@ -419,7 +419,7 @@ pub fn subst_args(a: &Atom, map: &HashMap<Sym, Expr>, states: &[Sym]) -> CoreRes
 /// The chain rule: the terms `(monomial, factor)` of `∂m/∂s` that come from
 /// the atoms of `m` (`e·A^(e−1)·Σ_j (∂L_j/∂s)·A_j` for an atom `A` to the
 /// power `e`, `A_j` its derivative in argument `j`), pushed on `out`.
-pub fn chain_rule(m: &Mono, s: Sym, out: &mut Vec<(Mono, Q)>) {
+pub fn chain_rule(m: &Monomial, s: Sym, out: &mut Vec<(Monomial, Q)>) {
     for (i, (x, e)) in m.0.iter().enumerate() {
         let Some(a) = atom(*x) else {
             continue;
@@ -436,7 +436,7 @@ pub fn chain_rule(m: &Mono, s: Sym, out: &mut Vec<(Mono, Q)>) {
             } else {
                 rest.0[i].1 -= 1;
             }
-            let mut one = Mono::one();
+            let mut one = Monomial::one();
             one.0.push((d, 1));
             // Exponents of a derivative stay far from overflow; on overflow
             // the term is kept as it would be without the factor's merge.

@@ -2,14 +2,14 @@
 //! loop of brackets.
 //!
 //! Owns: a compact copy of the terms of one time part (see
-//! [`super::expr::Part`]) when every term is a monomial in the first
+//! [`super::expr::TimePart`]) when every term is a monomial in the first
 //! [`SLOTS`] symbols, with exponents from 0 to 127 and word-sized
 //! coefficients, times at most a state-trigonometric factor `cos L` or
 //! `sin L` whose linear form has integer coefficients from −127 to 127 in
 //! those symbols (no exponential factor). Each monomial is one `u128`,
 //! eight bits per symbol, so the monomial of a product is one addition (two
 //! exponents of at most 127 cannot carry into the next symbol); the terms
-//! are grouped by trigonometric factor ([`PWave`], the linear form in signed
+//! are grouped by trigonometric factor ([`PackedTrig`], the linear form in signed
 //! byte lanes), so that product-to-sum runs once per pair of groups and the
 //! loop over pairs of terms only adds monomials; the coefficients are
 //! integer numerators over one common denominator, so products and their
@@ -27,7 +27,7 @@ use std::sync::Arc;
 use rustc_hash::FxHashMap;
 use smallvec::SmallVec;
 
-use super::expr::{Beat, Expr, Key, Lin, Mono, Wave};
+use super::expr::{Expr, Key, LinearForm, Monomial, TimeFactor, TrigFactor};
 use super::num::Q;
 use super::symbol::Sym;
 
@@ -41,21 +41,21 @@ const MAX_EXP: i32 = 127;
 /// is a signed byte; −128 is left out so that every lane can be negated).
 const MAX_LANE: i16 = 127;
 
-/// A packed state-trigonometric factor (see [`Wave`]): none, `cos L` or
+/// A packed state-trigonometric factor (see [`TrigFactor`]): none, `cos L` or
 /// `sin L`, with `L`'s integer coefficients in signed byte lanes (symbol
 /// `s` in byte `s`) and its first nonzero lane positive (the normal form's
 /// canonical sign). One word: lane 0 (time, never in a state form) holds
-/// the kind, 0 for none, 1 for `cos`, 2 for `sin` (the order of [`Wave`]'s
+/// the kind, 0 for none, 1 for `cos`, 2 for `sin` (the order of [`TrigFactor`]'s
 /// variants).
 #[derive(Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Debug, Default)]
-pub struct PWave(u128);
+pub struct PackedTrig(u128);
 
-impl PWave {
+impl PackedTrig {
     /// No trigonometric factor.
-    pub const ONE: PWave = PWave(0);
+    pub const ONE: PackedTrig = PackedTrig(0);
 
-    fn new(kind: u8, lanes: u128) -> PWave {
-        PWave(lanes & !0xff | u128::from(kind))
+    fn new(kind: u8, lanes: u128) -> PackedTrig {
+        PackedTrig(lanes & !0xff | u128::from(kind))
     }
 
     /// 0: none, 1: `cos`, 2: `sin`.
@@ -69,11 +69,11 @@ impl PWave {
     }
 
     /// The packed copy of `w`, `None` when it does not fit.
-    pub fn pack(w: &Wave) -> Option<PWave> {
+    pub fn pack(w: &TrigFactor) -> Option<PackedTrig> {
         let (kind, l) = match w {
-            Wave::One => return Some(PWave::ONE),
-            Wave::Cos(l) => (1, l),
-            Wave::Sin(l) => (2, l),
+            TrigFactor::One => return Some(PackedTrig::ONE),
+            TrigFactor::Cos(l) => (1, l),
+            TrigFactor::Sin(l) => (2, l),
         };
         let mut lanes = 0u128;
         for (s, c) in l.0.iter() {
@@ -86,13 +86,13 @@ impl PWave {
             }
             lanes |= u128::from(*n as i8 as u8) << (8 * s.0);
         }
-        Some(PWave::new(kind, lanes))
+        Some(PackedTrig::new(kind, lanes))
     }
 
     /// The factor in normal form.
-    pub fn unpack(self) -> Wave {
+    pub fn unpack(self) -> TrigFactor {
         if self.kind() == 0 {
-            return Wave::One;
+            return TrigFactor::One;
         }
         let mut pairs = Vec::new();
         let (mut rest, mut s) = (self.lanes(), 0u32);
@@ -104,11 +104,11 @@ impl PWave {
             rest >>= 8;
             s += 1;
         }
-        let l = Lin(Arc::from(pairs));
+        let l = LinearForm(Arc::from(pairs));
         if self.kind() == 1 {
-            Wave::Cos(l)
+            TrigFactor::Cos(l)
         } else {
-            Wave::Sin(l)
+            TrigFactor::Sin(l)
         }
     }
 
@@ -117,9 +117,9 @@ impl PWave {
         self.0
     }
 
-    /// The factor of [`PWave::code`].
-    fn from_code(code: u128) -> PWave {
-        PWave(code)
+    /// The factor of [`PackedTrig::code`].
+    fn from_code(code: u128) -> PackedTrig {
+        PackedTrig(code)
     }
 
     /// The coefficient of `s` in the linear form.
@@ -192,7 +192,7 @@ fn canonical_lanes(l: u128) -> (u128, bool) {
 /// in canonical form (`cos(−L) = cos L`, `sin(−L) = −sin L`, `cos 0 = 1`,
 /// `sin 0 = 0`). The factors' largest coefficients must sum to at most 127
 /// (see [`Packed::lanes_fit`]).
-fn wave_routes(a: PWave, b: PWave) -> WaveRoutes {
+fn wave_routes(a: PackedTrig, b: PackedTrig) -> WaveRoutes {
     let mut out = WaveRoutes::default();
     if !a.is_wave() {
         out.push(b, 2);
@@ -208,12 +208,12 @@ fn wave_routes(a: PWave, b: PWave) -> WaveRoutes {
         let (lanes, negated) = canonical_lanes(lanes);
         if lanes == 0 {
             if kind == 1 {
-                out.push(PWave::ONE, p);
+                out.push(PackedTrig::ONE, p);
             }
             return;
         }
         let p = if negated && kind == 2 { -p } else { p };
-        out.push(PWave::new(kind, lanes), p);
+        out.push(PackedTrig::new(kind, lanes), p);
     };
     match (a.kind(), b.kind()) {
         (1, 1) => {
@@ -240,40 +240,40 @@ fn wave_routes(a: PWave, b: PWave) -> WaveRoutes {
 /// with its factor `p/2`.
 #[derive(Clone, Copy, Debug, Default)]
 struct WaveRoutes {
-    routes: [(PWave, i64); 2],
+    routes: [(PackedTrig, i64); 2],
     len: usize,
 }
 
 impl WaveRoutes {
-    fn push(&mut self, w: PWave, p: i64) {
+    fn push(&mut self, w: PackedTrig, p: i64) {
         if let Some(slot) = self.routes.get_mut(self.len) {
             *slot = (w, p);
             self.len += 1;
         }
     }
 
-    fn as_slice(&self) -> &[(PWave, i64)] {
+    fn as_slice(&self) -> &[(PackedTrig, i64)] {
         &self.routes[..self.len]
     }
 }
 
-/// The order of [`Lin`] (sorted `(symbol, coefficient)` pairs compared
+/// The order of [`LinearForm`] (sorted `(symbol, coefficient)` pairs compared
 /// lexicographically) on packed linear forms: as [`cmp_mono`], with the
 /// lanes compared as signed numbers.
 fn cmp_lanes(a: u128, b: u128) -> Ordering {
     cmp_lanes_by(a, b, |m, shift| i16::from(lane(m, shift)))
 }
 
-/// The order of [`Wave`] on packed factors: none, then `cos`, then `sin`,
+/// The order of [`TrigFactor`] on packed factors: none, then `cos`, then `sin`,
 /// each by linear form.
-fn cmp_wave(a: PWave, b: PWave) -> Ordering {
+fn cmp_wave(a: PackedTrig, b: PackedTrig) -> Ordering {
     a.kind()
         .cmp(&b.kind())
         .then_with(|| cmp_lanes(a.lanes(), b.lanes()))
 }
 
 /// A packed term with its trigonometric factor (before grouping).
-type WaveTerm = (PWave, u128, i64);
+type WaveTerm = (PackedTrig, u128, i64);
 
 /// The terms of one part, packed: `Σ terms[i].1 · x^terms[i].0 / denom`
 /// times the group's trigonometric factor, times `cos(freq·t)`
@@ -292,7 +292,7 @@ pub struct Packed {
     /// The groups: trigonometric factor and the end of its terms (those
     /// from the previous group's end); distinct factors, monomials distinct
     /// within a group.
-    groups: SmallVec<[(PWave, usize); 1]>,
+    groups: SmallVec<[(PackedTrig, usize); 1]>,
     /// True when some group has a trigonometric factor.
     waves: bool,
     /// The largest coefficient of the groups' linear forms in absolute
@@ -308,7 +308,7 @@ impl Packed {
         let groups = if terms.is_empty() {
             SmallVec::new()
         } else {
-            SmallVec::from_elem((PWave::ONE, terms.len()), 1)
+            SmallVec::from_elem((PackedTrig::ONE, terms.len()), 1)
         };
         Packed::with_groups(freq, odd, denom, terms, groups)
     }
@@ -318,7 +318,7 @@ impl Packed {
         odd: bool,
         denom: i64,
         terms: Vec<(u128, i64)>,
-        groups: SmallVec<[(PWave, usize); 1]>,
+        groups: SmallVec<[(PackedTrig, usize); 1]>,
     ) -> Packed {
         let max_abs = terms
             .iter()
@@ -383,7 +383,7 @@ impl Packed {
         }
         let mut terms: Vec<(u128, i64)> = Vec::with_capacity(v.len());
         let n_groups = 1 + v.windows(2).filter(|p| p[0].0 != p[1].0).count();
-        let mut groups: SmallVec<[(PWave, usize); 1]> = SmallVec::with_capacity(n_groups);
+        let mut groups: SmallVec<[(PackedTrig, usize); 1]> = SmallVec::with_capacity(n_groups);
         for (w, m, n) in v {
             if groups.last().map(|g| g.0) != Some(w) {
                 groups.push((w, 0));
@@ -397,7 +397,7 @@ impl Packed {
     }
 
     /// The groups: trigonometric factor and terms.
-    fn groups(&self) -> impl Iterator<Item = (PWave, &[(u128, i64)])> + '_ {
+    fn groups(&self) -> impl Iterator<Item = (PackedTrig, &[(u128, i64)])> + '_ {
         let mut start = 0;
         self.groups.iter().map(move |&(w, end)| {
             let g = &self.terms[start..end];
@@ -435,13 +435,13 @@ impl Packed {
                 return None;
             }
             let term = (pack_mono(&k.mono)?, n.checked_mul(denom / d)?);
-            if k.wave == Wave::One && waves.is_empty() {
+            if k.wave == TrigFactor::One && waves.is_empty() {
                 plain.push(term);
             } else {
                 if waves.is_empty() {
-                    waves.extend(plain.drain(..).map(|(m, n)| (PWave::ONE, m, n)));
+                    waves.extend(plain.drain(..).map(|(m, n)| (PackedTrig::ONE, m, n)));
                 }
-                waves.push((PWave::pack(&k.wave)?, term.0, term.1));
+                waves.push((PackedTrig::pack(&k.wave)?, term.0, term.1));
             }
         }
         if waves.is_empty() {
@@ -487,7 +487,7 @@ impl Packed {
                 }
                 if c != 0 {
                     let (kind, f) = if w.kind() == 1 { (2, -c) } else { (1, c) };
-                    v.push((PWave::new(kind, w.lanes()), *m, n.checked_mul(f)?));
+                    v.push((PackedTrig::new(kind, w.lanes()), *m, n.checked_mul(f)?));
                 }
             }
         }
@@ -511,7 +511,7 @@ impl Packed {
                     .into_iter()
                     .map(|(m, n)| {
                         (
-                            key_of(m, Wave::One, &beat),
+                            key_of(m, TrigFactor::One, &beat),
                             Q::from_i128(n as i128, self.denom as i128),
                         )
                     })
@@ -519,7 +519,8 @@ impl Packed {
             );
         }
         // By monomial, then trigonometric factor (the order of keys).
-        let waves: Vec<(PWave, Wave)> = self.groups.iter().map(|(w, _)| (*w, w.unpack())).collect();
+        let waves: Vec<(PackedTrig, TrigFactor)> =
+            self.groups.iter().map(|(w, _)| (*w, w.unpack())).collect();
         let mut terms: Vec<(u128, usize, i64)> = Vec::with_capacity(self.terms.len());
         for (i, (_, g)) in self.groups().enumerate() {
             terms.extend(g.iter().filter(|(_, n)| *n != 0).map(|&(m, n)| (m, i, n)));
@@ -613,15 +614,15 @@ pub fn common_denominator(terms: &[(Key, Q)]) -> Option<i64> {
 
 /// The packed monomial, trigonometric factor, frequency and parity of a
 /// term's key, when it fits (see [`Packed`]).
-pub fn pack_key(k: &Key) -> Option<(u128, PWave, i64, bool)> {
+pub fn pack_key(k: &Key) -> Option<(u128, PackedTrig, i64, bool)> {
     if !k.exp.is_zero() {
         return None;
     }
-    let wave = PWave::pack(&k.wave)?;
+    let wave = PackedTrig::pack(&k.wave)?;
     let (freq, odd) = match &k.beat {
-        Beat::One => (0, false),
-        Beat::Cos(h) => (h.is_integer().then(|| h.to_i64())??, false),
-        Beat::Sin(h) => (h.is_integer().then(|| h.to_i64())??, true),
+        TimeFactor::One => (0, false),
+        TimeFactor::Cos(h) => (h.is_integer().then(|| h.to_i64())??, false),
+        TimeFactor::Sin(h) => (h.is_integer().then(|| h.to_i64())??, true),
     };
     Some((pack_mono(&k.mono)?, wave, freq, odd))
 }
@@ -637,13 +638,13 @@ pub fn sort_terms(terms: &mut Vec<(Key, Q)>) {
         terms.sort_unstable_by(|a, b| a.0.cmp(&b.0));
         return;
     }
-    let mut order: Vec<(u128, PWave, u8, i64, u32)> = Vec::with_capacity(terms.len());
+    let mut order: Vec<(u128, PackedTrig, u8, i64, u32)> = Vec::with_capacity(terms.len());
     for (i, (k, _)) in terms.iter().enumerate() {
         let Some((m, w, freq, odd)) = pack_key(k) else {
             terms.sort_unstable_by(|a, b| a.0.cmp(&b.0));
             return;
         };
-        // The order of `Beat`: none, `cos`, `sin`, then the frequency.
+        // The order of `TimeFactor`: none, `cos`, `sin`, then the frequency.
         let kind = if freq == 0 { 0 } else { 1 + odd as u8 };
         order.push((m, w, kind, freq, i as u32));
     }
@@ -683,7 +684,7 @@ fn lcm_i128(a: i128, b: i128) -> Option<i128> {
     (a / g).checked_mul(b)
 }
 
-fn pack_mono(m: &Mono) -> Option<u128> {
+fn pack_mono(m: &Monomial) -> Option<u128> {
     let mut out = 0u128;
     for (s, e) in &m.0 {
         if s.0 >= SLOTS || !(0..=MAX_EXP).contains(e) {
@@ -694,7 +695,7 @@ fn pack_mono(m: &Mono) -> Option<u128> {
     Some(out)
 }
 
-fn unpack_mono(mut m: u128) -> Mono {
+fn unpack_mono(mut m: u128) -> Monomial {
     let mut out = SmallVec::new();
     let mut s = 0u32;
     while m != 0 {
@@ -705,10 +706,10 @@ fn unpack_mono(mut m: u128) -> Mono {
         m >>= 8;
         s += 1;
     }
-    Mono(out)
+    Monomial(out)
 }
 
-/// The order of [`Mono`] (its sorted `(symbol, exponent)` pairs compared
+/// The order of [`Monomial`] (its sorted `(symbol, exponent)` pairs compared
 /// lexicographically) on packed monomials (see [`cmp_lanes_by`]).
 fn cmp_mono(a: u128, b: u128) -> Ordering {
     cmp_lanes_by(a, b, |m, shift| ((m >> shift) & 0xff) as i16)
@@ -744,21 +745,21 @@ fn cmp_lanes_by(a: u128, b: u128, value: impl Fn(u128, u32) -> i16) -> Ordering 
 }
 
 /// The time factor `cos(f t)` (`sin(f t)` when `odd`, 1 when `f = 0`).
-fn beat_of(freq: i64, odd: bool) -> Beat {
+fn beat_of(freq: i64, odd: bool) -> TimeFactor {
     if freq == 0 {
-        Beat::One
+        TimeFactor::One
     } else if odd {
-        Beat::Sin(Q::int(freq))
+        TimeFactor::Sin(Q::int(freq))
     } else {
-        Beat::Cos(Q::int(freq))
+        TimeFactor::Cos(Q::int(freq))
     }
 }
 
 /// The key of a packed monomial with factors `wave` and `beat`.
-fn key_of(m: u128, wave: Wave, beat: &Beat) -> Key {
+fn key_of(m: u128, wave: TrigFactor, beat: &TimeFactor) -> Key {
     Key {
         mono: unpack_mono(m),
-        exp: Lin::default(),
+        exp: LinearForm::default(),
         wave,
         beat: beat.clone(),
     }
@@ -767,7 +768,7 @@ fn key_of(m: u128, wave: Wave, beat: &Beat) -> Key {
 /// Which products a [`PackedSum`] keeps, by time frequency of the result
 /// (the integer form of [`super::expr::Keep`]).
 #[derive(Clone, Copy, Debug)]
-pub struct Cut {
+pub struct PackedKeep {
     /// Highest frequency kept (`None`: all).
     pub cap: Option<i64>,
     /// Of the dropped `c·sin(h t)`, keep the constant `c/h` apart.
@@ -790,7 +791,7 @@ pub struct TimePiece {
 /// factor `(freq, odd)` or, with `sines`, the constants of dropped sines;
 /// each product takes the factor `p/q` on the way.
 #[derive(Clone, Copy, Debug, Default)]
-pub struct Route {
+pub struct ProductRoute {
     freq: i64,
     odd: bool,
     sines: bool,
@@ -798,11 +799,11 @@ pub struct Route {
     q: i64,
 }
 
-impl Route {
+impl ProductRoute {
     /// The route to the sum of time factor `(freq, odd)` (or, with
     /// `sines`, of sine constants) with the factor `p/q` (`q > 0`).
-    pub fn new(freq: i64, odd: bool, sines: bool, p: i64, q: i64) -> Route {
-        Route {
+    pub fn new(freq: i64, odd: bool, sines: bool, p: i64, q: i64) -> ProductRoute {
+        ProductRoute {
             freq,
             odd,
             sines,
@@ -817,8 +818,8 @@ impl Route {
 /// cos(a+b))/2`, `sin a cos b = (sin(a+b) + sin(a−b))/2`), after `cut`
 /// (`∫_0^t sin(h s) ds = (1 − cos(h t))/h` for the sine constants).
 /// `None` when a frequency overflows.
-pub fn routes(a: &Packed, b: &Packed, cut: Cut) -> Option<Routes> {
-    let mut out = Routes::default();
+pub fn routes(a: &Packed, b: &Packed, cut: PackedKeep) -> Option<ProductRoutes> {
+    let mut out = ProductRoutes::default();
     let mut push = |f: Option<i64>, odd: bool, p: i64, q: i64| -> Option<()> {
         let f = f?;
         // sin(−h t) = −sin(h t), cos(−h t) = cos(h t), sin(0) = 0.
@@ -833,7 +834,7 @@ pub fn routes(a: &Packed, b: &Packed, cut: Cut) -> Option<Routes> {
         match cut.cap {
             Some(c) if f > c => {
                 if cut.sines && odd {
-                    out.push(Route {
+                    out.push(ProductRoute {
                         freq: 0,
                         odd: false,
                         sines: true,
@@ -842,7 +843,7 @@ pub fn routes(a: &Packed, b: &Packed, cut: Cut) -> Option<Routes> {
                     });
                 }
             }
-            _ => out.push(Route {
+            _ => out.push(ProductRoute {
                 freq: f,
                 odd,
                 sines: false,
@@ -887,13 +888,13 @@ pub fn routes(a: &Packed, b: &Packed, cut: Cut) -> Option<Routes> {
 /// The at most two routes of a pair of parts (a fixed array: no length
 /// checks or spills in the product's setup).
 #[derive(Clone, Copy, Debug, Default)]
-pub struct Routes {
-    routes: [Route; 2],
+pub struct ProductRoutes {
+    routes: [ProductRoute; 2],
     len: usize,
 }
 
-impl Routes {
-    fn push(&mut self, r: Route) {
+impl ProductRoutes {
+    fn push(&mut self, r: ProductRoute) {
         if let Some(slot) = self.routes.get_mut(self.len) {
             *slot = r;
             self.len += 1;
@@ -901,7 +902,7 @@ impl Routes {
     }
 
     /// The routes, in order.
-    pub fn as_slice(&self) -> &[Route] {
+    pub fn as_slice(&self) -> &[ProductRoute] {
         &self.routes[..self.len]
     }
 
@@ -945,7 +946,7 @@ fn common_denominator_of_parts(parts: &mut [Packed]) {
 }
 
 /// A key of a [`KeyMap`]: a packed monomial, or a packed monomial with a
-/// packed trigonometric factor ([`PWave::code`]).
+/// packed trigonometric factor ([`PackedTrig::code`]).
 trait SlotKey: Copy + Eq + std::fmt::Debug {
     /// No key: a monomial has exponents of at most 127 in every lane.
     const VACANT: Self;
@@ -1089,7 +1090,7 @@ impl<K: SlotKey> KeyMap<K> {
 /// `denom`, by monomial (terms without trigonometric factor) and by
 /// monomial and trigonometric factor.
 #[derive(Debug)]
-struct Target {
+struct TimeSum {
     freq: i64,
     odd: bool,
     sines: bool,
@@ -1100,13 +1101,13 @@ struct Target {
     waves: WaveMap,
 }
 
-impl Target {
-    fn beat(&self) -> Beat {
+impl TimeSum {
+    fn beat(&self) -> TimeFactor {
         beat_of(self.freq, self.odd)
     }
 
     /// The key of monomial `m` with factor `wave` in this sum.
-    fn key(&self, m: u128, wave: PWave) -> Key {
+    fn key(&self, m: u128, wave: PackedTrig) -> Key {
         key_of(m, wave.unpack(), &self.beat())
     }
 
@@ -1121,11 +1122,11 @@ impl Target {
     }
 
     /// `self += m_a·row_n · b` times the factor `wave` (see
-    /// [`Target::add_row`]).
+    /// [`TimeSum::add_row`]).
     fn add_wave_row(
         &mut self,
         ma: u128,
-        wave: PWave,
+        wave: PackedTrig,
         row_n: i128,
         b: &[(u128, i64)],
         spill: &mut impl FnMut(Key, Q, bool),
@@ -1163,7 +1164,7 @@ impl Target {
                 Some(s) => *e = s,
                 None => {
                     let c = Q::from_i128(v, self.denom);
-                    spill(self.key(ma + mb, PWave::ONE), c, self.sines);
+                    spill(self.key(ma + mb, PackedTrig::ONE), c, self.sines);
                 }
             }
         };
@@ -1186,7 +1187,7 @@ impl Target {
         &mut self,
         a: &[(u128, i64)],
         b: &[(u128, i64)],
-        wave: PWave,
+        wave: PackedTrig,
         scale: i128,
         spill: &mut impl FnMut(Key, Q, bool),
     ) {
@@ -1208,8 +1209,8 @@ impl Target {
 
     /// `self += v · m` times the factor `wave`, unless the sum overflows
     /// (then nothing is added and the result is false).
-    fn try_add(&mut self, m: u128, wave: PWave, v: i128) -> bool {
-        let e = if wave == PWave::ONE {
+    fn try_add(&mut self, m: u128, wave: PackedTrig, v: i128) -> bool {
+        let e = if wave == PackedTrig::ONE {
             self.map.slot(m)
         } else {
             self.waves.slot((m, wave.code()))
@@ -1237,25 +1238,29 @@ impl Target {
     fn spill_all(&mut self, spill: &mut impl FnMut(Key, Q, bool)) {
         for (m, n) in self.map.take() {
             spill(
-                self.key(m, PWave::ONE),
+                self.key(m, PackedTrig::ONE),
                 Q::from_i128(n, self.denom),
                 self.sines,
             );
         }
         for ((m, w), n) in self.waves.take() {
             let c = Q::from_i128(n, self.denom);
-            spill(self.key(m, PWave::from_code(w)), c, self.sines);
+            spill(self.key(m, PackedTrig::from_code(w)), c, self.sines);
         }
     }
 
     /// The nonzero terms: monomial, factor, numerator.
-    fn take_terms(&mut self) -> impl Iterator<Item = (u128, PWave, i128)> {
-        let plain = self.map.take().into_iter().map(|(m, n)| (m, PWave::ONE, n));
+    fn take_terms(&mut self) -> impl Iterator<Item = (u128, PackedTrig, i128)> {
+        let plain = self
+            .map
+            .take()
+            .into_iter()
+            .map(|(m, n)| (m, PackedTrig::ONE, n));
         let waves = self
             .waves
             .take()
             .into_iter()
-            .map(|((m, w), n)| (m, PWave::from_code(w), n));
+            .map(|((m, w), n)| (m, PackedTrig::from_code(w), n));
         plain.chain(waves).filter(|t| t.2 != 0)
     }
 }
@@ -1265,17 +1270,17 @@ pub type Terms = Vec<(Key, Q)>;
 
 /// A drained term: monomial, trigonometric factor, time factor kind (0:
 /// 1, 1: cos, 2: sin), frequency, numerator, denominator.
-type Drained = (u128, PWave, u8, i64, i128, i128);
+type Drained = (u128, PackedTrig, u8, i64, i128, i128);
 
 /// The trigonometric factors of packed terms in normal form, each made
 /// once.
 #[derive(Default)]
-struct WaveCache(FxHashMap<PWave, Wave>);
+struct WaveCache(FxHashMap<PackedTrig, TrigFactor>);
 
 impl WaveCache {
-    fn get(&mut self, w: PWave) -> Wave {
-        if w == PWave::ONE {
-            return Wave::One;
+    fn get(&mut self, w: PackedTrig) -> TrigFactor {
+        if w == PackedTrig::ONE {
+            return TrigFactor::One;
         }
         self.0.entry(w).or_insert_with(|| w.unpack()).clone()
     }
@@ -1284,24 +1289,24 @@ impl WaveCache {
 /// A sum of products of packed parts, by time factor of the result.
 #[derive(Debug, Default)]
 pub struct PackedSum {
-    targets: Vec<Target>,
-    /// Target by (frequency, kind) for small frequencies: kind 0 for
+    targets: Vec<TimeSum>,
+    /// TimeSum by (frequency, kind) for small frequencies: kind 0 for
     /// `cos`/1, 1 for `sin`, 2 for sine constants; `usize::MAX` for none.
     small: Vec<[usize; 3]>,
-    /// Target by (frequency, kind) for the others.
+    /// TimeSum by (frequency, kind) for the others.
     index: FxHashMap<(i64, u8), usize>,
 }
 
 impl PackedSum {
     /// Number of terms held (before cancellation).
     pub fn held(&self) -> usize {
-        self.targets.iter().map(Target::held).sum()
+        self.targets.iter().map(TimeSum::held).sum()
     }
 
     /// The target of `r` whose denominator is a multiple of `d`, created
     /// or rescaled as needed; what cannot be rescaled in machine integers
     /// is spilled as exact terms.
-    fn target(&mut self, r: &Route, d: i128, spill: &mut impl FnMut(Key, Q, bool)) -> usize {
+    fn target(&mut self, r: &ProductRoute, d: i128, spill: &mut impl FnMut(Key, Q, bool)) -> usize {
         let kind = if r.sines { 2 } else { r.odd as u8 };
         let found = match usize::try_from(r.freq) {
             Ok(f) if f < SMALL_FREQ => self
@@ -1314,7 +1319,7 @@ impl PackedSum {
         let i = match found {
             Some(i) => i,
             None => {
-                self.targets.push(Target {
+                self.targets.push(TimeSum {
                     freq: r.freq,
                     odd: r.odd,
                     sines: r.sines,
@@ -1382,7 +1387,7 @@ impl PackedSum {
         a: &Packed,
         b: &Packed,
         negate: bool,
-        routes: &[Route],
+        routes: &[ProductRoute],
         spill: &mut impl FnMut(Key, Q, bool),
         check: &mut impl FnMut(usize) -> Result<(), E>,
     ) -> Result<bool, E> {
@@ -1455,7 +1460,7 @@ impl PackedSum {
                             rows = 0;
                             check(others[k] + t.held())?;
                         }
-                        t.add_checked(chunk, &b.terms, PWave::ONE, scale, spill);
+                        t.add_checked(chunk, &b.terms, PackedTrig::ONE, scale, spill);
                     }
                     continue;
                 }
@@ -1525,7 +1530,7 @@ impl PackedSum {
                             if rows.is_multiple_of(64) {
                                 check(others[k] + t.held())?;
                             }
-                            if w == PWave::ONE {
+                            if w == PackedTrig::ONE {
                                 t.add_row(*ma, *na as i128 * scale, small, gb, spill);
                             } else {
                                 t.add_wave_row(*ma, w, *na as i128 * scale, gb, spill);
@@ -1553,7 +1558,7 @@ impl PackedSum {
         a: &Packed,
         b: &Packed,
         negate: bool,
-        cut: Cut,
+        cut: PackedKeep,
         spill: &mut impl FnMut(Key, Q, bool),
     ) -> Option<usize> {
         if a.terms.len() >= 64 || a.waves || b.waves {
@@ -1668,12 +1673,12 @@ impl PackedSum {
             let mut terms: Vec<WaveTerm> = Vec::with_capacity(t.held());
             for (m, n) in t.map.iter() {
                 if n != 0 {
-                    terms.push((PWave::ONE, m, reduce(n)?));
+                    terms.push((PackedTrig::ONE, m, reduce(n)?));
                 }
             }
             for ((m, w), n) in t.waves.iter() {
                 if n != 0 {
-                    terms.push((PWave::from_code(w), m, reduce(n)?));
+                    terms.push((PackedTrig::from_code(w), m, reduce(n)?));
                 }
             }
             if !terms.is_empty() {
@@ -1690,7 +1695,7 @@ impl PackedSum {
     pub fn add_packed(
         &mut self,
         a: &Packed,
-        r: &Route,
+        r: &ProductRoute,
         spill: &mut impl FnMut(Key, Q, bool),
     ) -> bool {
         if (a.denom as i128).checked_mul(r.q as i128).is_none() {
@@ -1754,7 +1759,7 @@ impl PackedSum {
                     if out.is_empty() {
                         continue;
                     }
-                    let r = Route::new(pc.freq, pc.odd, false, pc.num, pc.den);
+                    let r = ProductRoute::new(pc.freq, pc.odd, false, pc.num, pc.den);
                     // Cannot decline: `denom·den` fits 128 bits.
                     self.add_terms(out, a.denom, &r, w, spill);
                     out.clear();
@@ -1772,8 +1777,8 @@ impl PackedSum {
         &mut self,
         terms: &[(u128, i64)],
         denom: i64,
-        r: &Route,
-        wave: PWave,
+        r: &ProductRoute,
+        wave: PackedTrig,
         spill: &mut impl FnMut(Key, Q, bool),
     ) -> bool {
         let Some(d) = (denom as i128).checked_mul(r.q as i128) else {
@@ -1867,7 +1872,7 @@ impl PackedSum {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::core::expr::{Acc, Keep};
+    use crate::core::expr::{Keep, SumBuilder};
 
     #[test]
     fn products_of_parts_with_denominators_near_a_word_stay_exact() {
@@ -1890,7 +1895,7 @@ mod tests {
             .add(&x.scale(&Q::Small(2, 5)));
         let (pa, pb) = (a.clone().into_by_frequency(), b.clone().into_by_frequency());
         assert!(pa.iter().chain(&pb).all(|p| p.is_packed()));
-        let mut acc = Acc::new();
+        let mut acc = SumBuilder::new();
         for negate in [false, false, true, false] {
             acc.add_product_harmonics(&pa, &pb, negate, Keep::All)
                 .expect("product");
@@ -1919,7 +1924,7 @@ mod tests {
         assert!(pa.iter().chain(&pb).chain(&pc).all(|p| p.is_packed()));
         // 40 products of about 2^124 each overflow an i128 sum; then a
         // denominator 7 asks to rescale the sums that hold them.
-        let mut acc = Acc::new();
+        let mut acc = SumBuilder::new();
         for _ in 0..40 {
             acc.add_product_harmonics(&pa, &pb, false, Keep::All)
                 .expect("product");
@@ -1936,12 +1941,14 @@ mod tests {
     }
 
     /// A linear form from `(symbol, coefficient)` pairs.
-    fn lin(pairs: &[(u32, i64)]) -> Lin {
-        Lin(pairs
-            .iter()
-            .filter(|(_, c)| *c != 0)
-            .map(|(s, c)| (Sym(*s), Q::int(*c)))
-            .collect())
+    fn lin(pairs: &[(u32, i64)]) -> LinearForm {
+        LinearForm(
+            pairs
+                .iter()
+                .filter(|(_, c)| *c != 0)
+                .map(|(s, c)| (Sym(*s), Q::int(*c)))
+                .collect(),
+        )
     }
 
     #[test]
@@ -1952,15 +1959,15 @@ mod tests {
         for code in 0..125i64 {
             let c = [code % 5 - 2, code / 5 % 5 - 2, code / 25 - 2];
             let l = lin(&[(2, c[0]), (3, c[1]), (15, c[2])]);
-            all.push(Wave::Cos(l.clone()));
-            all.push(Wave::Sin(l));
+            all.push(TrigFactor::Cos(l.clone()));
+            all.push(TrigFactor::Sin(l));
         }
-        all.push(Wave::One);
+        all.push(TrigFactor::One);
         for a in &all {
-            let pa = PWave::pack(a).expect("fits");
+            let pa = PackedTrig::pack(a).expect("fits");
             assert_eq!(&pa.unpack(), a);
             for b in &all {
-                let pb = PWave::pack(b).expect("fits");
+                let pb = PackedTrig::pack(b).expect("fits");
                 assert_eq!(cmp_wave(pa, pb), a.cmp(b), "{a:?} vs {b:?}");
             }
         }
@@ -1968,12 +1975,12 @@ mod tests {
 
     #[test]
     fn linear_forms_pack_only_when_they_fit_signed_bytes() {
-        assert!(PWave::pack(&Wave::Sin(lin(&[(3, 127), (15, -127)]))).is_some());
-        assert!(PWave::pack(&Wave::Sin(lin(&[(3, 128)]))).is_none());
-        assert!(PWave::pack(&Wave::Cos(lin(&[(3, 1), (4, -128)]))).is_none());
-        assert!(PWave::pack(&Wave::Cos(lin(&[(16, 1)]))).is_none());
-        let half = Lin(vec![(Sym(3), Q::Small(1, 2))].into());
-        assert!(PWave::pack(&Wave::Cos(half)).is_none());
+        assert!(PackedTrig::pack(&TrigFactor::Sin(lin(&[(3, 127), (15, -127)]))).is_some());
+        assert!(PackedTrig::pack(&TrigFactor::Sin(lin(&[(3, 128)]))).is_none());
+        assert!(PackedTrig::pack(&TrigFactor::Cos(lin(&[(3, 1), (4, -128)]))).is_none());
+        assert!(PackedTrig::pack(&TrigFactor::Cos(lin(&[(16, 1)]))).is_none());
+        let half = LinearForm(vec![(Sym(3), Q::Small(1, 2))].into());
+        assert!(PackedTrig::pack(&TrigFactor::Cos(half)).is_none());
         // Products whose forms could leave the lanes (100 + 100 > 127)
         // decline; the general path takes them, exactly.
         let st = [Sym::new("lq")];
@@ -1984,7 +1991,7 @@ mod tests {
         let parts = e.clone().into_by_frequency();
         let packed = parts[0].packed().expect("packed");
         assert!(!Packed::lanes_fit(packed, packed));
-        let mut acc = Acc::new();
+        let mut acc = SumBuilder::new();
         acc.add_product_harmonics(&parts, &parts, false, Keep::All)
             .expect("product");
         assert_eq!(acc.finish(), e.mul(&e).expect("square"));
@@ -2032,9 +2039,9 @@ mod tests {
     fn products_of_waves_follow_product_to_sum() {
         // cos(q + r)·sin(2q − r) = (sin(3q) − sin(−q + 2r))/2
         //                       = (sin(3q) + sin(q − 2r))/2.
-        let a = PWave::pack(&Wave::Cos(lin(&[(3, 1), (4, 1)]))).expect("a");
-        let b = PWave::pack(&Wave::Sin(lin(&[(3, 2), (4, -1)]))).expect("b");
-        let got: Vec<(Wave, i64)> = wave_routes(a, b)
+        let a = PackedTrig::pack(&TrigFactor::Cos(lin(&[(3, 1), (4, 1)]))).expect("a");
+        let b = PackedTrig::pack(&TrigFactor::Sin(lin(&[(3, 2), (4, -1)]))).expect("b");
+        let got: Vec<(TrigFactor, i64)> = wave_routes(a, b)
             .as_slice()
             .iter()
             .map(|(w, p)| (w.unpack(), *p))
@@ -2042,20 +2049,23 @@ mod tests {
         assert_eq!(
             got,
             vec![
-                (Wave::Sin(lin(&[(3, 3)])), 1),
-                (Wave::Sin(lin(&[(3, 1), (4, -2)])), 1),
+                (TrigFactor::Sin(lin(&[(3, 3)])), 1),
+                (TrigFactor::Sin(lin(&[(3, 1), (4, -2)])), 1),
             ]
         );
         // sin(q)·sin(q) = (1 − cos(2q))/2; sin(q)·cos(q) = sin(2q)/2.
-        let s = PWave::pack(&Wave::Sin(lin(&[(3, 1)]))).expect("s");
-        let c = PWave::pack(&Wave::Cos(lin(&[(3, 1)]))).expect("c");
-        let ss: Vec<(PWave, i64)> = wave_routes(s, s).as_slice().to_vec();
-        assert_eq!(ss[0], (PWave::ONE, 1));
+        let s = PackedTrig::pack(&TrigFactor::Sin(lin(&[(3, 1)]))).expect("s");
+        let c = PackedTrig::pack(&TrigFactor::Cos(lin(&[(3, 1)]))).expect("c");
+        let ss: Vec<(PackedTrig, i64)> = wave_routes(s, s).as_slice().to_vec();
+        assert_eq!(ss[0], (PackedTrig::ONE, 1));
         assert_eq!(ss[1].1, -1);
-        assert_eq!(ss[1].0.unpack(), Wave::Cos(lin(&[(3, 2)])));
-        let sc: Vec<(PWave, i64)> = wave_routes(s, c).as_slice().to_vec();
+        assert_eq!(ss[1].0.unpack(), TrigFactor::Cos(lin(&[(3, 2)])));
+        let sc: Vec<(PackedTrig, i64)> = wave_routes(s, c).as_slice().to_vec();
         assert_eq!(sc.len(), 1);
-        assert_eq!((sc[0].0.unpack(), sc[0].1), (Wave::Sin(lin(&[(3, 2)])), 1));
+        assert_eq!(
+            (sc[0].0.unpack(), sc[0].1),
+            (TrigFactor::Sin(lin(&[(3, 2)])), 1)
+        );
     }
 
     #[test]
@@ -2125,7 +2135,7 @@ mod tests {
                     .mul(&factor)
                     .expect("with time factor");
                 let want = e.integral_from_zero().expect("normal form");
-                let mut acc = Acc::new();
+                let mut acc = SumBuilder::new();
                 for part in e.clone().into_by_frequency() {
                     assert!(part.is_packed(), "{e}");
                     acc.add_integral_from_zero(&part).expect("packed");
@@ -2141,7 +2151,7 @@ mod tests {
     fn sorting_by_packed_keys_gives_the_order_of_keys() {
         // Terms with monomials, trigonometric factors and time factors
         // drawn from small sets (with repeats), in a scrambled order.
-        let monos: Vec<Mono> = [
+        let monos: Vec<Monomial> = [
             vec![],
             vec![(0, 1)],
             vec![(2, 1)],
@@ -2149,19 +2159,19 @@ mod tests {
             vec![(3, 2), (15, 1)],
         ]
         .into_iter()
-        .map(|p| Mono(p.into_iter().map(|(s, e)| (Sym(s), e)).collect()))
+        .map(|p| Monomial(p.into_iter().map(|(s, e)| (Sym(s), e)).collect()))
         .collect();
         let waves = [
-            Wave::One,
-            Wave::Cos(lin(&[(2, 1)])),
-            Wave::Sin(lin(&[(2, 1), (3, -2)])),
-            Wave::Cos(lin(&[(3, 1)])),
+            TrigFactor::One,
+            TrigFactor::Cos(lin(&[(2, 1)])),
+            TrigFactor::Sin(lin(&[(2, 1), (3, -2)])),
+            TrigFactor::Cos(lin(&[(3, 1)])),
         ];
         let beats = [
-            Beat::One,
-            Beat::Cos(Q::int(1)),
-            Beat::Sin(Q::int(1)),
-            Beat::Cos(Q::int(3)),
+            TimeFactor::One,
+            TimeFactor::Cos(Q::int(1)),
+            TimeFactor::Sin(Q::int(1)),
+            TimeFactor::Cos(Q::int(3)),
         ];
         let mut terms = Vec::new();
         let mut x = 7u64;
@@ -2172,7 +2182,7 @@ mod tests {
             let pick = |n: usize, shift: u32| (x >> shift) as usize % n;
             let key = Key {
                 mono: monos[pick(monos.len(), 20)].clone(),
-                exp: Lin::default(),
+                exp: LinearForm::default(),
                 wave: waves[pick(waves.len(), 30)].clone(),
                 beat: beats[pick(beats.len(), 40)].clone(),
             };
@@ -2187,7 +2197,7 @@ mod tests {
         assert_eq!(got.len(), terms.len());
         // A key that does not pack (a rational frequency): the direct sort.
         let mut mixed = terms;
-        mixed[17].0.beat = Beat::Sin(Q::Small(1, 2));
+        mixed[17].0.beat = TimeFactor::Sin(Q::Small(1, 2));
         let mut want = mixed.clone();
         want.sort_by(|a, b| a.0.cmp(&b.0));
         sort_terms(&mut mixed);
@@ -2206,7 +2216,7 @@ mod tests {
                     pairs.push((Sym(slot), e as i32));
                 }
             }
-            all.push(Mono(SmallVec::from_vec(pairs)));
+            all.push(Monomial(SmallVec::from_vec(pairs)));
         }
         for a in &all {
             for b in &all {
@@ -2218,7 +2228,7 @@ mod tests {
 
     #[test]
     fn monomials_round_trip_and_multiply_by_addition() {
-        let m = Mono(SmallVec::from_vec(vec![
+        let m = Monomial(SmallVec::from_vec(vec![
             (Sym(0), 3),
             (Sym(5), 127),
             (Sym(15), 1),
@@ -2227,9 +2237,9 @@ mod tests {
         assert_eq!(unpack_mono(p), m);
         let sq = unpack_mono(p + p);
         assert_eq!(sq.0.as_slice(), &[(Sym(0), 6), (Sym(5), 254), (Sym(15), 2)]);
-        assert!(pack_mono(&Mono(SmallVec::from_vec(vec![(Sym(16), 1)]))).is_none());
-        assert!(pack_mono(&Mono(SmallVec::from_vec(vec![(Sym(2), 128)]))).is_none());
-        assert!(pack_mono(&Mono(SmallVec::from_vec(vec![(Sym(2), -1)]))).is_none());
+        assert!(pack_mono(&Monomial(SmallVec::from_vec(vec![(Sym(16), 1)]))).is_none());
+        assert!(pack_mono(&Monomial(SmallVec::from_vec(vec![(Sym(2), 128)]))).is_none());
+        assert!(pack_mono(&Monomial(SmallVec::from_vec(vec![(Sym(2), -1)]))).is_none());
     }
 
     #[test]

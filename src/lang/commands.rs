@@ -738,21 +738,23 @@ impl Expr {
     pub fn split_by_state_monomial(
         &self,
         states: &[Sym],
-    ) -> Result<Vec<(crate::core::expr::Mono, Expr)>, String> {
-        let mut out: Vec<(crate::core::expr::Mono, Expr)> = Vec::new();
+    ) -> Result<Vec<(crate::core::expr::Monomial, Expr)>, String> {
+        let mut out: Vec<(crate::core::expr::Monomial, Expr)> = Vec::new();
         for (k, c) in self.terms() {
             let bad = || Expr::term(k.clone(), c.clone()).to_string();
             let mentions_state =
-                |l: &crate::core::expr::Lin| l.0.iter().any(|(s, _)| states.contains(s));
+                |l: &crate::core::expr::LinearForm| l.0.iter().any(|(s, _)| states.contains(s));
             if mentions_state(&k.exp) {
                 return Err(bad());
             }
-            if let crate::core::expr::Wave::Cos(l) | crate::core::expr::Wave::Sin(l) = &k.wave {
+            if let crate::core::expr::TrigFactor::Cos(l) | crate::core::expr::TrigFactor::Sin(l) =
+                &k.wave
+            {
                 if mentions_state(l) {
                     return Err(bad());
                 }
             }
-            let mut sm = crate::core::expr::Mono::one();
+            let mut sm = crate::core::expr::Monomial::one();
             let mut rest = k.clone();
             for (s, e) in &k.mono.0 {
                 if states.contains(s) {

@@ -16,7 +16,7 @@ use super::ast::Span;
 use super::session::{Report, Session, SessionError, Style, SymKind};
 use super::value::{FieldValue, Value};
 use crate::averaging::{self, Form, Options};
-use crate::core::expr::{Beat, Wave};
+use crate::core::expr::{TimeFactor, TrigFactor};
 use crate::core::{CoreError, Expr, Field, Sym};
 use crate::render::plain;
 
@@ -57,7 +57,7 @@ impl Session {
         let mut found: Vec<Sym> = Vec::new();
         let mut out = Expr::zero();
         for (k, c) in arg.terms() {
-            let plain = k.exp.is_zero() && k.wave == Wave::One && k.beat == Beat::One;
+            let plain = k.exp.is_zero() && k.wave == TrigFactor::One && k.beat == TimeFactor::One;
             let param = match k.mono.0.as_slice() {
                 [(a, 1), (b, 1)] if plain && (*a == Sym::T || *b == Sym::T) => {
                     let w = if *a == Sym::T { *b } else { *a };
@@ -140,8 +140,8 @@ impl Session {
                 match v.terms() {
                     [(k, c)]
                         if k.exp.is_zero()
-                            && k.wave == Wave::One
-                            && k.beat == Beat::One
+                            && k.wave == TrigFactor::One
+                            && k.beat == TimeFactor::One
                             && matches!(k.mono.0.as_slice(), [(u, 1)]
                                 if self.sym_kind(&u.name()) == Some(SymKind::Param)) =>
                     {
@@ -214,7 +214,7 @@ impl Session {
                         ),
                     ));
                 }
-                let pw = k.mono.exp_of(w);
+                let pw = k.mono.power_of(w);
                 if pw >= 2 {
                     let amp = k
                         .mono

@@ -211,7 +211,7 @@ fn count_words(weights: &[u32], max_w: u32) -> usize {
 fn truncate_eps(e: &Expr, eps: Option<Sym>, n: usize) -> Expr {
     match eps {
         None => e.clone(),
-        Some(s) => e.filter(|k, _| k.mono.exp_of(s) <= n as i32),
+        Some(s) => e.filter(|k, _| k.mono.power_of(s) <= n as i32),
     }
 }
 

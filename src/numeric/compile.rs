@@ -7,7 +7,7 @@
 use std::collections::HashMap;
 use std::fmt;
 
-use crate::core::expr::{Beat, Wave};
+use crate::core::expr::{TimeFactor, TrigFactor};
 use crate::core::{Expr, Field, Sym, Q};
 
 /// Why an expression cannot be compiled.
@@ -62,7 +62,10 @@ pub struct CompiledField {
     comps: Vec<CompiledExpr>,
 }
 
-fn lin(l: &crate::core::expr::Lin, index: &HashMap<Sym, usize>) -> Result<Vec<(usize, f64)>, Sym> {
+fn lin(
+    l: &crate::core::expr::LinearForm,
+    index: &HashMap<Sym, usize>,
+) -> Result<Vec<(usize, f64)>, Sym> {
     l.0.iter()
         .map(|(s, q)| index.get(s).map(|i| (*i, q.to_f64())).ok_or(*s))
         .collect()
@@ -101,9 +104,9 @@ impl CompiledExpr {
                 Vec::new()
             });
             let wave = match &k.wave {
-                Wave::One => None,
-                Wave::Cos(l) | Wave::Sin(l) => Some((
-                    matches!(k.wave, Wave::Sin(_)),
+                TrigFactor::One => None,
+                TrigFactor::Cos(l) | TrigFactor::Sin(l) => Some((
+                    matches!(k.wave, TrigFactor::Sin(_)),
                     lin(l, &index).unwrap_or_else(|s| {
                         missing.push(s.name());
                         Vec::new()
@@ -111,9 +114,9 @@ impl CompiledExpr {
                 )),
             };
             let beat = match &k.beat {
-                Beat::One => None,
-                Beat::Cos(w) => Some((false, w.to_f64())),
-                Beat::Sin(w) => Some((true, w.to_f64())),
+                TimeFactor::One => None,
+                TimeFactor::Cos(w) => Some((false, w.to_f64())),
+                TimeFactor::Sin(w) => Some((true, w.to_f64())),
             };
             if !coeff.is_finite() {
                 return Err(CompileError::NotFinite(format!("a coefficient of `{e}`")));

@@ -9,7 +9,7 @@
 //! Names that are keywords or helpers of the target language get a
 //! trailing underscore (`lambda` → `lambda_` in Python).
 
-use crate::core::expr::{Beat, Key, Lin, Wave};
+use crate::core::expr::{Key, LinearForm, TimeFactor, TrigFactor};
 use crate::core::{Expr, Field, Matrix, Sym, Q};
 
 /// A target language.
@@ -239,7 +239,7 @@ impl Writer<'_> {
         }
     }
 
-    fn lin(&self, l: &Lin, time: Option<&Q>) -> String {
+    fn lin(&self, l: &LinearForm, time: Option<&Q>) -> String {
         let mut parts: Vec<(bool, String)> = Vec::new();
         for (s, c) in l.0.iter() {
             parts.push(scaled(c, self.sym(*s)));
@@ -263,15 +263,15 @@ impl Writer<'_> {
             factors.push(self.call("exp", self.lin(&k.exp, None)));
         }
         match &k.wave {
-            Wave::One => {}
-            Wave::Cos(l) => factors.push(self.call("cos", self.lin(l, None))),
-            Wave::Sin(l) => factors.push(self.call("sin", self.lin(l, None))),
+            TrigFactor::One => {}
+            TrigFactor::Cos(l) => factors.push(self.call("cos", self.lin(l, None))),
+            TrigFactor::Sin(l) => factors.push(self.call("sin", self.lin(l, None))),
         }
-        let none = Lin::default();
+        let none = LinearForm::default();
         match &k.beat {
-            Beat::One => {}
-            Beat::Cos(w) => factors.push(self.call("cos", self.lin(&none, Some(w)))),
-            Beat::Sin(w) => factors.push(self.call("sin", self.lin(&none, Some(w)))),
+            TimeFactor::One => {}
+            TimeFactor::Cos(w) => factors.push(self.call("cos", self.lin(&none, Some(w)))),
+            TimeFactor::Sin(w) => factors.push(self.call("sin", self.lin(&none, Some(w)))),
         }
         if factors.is_empty() {
             factors.push("1.0".to_string());

@@ -10,7 +10,7 @@
 //! order factors); the names on the left of an aligned block come from
 //! [`coordinate_names`], the one place that decides them.
 
-use crate::core::expr::{Beat, Key, Lin, Wave};
+use crate::core::expr::{Key, LinearForm, TimeFactor, TrigFactor};
 use crate::core::{Expr, Field, Matrix, Sym, Q};
 use crate::lang::value::Value;
 
@@ -188,7 +188,7 @@ fn power(base: &str, e: i64) -> String {
     }
 }
 
-fn lin(l: &Lin, extra: Option<&Q>) -> String {
+fn lin(l: &LinearForm, extra: Option<&Q>) -> String {
     let mut s = String::new();
     let mut first = true;
     let mut push = |c: &Q, v: String| {
@@ -232,7 +232,7 @@ fn trig(func: &str, arg: String, simple: bool) -> String {
     }
 }
 
-fn is_simple_lin(l: &Lin) -> bool {
+fn is_simple_lin(l: &LinearForm) -> bool {
     l.0.len() == 1 && l.0[0].1.is_integer() && !l.0[0].1.is_negative()
 }
 
@@ -305,14 +305,22 @@ fn term(k: &Key, c: &Q, states: &[Sym], lead: Option<Sym>) -> (bool, String) {
         parts.push(format!("e^{{{}}}", lin(&k.exp, None)));
     }
     match &k.wave {
-        Wave::One => {}
-        Wave::Cos(l) => parts.push(trig("cos", lin(l, None), is_simple_lin(l))),
-        Wave::Sin(l) => parts.push(trig("sin", lin(l, None), is_simple_lin(l))),
+        TrigFactor::One => {}
+        TrigFactor::Cos(l) => parts.push(trig("cos", lin(l, None), is_simple_lin(l))),
+        TrigFactor::Sin(l) => parts.push(trig("sin", lin(l, None), is_simple_lin(l))),
     }
     match &k.beat {
-        Beat::One => {}
-        Beat::Cos(w) => parts.push(trig("cos", lin(&Lin::default(), Some(w)), w.is_integer())),
-        Beat::Sin(w) => parts.push(trig("sin", lin(&Lin::default(), Some(w)), w.is_integer())),
+        TimeFactor::One => {}
+        TimeFactor::Cos(w) => parts.push(trig(
+            "cos",
+            lin(&LinearForm::default(), Some(w)),
+            w.is_integer(),
+        )),
+        TimeFactor::Sin(w) => parts.push(trig(
+            "sin",
+            lin(&LinearForm::default(), Some(w)),
+            w.is_integer(),
+        )),
     }
     if parts.is_empty() {
         parts.push("1".to_string());
@@ -376,7 +384,7 @@ fn grouped(e: &Expr, eps: Sym, states: &[Sym]) -> Vec<(bool, String)> {
             out.extend(
                 e.terms()
                     .iter()
-                    .filter(|(key, _)| key.mono.exp_of(eps) == k)
+                    .filter(|(key, _)| key.mono.power_of(eps) == k)
                     .map(|(key, c)| term(key, c, states, Some(eps))),
             );
         } else {

@@ -14,7 +14,7 @@ use std::collections::HashMap;
 use std::sync::Arc;
 
 use crate::core::calc::Period;
-use crate::core::expr::{Beat, Keep, Key, Lin, Mono, Wave};
+use crate::core::expr::{Keep, Key, LinearForm, Monomial, TimeFactor, TrigFactor};
 use crate::core::field::{bracket_sum, Prepared};
 use crate::core::{limits, CoreError, CoreResult, Expr, Field, Sym, Q};
 use crate::series::taylor;
@@ -86,14 +86,14 @@ fn time_to_symbol(e: &Expr, to: Sym, states: &[Sym]) -> CoreResult<Expr> {
         }
         let mut key = k.clone();
         key.mono = move_power(&k.mono, Sym::T, to)?;
-        key.beat = Beat::One;
+        key.beat = TimeFactor::One;
         let wave = match &k.beat {
-            Beat::One => {
+            TimeFactor::One => {
                 out.push((key, c.clone()));
                 continue;
             }
-            Beat::Cos(w) => Wave::Cos(Lin(Arc::from(vec![(to, w.clone())]))),
-            Beat::Sin(w) => Wave::Sin(Lin(Arc::from(vec![(to, w.clone())]))),
+            TimeFactor::Cos(w) => TrigFactor::Cos(LinearForm(Arc::from(vec![(to, w.clone())]))),
+            TimeFactor::Sin(w) => TrigFactor::Sin(LinearForm(Arc::from(vec![(to, w.clone())]))),
         };
         let factor = Key { wave, ..Key::one() };
         key.mul_into(c, &factor, &Q::ONE, &mut |k, c| out.push((k, c)))?;
@@ -109,27 +109,27 @@ fn symbol_to_time(e: &Expr, from: Sym, states: &[Sym]) -> CoreResult<Expr> {
     rename_terms(
         e,
         |k| {
-            if k.beat != Beat::One || k.exp.0.iter().any(|(x, _)| *x == from) {
+            if k.beat != TimeFactor::One || k.exp.0.iter().any(|(x, _)| *x == from) {
                 return Ok(None);
             }
             let beat = match &k.wave {
-                Wave::One => Beat::One,
-                Wave::Cos(l) | Wave::Sin(l) => match &l.0[..] {
+                TrigFactor::One => TimeFactor::One,
+                TrigFactor::Cos(l) | TrigFactor::Sin(l) => match &l.0[..] {
                     [(x, w)] if *x == from => {
-                        if matches!(k.wave, Wave::Cos(_)) {
-                            Beat::Cos(w.clone())
+                        if matches!(k.wave, TrigFactor::Cos(_)) {
+                            TimeFactor::Cos(w.clone())
                         } else {
-                            Beat::Sin(w.clone())
+                            TimeFactor::Sin(w.clone())
                         }
                     }
-                    _ if l.0.iter().all(|(x, _)| *x != from) => Beat::One,
+                    _ if l.0.iter().all(|(x, _)| *x != from) => TimeFactor::One,
                     _ => return Ok(None),
                 },
             };
             let mut key = k.clone();
             key.mono = move_power(&k.mono, from, Sym::T)?;
-            if beat != Beat::One {
-                key.wave = Wave::One;
+            if beat != TimeFactor::One {
+                key.wave = TrigFactor::One;
             }
             key.beat = beat;
             Ok(Some(key))
@@ -139,14 +139,14 @@ fn symbol_to_time(e: &Expr, from: Sym, states: &[Sym]) -> CoreResult<Expr> {
 }
 
 /// The monomial with the power of `from` moved onto `to`.
-fn move_power(m: &Mono, from: Sym, to: Sym) -> CoreResult<Mono> {
-    let e = m.exp_of(from);
+fn move_power(m: &Monomial, from: Sym, to: Sym) -> CoreResult<Monomial> {
+    let e = m.power_of(from);
     if e == 0 {
         return Ok(m.clone());
     }
     let mut rest = m.clone();
     rest.0.retain(|(x, _)| *x != from);
-    rest.mul(&Mono([(to, e)].into_iter().collect()))
+    rest.mul(&Monomial([(to, e)].into_iter().collect()))
 }
 
 /// Rewrites every term's key with `fast` (same coefficient), or, where it

@@ -21,7 +21,7 @@
 
 use std::collections::HashMap;
 
-use crate::core::expr::{Acc, Harmonics, Keep, Part};
+use crate::core::expr::{Keep, SumBuilder, TimePart, TimeParts};
 use crate::core::{limits, CoreError, CoreResult, Expr, Field, Sym, Q};
 
 /// One multi-index `α` with a nonzero derivative of the field or of an
@@ -146,17 +146,17 @@ pub fn forward_flow(
 
     // Everything below is kept split by time factor (packed parts stay
     // packed from one order to the next).
-    let split = |ds: Derivatives| -> Vec<(usize, Vec<Harmonics>)> {
+    let split = |ds: Derivatives| -> Vec<(usize, Vec<TimeParts>)> {
         ds.into_iter()
             .map(|(id, d)| (id, d.into_iter().map(Expr::into_by_frequency).collect()))
             .collect()
     };
     let dv = split(dv);
-    let dh: Vec<Vec<(usize, Vec<Harmonics>)>> = dh.into_iter().map(split).collect();
+    let dh: Vec<Vec<(usize, Vec<TimeParts>)>> = dh.into_iter().map(split).collect();
     // delta[i][m] = [δ_i]_m (index 0 unused); powers[node][m] = [δ^α]_m
     // for nodes of degree 2 and more (read both through `power`).
-    let mut delta: Vec<Vec<Harmonics>> = vec![vec![Vec::new()]; dim];
-    let mut powers: Vec<Vec<Harmonics>> = nodes.list.iter().map(|_| vec![Vec::new()]).collect();
+    let mut delta: Vec<Vec<TimeParts>> = vec![vec![Vec::new()]; dim];
+    let mut powers: Vec<Vec<TimeParts>> = nodes.list.iter().map(|_| vec![Vec::new()]).collect();
     // The last order feeds only the outputs: the nodes of their
     // derivatives and those nodes' parents.
     let mut for_outputs = vec![false; nodes.list.len()];
@@ -173,8 +173,8 @@ pub fn forward_flow(
     // for those the outputs need.
     let fill_powers = |m: usize,
                        only_outputs: bool,
-                       delta: &[Vec<Harmonics>],
-                       powers: &mut Vec<Vec<Harmonics>>|
+                       delta: &[Vec<TimeParts>],
+                       powers: &mut Vec<Vec<TimeParts>>|
      -> CoreResult<()> {
         for &id in &order {
             let node = &nodes.list[id];
@@ -184,7 +184,7 @@ pub fn forward_flow(
                 None => Vec::new(),
                 Some(_) if node.degree > m => Vec::new(),
                 Some(p) => {
-                    let mut acc = Acc::new();
+                    let mut acc = SumBuilder::new();
                     // [δ^α]_m = Σ_j [δ^{α − e_i}]_{m − j} [δ_i]_j, the
                     // lower power being of order at least |α| − 1.
                     let d = &delta[node.var][..=m + 1 - node.degree];
@@ -203,12 +203,12 @@ pub fn forward_flow(
         Ok(())
     };
     // Σ_α D[α]_c · [δ^α]_m for one set of derivatives.
-    let expand = |ds: &[(usize, Vec<Harmonics>)],
+    let expand = |ds: &[(usize, Vec<TimeParts>)],
                   c: usize,
                   m: usize,
-                  delta: &[Vec<Harmonics>],
-                  powers: &[Vec<Harmonics>]| {
-        let mut acc = Acc::new();
+                  delta: &[Vec<TimeParts>],
+                  powers: &[Vec<TimeParts>]| {
+        let mut acc = SumBuilder::new();
         for (id, d) in ds {
             let p = power(&nodes, delta, powers, *id, m);
             if d[c].is_empty() || p.is_empty() {
@@ -219,10 +219,10 @@ pub fn forward_flow(
                 None => acc.add_product_harmonics(&d[c], p, false, Keep::All)?,
             }
         }
-        Ok::<Acc, CoreError>(acc)
+        Ok::<SumBuilder, CoreError>(acc)
     };
 
-    let v_parts: Vec<Harmonics> = v.0.iter().cloned().map(Expr::into_by_frequency).collect();
+    let v_parts: Vec<TimeParts> = v.0.iter().cloned().map(Expr::into_by_frequency).collect();
     for k in 1..=n {
         limits::poll()?;
         limits::progress("chronological exponential", k - 1, n);
@@ -236,7 +236,7 @@ pub fn forward_flow(
             } else {
                 integral_from_zero(&expand(&dv, c, m, &delta, &powers)?.finish_parts())?
             };
-            limits::check_terms(d.iter().map(Part::len).sum())?;
+            limits::check_terms(d.iter().map(TimePart::len).sum())?;
             delta[c].push(d);
         }
     }
@@ -261,11 +261,11 @@ pub fn forward_flow(
 /// (kept only in `delta`), the stored power otherwise.
 fn power<'a>(
     nodes: &Nodes,
-    delta: &'a [Vec<Harmonics>],
-    powers: &'a [Vec<Harmonics>],
+    delta: &'a [Vec<TimeParts>],
+    powers: &'a [Vec<TimeParts>],
     id: usize,
     m: usize,
-) -> &'a Harmonics {
+) -> &'a TimeParts {
     let node = &nodes.list[id];
     match node.parent {
         None => &delta[node.var][m],
@@ -274,7 +274,7 @@ fn power<'a>(
 }
 
 /// The number a split expression equals, if it is one.
-fn number(parts: &[Part]) -> Option<Q> {
+fn number(parts: &[TimePart]) -> Option<Q> {
     match parts {
         [p] if p.freq.is_zero() && p.len() == 1 => p.expr().as_number(),
         _ => None,
@@ -283,8 +283,8 @@ fn number(parts: &[Part]) -> Option<Q> {
 
 /// `∫_0^t` of an expression split by time factor, split the same way:
 /// part by part (packed parts stay packed).
-fn integral_from_zero(parts: &[Part]) -> CoreResult<Harmonics> {
-    let mut acc = Acc::new();
+fn integral_from_zero(parts: &[TimePart]) -> CoreResult<TimeParts> {
+    let mut acc = SumBuilder::new();
     for p in parts {
         acc.add_integral_from_zero(p)?;
     }
