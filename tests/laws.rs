@@ -21,7 +21,8 @@ use std::collections::HashMap;
 use std::fmt::Display;
 
 use ordex::core::calc::Period;
-use ordex::core::expr::{Keep, Key, SumBuilder, TimeFactor, TrigFactor};
+use ordex::core::expr::{Key, TimeFactor, TrigFactor};
+use ordex::core::sum::{Keep, SumBuilder};
 use ordex::core::{Expr, Field, Sym, Q};
 use ordex::lang::value::Value;
 use ordex::lang::{Event, Session, Style};

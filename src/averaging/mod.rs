@@ -16,12 +16,12 @@ mod centre;
 use std::collections::HashMap;
 
 use crate::core::calc::{common_period, Period, TimeKey};
-use crate::core::expr::Keep;
 use crate::core::expr::TimeFactor;
-use crate::core::expr::{TimePart, TimeParts};
 use crate::core::field::{
     bracket_sum_onto_parts, bracket_sum_onto_prepared, BracketStart, Prepared,
 };
+use crate::core::sum::Keep;
+use crate::core::sum::{TimePart, TimeParts};
 use crate::core::{limits, CoreError, CoreResult, Expr, Field, Matrix, Sym, Q};
 use crate::series::chrono::{magnus_generator, Graded};
 

@@ -6,6 +6,10 @@
 
 use std::fmt;
 
+/// Term products one statement may do, per unit of the term budget (see
+/// [`LimitKind::Work`]).
+pub const WORK_PER_TERM: u64 = 250;
+
 /// Which limit was hit.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum LimitKind {
@@ -145,8 +149,8 @@ impl fmt::Display for CoreError {
                     "term budget exceeded: the computation would need more than {} term \
                      multiplications ({} per term of the budget of {limit}); \
                      raise it with `set budget N`",
-                    limit.saturating_mul(super::limits::WORK_PER_TERM),
-                    super::limits::WORK_PER_TERM
+                    limit.saturating_mul(WORK_PER_TERM),
+                    WORK_PER_TERM
                 ),
                 LimitKind::Memory => write!(
                     f,

@@ -7,9 +7,10 @@
 //! flow `(Φ^Y_s)^* X = Σ s^k/k! ad_Y^k X`.
 
 use super::error::{CoreError, CoreResult};
-use super::expr::{Expr, Keep, SumBuilder, TimePart, TimeParts};
+use super::expr::Expr;
 use super::limits;
 use super::num::Q;
+use super::sum::{Keep, SumBuilder, TimePart, TimeParts};
 use super::symbol::Sym;
 
 /// Products of term counts above which a bracket is split over threads.

@@ -58,8 +58,7 @@ pub fn budget_cap(memory: u64) -> usize {
     usize::try_from(memory / 2 / BYTES_PER_BUDGET_TERM).unwrap_or(usize::MAX)
 }
 
-/// Term products one statement may do, per unit of the term budget.
-pub const WORK_PER_TERM: u64 = 250;
+pub use super::error::WORK_PER_TERM;
 
 thread_local! {
     static LIMITS: Cell<Limits> = Cell::new(Limits::default());

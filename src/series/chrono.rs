@@ -14,8 +14,9 @@ use std::collections::HashMap;
 use std::sync::Arc;
 
 use crate::core::calc::Period;
-use crate::core::expr::{Keep, Key, LinearForm, Monomial, TimeFactor, TrigFactor};
+use crate::core::expr::{Key, LinearForm, Monomial, TimeFactor, TrigFactor};
 use crate::core::field::{bracket_sum, Prepared};
+use crate::core::sum::Keep;
 use crate::core::{limits, CoreError, CoreResult, Expr, Field, Sym, Q};
 use crate::series::taylor;
 

@@ -21,7 +21,7 @@
 
 use std::collections::HashMap;
 
-use crate::core::expr::{Keep, SumBuilder, TimePart, TimeParts};
+use crate::core::sum::{Keep, SumBuilder, TimePart, TimeParts};
 use crate::core::{limits, CoreError, CoreResult, Expr, Field, Sym, Q};
 
 /// One multi-index `α` with a nonzero derivative of the field or of an

@@ -2,7 +2,7 @@
 //! loop of brackets.
 //!
 //! Owns: a compact copy of the terms of one time part (see
-//! [`super::expr::TimePart`]) when every term is a monomial in the first
+//! [`crate::core::sum::TimePart`]) when every term is a monomial in the first
 //! [`SLOTS`] symbols, with exponents from 0 to 127 and word-sized
 //! coefficients, times at most a state-trigonometric factor `cos L` or
 //! `sin L` whose linear form has integer coefficients from −127 to 127 in

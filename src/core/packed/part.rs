@@ -3,12 +3,12 @@
 
 use smallvec::SmallVec;
 
-use super::super::expr::{Expr, Key, TrigFactor};
-use super::super::num::Q;
-use super::super::symbol::Sym;
 use super::terms::{beat_of, common_denominator, key_of};
 use super::trig::{cmp_wave, max_lane, PackedTrig, MAX_LANE};
 use super::word::{cmp_mono, lcm_i64, pack_mono, SLOTS};
+use crate::core::num::Q;
+use crate::core::symbol::Sym;
+use crate::core::term::{Key, TrigFactor};
 
 /// A packed term with its trigonometric factor (before grouping).
 pub(super) type WaveTerm = (PackedTrig, u128, i64);
@@ -192,9 +192,9 @@ impl Packed {
     /// `∂/∂s`, `None` when a coefficient overflows: `∂(m cos L) = ∂m cos L
     /// − L_s m sin L`, `∂(m sin L) = ∂m sin L + L_s m cos L`.
     pub fn derivative(&self, s: Sym) -> Option<Packed> {
-        // Unspecified functions (see [`super::super::func`]) need the chain rule:
+        // Unspecified functions (see [`crate::core::func`]) need the chain rule:
         // the general path takes parts that hold them.
-        let atoms = super::super::func::packed_lanes();
+        let atoms = crate::core::term::packed_lanes();
         if atoms != 0 && self.terms.iter().any(|(m, _)| m & atoms != 0) {
             return None;
         }
@@ -232,8 +232,9 @@ impl Packed {
         Packed::from_wave_terms(self.freq, self.odd, self.denom, v, true)
     }
 
-    /// The terms as an expression.
-    pub fn unpack(&self) -> Expr {
+    /// The terms in key order (the normal form's), with distinct keys and
+    /// nonzero coefficients.
+    pub fn unpack(&self) -> Vec<(Key, Q)> {
         let beat = beat_of(self.freq, self.odd);
         if !self.waves {
             // One time factor: the order of keys is the order of monomials.
@@ -244,17 +245,15 @@ impl Packed {
                 .filter(|(_, n)| *n != 0)
                 .collect();
             terms.sort_unstable_by(|a, b| cmp_mono(a.0, b.0));
-            return Expr::from_sorted_terms(
-                terms
-                    .into_iter()
-                    .map(|(m, n)| {
-                        (
-                            key_of(m, TrigFactor::One, &beat),
-                            Q::from_i128(n as i128, self.denom as i128),
-                        )
-                    })
-                    .collect(),
-            );
+            return terms
+                .into_iter()
+                .map(|(m, n)| {
+                    (
+                        key_of(m, TrigFactor::One, &beat),
+                        Q::from_i128(n as i128, self.denom as i128),
+                    )
+                })
+                .collect();
         }
         // By monomial, then trigonometric factor (the order of keys).
         let waves: Vec<(PackedTrig, TrigFactor)> =
@@ -266,17 +265,15 @@ impl Packed {
         terms.sort_unstable_by(|a, b| {
             cmp_mono(a.0, b.0).then_with(|| cmp_wave(waves[a.1].0, waves[b.1].0))
         });
-        Expr::from_sorted_terms(
-            terms
-                .into_iter()
-                .map(|(m, i, n)| {
-                    (
-                        key_of(m, waves[i].1.clone(), &beat),
-                        Q::from_i128(n as i128, self.denom as i128),
-                    )
-                })
-                .collect(),
-        )
+        terms
+            .into_iter()
+            .map(|(m, i, n)| {
+                (
+                    key_of(m, waves[i].1.clone(), &beat),
+                    Q::from_i128(n as i128, self.denom as i128),
+                )
+            })
+            .collect()
     }
 
     /// The largest numerator in absolute value.

@@ -4,7 +4,7 @@
 use super::part::Packed;
 
 /// Which products a [`PackedSum`] keeps, by time frequency of the result
-/// (the integer form of [`super::super::expr::Keep`]).
+/// (the integer form of [`crate::core::term::Keep`]).
 #[derive(Clone, Copy, Debug)]
 pub struct PackedKeep {
     /// Highest frequency kept (`None`: all).

@@ -4,15 +4,15 @@
 use rustc_hash::FxHashMap;
 use smallvec::SmallVec;
 
-use super::super::expr::{Key, TimeFactor};
-use super::super::num::Q;
-use super::super::symbol::Sym;
 use super::keymap::{MonoMap, WaveMap};
 use super::part::{common_denominator_of_parts, Packed, WaveTerm};
 use super::route::{PackedKeep, ProductRoute, TimePiece};
 use super::terms::{beat_of, key_of};
 use super::trig::{cmp_wave, wave_routes, PackedTrig, WaveCache};
 use super::word::{cmp_mono, exact_quotient, gcd_u128, lcm_i128, MAX_EXP};
+use crate::core::num::Q;
+use crate::core::symbol::Sym;
+use crate::core::term::{Key, TimeFactor};
 
 /// Frequencies below this find their sums by direct indexing.
 pub(super) const SMALL_FREQ: usize = 1024;
@@ -564,7 +564,7 @@ impl PackedSum {
     }
 
     /// The kept sums as packed parts sorted by frequency, cosines first
-    /// (the order of [`super::super::expr::Expr::into_by_frequency`]), without
+    /// (the order of [`crate::core::expr::Expr::into_by_frequency`]), without
     /// the sine constants; `None` when a numerator or denominator does not
     /// fit a word even after reduction (nothing is consumed then).
     pub fn to_parts(&self) -> Option<Vec<Packed>> {

@@ -1,10 +1,10 @@
 //! Keys of terms, packed and unpacked: [`pack_key`], the sort of terms by
 //! packed keys, the common denominator of coefficients.
 
-use super::super::expr::{Key, LinearForm, TimeFactor, TrigFactor};
-use super::super::num::Q;
 use super::trig::{cmp_wave, PackedTrig};
 use super::word::{cmp_mono, lcm_i64, pack_mono, unpack_mono};
+use crate::core::num::Q;
+use crate::core::term::{Key, LinearForm, TimeFactor, TrigFactor};
 
 /// The least common denominator of the coefficients, when they all fit
 /// machine words and it does too.

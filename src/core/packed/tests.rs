@@ -5,10 +5,11 @@ use super::part::*;
 use super::terms::*;
 use super::trig::*;
 use super::word::*;
-use crate::core::expr::{Expr, Key, LinearForm, Monomial, TimeFactor, TrigFactor};
-use crate::core::expr::{Keep, SumBuilder};
+use crate::core::expr::Expr;
 use crate::core::num::Q;
+use crate::core::sum::{Keep, SumBuilder};
 use crate::core::symbol::Sym;
+use crate::core::term::{Key, LinearForm, Monomial, TimeFactor, TrigFactor};
 
 #[test]
 fn products_of_parts_with_denominators_near_a_word_stay_exact() {

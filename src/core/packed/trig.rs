@@ -6,10 +6,10 @@ use std::sync::Arc;
 
 use rustc_hash::FxHashMap;
 
-use super::super::expr::{LinearForm, TrigFactor};
-use super::super::num::Q;
-use super::super::symbol::Sym;
 use super::word::{cmp_lanes_by, SLOTS};
+use crate::core::num::Q;
+use crate::core::symbol::Sym;
+use crate::core::term::{LinearForm, TrigFactor};
 
 /// Largest coefficient of a packed linear form in absolute value (a lane
 /// is a signed byte; −128 is left out so that every lane can be negated).

@@ -5,11 +5,10 @@ use std::cmp::Ordering;
 
 use smallvec::SmallVec;
 
-use super::super::expr::Monomial;
-use super::super::symbol::Sym;
+use crate::core::symbol::Sym;
+use crate::core::term::Monomial;
 
-/// Symbols that fit a packed monomial (those numbered below this).
-pub const SLOTS: u32 = 16;
+pub use crate::core::term::SLOTS;
 
 /// Largest exponent of a packed factor: the sum of two stays below 256.
 pub(super) const MAX_EXP: i32 = 127;
