@@ -16,12 +16,17 @@ use std::fmt;
 
 use super::limits;
 
-/// An exact rational number.
+/// An exact rational number. Its representation is private: every value
+/// is built reduced by this module, so equal numbers are equal as data.
+#[derive(Clone, PartialEq, Eq, Hash)]
+pub struct Q(Repr);
+
+/// The representation of [`Q`].
 ///
 /// Invariant: `Small(n, d)` has `d > 0` and `gcd(n, d) == 1`; `Big` is used only
 /// when the value does not fit `Small`.
 #[derive(Clone, PartialEq, Eq, Hash)]
-pub enum Q {
+enum Repr {
     /// Numerator and (positive) denominator in machine words.
     Small(i64, i64),
     /// Arbitrary precision, only for values that do not fit `Small`.
@@ -123,13 +128,39 @@ fn gcd_u128(mut a: u128, mut b: u128) -> u128 {
 
 impl Q {
     /// Zero.
-    pub const ZERO: Q = Q::Small(0, 1);
+    pub const ZERO: Q = Q(Repr::Small(0, 1));
     /// One.
-    pub const ONE: Q = Q::Small(1, 1);
+    pub const ONE: Q = Q(Repr::Small(1, 1));
+    /// One half.
+    pub const HALF: Q = Q(Repr::Small(1, 2));
+
+    /// `n / d` from a numerator and a positive denominator that are already
+    /// coprime (the small form as it is stored; see [`Q::ratio`] for any
+    /// pair).
+    pub fn from_small(n: i64, d: i64) -> Q {
+        debug_assert!(d > 0 && gcd_u64(n.unsigned_abs(), d.unsigned_abs()) == 1);
+        Q(Repr::Small(n, d))
+    }
+
+    /// Numerator and positive denominator when they fit machine words (the
+    /// fast paths' view; `None` for the big form).
+    #[inline]
+    pub fn as_small(&self) -> Option<(i64, i64)> {
+        match &self.0 {
+            Repr::Small(n, d) => Some((*n, *d)),
+            Repr::Big(_) => None,
+        }
+    }
+
+    /// True when numerator and denominator fit machine words.
+    #[inline]
+    pub fn is_small(&self) -> bool {
+        matches!(self.0, Repr::Small(..))
+    }
 
     /// The integer `n`.
     pub fn int(n: i64) -> Q {
-        Q::Small(n, 1)
+        Q(Repr::Small(n, 1))
     }
 
     /// `n / d`; returns `None` when `d == 0`.
@@ -152,7 +183,7 @@ impl Q {
                 d /= g;
             }
             if let (Ok(n), Ok(d)) = (i64::try_from(n), i64::try_from(d)) {
-                return Q::Small(n, d);
+                return Q(Repr::Small(n, d));
             }
         }
         let g = gcd_u128(n.unsigned_abs(), d.unsigned_abs());
@@ -161,11 +192,11 @@ impl Q {
             d /= g as i128;
         }
         match (i64::try_from(n), i64::try_from(d)) {
-            (Ok(n), Ok(d)) => Q::Small(n, d),
-            _ => Q::Big(Box::new(BigRational::new_raw(
+            (Ok(n), Ok(d)) => Q(Repr::Small(n, d)),
+            _ => Q(Repr::Big(Box::new(BigRational::new_raw(
                 BigInt::from(n),
                 BigInt::from(d),
-            ))),
+            )))),
         }
     }
 
@@ -180,17 +211,17 @@ impl Q {
             r
         };
         match (r.numer().to_i64(), r.denom().to_i64()) {
-            (Some(n), Some(d)) => Q::Small(n, d),
-            _ => Q::Big(Box::new(r)),
+            (Some(n), Some(d)) => Q(Repr::Small(n, d)),
+            _ => Q(Repr::Big(Box::new(r))),
         }
     }
 
     /// The value as a big integer when it is an integer (borrowed when it
     /// is already big): integer arithmetic skips the gcd of rationals.
     fn as_big_integer(&self) -> Option<Cow<'_, BigInt>> {
-        match self {
-            Q::Small(n, 1) => Some(Cow::Owned(BigInt::from(*n))),
-            Q::Big(b) if b.denom().is_one() => Some(Cow::Borrowed(b.numer())),
+        match &self.0 {
+            Repr::Small(n, 1) => Some(Cow::Owned(BigInt::from(*n))),
+            Repr::Big(b) if b.denom().is_one() => Some(Cow::Borrowed(b.numer())),
             _ => None,
         }
     }
@@ -198,58 +229,58 @@ impl Q {
     /// The integer `n`, small when it fits.
     fn from_integer(n: BigInt) -> Q {
         match n.to_i64() {
-            Some(v) => Q::Small(v, 1),
-            None => Q::Big(Box::new(BigRational::from_integer(n))),
+            Some(v) => Q(Repr::Small(v, 1)),
+            None => Q(Repr::Big(Box::new(BigRational::from_integer(n)))),
         }
     }
 
     /// Converts to a big rational (allocates).
     pub fn to_big(&self) -> BigRational {
-        match self {
-            Q::Small(n, d) => BigRational::new_raw(BigInt::from(*n), BigInt::from(*d)),
-            Q::Big(b) => (**b).clone(),
+        match &self.0 {
+            Repr::Small(n, d) => BigRational::new_raw(BigInt::from(*n), BigInt::from(*d)),
+            Repr::Big(b) => (**b).clone(),
         }
     }
 
     /// True if and only if the value is zero.
     pub fn is_zero(&self) -> bool {
-        matches!(self, Q::Small(0, _))
+        matches!(self.0, Repr::Small(0, _))
     }
 
     /// True if and only if the value is one.
     pub fn is_one(&self) -> bool {
-        matches!(self, Q::Small(1, 1))
+        matches!(self.0, Repr::Small(1, 1))
     }
 
     /// True if and only if the value is an integer.
     pub fn is_integer(&self) -> bool {
-        match self {
-            Q::Small(_, d) => *d == 1,
-            Q::Big(b) => b.is_integer(),
+        match &self.0 {
+            Repr::Small(_, d) => *d == 1,
+            Repr::Big(b) => b.is_integer(),
         }
     }
 
     /// True if and only if the value is negative.
     pub fn is_negative(&self) -> bool {
-        match self {
-            Q::Small(n, _) => *n < 0,
-            Q::Big(b) => b.is_negative(),
+        match &self.0 {
+            Repr::Small(n, _) => *n < 0,
+            Repr::Big(b) => b.is_negative(),
         }
     }
 
     /// The value as an `i64` when it is an integer that fits.
     pub fn to_i64(&self) -> Option<i64> {
-        match self {
-            Q::Small(n, 1) => Some(*n),
+        match &self.0 {
+            Repr::Small(n, 1) => Some(*n),
             _ => None,
         }
     }
 
     /// Nearest double (may be infinite for huge values).
     pub fn to_f64(&self) -> f64 {
-        match self {
-            Q::Small(n, d) => *n as f64 / *d as f64,
-            Q::Big(b) => {
+        match &self.0 {
+            Repr::Small(n, d) => *n as f64 / *d as f64,
+            Repr::Big(b) => {
                 // Scale to keep precision for ratios of huge integers.
                 let n = b.numer();
                 let d = b.denom();
@@ -263,38 +294,38 @@ impl Q {
 
     /// Numerator as a big integer.
     pub fn numer(&self) -> BigInt {
-        match self {
-            Q::Small(n, _) => BigInt::from(*n),
-            Q::Big(b) => b.numer().clone(),
+        match &self.0 {
+            Repr::Small(n, _) => BigInt::from(*n),
+            Repr::Big(b) => b.numer().clone(),
         }
     }
 
     /// Denominator as a big integer (positive).
     pub fn denom(&self) -> BigInt {
-        match self {
-            Q::Small(_, d) => BigInt::from(*d),
-            Q::Big(b) => b.denom().clone(),
+        match &self.0 {
+            Repr::Small(_, d) => BigInt::from(*d),
+            Repr::Big(b) => b.denom().clone(),
         }
     }
 
     /// Number of bits of the larger of numerator and denominator: the size
     /// that the integer-size limit counts.
     pub fn bits(&self) -> u64 {
-        match self {
-            Q::Small(n, d) => {
+        match &self.0 {
+            Repr::Small(n, d) => {
                 (64 - n.unsigned_abs().leading_zeros()).max(64 - d.leading_zeros()) as u64
             }
-            Q::Big(b) => b.numer().bits().max(b.denom().bits()),
+            Repr::Big(b) => b.numer().bits().max(b.denom().bits()),
         }
     }
 
     /// Sum.
     pub fn add(&self, other: &Q) -> Q {
-        match (self, other) {
-            (Q::Small(a, b), Q::Small(c, d)) => {
+        match (&self.0, &other.0) {
+            (Repr::Small(a, b), Repr::Small(c, d)) => {
                 if *b == 1 && *d == 1 {
                     if let Some(s) = a.checked_add(*c) {
-                        return Q::Small(s, 1);
+                        return Q(Repr::Small(s, 1));
                     }
                 }
                 if b == d {
@@ -303,7 +334,7 @@ impl Q {
                         return if s == 0 {
                             Q::ZERO
                         } else {
-                            Q::Small(s / g, b / g)
+                            Q(Repr::Small(s / g, b / g))
                         };
                     }
                 }
@@ -319,7 +350,7 @@ impl Q {
                             return Q::ZERO;
                         }
                         let g2 = gcd_u64(num.unsigned_abs(), g.unsigned_abs()) as i64;
-                        return Q::Small(num / g2, den / g2);
+                        return Q(Repr::Small(num / g2, den / g2));
                     }
                 }
                 let (a, b, c, d) = (*a as i128, *b as i128, *c as i128, *d as i128);
@@ -388,8 +419,8 @@ impl Q {
             return Q::ZERO;
         }
         match (n.to_i64(), d.to_i64()) {
-            (Some(n), Some(d)) => Q::Small(n, d),
-            _ => Q::Big(Box::new(BigRational::new_raw(n, d))),
+            (Some(n), Some(d)) => Q(Repr::Small(n, d)),
+            _ => Q(Repr::Big(Box::new(BigRational::new_raw(n, d)))),
         }
     }
 
@@ -401,35 +432,35 @@ impl Q {
     /// Half of the value (the factor of every product-to-sum identity),
     /// without a gcd in machine words.
     pub fn half(&self) -> Q {
-        match self {
+        match &self.0 {
             // gcd(n, d) = 1: an even n means an odd d, an odd n stays prime to 2d.
-            Q::Small(n, d) if n % 2 == 0 => Q::Small(n / 2, *d),
-            Q::Small(n, d) => match d.checked_mul(2) {
-                Some(d2) => Q::Small(*n, d2),
-                None => self.mul(&Q::Small(1, 2)),
+            Repr::Small(n, d) if n % 2 == 0 => Q(Repr::Small(n / 2, *d)),
+            Repr::Small(n, d) => match d.checked_mul(2) {
+                Some(d2) => Q(Repr::Small(*n, d2)),
+                None => self.mul(&Q::HALF),
             },
-            Q::Big(_) => self.mul(&Q::Small(1, 2)),
+            Repr::Big(_) => self.mul(&Q::HALF),
         }
     }
 
     /// Negation.
     pub fn neg(&self) -> Q {
-        match self {
-            Q::Small(n, d) => match n.checked_neg() {
-                Some(n) => Q::Small(n, *d),
+        match &self.0 {
+            Repr::Small(n, d) => match n.checked_neg() {
+                Some(n) => Q(Repr::Small(n, *d)),
                 None => Q::from_big(-self.to_big()),
             },
-            Q::Big(b) => Q::from_big(-(**b).clone()),
+            Repr::Big(b) => Q::from_big(-(**b).clone()),
         }
     }
 
     /// Product.
     pub fn mul(&self, other: &Q) -> Q {
-        match (self, other) {
-            (Q::Small(a, b), Q::Small(c, d)) => {
+        match (&self.0, &other.0) {
+            (Repr::Small(a, b), Repr::Small(c, d)) => {
                 if *b == 1 && *d == 1 {
                     if let Some(p) = a.checked_mul(*c) {
-                        return Q::Small(p, 1);
+                        return Q(Repr::Small(p, 1));
                     }
                 }
                 // Cross-cancel first: the result is then already reduced.
@@ -447,7 +478,11 @@ impl Q {
                     if let (Some(n), Some(m)) =
                         ((a / g1).checked_mul(c / g2), (b / g2).checked_mul(d / g1))
                     {
-                        return if n == 0 { Q::ZERO } else { Q::Small(n, m) };
+                        return if n == 0 {
+                            Q::ZERO
+                        } else {
+                            Q(Repr::Small(n, m))
+                        };
                     }
                 }
                 Q::from_i128(*a as i128 * *c as i128, *b as i128 * *d as i128)
@@ -466,10 +501,10 @@ impl Q {
 
     /// Reciprocal; `None` for zero.
     pub fn recip(&self) -> Option<Q> {
-        match self {
-            Q::Small(0, _) => None,
-            Q::Small(n, d) => Some(Q::from_i128(*d as i128, *n as i128)),
-            Q::Big(b) => Some(Q::from_big(b.recip())),
+        match &self.0 {
+            Repr::Small(0, _) => None,
+            Repr::Small(n, d) => Some(Q::from_i128(*d as i128, *n as i128)),
+            Repr::Big(b) => Some(Q::from_big(b.recip())),
         }
     }
 
@@ -477,7 +512,7 @@ impl Q {
     pub fn pow(&self, e: i64) -> Option<Q> {
         let base = if e < 0 { self.recip()? } else { self.clone() };
         let mut e = e.unsigned_abs();
-        if matches!(base, Q::Big(_)) || e > 32 {
+        if matches!(base.0, Repr::Big(_)) || e > 32 {
             // Numerator and denominator separately: powers of coprime
             // numbers stay coprime, so no gcd is needed.
             let e = usize::try_from(e).ok()?;
@@ -518,9 +553,9 @@ impl Q {
 
     /// Floor as a rational integer.
     pub fn floor(&self) -> Q {
-        match self {
-            Q::Small(n, d) => Q::Small(n.div_euclid(*d), 1),
-            Q::Big(b) => Q::from_big(b.floor()),
+        match &self.0 {
+            Repr::Small(n, d) => Q(Repr::Small(n.div_euclid(*d), 1)),
+            Repr::Big(b) => Q::from_big(b.floor()),
         }
     }
 
@@ -564,8 +599,8 @@ impl Q {
 
 impl Ord for Q {
     fn cmp(&self, other: &Q) -> Ordering {
-        match (self, other) {
-            (Q::Small(a, b), Q::Small(c, d)) => {
+        match (&self.0, &other.0) {
+            (Repr::Small(a, b), Repr::Small(c, d)) => {
                 (*a as i128 * *d as i128).cmp(&(*c as i128 * *b as i128))
             }
             _ => self.to_big().cmp(&other.to_big()),
@@ -594,11 +629,11 @@ impl From<i64> for Q {
 impl fmt::Display for Q {
     /// `n` or `n/d`, in the input syntax.
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        match self {
-            Q::Small(n, 1) => write!(f, "{n}"),
-            Q::Small(n, d) => write!(f, "{n}/{d}"),
-            Q::Big(b) if b.is_integer() => write!(f, "{}", b.numer()),
-            Q::Big(b) => write!(f, "{}/{}", b.numer(), b.denom()),
+        match &self.0 {
+            Repr::Small(n, 1) => write!(f, "{n}"),
+            Repr::Small(n, d) => write!(f, "{n}/{d}"),
+            Repr::Big(b) if b.is_integer() => write!(f, "{}", b.numer()),
+            Repr::Big(b) => write!(f, "{}/{}", b.numer(), b.denom()),
         }
     }
 }
@@ -628,9 +663,9 @@ mod tests {
     #[test]
     fn overflow_promotes_and_demotes() {
         let big = Q::int(i64::MAX).add(&Q::ONE);
-        assert!(matches!(big, Q::Big(_)));
+        assert!(matches!(big.0, Repr::Big(_)));
         assert_eq!(big.sub(&Q::ONE), Q::int(i64::MAX));
-        assert!(matches!(big.sub(&Q::ONE), Q::Small(..)));
+        assert!(matches!(big.sub(&Q::ONE).0, Repr::Small(..)));
         let m = Q::int(i64::MIN);
         assert_eq!(m.neg().neg(), m);
         assert_eq!(

@@ -12,6 +12,8 @@ mod derivative;
 mod parts;
 mod plug;
 mod subst;
+#[cfg(test)]
+mod tests;
 mod time;
 
 pub use parts::TimeKey;

@@ -25,6 +25,8 @@ mod build;
 mod display;
 mod linear;
 mod query;
+#[cfg(test)]
+mod tests;
 
 use crate::core::num::Q;
 pub use crate::core::term::{Key, LinearForm, Monomial, TimeFactor, TrigFactor};

@@ -9,9 +9,10 @@ use crate::core::term::{Key, TimeFactor, TrigFactor};
 /// What a coefficient adds to the term budget beyond its term (see
 /// [`limits::coefficient_terms`]); nothing when it fits machine words.
 pub(crate) fn coeff_words(c: &Q) -> usize {
-    match c {
-        Q::Small(..) => 0,
-        Q::Big(_) => limits::coefficient_terms(c.bits()),
+    if c.is_small() {
+        0
+    } else {
+        limits::coefficient_terms(c.bits())
     }
 }
 

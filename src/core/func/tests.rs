@@ -25,12 +25,17 @@ fn atoms_print_in_the_input_syntax() {
     let arg = x
         .scale(&Q::int(2))
         .sub(&y)
-        .add(&Expr::sym(Sym::PI).scale(&Q::Small(1, 2)))
+        .add(&Expr::sym(Sym::PI).scale(&Q::HALF))
         .add(&Expr::int(-1));
     let e = Expr::apply_function(&v, &[2], &[arg], &st).unwrap();
     assert_eq!(e.to_string(), "V''(2*q - p - 1 + 1/2*pi)");
-    let e =
-        Expr::apply_function(&j, &[1, 2], &[x.clone(), Expr::num(Q::Small(1, 3))], &st).unwrap();
+    let e = Expr::apply_function(
+        &j,
+        &[1, 2],
+        &[x.clone(), Expr::num(Q::from_small(1, 3))],
+        &st,
+    )
+    .unwrap();
     assert_eq!(e.to_string(), "pd(J, a, b, b)(q, 1/3)");
     let e = Expr::apply_function(&j, &[0, 0], &[x.clone(), Expr::zero()], &st).unwrap();
     assert_eq!(e.to_string(), "J(q, 0)");
@@ -75,7 +80,7 @@ fn definitions_and_arguments_substitute() {
     let want = Expr::sym(q).add(&Expr::sym(Sym::PI)).scale(&Q::int(6));
     assert_eq!(got, want);
     // q = 1/2 - pi evaluates the argument: V''(1/2).
-    let map: HashMap<Sym, Expr> = [(q, Expr::num(Q::Small(1, 2)).sub(&Expr::sym(Sym::PI)))]
+    let map: HashMap<Sym, Expr> = [(q, Expr::num(Q::HALF).sub(&Expr::sym(Sym::PI)))]
         .into_iter()
         .collect();
     assert_eq!(a2.subst(&map, &st).unwrap().to_string(), "V''(1/2)");

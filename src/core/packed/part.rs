@@ -166,7 +166,7 @@ impl Packed {
             if !k.exp.is_zero() {
                 return None;
             }
-            let Q::Small(n, d) = c else {
+            let Some((n, d)) = c.as_small() else {
                 return None;
             };
             if denom % d != 0 {

@@ -11,10 +11,10 @@ use crate::core::term::{Key, LinearForm, TimeFactor, TrigFactor};
 pub fn common_denominator(terms: &[(Key, Q)]) -> Option<i64> {
     let mut denom: i64 = 1;
     for (_, c) in terms {
-        let Q::Small(_, d) = c else {
+        let Some((_, d)) = c.as_small() else {
             return None;
         };
-        denom = lcm_i64(denom, *d)?;
+        denom = lcm_i64(denom, d)?;
     }
     Some(denom)
 }

@@ -21,15 +21,15 @@ fn products_of_parts_with_denominators_near_a_word_stay_exact() {
     let (x, y) = (Expr::sym(Sym::new("qx")), Expr::sym(Sym::new("qy")));
     let cos_t = Expr::cos_of(&Expr::sym(Sym::T), &[]).expect("cos t");
     let sin_2t = Expr::sin_of(&Expr::sym(Sym::T).scale(&Q::int(2)), &[]).expect("sin 2t");
-    let d1 = Q::Small(1, i64::MAX - 24);
-    let d2 = Q::Small(3, i64::MAX - 26);
+    let d1 = Q::from_small(1, i64::MAX - 24);
+    let d2 = Q::from_small(3, i64::MAX - 26);
     let a = x.mul(&cos_t).expect("a").scale(&d1).add(&y.scale(&d2));
     let b = y
         .mul(&sin_2t)
         .expect("b")
         .scale(&d2)
         .add(&x.mul(&cos_t).expect("x cos t").scale(&d1))
-        .add(&x.scale(&Q::Small(2, 5)));
+        .add(&x.scale(&Q::from_small(2, 5)));
     let (pa, pb) = (a.clone().into_by_frequency(), b.clone().into_by_frequency());
     assert!(pa.iter().chain(&pb).all(|p| p.is_packed()));
     let mut acc = SumBuilder::new();
@@ -51,8 +51,8 @@ fn sums_beyond_machine_integers_stay_exact() {
         .mul(&cos_t)
         .expect("product")
         .scale(&big)
-        .add(&y.scale(&Q::Small(1, 3)));
-    let c = x.scale(&Q::Small(1, 7));
+        .add(&y.scale(&Q::from_small(1, 3)));
+    let c = x.scale(&Q::from_small(1, 7));
     let (pa, pb, pc) = (
         a.clone().into_by_frequency(),
         b.clone().into_by_frequency(),
@@ -116,7 +116,7 @@ fn linear_forms_pack_only_when_they_fit_signed_bytes() {
     assert!(PackedTrig::pack(&TrigFactor::Sin(lin(&[(3, 128)]))).is_none());
     assert!(PackedTrig::pack(&TrigFactor::Cos(lin(&[(3, 1), (4, -128)]))).is_none());
     assert!(PackedTrig::pack(&TrigFactor::Cos(lin(&[(16, 1)]))).is_none());
-    let half = LinearForm(vec![(Sym(3), Q::Small(1, 2))].into());
+    let half = LinearForm(vec![(Sym(3), Q::HALF)].into());
     assert!(PackedTrig::pack(&TrigFactor::Cos(half)).is_none());
     // Products whose forms could leave the lanes (100 + 100 > 127)
     // decline; the general path takes them, exactly.
@@ -215,7 +215,11 @@ fn derivatives_of_trigonometric_parts_agree_with_the_normal_form() {
         .expect("sin")
         .mul(&p.mul(&p).expect("p^2"))
         .expect("product")
-        .add(&Expr::cos_of(&q, &st).expect("cos").scale(&Q::Small(3, 7)))
+        .add(
+            &Expr::cos_of(&q, &st)
+                .expect("cos")
+                .scale(&Q::from_small(3, 7)),
+        )
         .add(&q.mul(&p).expect("qp").mul(&cos_t).expect("qp cos t"))
         .add(
             &Expr::cos_of(&arg, &st)
@@ -264,10 +268,10 @@ fn packed_time_integrals_agree_with_the_normal_form() {
             let e = q
                 .mul(&t.pow(3).expect("t^3"))
                 .expect("q t^3")
-                .scale(&Q::Small(5, 3))
+                .scale(&Q::from_small(5, 3))
                 .add(&p.mul(&p).expect("p^2").mul(&t).expect("p^2 t"))
                 .add(&wave.mul(&t.pow(2).expect("t^2")).expect("wave t^2"))
-                .add(&wave.mul(&q).expect("q wave").scale(&Q::Small(-2, 7)))
+                .add(&wave.mul(&q).expect("q wave").scale(&Q::from_small(-2, 7)))
                 .add(&Expr::int(4))
                 .mul(&factor)
                 .expect("with time factor");
@@ -334,7 +338,7 @@ fn sorting_by_packed_keys_gives_the_order_of_keys() {
     assert_eq!(got.len(), terms.len());
     // A key that does not pack (a rational frequency): the direct sort.
     let mut mixed = terms;
-    mixed[17].0.beat = TimeFactor::Sin(Q::Small(1, 2));
+    mixed[17].0.beat = TimeFactor::Sin(Q::HALF);
     let mut want = mixed.clone();
     want.sort_by(|a, b| a.0.cmp(&b.0));
     sort_terms(&mut mixed);

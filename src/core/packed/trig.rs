@@ -51,14 +51,14 @@ impl PackedTrig {
         };
         let mut lanes = 0u128;
         for (s, c) in l.0.iter() {
-            let Q::Small(n, 1) = c else {
+            let Some((n, 1)) = c.as_small() else {
                 return None;
             };
             // Lane 0 (time, never in a state form) holds the kind.
             if s.0 == 0 || s.0 >= SLOTS || n.unsigned_abs() > MAX_LANE as u64 {
                 return None;
             }
-            lanes |= u128::from(*n as i8 as u8) << (8 * s.0);
+            lanes |= u128::from(n as i8 as u8) << (8 * s.0);
         }
         Some(PackedTrig::new(kind, lanes))
     }

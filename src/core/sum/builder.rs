@@ -157,12 +157,12 @@ impl SumBuilder {
                 }
             }
             let packed_key = packed::pack_key(k);
-            if let (Some((m, wave, freq, odd)), Q::Small(n, d)) = (packed_key, &c) {
+            if let (Some((m, wave, freq, odd)), Some((n, d))) = (packed_key, c.as_small()) {
                 let (freq, odd) = if to_sines { (0, false) } else { (freq, odd) };
                 let (packed, mut spill) = self.packed_and_spill();
                 if packed.add_terms(
-                    &[(m, *n)],
-                    *d,
+                    &[(m, n)],
+                    d,
                     &ProductRoute::new(freq, odd, to_sines, 1, 1),
                     wave,
                     &mut spill,
@@ -359,7 +359,7 @@ impl SumBuilder {
             let ca = if negate { ca.neg() } else { ca.clone() };
             for (kb, cb) in b.terms() {
                 ka.mul_into(&ca, kb, cb, &mut |mut k, c| {
-                    if let Q::Big(_) = c {
+                    if !c.is_small() {
                         max_bits = max_bits.max(c.bits());
                     }
                     if let Some(cap) = cap {
@@ -446,7 +446,7 @@ impl SumBuilder {
                 let list = crate::core::term::integrate_time_monomial(n, &beat).ok()?;
                 let mut out = Vec::with_capacity(list.len() + 1);
                 for (power, b, q) in list {
-                    let Q::Small(num, den) = q else {
+                    let Some((num, den)) = q.as_small() else {
                         return None;
                     };
                     let (freq, odd) = match &b {
@@ -495,7 +495,7 @@ impl SumBuilder {
         }
         let with_sines = matches!(keep, Keep::UpToWithSines(_));
         for part in parts {
-            if let (Some(p), Q::Small(qn, qd)) = (&part.packed, q) {
+            if let (Some(p), Some((qn, qd))) = (&part.packed, q.as_small()) {
                 // The route of the whole part: kept, dropped or a sine
                 // constant (factor 1/h).
                 let route = match keep.cap() {
@@ -503,9 +503,9 @@ impl SumBuilder {
                         if !(with_sines && part.odd) {
                             continue;
                         }
-                        qd.checked_mul(p.freq()).map(|d| (0, false, true, *qn, d))
+                        qd.checked_mul(p.freq()).map(|d| (0, false, true, qn, d))
                     }
-                    _ => Some((p.freq(), p.odd(), false, *qn, *qd)),
+                    _ => Some((p.freq(), p.odd(), false, qn, qd)),
                 };
                 if let Some((freq, odd, to_sines, num, den)) = route {
                     let (packed, mut spill) = self.packed_and_spill();

@@ -12,12 +12,12 @@ use crate::core::term::{Key, Monomial, TimeFactor, TrigFactor};
 
 /// log2 of the larger of |numerator| and denominator (0 for 1 and -1).
 pub(crate) fn log2_size(c: &Q) -> f64 {
-    match c {
-        Q::Small(n, d) => (n.unsigned_abs() as f64)
+    match c.as_small() {
+        Some((n, d)) => (n.unsigned_abs() as f64)
             .log2()
-            .max((*d as f64).log2())
+            .max((d as f64).log2())
             .max(0.0),
-        Q::Big(_) => c.bits() as f64,
+        None => c.bits() as f64,
     }
 }
 

@@ -68,11 +68,9 @@ fn kept_terms_and_sine_constants_of_a_product() {
     let (kept, sines) = acc.finish_with_sines();
     assert_eq!(
         kept,
-        Expr::sin_of(&t_times(2), &states)
-            .unwrap()
-            .scale(&Q::Small(1, 2))
+        Expr::sin_of(&t_times(2), &states).unwrap().scale(&Q::HALF)
     );
-    assert_eq!(sines, Expr::num(Q::Small(5, 24)));
+    assert_eq!(sines, Expr::num(Q::from_small(5, 24)));
 
     // The mean (cap 0): sine times cosine has none, and is not formed.
     limits::start_work();

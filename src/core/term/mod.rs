@@ -10,6 +10,8 @@ mod atom;
 mod key;
 mod linear;
 mod monomial;
+#[cfg(test)]
+mod tests;
 
 mod time;
 mod trig;

@@ -37,7 +37,7 @@ pub(crate) fn sin_beat(k: Q) -> Option<(bool, TimeFactor)> {
 
 /// Product of two beats, as `wave_mul` does for waves.
 pub(crate) fn beat_mul(a: &TimeFactor, b: &TimeFactor) -> SmallVec<[(Q, TimeFactor); 2]> {
-    let half = Q::Small(1, 2);
+    let half = Q::HALF;
     let mut out = SmallVec::new();
     match (a, b) {
         (TimeFactor::One, w) | (w, TimeFactor::One) => out.push((Q::ONE, w.clone())),

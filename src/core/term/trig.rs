@@ -42,17 +42,17 @@ pub(crate) fn sin_wave(l: LinearForm) -> Option<(bool, TrigFactor)> {
 
 /// `c·f` for a factor of the product-to-sum identities (1 or ±1/2).
 pub(crate) fn times_factor(c: Q, f: &Q) -> Q {
-    match f {
-        Q::Small(1, 1) => c,
-        Q::Small(1, 2) => c.half(),
-        Q::Small(-1, 2) => c.half().neg(),
+    match f.as_small() {
+        Some((1, 1)) => c,
+        Some((1, 2)) => c.half(),
+        Some((-1, 2)) => c.half().neg(),
         _ => c.mul(f),
     }
 }
 
 /// Product of two waves as at most two (coefficient factor, wave) pairs.
 pub(crate) fn wave_mul(a: &TrigFactor, b: &TrigFactor) -> SmallVec<[(Q, TrigFactor); 2]> {
-    let half = Q::Small(1, 2);
+    let half = Q::HALF;
     let mut out = SmallVec::new();
     match (a, b) {
         (TrigFactor::One, w) | (w, TrigFactor::One) => out.push((Q::ONE, w.clone())),
