@@ -16,7 +16,7 @@ use crate::core::{CoreError, CoreResult, Expr, Field, Sym, Q};
 use crate::render::latex;
 use crate::series::chrono;
 use crate::series::freelie::{self, Alphabet, Coeff, FreeLieError, LiePoly, Tensor};
-use crate::series::lyndon as freelie_lyndon;
+use crate::series::freelie as freelie_lyndon;
 
 thread_local! {
     static COEFF_ERROR: RefCell<Option<CoreError>> = const { RefCell::new(None) };

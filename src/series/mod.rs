@@ -5,6 +5,5 @@
 
 pub mod chrono;
 pub mod freelie;
-pub mod lyndon;
 pub mod shuffle;
 pub mod taylor;
