@@ -5,5 +5,6 @@
 
 pub mod chrono;
 pub mod freelie;
+pub mod lie_fields;
 pub mod shuffle;
 pub mod taylor;
