@@ -16,7 +16,7 @@ use crate::core::{CoreError, CoreResult, Expr, Field, Sym, Q};
 use crate::render::latex;
 use crate::series::chrono;
 use crate::series::freelie::{self, Alphabet, Coeff, FreeLieError, LiePoly, Tensor};
-use crate::series::lyndon as freelie_lyndon;
+use crate::series::{freelie as freelie_lyndon, lie_fields};
 
 thread_local! {
     static COEFF_ERROR: RefCell<Option<CoreError>> = const { RefCell::new(None) };
@@ -483,24 +483,7 @@ impl Session {
         };
         let names = vec![label(pos[0], "X"), label(pos[1], "Y")];
         let fields = [x.field.clone(), y.field.clone()];
-        let states = &self.states;
-        let value = freelie::evaluate(
-            &poly,
-            |l| Ok::<Field, BchError>(fields[l as usize].clone()),
-            |a, b| a.bracket(b, states).map_err(BchError::Core),
-            |acc, c, v| {
-                let scaled = v.mul_expr(c).map_err(BchError::Core)?;
-                match acc {
-                    None => Ok(scaled),
-                    Some(a) => a.add(&scaled).map_err(BchError::Core),
-                }
-            },
-        )
-        .map_err(|e| match e {
-            BchError::Core(c) => core(c),
-            BchError::Lie(l) => core(lie_err(l)),
-        })?
-        .unwrap_or_else(|| Field::zero(states.len()));
+        let value = lie_fields::evaluate_on_fields(&poly, &fields, &self.states).map_err(core)?;
         Ok(Value::Field(FieldValue {
             field: value,
             combo: None,
@@ -537,17 +520,6 @@ pub fn bch_series(n: u32) -> CoreResult<LiePoly<Expr>> {
                 .map(|(w, c)| (w, Expr::num(Q::from_big(c))))
                 .collect(),
         )),
-    }
-}
-
-enum BchError {
-    Core(CoreError),
-    Lie(FreeLieError),
-}
-
-impl From<FreeLieError> for BchError {
-    fn from(e: FreeLieError) -> Self {
-        BchError::Lie(e)
     }
 }
 
