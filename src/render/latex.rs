@@ -7,12 +7,11 @@
 //! subscripts, `q_dot` → `\dot{q}`.
 //!
 //! Rendering needs only core types and the list of state coordinates (to
-//! order factors); the names on the left of an aligned block come from
-//! [`coordinate_names`], the one place that decides them.
+//! order factors); the names on the left of an aligned block are handed
+//! in by the caller (the language decides them, in one place).
 
 use crate::core::expr::{Key, LinearForm, TimeFactor, TrigFactor};
 use crate::core::{Expr, Field, Matrix, Sym, Q};
-use crate::lang::value::Value;
 
 /// Names that render as Greek letters: full names and the usual short ones.
 const GREEK: &[(&str, &str)] = &[
@@ -128,13 +127,6 @@ fn base_name(base: &str) -> String {
         None if base.chars().count() == 1 => base.to_string(),
         None => format!("\\mathrm{{{base}}}"),
     }
-}
-
-/// The names of the coordinates a value is written in, for the left-hand
-/// sides of an aligned block. The one place that decides them: today the
-/// session's state names.
-pub fn coordinate_names(_v: &Value, states: &[Sym]) -> Vec<String> {
-    states.iter().map(|s| s.name()).collect()
 }
 
 /// A symbol in LaTeX: a name (see [`name`]) or an application of an
@@ -469,19 +461,6 @@ pub fn matrix(m: &Matrix, states: &[Sym]) -> String {
         "\\begin{{pmatrix}} {} \\end{{pmatrix}}",
         rows.join(" \\\\ ")
     )
-}
-
-/// Any value: an averaged result as an `aligned` block of its equations
-/// of motion, other fields and matrices as `pmatrix`, scalars inline.
-pub fn value(v: &Value, states: &[Sym]) -> String {
-    match v {
-        Value::Scalar(e) => expr(e, states),
-        Value::Field(f) => match &f.averaged {
-            Some(info) => aligned(&f.field, info.eps, states, &coordinate_names(v, states)),
-            None => field(&f.field, states),
-        },
-        Value::Matrix(m) => matrix(m, states),
-    }
 }
 
 #[cfg(test)]

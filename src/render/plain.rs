@@ -1,7 +1,6 @@
 //! Plain rendering in the input syntax.
 
 use crate::core::{Expr, Field, Matrix};
-use crate::lang::value::Value;
 
 /// A field as `[e1, e2, …]`.
 pub fn field(f: &Field) -> String {
@@ -21,13 +20,4 @@ pub fn matrix(m: &Matrix) -> String {
         })
         .collect();
     format!("{{{}}}", rows.join("; "))
-}
-
-/// Any value on one line.
-pub fn value(v: &Value) -> String {
-    match v {
-        Value::Scalar(e) => e.to_string(),
-        Value::Field(f) => field(&f.field),
-        Value::Matrix(m) => matrix(m),
-    }
 }
