@@ -23,7 +23,7 @@ use std::fmt;
 
 /// Tolerances and limits for [`integrate_at`].
 #[derive(Clone, Debug, PartialEq)]
-pub struct OdeOptions {
+pub(crate) struct OdeOptions {
     /// Relative tolerance per component (must be non-negative).
     pub rtol: f64,
     /// Absolute tolerance per component (must be non-negative; `rtol` and
@@ -48,7 +48,7 @@ impl Default for OdeOptions {
 
 /// Why an integration stopped before reaching its last output time.
 #[derive(Clone, Debug, PartialEq)]
-pub enum OdeError {
+pub(crate) enum OdeError {
     /// The solution or the right-hand side stopped being finite near `t`
     /// (typically a blow-up) and smaller steps did not help.
     NonFinite {
@@ -110,7 +110,7 @@ impl std::error::Error for OdeError {}
 /// It takes `&mut self` so an implementation may keep scratch space or
 /// counters. Non-finite values written into `dy` are handled by the
 /// integrator (the step is retried smaller, then reported), never a panic.
-pub trait Rhs {
+pub(crate) trait Rhs {
     /// Write `f(t, y)` into `dy`.
     fn eval(&mut self, t: f64, y: &[f64], dy: &mut [f64]);
 }
@@ -123,7 +123,7 @@ impl<F: FnMut(f64, &[f64], &mut [f64])> Rhs for F {
 
 /// Work counters of one integration.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
-pub struct OdeStats {
+pub(crate) struct OdeStats {
     /// Accepted steps.
     pub steps: usize,
     /// Rejected steps (error too large or non-finite values).
@@ -134,7 +134,7 @@ pub struct OdeStats {
 
 /// The result of [`integrate_at`].
 #[derive(Clone, Debug, PartialEq)]
-pub struct OdeOutput {
+pub(crate) struct OdeOutput {
     /// `states[i]` is the state at `times[i]`.
     pub states: Vec<Vec<f64>>,
     /// Work done to get there.
@@ -150,7 +150,7 @@ pub struct OdeOutput {
 /// it, not by interpolation, so the reported states carry the full
 /// fifth-order accuracy. `cancel` is polled before every step attempt;
 /// `progress(t)` is called every 1000 attempted steps with the current time.
-pub fn integrate_at<R: Rhs + ?Sized>(
+pub(crate) fn integrate_at<R: Rhs + ?Sized>(
     rhs: &mut R,
     t0: f64,
     y0: &[f64],
@@ -255,9 +255,10 @@ pub fn integrate_at<R: Rhs + ?Sized>(
 /// One Dormand–Prince step of size `h` (negative to go backward) from
 /// `(t, y)` with the fifth-order formula, without error control.
 ///
-/// This is the same stage computation the adaptive driver uses; it is
-/// exposed for convergence checks with a constant step.
-pub fn rk_fixed_step<R: Rhs + ?Sized>(rhs: &mut R, t: f64, y: &[f64], h: f64) -> Vec<f64> {
+/// This is the same stage computation the adaptive driver uses, for the
+/// convergence checks with a constant step.
+#[cfg(test)]
+pub(crate) fn rk_fixed_step<R: Rhs + ?Sized>(rhs: &mut R, t: f64, y: &[f64], h: f64) -> Vec<f64> {
     let mut work = Stages::new(y.len());
     rhs.eval(t, y, &mut work.k[0]);
     work.step(rhs, t, y, h);

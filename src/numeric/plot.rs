@@ -17,7 +17,7 @@ use plotters::prelude::*;
 
 /// Why a plot could not be made or saved.
 #[derive(Clone, Debug, PartialEq, Eq)]
-pub enum PlotError {
+pub(crate) enum PlotError {
     /// No point had finite coordinates (and, on log axes, positive ones).
     NoData,
     /// Two inputs that must have equal lengths do not.
@@ -60,7 +60,7 @@ impl std::error::Error for PlotError {}
 /// the line. Constant data is drawn on a padded axis. An error is returned
 /// when lengths disagree, no point is usable or the values overflow an
 /// axis (such as `-f64::MAX` with `f64::MAX`).
-pub fn time_series_svg(
+pub(crate) fn time_series_svg(
     title: &str,
     names: &[String],
     times: &[f64],
@@ -122,7 +122,7 @@ pub fn time_series_svg(
 /// the fast oscillation of the system fills a band. Returns the SVG text.
 ///
 /// `system[k]` and each model's `values[k]` hold state `k` at the `times`.
-pub fn paths_svg(
+pub(crate) fn paths_svg(
     title: &str,
     names: &[String],
     times: &[f64],
@@ -199,7 +199,7 @@ pub fn paths_svg(
 
 /// A phase portrait: the curve `(xs[i], ys[i])` with its start marked,
 /// axes named after the two states. Returns the SVG text.
-pub fn phase_svg(
+pub(crate) fn phase_svg(
     title: &str,
     x_name: &str,
     y_name: &str,
@@ -260,7 +260,7 @@ pub fn phase_svg(
 /// order with no usable point is still listed in the legend, marked as
 /// having no data. An error is returned when lengths disagree, no point at
 /// all is usable, or the usable values span more than 280 decades.
-pub fn error_vs_eps_svg(
+pub(crate) fn error_vs_eps_svg(
     title: &str,
     y_desc: &str,
     eps: &[f64],
@@ -747,7 +747,7 @@ mod tests {
             4,
             &["paths", "x", "y", "system", "order 1", "order 2"],
         );
-        assert_eq!(text.matches("stroke=\"#5A5A5A\"").count() >= 2, true);
+        assert!(text.matches("stroke=\"#5A5A5A\"").count() >= 2);
     }
 
     #[test]
@@ -832,7 +832,8 @@ mod tests {
             (vec![0.0, 1e-200], vec![1.0, 2.0]),
         ];
         for (times, values) in cases {
-            let text = time_series_svg("case", &one, &times, &[values.clone()]).unwrap();
+            let text =
+                time_series_svg("case", &one, &times, std::slice::from_ref(&values)).unwrap();
             check_svg(&text, 1, &["x"]);
             let text = phase_svg("case", "x", "y", &times, &values).unwrap();
             check_svg(&text, 1, &["x", "y"]);

@@ -27,7 +27,7 @@ pub enum Lang {
 
 impl Lang {
     /// The language for a `show … as WORD` word.
-    pub fn from_word(w: &str) -> Option<Lang> {
+    pub(crate) fn from_word(w: &str) -> Option<Lang> {
         match w {
             "python" => Some(Lang::Python),
             "julia" => Some(Lang::Julia),
@@ -130,7 +130,7 @@ impl Lang {
 
 /// What is evaluated.
 #[derive(Clone, Copy, Debug)]
-pub enum Shape<'a> {
+pub(crate) enum Shape<'a> {
     /// A scalar: the function returns one number.
     Scalar(&'a Expr),
     /// A field: one number per state coordinate.
@@ -152,7 +152,7 @@ impl Shape<'_> {
 /// The parameters a value needs (symbols other than the states, `t` and
 /// `pi`), in the order of `order` (the session's declarations), then any
 /// others in symbol order.
-pub fn parameters(shape: &Shape, states: &[Sym], order: &[Sym]) -> Vec<Sym> {
+pub(crate) fn parameters(shape: &Shape, states: &[Sym], order: &[Sym]) -> Vec<Sym> {
     let mut found: Vec<Sym> = Vec::new();
     for e in shape.entries() {
         for s in e.symbols() {
@@ -348,7 +348,13 @@ fn exact_comment(lang: Lang, name: &str, shape: &Shape) -> Vec<String> {
 
 /// The function `name(t, state, params…)` evaluating `shape` in `lang`.
 /// `params` are the named arguments, in order (see [`parameters`]).
-pub fn function(lang: Lang, name: &str, shape: &Shape, states: &[Sym], params: &[Sym]) -> String {
+pub(crate) fn function(
+    lang: Lang,
+    name: &str,
+    shape: &Shape,
+    states: &[Sym],
+    params: &[Sym],
+) -> String {
     let w = Writer { lang, states };
     let fname = lang.ident(name);
     let state_names: Vec<String> = w.states.iter().map(|s| w.sym(*s)).collect();

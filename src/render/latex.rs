@@ -76,7 +76,7 @@ const ACCENTS: &[(&str, &str)] = &[
 
 /// A name in LaTeX: Greek letters, trailing digits and `_x` as subscripts,
 /// `q_dot` → `\dot{q}`, other multi-letter names upright.
-pub fn name(n: &str) -> String {
+pub(crate) fn name(n: &str) -> String {
     if !n.is_empty() && n.bytes().all(|b| b.is_ascii_digit()) {
         return n.to_string();
     }
@@ -344,7 +344,7 @@ fn expr_lead(e: &Expr, states: &[Sym], lead: Option<Sym>) -> String {
 }
 
 /// A scalar expression in LaTeX over the state coordinates `states`.
-pub fn expr(e: &Expr, states: &[Sym]) -> String {
+pub(crate) fn expr(e: &Expr, states: &[Sym]) -> String {
     expr_lead(e, states, None)
 }
 
@@ -398,7 +398,7 @@ const WIDE: usize = 90;
 
 /// An `aligned` block: `\dot{x}_i &= …` for each component of `f`, terms
 /// grouped by powers of `eps`, the coordinates named by `coords`.
-pub fn aligned(f: &Field, eps: Sym, states: &[Sym], coords: &[String]) -> String {
+pub(crate) fn aligned(f: &Field, eps: Sym, states: &[Sym], coords: &[String]) -> String {
     let mut rows = Vec::new();
     for (i, comp) in f.0.iter().enumerate() {
         let lhs = coords
@@ -438,7 +438,7 @@ fn dot(tex: &str) -> String {
 }
 
 /// A field as a column `pmatrix`.
-pub fn field(f: &Field, states: &[Sym]) -> String {
+pub(crate) fn field(f: &Field, states: &[Sym]) -> String {
     let rows: Vec<String> = f.0.iter().map(|e| expr(e, states)).collect();
     format!(
         "\\begin{{pmatrix}} {} \\end{{pmatrix}}",
@@ -447,7 +447,7 @@ pub fn field(f: &Field, states: &[Sym]) -> String {
 }
 
 /// A matrix as a `pmatrix`.
-pub fn matrix(m: &Matrix, states: &[Sym]) -> String {
+pub(crate) fn matrix(m: &Matrix, states: &[Sym]) -> String {
     let rows: Vec<String> = (0..m.rows)
         .map(|i| {
             m.row(i)

@@ -3,13 +3,13 @@
 use crate::core::{Expr, Field, Matrix};
 
 /// A field as `[e1, e2, …]`.
-pub fn field(f: &Field) -> String {
+pub(crate) fn field(f: &Field) -> String {
     let parts: Vec<String> = f.0.iter().map(Expr::to_string).collect();
     format!("[{}]", parts.join(", "))
 }
 
 /// A matrix as `{a, b; c, d}`.
-pub fn matrix(m: &Matrix) -> String {
+pub(crate) fn matrix(m: &Matrix) -> String {
     let rows: Vec<String> = (0..m.rows)
         .map(|i| {
             m.row(i)
