@@ -37,10 +37,10 @@ use crate::lang::split::{needs_more, split_statements, SourceStmt};
 use crate::lang::{Line, Report, Session};
 
 /// The prompt string.
-pub const PROMPT: &str = "» ";
+pub(crate) const PROMPT: &str = "» ";
 
 /// File name of the history inside the data home.
-pub const HISTORY_FILE: &str = "history";
+pub(crate) const HISTORY_FILE: &str = "history";
 
 /// Ctrl-C presses during one statement after which the process ends.
 const PRESSES_TO_LEAVE: usize = 3;
@@ -52,7 +52,7 @@ static PRESSES: AtomicUsize = AtomicUsize::new(0);
 
 /// Runs the prompt until `quit`, Ctrl-D or the end of input; returns the
 /// exit status: 0, or 2 when standard output could not be written.
-pub fn run_prompt(invocation: &Invocation, painter: Painter) -> u8 {
+pub(crate) fn run_prompt(invocation: &Invocation, painter: Painter) -> u8 {
     let interactive = io::stdin().is_terminal();
     let output = Output {
         painter,
@@ -605,16 +605,6 @@ impl Validator for PromptHelper {
 }
 
 impl Helper for PromptHelper {}
-
-/// The history file in use, for messages and tests.
-pub fn history_path() -> Option<PathBuf> {
-    home_dir(HomeKind::Data).map(|dir| dir.join(HISTORY_FILE))
-}
-
-/// The journal file in use, for messages and tests.
-pub fn journal_path() -> Option<PathBuf> {
-    home_dir(HomeKind::State).map(|dir| dir.join(super::journal::JOURNAL_FILE))
-}
 
 #[cfg(test)]
 mod tests {

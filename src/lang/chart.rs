@@ -387,7 +387,7 @@ impl Session {
                 }
             ),
         );
-        report.push(Style::Result, plain::value(&result));
+        report.push(Style::Result, result.plain());
         let n = result.n_terms();
         report.push(
             Style::Note,

@@ -270,7 +270,7 @@ impl Session {
         } else {
             Value::field(Field(totals))
         };
-        report.push(Style::Result, format!("total    {}", plain::value(&value)));
+        report.push(Style::Result, format!("total    {}", value.plain()));
         report.push(Style::Note, summary(n, n_terms));
         Ok(value)
     }

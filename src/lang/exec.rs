@@ -10,7 +10,7 @@ use super::split::SourceStmt;
 use super::value::Value;
 use crate::core::limits::{self, Limits};
 use crate::core::Sym;
-use crate::render::{code, latex, plain};
+use crate::render::code;
 
 type R<T> = Result<T, SessionError>;
 
@@ -43,7 +43,7 @@ impl Session {
             },
             StmtKind::Print(e) => {
                 let v = self.eval(e)?;
-                report.push(Style::Result, plain::value(&v));
+                report.push(Style::Result, v.plain());
                 report.rich = Some(Rich::Value(v, self.states.clone()));
             }
             StmtKind::Run(c) => self.run_command(c, &[], &mut report, started)?,
@@ -151,7 +151,7 @@ impl Session {
         let text = match how.name.as_str() {
             "latex" => {
                 report.rich = Some(Rich::Latex);
-                latex::value(&v, &self.states)
+                v.latex(&self.states)
             }
             "brackets" => match &v {
                 Value::Field(f) => match &f.structure {
@@ -611,9 +611,9 @@ impl Session {
                     Style::Fail,
                     format!("check failed at {place}: {}", src.text.trim()),
                 );
-                report.push(Style::Fail, format!("  left:       {}", plain::value(&a)));
-                report.push(Style::Fail, format!("  right:      {}", plain::value(&b)));
-                report.push(Style::Fail, format!("  difference: {}", plain::value(&d)));
+                report.push(Style::Fail, format!("  left:       {}", a.plain()));
+                report.push(Style::Fail, format!("  right:      {}", b.plain()));
+                report.push(Style::Fail, format!("  difference: {}", d.plain()));
             }
         }
         Ok(())

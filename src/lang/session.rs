@@ -412,7 +412,7 @@ impl Session {
             while let Some(b) = bound.next_if(|b| b.line <= i) {
                 let value = b.retired.as_ref().or_else(|| self.names.get(&b.name));
                 let Some(value) = value else { continue };
-                let check = format!("check {} == {}", b.name, crate::render::plain::value(value));
+                let check = format!("check {} == {}", b.name, value.plain());
                 let already = self.accepted.iter().skip(i + 1);
                 if already
                     .take_while(|l| l.starts_with("check "))
