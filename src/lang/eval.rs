@@ -3,9 +3,9 @@
 
 use std::collections::HashMap;
 
-use super::ast::{Arg, BinOp, Expr as Ast, ExprKind, Ident, Span};
-use super::session::{ErrorKind, Session, SessionError, SymKind};
-use super::value::{Combo, FieldValue, Value};
+use super::ast::{Arg, BinOp, ExprKind, Ident, Span, SyntaxExpr};
+use super::session::{ErrorKind, Session, SessionError, SessionResult, SymKind};
+use super::value::{FieldCombination, FieldValue, Value};
 use crate::core::calc::common_period;
 use crate::core::func::{Arg as FuncArg, Definition, Signature};
 use crate::core::{CoreError, Expr, Field, Matrix, Sym, Q};
@@ -16,8 +16,6 @@ pub const BUILTINS: &[&str] = &[
     "sin", "cos", "exp", "ad", "pd", "jac", "div", "det", "trace", "plug", "order", "mean", "bch",
     "iint",
 ];
-
-type R<T> = Result<T, SessionError>;
 
 fn kind_err(span: Span, op: &str, left: &Value, right: Option<&Value>) -> SessionError {
     SessionError::at(
@@ -89,7 +87,7 @@ impl Session {
     }
 
     /// Evaluates an expression.
-    pub fn eval(&self, e: &Ast) -> R<Value> {
+    pub fn eval(&self, e: &SyntaxExpr) -> SessionResult<Value> {
         let core = |err: CoreError| SessionError::core(e.span, err);
         match &e.kind {
             ExprKind::Num(text) => {
@@ -142,7 +140,7 @@ impl Session {
     }
 
     /// Evaluates an expression that must be a scalar.
-    pub fn eval_scalar(&self, e: &Ast, what: &str) -> R<Expr> {
+    pub fn eval_scalar(&self, e: &SyntaxExpr, what: &str) -> SessionResult<Expr> {
         match self.eval(e)? {
             Value::Scalar(x) => Ok(x),
             other => Err(SessionError::invalid(
@@ -153,7 +151,7 @@ impl Session {
     }
 
     /// Evaluates an expression that must be a field.
-    pub fn eval_field(&self, e: &Ast, what: &str) -> R<FieldValue> {
+    pub fn eval_field(&self, e: &SyntaxExpr, what: &str) -> SessionResult<FieldValue> {
         match self.eval(e)? {
             Value::Field(f) => Ok(f),
             other => Err(SessionError::invalid(
@@ -164,7 +162,7 @@ impl Session {
     }
 
     /// Evaluates a non-negative integer.
-    pub fn eval_count(&self, e: &Ast, what: &str) -> R<i64> {
+    pub fn eval_count(&self, e: &SyntaxExpr, what: &str) -> SessionResult<i64> {
         let x = self.eval_scalar(e, what)?;
         match x.as_number().and_then(|q| q.to_i64()) {
             Some(n) => Ok(n),
@@ -175,7 +173,7 @@ impl Session {
         }
     }
 
-    fn eval_name(&self, name: &str, span: Span) -> R<Value> {
+    fn eval_name(&self, name: &str, span: Span) -> SessionResult<Value> {
         match name {
             "t" => return Ok(Value::Scalar(Expr::sym(Sym::T))),
             "pi" => return Ok(Value::Scalar(Expr::sym(Sym::PI))),
@@ -200,7 +198,7 @@ impl Session {
             Some(Value::Field(f)) => {
                 let mut f = f.clone();
                 if f.combo.is_none() && !f.field.0.iter().any(Expr::is_time_varying) {
-                    f.combo = Some(Combo {
+                    f.combo = Some(FieldCombination {
                         parts: vec![(name.to_string(), f.field.clone(), Expr::int(1))],
                     });
                 }
@@ -211,7 +209,13 @@ impl Session {
         }
     }
 
-    fn eval_bin(&self, op: BinOp, a: &Ast, b: &Ast, span: Span) -> R<Value> {
+    fn eval_bin(
+        &self,
+        op: BinOp,
+        a: &SyntaxExpr,
+        b: &SyntaxExpr,
+        span: Span,
+    ) -> SessionResult<Value> {
         let core = |err: CoreError| SessionError::core(span, err);
         if op == BinOp::Pow {
             let base = self.eval(a)?;
@@ -243,7 +247,7 @@ impl Session {
                     (Value::Field(p), Value::Field(q)) => {
                         let field = p.field.add_scaled(&q.field, &sign).map_err(core)?;
                         let combo = match (&p.combo, &q.combo) {
-                            (Some(c1), Some(c2)) => Some(merge_combo(c1, c2, &sign)),
+                            (Some(c1), Some(c2)) => Some(merge_combinations(c1, c2, &sign)),
                             _ => None,
                         };
                         Ok(Value::Field(FieldValue {
@@ -308,8 +312,11 @@ impl Session {
         }
     }
 
-    fn eval_list(&self, items: &[Ast], span: Span) -> R<Value> {
-        let values: Vec<Value> = items.iter().map(|i| self.eval(i)).collect::<R<_>>()?;
+    fn eval_list(&self, items: &[SyntaxExpr], span: Span) -> SessionResult<Value> {
+        let values: Vec<Value> = items
+            .iter()
+            .map(|i| self.eval(i))
+            .collect::<SessionResult<_>>()?;
         if values.len() == 2 {
             if let (Value::Field(x), Value::Field(y)) = (&values[0], &values[1]) {
                 let b = x
@@ -363,7 +370,13 @@ impl Session {
             .join(", ")
     }
 
-    fn apply_field(&self, target: Value, tspan: Span, args: &[Arg], span: Span) -> R<Value> {
+    fn apply_field(
+        &self,
+        target: Value,
+        tspan: Span,
+        args: &[Arg],
+        span: Span,
+    ) -> SessionResult<Value> {
         let f = match target {
             Value::Field(f) => f,
             other => {
@@ -405,7 +418,7 @@ impl Session {
         args: &'a [Arg],
         n: usize,
         usage: &str,
-    ) -> R<Vec<&'a Ast>> {
+    ) -> SessionResult<Vec<&'a SyntaxExpr>> {
         let mut out = Vec::new();
         for a in args {
             match a {
@@ -437,7 +450,7 @@ impl Session {
     }
 
     /// Resolves an argument that must be a declared name of the given kinds.
-    fn symbol_arg(&self, e: &Ast, kinds: &[SymKind], what: &str) -> R<Sym> {
+    fn symbol_arg(&self, e: &SyntaxExpr, kinds: &[SymKind], what: &str) -> SessionResult<Sym> {
         if let ExprKind::Name(n) = &e.kind {
             if n == "t" {
                 return Ok(Sym::T);
@@ -451,7 +464,7 @@ impl Session {
         Err(SessionError::invalid(e.span, what.to_string()))
     }
 
-    fn eval_call(&self, name: &Ident, args: &[Arg], span: Span) -> R<Value> {
+    fn eval_call(&self, name: &Ident, args: &[Arg], span: Span) -> SessionResult<Value> {
         let core = |err: CoreError| SessionError::core(span, err);
         match name.name.as_str() {
             f @ ("sin" | "cos" | "exp") => {
@@ -630,11 +643,11 @@ impl Session {
                 let mut names = Vec::new();
                 for a in args {
                     match a {
-                        Arg::Pos(Ast {
+                        Arg::Pos(SyntaxExpr {
                             kind: ExprKind::Name(n),
                             ..
                         }) if self.sym_kind(n) == Some(SymKind::Input) => names.push(n.clone()),
-                        Arg::Pos(Ast {
+                        Arg::Pos(SyntaxExpr {
                             kind: ExprKind::Num(n),
                             ..
                         }) if n == "1" => names.push("1".to_string()),
@@ -699,7 +712,7 @@ impl Session {
         }
     }
 
-    fn eval_plug(&self, name: &Ident, args: &[Arg], span: Span) -> R<Value> {
+    fn eval_plug(&self, name: &Ident, args: &[Arg], span: Span) -> SessionResult<Value> {
         let mut target = None;
         let mut map: HashMap<Sym, Expr> = HashMap::new();
         let mut defs: Vec<Definition> = Vec::new();
@@ -826,7 +839,7 @@ impl Session {
         name_span: Span,
         args: &[Arg],
         span: Span,
-    ) -> R<Value> {
+    ) -> SessionResult<Value> {
         let n = sig.params.len();
         let shown = format!("{}({})", sig.name, sig.params.join(", "));
         let mut values = Vec::with_capacity(n);
@@ -875,14 +888,19 @@ impl Session {
 
     /// `pd(J, a, …)(x, y)`: a derivative of a declared function applied;
     /// `None` when `target` is not `pd` of a function.
-    fn eval_derivative_call(&self, target: &Ast, args: &[Arg], span: Span) -> R<Option<Value>> {
+    fn eval_derivative_call(
+        &self,
+        target: &SyntaxExpr,
+        args: &[Arg],
+        span: Span,
+    ) -> SessionResult<Option<Value>> {
         let ExprKind::Call(head, pd_args) = &target.kind else {
             return Ok(None);
         };
         if head.name != "pd" {
             return Ok(None);
         }
-        let Some(Arg::Pos(Ast {
+        let Some(Arg::Pos(SyntaxExpr {
             kind: ExprKind::Name(fname),
             ..
         })) = pd_args.first()
@@ -895,7 +913,7 @@ impl Session {
         let mut deriv = vec![0u32; sig.params.len()];
         for a in &pd_args[1..] {
             let j = match a {
-                Arg::Pos(Ast {
+                Arg::Pos(SyntaxExpr {
                     kind: ExprKind::Name(p),
                     ..
                 }) => sig.params.iter().position(|q| q == p),
@@ -923,7 +941,12 @@ impl Session {
     }
 
     /// Reads `V(s) = body` of `plug`.
-    fn definition(&self, id: &Ident, params: &[Ident], body: &Ast) -> R<Definition> {
+    fn definition(
+        &self,
+        id: &Ident,
+        params: &[Ident],
+        body: &SyntaxExpr,
+    ) -> SessionResult<Definition> {
         let Some(sig) = self.funcs.get(&id.name).cloned() else {
             return Err(SessionError::invalid(
                 id.span,
@@ -1036,7 +1059,7 @@ fn number_size_ok(text: &str) -> Result<(), CoreError> {
     Ok(())
 }
 
-fn unreachable_pow(span: Span) -> R<Value> {
+fn unreachable_pow(span: Span) -> SessionResult<Value> {
     Err(SessionError::invalid(span, "internal: power handled above"))
 }
 
@@ -1044,7 +1067,7 @@ fn unreachable_pow(span: Span) -> R<Value> {
 pub(crate) fn scale_field_value(f: &FieldValue, s: &Expr) -> Result<FieldValue, CoreError> {
     let field = f.field.mul_expr(s)?;
     let combo = match &f.combo {
-        Some(c) => Some(Combo {
+        Some(c) => Some(FieldCombination {
             parts: c
                 .parts
                 .iter()
@@ -1061,7 +1084,7 @@ pub(crate) fn scale_field_value(f: &FieldValue, s: &Expr) -> Result<FieldValue, 
     })
 }
 
-fn merge_combo(a: &Combo, b: &Combo, sign: &Q) -> Combo {
+fn merge_combinations(a: &FieldCombination, b: &FieldCombination, sign: &Q) -> FieldCombination {
     let mut parts = a.parts.clone();
     for (n, g, k) in &b.parts {
         match parts.iter_mut().find(|(m, _, _)| m == n) {
@@ -1070,5 +1093,5 @@ fn merge_combo(a: &Combo, b: &Combo, sign: &Q) -> Combo {
         }
     }
     parts.retain(|(_, _, k)| !k.is_zero());
-    Combo { parts }
+    FieldCombination { parts }
 }

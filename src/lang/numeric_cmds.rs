@@ -5,10 +5,10 @@
 
 use std::collections::HashMap;
 
-use super::ast::{Assign, Command, CommandKind, Expr as Ast, PathArg, PhasePlot, Span};
+use super::ast::{Assign, Command, CommandKind, PathArg, PhasePlot, Span, SyntaxExpr};
 use super::files::FileKind;
 use super::progress::Progress;
-use super::session::{ErrorKind, Report, Session, SessionError, Style, SymKind};
+use super::session::{ErrorKind, Report, Session, SessionError, SessionResult, Style, SymKind};
 use super::value::AveragedInfo;
 use crate::core::{limits, CoreError, Expr, Sym, Q};
 use crate::numeric::compile::{float_values, CompileError, CompiledExpr, CompiledField};
@@ -17,11 +17,9 @@ use crate::numeric::sweep::{self, num};
 use crate::numeric::validate::{self, compare_errors, CompareResult, CompareRun};
 use crate::numeric::{plot, plot::PlotError};
 
-pub(crate) type R<T> = Result<T, SessionError>;
-
 /// Numerical commands need concrete functions: an unspecified one is
 /// refused, naming it, with the hint to plug a definition.
-pub(crate) fn refuse_functions(f: &crate::core::Field, span: Span, cmd: &str) -> R<()> {
+pub(crate) fn refuse_functions(f: &crate::core::Field, span: Span, cmd: &str) -> SessionResult<()> {
     match f.0.iter().find_map(Expr::first_atom) {
         None => Ok(()),
         Some(a) => Err(SessionError::invalid(
@@ -75,7 +73,7 @@ impl Horizon {
 
 impl Session {
     /// Exact values of `with` assignments (parameters only).
-    pub(crate) fn with_values(&self, with: &[Assign]) -> R<HashMap<Sym, Q>> {
+    pub(crate) fn with_values(&self, with: &[Assign]) -> SessionResult<HashMap<Sym, Q>> {
         let mut out = HashMap::new();
         for a in with {
             if self.sym_kind(&a.name.name) != Some(SymKind::Param) {
@@ -115,7 +113,7 @@ impl Session {
         point: &[Assign],
         exact: &HashMap<Sym, Q>,
         span: Span,
-    ) -> R<Vec<Expr>> {
+    ) -> SessionResult<Vec<Expr>> {
         let subst = Self::with_map(exact);
         let mut vals: HashMap<String, Expr> = HashMap::new();
         for a in point {
@@ -174,7 +172,12 @@ impl Session {
 
     /// The value of a constant expression in floating point (`pi` and the
     /// given parameter values known).
-    pub(crate) fn float_of(&self, e: &Expr, floats: &HashMap<Sym, f64>, span: Span) -> R<f64> {
+    pub(crate) fn float_of(
+        &self,
+        e: &Expr,
+        floats: &HashMap<Sym, f64>,
+        span: Span,
+    ) -> SessionResult<f64> {
         let c = CompiledExpr::new(e, &[], floats).map_err(|err| compile_err(span, err))?;
         Ok(c.eval(0.0, &[]))
     }
@@ -185,7 +188,7 @@ impl Session {
         point: &[Assign],
         exact: &HashMap<Sym, Q>,
         span: Span,
-    ) -> R<Vec<f64>> {
+    ) -> SessionResult<Vec<f64>> {
         let floats = float_values(exact);
         self.point_values(point, exact, span)?
             .iter()
@@ -193,7 +196,12 @@ impl Session {
             .collect()
     }
 
-    fn positive(&self, e: &Ast, floats: &HashMap<Sym, f64>, what: &str) -> R<f64> {
+    fn positive(
+        &self,
+        e: &SyntaxExpr,
+        floats: &HashMap<Sym, f64>,
+        what: &str,
+    ) -> SessionResult<f64> {
         let v = self.eval_scalar(e, what)?;
         let f = self.float_of(&v, floats, e.span)?;
         if !(f.is_finite() && f > 0.0) {
@@ -214,7 +222,7 @@ impl Session {
         kind: FileKind,
         what: &str,
         report: &mut Report,
-    ) -> R<()> {
+    ) -> SessionResult<()> {
         if self.replaying {
             return Ok(());
         }
@@ -243,7 +251,7 @@ impl Session {
         svg: Result<String, PlotError>,
         what: &str,
         report: &mut Report,
-    ) -> R<()> {
+    ) -> SessionResult<()> {
         if self.replaying {
             return Ok(());
         }
@@ -260,7 +268,11 @@ impl Session {
     }
 
     /// `set tolerance E`.
-    pub(crate) fn set_tolerance(&mut self, value: &Ast, report: &mut Report) -> R<()> {
+    pub(crate) fn set_tolerance(
+        &mut self,
+        value: &SyntaxExpr,
+        report: &mut Report,
+    ) -> SessionResult<()> {
         let v = self.eval_scalar(value, "the tolerance")?;
         let tol = v.as_number().map(|q| q.to_f64()).unwrap_or(f64::NAN);
         let (lo, hi) = TOLERANCE_RANGE;
@@ -282,7 +294,7 @@ impl Session {
         Ok(())
     }
 
-    pub(crate) fn run_numeric(&mut self, cmd: &Command, report: &mut Report) -> R<()> {
+    pub(crate) fn run_numeric(&mut self, cmd: &Command, report: &mut Report) -> SessionResult<()> {
         match &cmd.kind {
             CommandKind::Simulate { .. } => self.simulate(cmd, report),
             CommandKind::Compare { .. } => self.compare(cmd, report),
@@ -296,7 +308,7 @@ impl Session {
         }
     }
 
-    fn simulate(&mut self, cmd: &Command, report: &mut Report) -> R<()> {
+    fn simulate(&mut self, cmd: &Command, report: &mut Report) -> SessionResult<()> {
         let CommandKind::Simulate {
             field,
             from,
@@ -396,7 +408,7 @@ impl Session {
         Ok(())
     }
 
-    fn phase_indices(&self, ph: &PhasePlot) -> R<(usize, usize)> {
+    fn phase_indices(&self, ph: &PhasePlot) -> SessionResult<(usize, usize)> {
         let find = |id: &super::ast::Ident| {
             self.states
                 .iter()
@@ -429,11 +441,11 @@ impl Session {
     /// The horizon of `compare`: `L` (meaning `eps*t <= L`) or `L/eps^k`.
     fn compare_horizon(
         &self,
-        horizon: &Ast,
+        horizon: &SyntaxExpr,
         eps: Sym,
         exact: &HashMap<Sym, Q>,
         floats: &HashMap<Sym, f64>,
-    ) -> R<Horizon> {
+    ) -> SessionResult<Horizon> {
         let v = self.eval_scalar(horizon, "the horizon")?;
         let v = v
             .subst(&Self::with_map(exact), &self.states)
@@ -476,7 +488,7 @@ impl Session {
         })
     }
 
-    fn compare(&mut self, cmd: &Command, report: &mut Report) -> R<()> {
+    fn compare(&mut self, cmd: &Command, report: &mut Report) -> SessionResult<()> {
         let CommandKind::Compare {
             system,
             model,
@@ -531,7 +543,7 @@ impl Session {
             None => None,
         };
         let period = self.float_of(&info.period.to_expr(), &floats, cmd.span)?;
-        let compile_all = |fields: &[crate::core::Field]| -> R<Vec<CompiledField>> {
+        let compile_all = |fields: &[crate::core::Field]| -> SessionResult<Vec<CompiledField>> {
             fields
                 .iter()
                 .map(|f| CompiledField::new(f, &self.states, &floats))

@@ -8,7 +8,7 @@ use super::error::{no_expr, GrammarError, GrammarResult, ParseErrorKind};
 use super::lex::*;
 use super::words::is_reserved;
 use super::{Parser, MAX_EXPR_DEPTH, MAX_SUM_TERMS};
-use crate::lang::ast::{Arg, BinOp, Expr, ExprKind, Ident, Span};
+use crate::lang::ast::{Arg, BinOp, ExprKind, Ident, Span, SyntaxExpr};
 
 /// Flat sums of at most this many terms keep the left-leaning tree they
 /// are written as (their errors name the operators as written).
@@ -17,7 +17,7 @@ pub(super) const SHORT_SUM: usize = 64;
 /// An expression with the depth of its tree, tracked while building. The
 /// expression is boxed to keep the recursive rules' stack frames small.
 pub(super) struct ExprWithDepth {
-    pub(super) expr: Box<Expr>,
+    pub(super) expr: Box<SyntaxExpr>,
     depth: usize,
 }
 
@@ -41,7 +41,7 @@ impl<'a> Parser<'a> {
             )?;
         }
         Ok(ExprWithDepth {
-            expr: Box::new(Expr::new(kind, span)),
+            expr: Box::new(SyntaxExpr::new(kind, span)),
             depth,
         })
     }
@@ -327,7 +327,7 @@ impl<'a> Parser<'a> {
     pub(super) fn number_atom(&self, at: &'a str) -> GrammarResult<'a, ExprWithDepth> {
         let (rest, text) = self.number(at)?;
         let span = Span::new(self.off(at), self.off(rest));
-        let expr = Box::new(Expr::new(ExprKind::Num(text.to_string()), span));
+        let expr = Box::new(SyntaxExpr::new(ExprKind::Num(text.to_string()), span));
         Ok((rest, ExprWithDepth { expr, depth: 1 }))
     }
 
@@ -349,7 +349,7 @@ impl<'a> Parser<'a> {
             return no_expr(at);
         }
         if !is_call {
-            let expr = Box::new(Expr::new(ExprKind::Name(word.to_string()), name_span));
+            let expr = Box::new(SyntaxExpr::new(ExprKind::Name(word.to_string()), name_span));
             return Ok((rest, ExprWithDepth { expr, depth: 1 }));
         }
         self.call(Ident::new(word, name_span), after)
@@ -578,7 +578,7 @@ impl<'a> Parser<'a> {
     }
 
     /// A required expression.
-    pub(super) fn expect_expr(&self, input: &'a str, what: &str) -> GrammarResult<'a, Expr> {
+    pub(super) fn expect_expr(&self, input: &'a str, what: &str) -> GrammarResult<'a, SyntaxExpr> {
         let (rest, node) = self.require(self.expr(input), input, what)?;
         Ok((rest, *node.expr))
     }

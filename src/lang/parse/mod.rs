@@ -57,7 +57,7 @@ mod tests;
 pub use error::{ParseError, ParseErrorKind};
 pub use words::{is_reserved, COMMAND_WORDS, RESERVED_WORDS, STATEMENT_WORDS};
 
-use crate::lang::ast::{Expr, Span, Stmt};
+use crate::lang::ast::{Span, Stmt, SyntaxExpr};
 use crate::lang::split::{scan_line, BracketFault};
 
 /// The deepest bracket nesting accepted in one statement.
@@ -89,7 +89,7 @@ pub fn parse_stmt(text: &str) -> Result<Stmt, ParseError> {
 
 /// Parses a text that must be exactly one expression (used for expressions
 /// that arrive on their own, e.g. from tests or tools).
-pub fn parse_expr(text: &str) -> Result<Expr, ParseError> {
+pub fn parse_expr(text: &str) -> Result<SyntaxExpr, ParseError> {
     let nesting = check_brackets(text)?;
     with_stack_for(nesting, || {
         let parser = Parser { src: text };

@@ -8,7 +8,7 @@ use super::error::{GrammarError, GrammarResult};
 use super::lex::*;
 use super::words::is_reserved;
 use super::Parser;
-use crate::lang::ast::{Assign, CommandKind, Expr, Ident, PathArg, PhasePlot, Span};
+use crate::lang::ast::{Assign, CommandKind, Ident, PathArg, PhasePlot, Span, SyntaxExpr};
 
 impl<'a> Parser<'a> {
     pub(super) fn simulate(&self, input: &'a str) -> GrammarResult<'a, CommandKind> {
@@ -90,8 +90,8 @@ impl<'a> Parser<'a> {
         let (rest, from) = self.assigns(after_from, "from")?;
         let (mut rest, horizon) = self.horizon(rest)?;
         let mut with: Option<Vec<Assign>> = None;
-        let mut sweep: Option<(Ident, Vec<Expr>)> = None;
-        let mut tol: Option<Expr> = None;
+        let mut sweep: Option<(Ident, Vec<SyntaxExpr>)> = None;
+        let mut tol: Option<SyntaxExpr> = None;
         let mut plot: Option<PathArg> = None;
         let mut paths: Option<PathArg> = None;
         let mut table: Option<PathArg> = None;
@@ -245,7 +245,7 @@ impl<'a> Parser<'a> {
         command: &str,
         word: &str,
         point: &str,
-    ) -> GrammarResult<'a, (Expr, Vec<Assign>, Vec<Assign>)> {
+    ) -> GrammarResult<'a, (SyntaxExpr, Vec<Assign>, Vec<Assign>)> {
         let (rest, field) = self.expect_expr(input, &format!("the field after `{command}`"))?;
         let Some(after_word) = self.keyword(rest, word) else {
             return self.expected(
@@ -269,7 +269,7 @@ impl<'a> Parser<'a> {
     }
 
     /// `for E` after the initial values of `simulate` and `compare`.
-    pub(super) fn horizon(&self, input: &'a str) -> GrammarResult<'a, Expr> {
+    pub(super) fn horizon(&self, input: &'a str) -> GrammarResult<'a, SyntaxExpr> {
         let Some(after_for) = self.keyword(input, "for") else {
             return self.expected(input, "`for` and a time horizon after the initial values");
         };
@@ -277,7 +277,7 @@ impl<'a> Parser<'a> {
     }
 
     /// `NAME = v1, v2, ...` after `sweep`.
-    pub(super) fn sweep(&self, input: &'a str) -> GrammarResult<'a, (Ident, Vec<Expr>)> {
+    pub(super) fn sweep(&self, input: &'a str) -> GrammarResult<'a, (Ident, Vec<SyntaxExpr>)> {
         let (rest, name) = self.name(input, "the swept parameter after `sweep`")?;
         let at = ws(rest);
         if !single_eq(at) {

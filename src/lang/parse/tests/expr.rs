@@ -200,7 +200,7 @@ fn parse_expr_requires_exactly_one_expression() {
 }
 
 /// Random expression trees over a few leaves, operators, calls and lists.
-fn arb_expr() -> impl proptest::strategy::Strategy<Value = Expr> {
+fn arb_expr() -> impl proptest::strategy::Strategy<Value = SyntaxExpr> {
     use proptest::prelude::*;
     let leaf = prop_oneof![
         Just(ExprKind::Name("a".into())),
@@ -208,7 +208,7 @@ fn arb_expr() -> impl proptest::strategy::Strategy<Value = Expr> {
         Just(ExprKind::Num("2".into())),
         Just(ExprKind::Num("0.5".into())),
     ]
-    .prop_map(|kind| Expr::new(kind, Span::default()));
+    .prop_map(|kind| SyntaxExpr::new(kind, Span::default()));
     leaf.prop_recursive(5, 48, 3, |inner| {
         let op = prop_oneof![
             Just(BinOp::Add),
@@ -230,12 +230,12 @@ fn arb_expr() -> impl proptest::strategy::Strategy<Value = Expr> {
             }),
             proptest::collection::vec(inner, 1..3).prop_map(ExprKind::List),
         ]
-        .prop_map(|kind| Expr::new(kind, Span::default()))
+        .prop_map(|kind| SyntaxExpr::new(kind, Span::default()))
     })
 }
 
 /// Binding strength of the outermost operator, as the grammar defines it.
-fn strength(expr: &Expr) -> u8 {
+fn strength(expr: &SyntaxExpr) -> u8 {
     match &expr.kind {
         ExprKind::Bin(BinOp::Add | BinOp::Sub, ..) => 1,
         ExprKind::Bin(BinOp::Mul | BinOp::Div, ..) => 2,
@@ -246,7 +246,7 @@ fn strength(expr: &Expr) -> u8 {
 }
 
 /// Writes `expr` with only the parentheses the precedence rules require.
-fn print_min(expr: &Expr, min: u8) -> String {
+fn print_min(expr: &SyntaxExpr, min: u8) -> String {
     let body = match &expr.kind {
         ExprKind::Num(text) | ExprKind::Name(text) => text.clone(),
         ExprKind::Neg(inner) => format!("-{}", print_min(inner, 3)),

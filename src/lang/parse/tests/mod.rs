@@ -13,7 +13,7 @@ use super::{
     parse_expr, parse_stmt, ParseError, ParseErrorKind, INLINE_NESTING, MAX_EXPR_DEPTH, MAX_NESTING,
 };
 use crate::lang::ast::{
-    Arg, BinOp, Command, CommandKind, Expr, ExprKind, Ident, Rhs, Span, Stmt, StmtKind,
+    Arg, BinOp, Command, CommandKind, ExprKind, Ident, Rhs, Span, Stmt, StmtKind, SyntaxExpr,
 };
 
 pub(super) fn stmt(text: &str) -> Stmt {
@@ -23,7 +23,7 @@ pub(super) fn stmt(text: &str) -> Stmt {
     }
 }
 
-pub(super) fn expr(text: &str) -> Expr {
+pub(super) fn expr(text: &str) -> SyntaxExpr {
     match parse_expr(text) {
         Ok(expr) => expr,
         Err(err) => panic!("{text:?} failed: {err} at {:?}", err.span),
