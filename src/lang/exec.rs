@@ -275,7 +275,7 @@ impl Session {
                 ),
             ));
         }
-        if super::eval::BUILTINS.contains(&id.name.as_str()) {
+        if super::builtins::is_builtin(&id.name) {
             return Err(SessionError::invalid(
                 id.span,
                 format!("`{}` is a built-in function", id.name),

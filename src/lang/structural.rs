@@ -466,7 +466,8 @@ impl Session {
             .filter_map(|a| if let Arg::Pos(e) = a { Some(e) } else { None })
             .collect();
         if pos.len() != 3 || pos.len() != args.len() {
-            return Err(SessionError::invalid(name.span, "usage: bch(X, Y, N)"));
+            let usage = super::builtins::find("bch").map_or("", |builtin| builtin.usage);
+            return Err(SessionError::invalid(name.span, format!("usage: {usage}")));
         }
         let x = self.eval_field(pos[0], "the first argument of `bch`")?;
         let y = self.eval_field(pos[1], "the second argument of `bch`")?;
