@@ -1,7 +1,8 @@
-//! Syntax errors: their kinds, carets and wording.
+//! Syntax errors: their kinds, carets and wording, and inline snapshots
+//! of the rendered report (message and caret) for malformed inputs.
 
 use super::*;
-use crate::lang::diag::line_col;
+use crate::lang::diag::{line_col, render_error};
 
 #[test]
 fn bad_inputs_report_kind_and_caret_column() {
@@ -546,4 +547,107 @@ proptest::proptest! {
             proptest::prop_assert!(err.span.end <= text.len());
         }
     }
+}
+
+/// The report of the syntax error in `input` as the front end shows it: the
+/// place, the message, the line and the caret under the offending token.
+fn rendered(input: &str) -> String {
+    let err = error(input);
+    render_error(Some("input"), 1, 0, input, err.span, &err.to_string())
+}
+
+/// One test per malformed input, comparing its rendered report with an
+/// inline snapshot.
+macro_rules! error_snapshots {
+    ($($name:ident: $input:expr => @$snapshot:literal;)*) => {
+        $(
+            #[test]
+            fn $name() {
+                insta::assert_snapshot!(rendered($input), @$snapshot);
+            }
+        )*
+    };
+}
+
+error_snapshots! {
+    missing_operand_after_plus: "x +" => @r#"
+        input:1:4: error: expected an expression after `+`, found the end of the line
+            x +
+               ^
+    "#;
+    missing_order_after_to: "flow V to" => @r#"
+        input:1:10: error: expected an order (a whole number) after `to`, found the end of the line
+            flow V to
+                     ^
+    "#;
+    reserved_word_as_state: "state t" => @r#"
+        input:1:7: error: `t` is a reserved word and cannot be used as a name
+            state t
+                  ^
+    "#;
+    unclosed_call_bracket: "sin(x" => @r#"
+        input:1:4: error: `(` is never closed
+            sin(x
+               ^
+    "#;
+    mismatched_closing_bracket: "f(a, [b, c)" => @r#"
+        input:1:11: error: `)` cannot close `[` (expected `]`)
+            f(a, [b, c)
+                      ^
+    "#;
+    stray_closing_bracket: "x = 1]" => @r#"
+        input:1:6: error: `]` has no matching opening bracket
+            x = 1]
+                 ^
+    "#;
+    implicit_multiplication: "2x" => @r#"
+        input:1:2: error: missing `*` between `2` and `x`: implicit multiplication is not allowed
+            2x
+             ^
+    "#;
+    two_decimal_points: "1.2.3" => @r#"
+        input:1:1: error: malformed number `1.2.3`: a number has at most one decimal point
+            1.2.3
+            ^^^^^
+    "#;
+    exponent_without_digits: "y = 1e" => @r#"
+        input:1:5: error: malformed number `1e`: the exponent has no digits
+            y = 1e
+                ^^
+    "#;
+    unterminated_quoted_file_name: "save \"my file" => @r#"
+        input:1:6: error: quoted file name without its closing `"`
+            save "my file
+                 ^
+    "#;
+    optional_part_given_twice: "average V to 2 in eps depth 1 depth 2" => @r#"
+        input:1:31: error: `depth` is given more than once
+            average V to 2 in eps depth 1 depth 2
+                                          ^^^^^
+    "#;
+    comparison_outside_check: "x == y" => @r#"
+        input:1:3: error: expected the end of the line (to compare two sides, write `check A == B`), found `==`
+            x == y
+              ^^
+    "#;
+    greek_letter_as_a_name: "θ = 1" => @r#"
+        input:1:1: error: expected a statement or an expression, found `θ` (names are ASCII letters, digits and `_`: for `θ` write `theta` or `th`; LaTeX output shows it as the letter)
+            θ = 1
+            ^
+    "#;
+    simulate_without_horizon: "simulate V from q = 1" => @r#"
+        input:1:22: error: expected `for` and a time horizon after the initial values, found the end of the line
+            simulate V from q = 1
+                                 ^
+    "#;
+    order_too_large: "magnus V to 99999999999999999999" => @r#"
+        input:1:13: error: `99999999999999999999` is too large (at most 18446744073709551615)
+            magnus V to 99999999999999999999
+                        ^^^^^^^^^^^^^^^^^^^^
+    "#;
+    show_without_format_word: "show x as" => @r#"
+        input:1:10: error: expected a format word after `as`, such as `latex` or `brackets`, found the end of the line
+            show x as
+                     ^
+    "#;
 }
