@@ -30,7 +30,7 @@ use rustyline::{CompletionType, Config, Context, Editor, Helper};
 use super::journal::{Claim, Journal, Resumed, Unterminated};
 use super::{home_dir, new_session, HomeKind, Invocation, Output, Painter};
 use crate::core::limits;
-use crate::lang::eval::BUILTINS;
+use crate::lang::builtins::BUILTIN_NAMES;
 use crate::lang::parse::RESERVED_WORDS;
 use crate::lang::session::render_error;
 use crate::lang::split::{needs_more, split_statements, SourceStmt};
@@ -514,7 +514,7 @@ struct PromptHelper {
 pub(crate) fn candidates(prefix: &str, names: &[String]) -> Vec<String> {
     let mut words: Vec<String> = RESERVED_WORDS
         .iter()
-        .chain(BUILTINS.iter())
+        .chain(BUILTIN_NAMES.iter())
         .map(|w| w.to_string())
         .chain(names.iter().cloned())
         .filter(|w| w.starts_with(prefix))

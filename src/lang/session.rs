@@ -127,6 +127,9 @@ pub enum ErrorKind {
     },
 }
 
+/// What the session's steps return: a value, or an error with its span.
+pub(crate) type SessionResult<T> = Result<T, SessionError>;
+
 /// An error with the span of the offending input.
 #[derive(Clone, Debug, PartialEq)]
 pub struct SessionError {

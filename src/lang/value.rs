@@ -15,7 +15,7 @@ use crate::render::{latex, plain};
 /// A linear combination `Σ c_i X_i` of named fields with scalar
 /// coefficients free of the state (functions of time and parameters).
 #[derive(Clone, Debug, PartialEq)]
-pub struct Combo {
+pub struct FieldCombination {
     /// `(name, value of the field, coefficient)` in order of first appearance.
     pub parts: Vec<(String, Field, Expr)>,
 }
@@ -37,7 +37,7 @@ pub struct FieldValue {
     /// The concrete field.
     pub field: Field,
     /// How it was written over named fields, when known.
-    pub combo: Option<Combo>,
+    pub combo: Option<FieldCombination>,
     /// A structural display (Lie polynomial), when known.
     pub structure: Option<Vec<BracketTerm>>,
     /// The averaging result behind this field, for `compare`.
