@@ -20,7 +20,8 @@ use crate::core::expr::Keep;
 use crate::core::expr::TimeFactor;
 use crate::core::expr::{TimePart, TimeParts};
 use crate::core::field::{
-    bracket_sum_onto_parts, bracket_sum_onto_prepared, BracketStart, Prepared,
+    bracket_sum_onto_parts, bracket_sum_onto_prepared, bracket_work, map_on_workers, BracketStart,
+    Prepared,
 };
 use crate::core::{limits, CoreError, CoreResult, Expr, Field, Matrix, Sym, Q};
 use crate::series::chrono::{magnus_generator, Graded};
@@ -345,7 +346,13 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
                 .max()
                 .unwrap_or(Q::ZERO);
         }
-        for p in 1..=n - k {
+        // The sums H_{p,k}, p = 1..n−k, use lower orders only: they are
+        // independent, and the cores share them.
+        let work: Vec<usize> = (1..=n - k)
+            .map(|p| bracket_work(&grade_pairs(&w, &h[p + 1], k)))
+            .collect();
+        let sums = map_on_workers(&work, |i| {
+            let p = i + 1;
             limits::poll()?;
             // On the last diagonal (p + k = n), H_{p,k} reaches F_n only
             // through p brackets with W_1 and the mean: frequencies above
@@ -363,7 +370,10 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
                 ),
             ];
             let pairs = grade_pairs(&w, &h[p + 1], k);
-            h[p][k] = bracket_sum_onto_prepared(&u, &pairs, true, states, keep)?;
+            bracket_sum_onto_prepared(&u, &pairs, true, states, keep)
+        })?;
+        for (p, sum) in (1..).zip(sums) {
+            h[p][k] = sum;
         }
         f_out.push(fk);
     }

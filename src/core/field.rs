@@ -49,18 +49,101 @@ pub(crate) fn with_workers<R>(workers: usize, f: impl FnOnce() -> R) -> R {
     out
 }
 
-/// The workers for a sum of `work` term products: none (one thread) below
-/// [`PARALLEL_WORK`].
+thread_local! {
+    /// True on the workers of [`on_workers`]: their sums do not split again.
+    static ON_WORKER: std::cell::Cell<bool> = const { std::cell::Cell::new(false) };
+}
+
+/// The workers for `work` term products: one below [`PARALLEL_WORK`] and
+/// on a worker already.
 fn workers_for(work: usize) -> usize {
     #[cfg(test)]
     if let Some(w) = WORKERS.with(std::cell::Cell::get) {
         return w;
     }
-    if work < PARALLEL_WORK {
+    if work < PARALLEL_WORK || ON_WORKER.with(std::cell::Cell::get) {
         1
     } else {
         parallelism()
     }
+}
+
+/// Runs `body` on `workers` scoped threads, each with this thread's limits
+/// (counting work against this statement) and without further splits; the
+/// results in the order of the workers.
+fn on_workers<R: Send>(
+    workers: usize,
+    body: impl Fn() -> CoreResult<R> + Sync,
+) -> Vec<CoreResult<R>> {
+    let ctx = limits::context();
+    std::thread::scope(|scope| {
+        let handles: Vec<_> = (0..workers)
+            .map(|_| {
+                let (body, ctx) = (&body, ctx.clone());
+                scope.spawn(move || {
+                    limits::enter(ctx);
+                    ON_WORKER.with(|w| w.set(true));
+                    body()
+                })
+            })
+            .collect();
+        handles
+            .into_iter()
+            .map(|h| h.join().unwrap_or(Err(CoreError::Interrupted)))
+            .collect()
+    })
+}
+
+/// The term products of a sum of brackets of these pairs, as
+/// [`bracket_sum`] estimates them to decide on a split.
+pub fn bracket_work(pairs: &[(&Prepared, &Prepared)]) -> usize {
+    pairs.iter().fold(0usize, |w, (x, y)| {
+        w.saturating_add(x.n_terms.saturating_mul(y.n_terms))
+    })
+}
+
+/// `f(0), …, f(count − 1)` computed on the available cores when `work`
+/// (the estimated term products of each) is large, largest first; one at a
+/// time otherwise, and when the largest is more than half the total (then
+/// its own sum is better split, see [`bracket_sum`]). The results are in
+/// the order of the indices whatever thread computed them.
+pub fn map_on_workers<T: Send>(
+    work: &[usize],
+    f: impl Fn(usize) -> CoreResult<T> + Sync,
+) -> CoreResult<Vec<T>> {
+    let total = work.iter().fold(0usize, |a, &w| a.saturating_add(w));
+    let largest = work.iter().copied().max().unwrap_or(0);
+    let workers = workers_for(total).min(work.len());
+    if workers < 2 || largest > total / 2 {
+        return (0..work.len()).map(f).collect();
+    }
+    let mut order: Vec<usize> = (0..work.len()).collect();
+    order.sort_by_key(|&i| std::cmp::Reverse(work[i]));
+    let next = std::sync::atomic::AtomicUsize::new(0);
+    let failed = std::sync::atomic::AtomicBool::new(false);
+    let results = on_workers(workers, || {
+        let mut done = Vec::new();
+        while !failed.load(std::sync::atomic::Ordering::Relaxed) {
+            let k = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+            let Some(&i) = order.get(k) else {
+                break;
+            };
+            match f(i) {
+                Ok(t) => done.push((i, t)),
+                Err(e) => {
+                    failed.store(true, std::sync::atomic::Ordering::Relaxed);
+                    return Err(e);
+                }
+            }
+        }
+        Ok(done)
+    });
+    let mut out: Vec<(usize, T)> = Vec::with_capacity(work.len());
+    for r in results {
+        out.extend(r?);
+    }
+    out.sort_by_key(|(i, _)| *i);
+    Ok(out.into_iter().map(|(_, t)| t).collect())
 }
 
 /// A (possibly time-varying) vector field in the coordinates of a state list.
@@ -430,10 +513,7 @@ fn component_sums<T: Send>(
         acc.add_product_harmonics(&x.parts[s], &y.d[i][s], negate, keep)?;
         acc.add_product_harmonics(&y.parts[s], &x.d[i][s], !negate, keep)
     };
-    let work = pairs.iter().fold(0usize, |w, (x, y)| {
-        w.saturating_add(x.n_terms.saturating_mul(y.n_terms))
-    });
-    let workers = workers_for(work);
+    let workers = workers_for(bracket_work(pairs));
     if workers < 2 {
         return (0..n)
             .map(|i| {
@@ -452,34 +532,20 @@ fn component_sums<T: Send>(
     let workers = workers.min(pieces.len()).max(1);
     let next = std::sync::atomic::AtomicUsize::new(0);
     let failed = std::sync::atomic::AtomicBool::new(false);
-    let ctx = limits::context();
-    let partials: Vec<CoreResult<Vec<Option<SumBuilder>>>> = std::thread::scope(|scope| {
-        let handles: Vec<_> = (0..workers)
-            .map(|_| {
-                let (add_piece, pieces, next, failed) = (&add_piece, &pieces, &next, &failed);
-                let ctx = ctx.clone();
-                scope.spawn(move || {
-                    limits::enter(ctx);
-                    let mut accs: Vec<Option<SumBuilder>> = (0..n).map(|_| None).collect();
-                    while !failed.load(std::sync::atomic::Ordering::Relaxed) {
-                        let k = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
-                        let Some(piece) = pieces.get(k) else {
-                            break;
-                        };
-                        let acc = accs[piece.component].get_or_insert_with(SumBuilder::new);
-                        if let Err(e) = add_piece(acc, piece) {
-                            failed.store(true, std::sync::atomic::Ordering::Relaxed);
-                            return Err(e);
-                        }
-                    }
-                    Ok(accs)
-                })
-            })
-            .collect();
-        handles
-            .into_iter()
-            .map(|h| h.join().unwrap_or(Err(CoreError::Interrupted)))
-            .collect()
+    let partials = on_workers(workers, || {
+        let mut accs: Vec<Option<SumBuilder>> = (0..n).map(|_| None).collect();
+        while !failed.load(std::sync::atomic::Ordering::Relaxed) {
+            let k = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+            let Some(piece) = pieces.get(k) else {
+                break;
+            };
+            let acc = accs[piece.component].get_or_insert_with(SumBuilder::new);
+            if let Err(e) = add_piece(acc, piece) {
+                failed.store(true, std::sync::atomic::Ordering::Relaxed);
+                return Err(e);
+            }
+        }
+        Ok(accs)
     });
     // By component, the partial sums in the order of the workers.
     let mut by_component: Vec<Vec<SumBuilder>> = (0..n).map(|_| Vec::new()).collect();
