@@ -4,3 +4,8 @@
 pub mod code;
 pub(crate) mod latex;
 pub(crate) mod plain;
+
+#[cfg(test)]
+mod testing;
+#[cfg(test)]
+mod tests;

@@ -4,7 +4,42 @@
 
 use std::ops::Range;
 
+use plotters::coord::types::RangedCoordf64;
+use plotters::prelude::*;
+
+use super::svg::{clean_text, render_error, Area, Frame};
 use super::PlotError;
+
+/// A chart on linear axes.
+pub(super) type LinearChart<'a, 'b> =
+    ChartContext<'a, SVGBackend<'b>, Cartesian2d<RangedCoordf64, RangedCoordf64>>;
+
+/// A chart on linear axes over `x_range` and `y_range` in `frame`, its
+/// mesh drawn: the axes described by `desc` (x, y), tick labels rounded
+/// for the span of their axis.
+pub(super) fn linear_chart<'a, 'b>(
+    area: &'a Area<'b>,
+    frame: &Frame<'_>,
+    desc: (&str, &str),
+    x_range: &Range<f64>,
+    y_range: &Range<f64>,
+) -> Result<LinearChart<'a, 'b>, PlotError> {
+    let mut chart = frame
+        .builder(area)
+        .build_cartesian_2d(x_range.clone(), y_range.clone())
+        .map_err(render_error)?;
+    chart
+        .configure_mesh()
+        .x_desc(clean_text(desc.0))
+        .y_desc(clean_text(desc.1))
+        .x_label_formatter(&|v| tick_label(*v, x_range.end - x_range.start))
+        .y_label_formatter(&|v| tick_label(*v, y_range.end - y_range.start))
+        .label_style(("sans-serif", frame.tick_size))
+        .axis_desc_style(("sans-serif", 16))
+        .draw()
+        .map_err(render_error)?;
+    Ok(chart)
+}
 
 /// A linear axis range around the values with a 5% margin.
 ///

@@ -7,7 +7,7 @@ use plotters::prelude::*;
 
 use super::axes::{is_loggable, log_range, log_ticks, short_sci};
 use super::legend::{draw_legend, legend_label, legend_mark, Legend};
-use super::svg::{clean_text, palette, polyline, render, render_error, SIZE};
+use super::svg::{clean_text, palette, polyline, render, render_error, Frame, SIZE};
 use super::{check_len, PlotError};
 
 /// Plot error against the small parameter on log–log axes, one line with
@@ -51,12 +51,14 @@ pub(crate) fn error_vs_eps_svg(
     let y_range = y_range.start..10f64.powf(log_y.end);
 
     render(SIZE, |area| {
-        let mut chart = ChartBuilder::on(area)
-            .caption(clean_text(title), ("sans-serif", 22))
-            .margin(12)
-            .margin_right(24)
-            .x_label_area_size(45)
-            .y_label_area_size(80)
+        let frame = Frame {
+            caption: Some((title, 22)),
+            margin: 12,
+            x_label_area: 45,
+            tick_size: 14,
+        };
+        let mut chart = frame
+            .builder(area)
             .build_cartesian_2d(
                 x_range
                     .clone()
@@ -72,7 +74,7 @@ pub(crate) fn error_vs_eps_svg(
             .configure_mesh()
             .x_desc("eps (log scale)")
             .y_desc(clean_text(y_desc))
-            .label_style(("sans-serif", 14))
+            .label_style(("sans-serif", frame.tick_size))
             .axis_desc_style(("sans-serif", 16))
             .x_label_formatter(&|v| short_sci(*v))
             .y_label_formatter(&|v| short_sci(*v))

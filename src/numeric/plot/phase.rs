@@ -2,9 +2,9 @@
 
 use plotters::prelude::*;
 
-use super::axes::{finite_points, linear_range, tick_label};
+use super::axes::{finite_points, linear_chart, linear_range};
 use super::legend::{draw_legend, legend_mark, Legend};
-use super::svg::{clean_text, palette, polyline, render, render_error, SQUARE};
+use super::svg::{palette, polyline, render, render_error, Frame, SQUARE};
 use super::{check_len, PlotError};
 
 /// A phase portrait: the curve `(xs[i], ys[i])` with its start marked,
@@ -24,24 +24,13 @@ pub(crate) fn phase_svg(
     let (corner, y_range) = legend.place(&x_range, y_range, points.iter().copied());
     let start = points.first().copied();
     render(SQUARE, |area| {
-        let mut chart = ChartBuilder::on(area)
-            .caption(clean_text(title), ("sans-serif", 22))
-            .margin(12)
-            .margin_right(24)
-            .x_label_area_size(45)
-            .y_label_area_size(80)
-            .build_cartesian_2d(x_range.clone(), y_range.clone())
-            .map_err(render_error)?;
-        chart
-            .configure_mesh()
-            .x_desc(clean_text(x_name))
-            .y_desc(clean_text(y_name))
-            .x_label_formatter(&|v| tick_label(*v, x_range.end - x_range.start))
-            .y_label_formatter(&|v| tick_label(*v, y_range.end - y_range.start))
-            .label_style(("sans-serif", 14))
-            .axis_desc_style(("sans-serif", 16))
-            .draw()
-            .map_err(render_error)?;
+        let frame = Frame {
+            caption: Some((title, 22)),
+            margin: 12,
+            x_label_area: 45,
+            tick_size: 14,
+        };
+        let mut chart = linear_chart(area, &frame, (x_name, y_name), &x_range, &y_range)?;
         let color = palette(0);
         chart
             .draw_series(polyline(&points, color, 2))

@@ -3,10 +3,10 @@
 
 use plotters::prelude::*;
 
-use super::axes::{finite_points, linear_range, tick_label};
+use super::axes::{finite_points, linear_chart, linear_range};
 use super::legend::{draw_legend, legend_label, legend_mark, Legend};
 use super::svg::{
-    clean_text, palette, polyline, render, render_error, PANEL_HEIGHT, SIZE, SYSTEM_GREY,
+    clean_text, palette, polyline, render, render_error, Frame, PANEL_HEIGHT, SIZE, SYSTEM_GREY,
 };
 use super::{check_len, PlotError};
 
@@ -38,24 +38,13 @@ pub(crate) fn time_series_svg(
     let (corner, y_range) = legend.place(&x_range, y_range, all().copied());
 
     render(SIZE, |area| {
-        let mut chart = ChartBuilder::on(area)
-            .caption(clean_text(title), ("sans-serif", 24))
-            .margin(12)
-            .margin_right(24)
-            .x_label_area_size(45)
-            .y_label_area_size(80)
-            .build_cartesian_2d(x_range.clone(), y_range.clone())
-            .map_err(render_error)?;
-        chart
-            .configure_mesh()
-            .x_desc("t")
-            .y_desc("state")
-            .x_label_formatter(&|v| tick_label(*v, x_range.end - x_range.start))
-            .y_label_formatter(&|v| tick_label(*v, y_range.end - y_range.start))
-            .label_style(("sans-serif", 14))
-            .axis_desc_style(("sans-serif", 16))
-            .draw()
-            .map_err(render_error)?;
+        let frame = Frame {
+            caption: Some((title, 24)),
+            margin: 12,
+            x_label_area: 45,
+            tick_size: 14,
+        };
+        let mut chart = linear_chart(area, &frame, ("t", "state"), &x_range, &y_range)?;
         for (idx, (name, points)) in lines.iter().enumerate() {
             let color = palette(idx);
             chart
@@ -73,6 +62,14 @@ pub(crate) fn time_series_svg(
         draw_legend(&mut chart, corner)
     })
 }
+
+/// The frame of one panel of a plot of paths (the title is the plot's).
+const PANEL: Frame<'static> = Frame {
+    caption: None,
+    margin: 8,
+    x_label_area: 40,
+    tick_size: 13,
+};
 
 /// The true and averaged trajectories overlaid, one panel per state
 /// (stacked, sharing the time axis): the system as a thin line in grey,
@@ -120,23 +117,7 @@ pub(crate) fn paths_svg(
             .map_err(render_error)?;
         let parts = area.split_evenly((panels.len(), 1));
         for (part, (name, lines, x_range, y_range, corner)) in parts.iter().zip(&panels) {
-            let mut chart = ChartBuilder::on(part)
-                .margin(8)
-                .margin_right(24)
-                .x_label_area_size(40)
-                .y_label_area_size(80)
-                .build_cartesian_2d(x_range.clone(), y_range.clone())
-                .map_err(render_error)?;
-            chart
-                .configure_mesh()
-                .x_desc("t")
-                .y_desc(clean_text(name))
-                .x_label_formatter(&|v| tick_label(*v, x_range.end - x_range.start))
-                .y_label_formatter(&|v| tick_label(*v, y_range.end - y_range.start))
-                .label_style(("sans-serif", 13))
-                .axis_desc_style(("sans-serif", 16))
-                .draw()
-                .map_err(render_error)?;
+            let mut chart = linear_chart(part, &PANEL, ("t", name), x_range, y_range)?;
             for (idx, (label, points)) in lines.iter().enumerate() {
                 let (color, width) = if idx == 0 {
                     (SYSTEM_GREY, 1)

@@ -23,6 +23,36 @@ pub(super) const SIZE: (u32, u32) = (800, 500);
 
 pub(super) type Area<'a> = DrawingArea<SVGBackend<'a>, Shift>;
 
+/// The frame of a chart: its caption (title and font size; none for a
+/// panel of a stacked plot), its margin, the room under the x axis and
+/// the size of tick labels.
+pub(super) struct Frame<'t> {
+    pub(super) caption: Option<(&'t str, u32)>,
+    pub(super) margin: u32,
+    pub(super) x_label_area: u32,
+    pub(super) tick_size: u32,
+}
+
+impl Frame<'_> {
+    /// A chart builder on `area` in this frame (80 units left of the y
+    /// axis, 24 to the right of the plotting area).
+    pub(super) fn builder<'a, 'b>(
+        &self,
+        area: &'a Area<'b>,
+    ) -> ChartBuilder<'a, 'static, SVGBackend<'b>> {
+        let mut builder = ChartBuilder::on(area);
+        if let Some((title, size)) = self.caption {
+            builder.caption(clean_text(title), ("sans-serif", size));
+        }
+        builder
+            .margin(self.margin)
+            .margin_right(24)
+            .x_label_area_size(self.x_label_area)
+            .y_label_area_size(80);
+        builder
+    }
+}
+
 /// Render a chart into an SVG string. A panic inside the plotting library
 /// (which the range guards should already rule out) becomes an error.
 pub(super) fn render<F>(size: (u32, u32), draw: F) -> Result<String, PlotError>
