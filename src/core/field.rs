@@ -33,10 +33,10 @@ pub(crate) fn parallelism() -> usize {
     })
 }
 
-/// Workers and the least work of a split sum for the sums on this thread,
-/// when a test sets them (see [`with_workers`]).
 #[cfg(test)]
 thread_local! {
+    /// The workers of the sums on this thread, split however small they
+    /// are, when a test sets them (see [`with_workers`]).
     static WORKERS: std::cell::Cell<Option<usize>> = const { std::cell::Cell::new(None) };
 }
 
