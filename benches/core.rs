@@ -472,14 +472,72 @@ fn bench_functions_here() -> CoreResult<()> {
     Ok(())
 }
 
+/// The plane pair of the worked BCH session: X = (y, −x³), Y = (xy, y² − x).
+fn bch_plane_pair() -> CoreResult<(Vec<Sym>, [Field; 2])> {
+    let st = states(&["x", "y"]);
+    let (x, y) = (Expr::sym(st[0]), Expr::sym(st[1]));
+    let pair = [
+        Field(vec![y.clone(), x.pow(3)?.scale(&Q::int(-1))]),
+        Field(vec![x.mul(&y)?, y.pow(2)?.sub(&x)]),
+    ];
+    Ok((st, pair))
+}
+
+/// The whole structural `bch(X, Y, n)` on the plane pair: the Lyndon
+/// coordinates and the field they give; the number of nonzero
+/// coordinates and of terms of the field.
+fn bch_on_plane_pair(n: u32, threads: usize) -> CoreResult<(usize, usize)> {
+    use ordex::series::{freelie, lie_fields};
+    let refused = |e: freelie::FreeLieError| CoreError::Refused {
+        reason: e.to_string(),
+    };
+    let (st, pair) = bch_plane_pair()?;
+    let terms = freelie::bch(n, threads, &mut |_| true, &|| false).map_err(refused)?;
+    let count = terms.len();
+    let poly = freelie::LiePoly::from_sorted_terms(
+        terms
+            .into_iter()
+            .map(|(w, c)| (w, Expr::num(Q::from_big(c))))
+            .collect(),
+    );
+    let field = lie_fields::evaluate_on_fields(&poly, &pair, &st)?;
+    Ok((count, field.n_terms()))
+}
+
+/// The peak resident memory of this process in kB (`VmHWM`).
+fn peak_rss_kb() -> u64 {
+    std::fs::read_to_string("/proc/self/status")
+        .ok()
+        .and_then(|s| {
+            s.lines()
+                .find(|l| l.starts_with("VmHWM:"))
+                .and_then(|l| l.split_whitespace().nth(1)?.parse().ok())
+        })
+        .unwrap_or(0)
+}
+
+/// One degree in a fresh process (so that its peak memory is its own):
+/// prints `ms peak_kb nonzero field_terms`.
+fn bch_child(n: u32) -> CoreResult<()> {
+    let t0 = Instant::now();
+    let (count, terms) = bch_on_plane_pair(n, 2)?;
+    println!(
+        "{} {} {count} {terms}",
+        t0.elapsed().as_secs_f64() * 1e3,
+        peak_rss_kb()
+    );
+    Ok(())
+}
+
 /// Structural BCH, `log(e^X e^Y)` in the Lyndon basis: the Lyndon-word
-/// route on one and two threads, and the tensor-algebra route (the tests'
-/// oracle) where it finishes in seconds. `ORDEX_BCH_MAX` raises the top
-/// degree (default 20).
+/// solve on one and two threads (checked against the tensor-algebra route,
+/// the tests' oracle, where that finishes in seconds), then the whole
+/// `bch(X, Y, n)` on the plane pair, each degree in its own process for its
+/// time and peak memory, with the growth from the degree before.
+/// `ORDEX_BCH_MAX` raises the top degree (default 20).
 fn bench_bch() -> CoreResult<()> {
     use num_rational::BigRational;
-    use ordex::series::freelie::bch_by_tensor;
-    use ordex::series::freelie as lyndon;
+    use ordex::series::freelie::{self, bch_by_tensor};
     let top: u32 = std::env::var("ORDEX_BCH_MAX")
         .ok()
         .and_then(|v| v.parse().ok())
@@ -491,7 +549,7 @@ fn bench_bch() -> CoreResult<()> {
     let run = |n: u32, threads: usize| {
         let reps = if n <= 16 { 5 } else { 2 };
         timed_runs(reps, Duration::from_millis(300), || {
-            lyndon::bch(n, threads, &mut |_| true, &|| false).map_err(|e| CoreError::Refused {
+            freelie::bch(n, threads, &mut |_| true, &|| false).map_err(|e| CoreError::Refused {
                 reason: e.to_string(),
             })
         })
@@ -521,7 +579,7 @@ fn bench_bch() -> CoreResult<()> {
         };
         println!(
             "| {n} | {} | {} | {} | {} | {:.2} | {} | {} |",
-            lyndon::witt_total(n as u8),
+            freelie::witt_total(n as u8),
             series.len(),
             ms(one.fastest),
             ms(two.fastest),
@@ -534,10 +592,58 @@ fn bench_bch() -> CoreResult<()> {
         );
     }
     println!();
+    println!("### bch(X, Y, n) on the plane pair X = (y, -x^3), Y = (xy, y^2 - x), one process per degree");
+    println!();
+    println!("| degree | nonzero | field terms | ms | peak RSS MB | time / degree n-2 | memory / degree n-2 |");
+    println!("|---|---|---|---|---|---|---|");
+    let exe = std::env::current_exe().map_err(|e| CoreError::Refused {
+        reason: e.to_string(),
+    })?;
+    let mut before: Option<(f64, f64)> = None;
+    for n in (10..=top).step_by(2) {
+        let out = std::process::Command::new(&exe)
+            .env("ORDEX_BCH_CHILD", n.to_string())
+            .output()
+            .map_err(|e| CoreError::Refused {
+                reason: e.to_string(),
+            })?;
+        let text = String::from_utf8_lossy(&out.stdout);
+        let v: Vec<f64> = text
+            .split_whitespace()
+            .filter_map(|w| w.parse().ok())
+            .collect();
+        let [ms_total, kb, count, terms] = v[..] else {
+            return Err(CoreError::Refused {
+                reason: format!("degree {n}: the child printed {text:?}"),
+            });
+        };
+        let mb = kb / 1024.0;
+        let ratio = |now: f64, then: Option<f64>| {
+            then.map_or("-".to_string(), |t| format!("{:.1}x", now / t))
+        };
+        println!(
+            "| {n} | {count} | {terms} | {ms_total:.0} | {mb:.1} | {} | {} |",
+            ratio(ms_total, before.map(|b| b.0)),
+            ratio(mb, before.map(|b| b.1)),
+        );
+        before = Some((ms_total, mb));
+    }
+    println!();
     Ok(())
 }
 
 fn main() {
+    // One degree of the BCH table in its own process (see `bench_bch`).
+    if let Some(n) = std::env::var("ORDEX_BCH_CHILD")
+        .ok()
+        .and_then(|v| v.parse().ok())
+    {
+        if let Err(e) = bch_child(n) {
+            eprintln!("benchmark failed: {e}");
+            std::process::exit(1);
+        }
+        return;
+    }
     // `cargo bench` passes `--bench`; a filter word selects one issue.
     let filter: Vec<String> = std::env::args()
         .skip(1)

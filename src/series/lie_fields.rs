@@ -233,7 +233,8 @@ fn length_sum(terms: &[Term], values: &mut Values) -> CoreResult<Field> {
             Term::Pair(u, v, c) => match c.as_number() {
                 Some(q) => by_left.entry(*u).or_default().push((*v, q)),
                 None => {
-                    let field = bracket_sum(&[(values.get(*u)?, values.get(*v)?)], states, Keep::All)?;
+                    let field =
+                        bracket_sum(&[(values.get(*u)?, values.get(*v)?)], states, Keep::All)?;
                     others.push(field.mul_expr(c)?)?;
                 }
             },
@@ -268,7 +269,9 @@ fn length_sum(terms: &[Term], values: &mut Values) -> CoreResult<Field> {
             }
         }
     }
-    Ok(others.finish()?.unwrap_or_else(|| Field::zero(states.len())))
+    Ok(others
+        .finish()?
+        .unwrap_or_else(|| Field::zero(states.len())))
 }
 
 /// Fields added pairwise as they come, sums of equally many fields first

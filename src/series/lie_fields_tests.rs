@@ -124,7 +124,10 @@ fn two_step_nilpotent_pair_ends_at_the_first_bracket() {
     let got = evaluate_on_fields(&bch(8), &letters, &st).expect("fields");
     assert_eq!(
         got,
-        Field(vec![Expr::int(1), x().add(&Expr::num(Q::ratio(1, 2).expect("1/2")))])
+        Field(vec![
+            Expr::int(1),
+            x().add(&Expr::num(Q::ratio(1, 2).expect("1/2")))
+        ])
     );
 }
 

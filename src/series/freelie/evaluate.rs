@@ -2,9 +2,9 @@
 
 use std::collections::HashMap;
 
+use super::coeff::Coeff;
 use super::error::FreeLieError;
 use super::lyndon_basis::LiePoly;
-use super::coeff::Coeff;
 use super::words::{standard_factorization, Letter, Word};
 
 /// Evaluates a Lie polynomial with concrete values: `letter_value` gives the

@@ -21,7 +21,10 @@ pub(super) struct LyndonExpansions {
 impl LyndonExpansions {
     /// The expansion of `word`; `C` is only asked whether to keep going
     /// (an expansion of a word of length L can hold 2^(L-1) words).
-    pub(super) fn get<C: Coeff>(&mut self, word: &[Letter]) -> Result<Rc<Vec<(Word, i64)>>, FreeLieError> {
+    pub(super) fn get<C: Coeff>(
+        &mut self,
+        word: &[Letter],
+    ) -> Result<Rc<Vec<(Word, i64)>>, FreeLieError> {
         if let Some(found) = self.cache.get(word) {
             return Ok(Rc::clone(found));
         }
@@ -178,7 +181,10 @@ impl<C: Coeff> LiePoly<C> {
         Ok(Tensor { terms })
     }
 
-    pub(super) fn sorted_by_weight(terms: Vec<(Word, C)>, alphabet: &Alphabet) -> Result<Self, FreeLieError> {
+    pub(super) fn sorted_by_weight(
+        terms: Vec<(Word, C)>,
+        alphabet: &Alphabet,
+    ) -> Result<Self, FreeLieError> {
         let mut keyed = Vec::with_capacity(terms.len());
         for (word, coeff) in terms {
             keyed.push((alphabet.word_weight(&word)?, word, coeff));

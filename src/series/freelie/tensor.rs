@@ -4,9 +4,9 @@
 use std::collections::BTreeMap;
 
 use super::coeff::{Coeff, ONE};
-use std::num::NonZeroU64;
 use super::error::FreeLieError;
 use super::words::{Alphabet, Bracket, Letter, Word};
+use std::num::NonZeroU64;
 
 /// A tensor series (or polynomial): a finite sparse combination of words
 /// with coefficients, the empty word standing for the constant term.

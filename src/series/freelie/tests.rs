@@ -404,13 +404,16 @@ fn lie_poly_refuses_non_lyndon_words() {
         .map_coeffs(|coeff| coeff / q(2, 1));
     assert_eq!(halved.coeff(&xy("XY")), Some(&q(1, 4)));
     assert_eq!(halved.coeff(&xy("X")), Some(&q(1, 2)));
-    let bracket_only = bch_by_tensor::<Q>(2).unwrap().map_coeffs(|coeff| {
-        if coeff == q(1, 1) {
-            q(0, 1)
-        } else {
-            coeff
-        }
-    });
+    let bracket_only =
+        bch_by_tensor::<Q>(2).unwrap().map_coeffs(
+            |coeff| {
+                if coeff == q(1, 1) {
+                    q(0, 1)
+                } else {
+                    coeff
+                }
+            },
+        );
     assert_eq!(bracket_only.into_terms(), vec![(xy("XY"), q(1, 2))]);
 }
 
