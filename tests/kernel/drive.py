@@ -3,7 +3,7 @@ nbclient, nbformat) and checks what a notebook user sees.
 
 Usage: python drive.py ORDEX_BINARY WORK_DIR
 
-Run by tests/kernel.rs. Every Jupyter directory points into WORK_DIR, so the
+Run by tests/suite/kernel.rs. Every Jupyter directory points into WORK_DIR, so the
 user's own Jupyter set-up is neither read nor changed. Prints one line per
 check and `N passed, N failed` at the end; exits 1 when a check failed.
 """

@@ -5,25 +5,13 @@
 
 use std::process::Command;
 
-use ordex::lang::{Event, Session};
+use crate::util::run_quiet;
 
 /// Runs `text` in a fresh session: printed lines, the error (if any), and
 /// whether every check held.
 fn run(text: &str) -> (String, Option<String>, bool) {
-    let mut s = Session::new();
-    s.show_timing = false;
-    let mut out = String::new();
-    let mut err = None;
-    let status = s.run_text(text, None, &mut |e| match e {
-        Event::Report(r) => {
-            for l in r.lines {
-                out.push_str(&l.text);
-                out.push('\n');
-            }
-        }
-        Event::Error(m) => err = Some(m),
-    });
-    (out, err, !status.check_failed)
+    let ran = run_quiet(text, None);
+    (ran.lines(), ran.last_error(), !ran.status.check_failed)
 }
 
 const VDP: &str =

@@ -4,28 +4,18 @@
 
 use std::io::Read;
 use std::path::Path;
-use std::process::{Command, Output, Stdio};
+use std::process::{Output, Stdio};
+
+use crate::util::{ordex_command, stderr, stdout, temp_dir};
 
 /// A small complete scenario: a rotation field whose invariant holds.
 const GOOD: &str = "state q, p\nX = [p, -q]\ncheck X(q^2 + p^2) == 0\ncheck [X, X] == [0, 0]\n";
 
 fn ordex(dir: &Path, args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_ordex"))
-        .args(args)
-        .current_dir(dir)
-        .env("NO_COLOR", "1")
-        .env("ORDEX_HOME", dir.join("home"))
+    ordex_command(dir, &dir.join("home"), args)
         .stdin(Stdio::null())
         .output()
         .expect("ordex runs")
-}
-
-fn stdout(out: &Output) -> String {
-    String::from_utf8_lossy(&out.stdout).into_owned()
-}
-
-fn stderr(out: &Output) -> String {
-    String::from_utf8_lossy(&out.stderr).into_owned()
 }
 
 fn code(out: &Output) -> i32 {
@@ -34,10 +24,6 @@ fn code(out: &Output) -> i32 {
 
 fn write(dir: &Path, name: &str, text: &[u8]) {
     std::fs::write(dir.join(name), text).expect("a script is written");
-}
-
-fn temp() -> tempfile::TempDir {
-    tempfile::tempdir().expect("a temporary directory")
 }
 
 /// Asserts that `err` has `place: error:` followed by the source line and a
@@ -62,7 +48,7 @@ fn assert_caret(err: &str, place: &str, source: &str, column: usize) {
 
 #[test]
 fn a_script_whose_checks_hold_exits_0() {
-    let dir = temp();
+    let dir = temp_dir();
     write(dir.path(), "good.ordex", GOOD.as_bytes());
     let out = ordex(dir.path(), &["good.ordex"]);
     assert_eq!(code(&out), 0, "{}", stderr(&out));
@@ -76,7 +62,7 @@ fn a_script_whose_checks_hold_exits_0() {
 
 #[test]
 fn a_failed_check_exits_1_and_the_script_goes_on() {
-    let dir = temp();
+    let dir = temp_dir();
     let script = format!("{GOOD}check X(q) == q\nX(q)\n");
     write(dir.path(), "fails.ordex", script.as_bytes());
     let out = ordex(dir.path(), &["fails.ordex"]);
@@ -91,7 +77,7 @@ fn a_failed_check_exits_1_and_the_script_goes_on() {
 
 #[test]
 fn an_error_exits_2_with_file_line_column_and_stops_the_script() {
-    let dir = temp();
+    let dir = temp_dir();
     let script = format!("{GOOD}Y = [p, -r]\nX(q)\n");
     write(dir.path(), "broken.ordex", script.as_bytes());
     let out = ordex(dir.path(), &["broken.ordex"]);
@@ -106,7 +92,7 @@ fn an_error_exits_2_with_file_line_column_and_stops_the_script() {
 
 #[test]
 fn an_error_after_a_failed_check_exits_2() {
-    let dir = temp();
+    let dir = temp_dir();
     let script = format!("{GOOD}check X(p) == p\nnames(\n");
     write(dir.path(), "both.ordex", script.as_bytes());
     let out = ordex(dir.path(), &["both.ordex"]);
@@ -125,7 +111,7 @@ fn an_error_after_a_failed_check_exits_2() {
 
 #[test]
 fn inline_lines_have_the_same_exit_statuses() {
-    let dir = temp();
+    let dir = temp_dir();
     let good = ordex(dir.path(), &["-e", GOOD]);
     assert_eq!(code(&good), 0, "{}", stderr(&good));
     let failed = ordex(dir.path(), &["-e", GOOD, "-e", "check X(q) == 0"]);
@@ -158,7 +144,7 @@ fn inline_lines_have_the_same_exit_statuses() {
 
 #[test]
 fn several_files_share_one_session_and_an_error_stops_the_later_ones() {
-    let dir = temp();
+    let dir = temp_dir();
     write(dir.path(), "a.ordex", b"state q, p\nparam k\n");
     write(
         dir.path(),
@@ -184,7 +170,7 @@ fn several_files_share_one_session_and_an_error_stops_the_later_ones() {
 
 #[test]
 fn unreadable_scripts_get_clear_messages() {
-    let dir = temp();
+    let dir = temp_dir();
     write(dir.path(), "binary.ordex", b"state q\n\x00\x01\x02 data");
     write(dir.path(), "latin1.ordex", b"state q\n# caf\xe9\n");
     let cases = [
@@ -223,7 +209,7 @@ fn unreadable_scripts_get_clear_messages() {
 
 #[test]
 fn an_unclosed_bracket_is_reported_at_the_bracket() {
-    let dir = temp();
+    let dir = temp_dir();
     write(
         dir.path(),
         "open.ordex",
@@ -249,7 +235,7 @@ fn an_unclosed_bracket_is_reported_at_the_bracket() {
 
 #[test]
 fn save_writes_the_accepted_lines_and_the_saved_script_replays_the_same() {
-    let dir = temp();
+    let dir = temp_dir();
     let out = ordex(
         dir.path(),
         &[
@@ -290,7 +276,7 @@ fn save_writes_the_accepted_lines_and_the_saved_script_replays_the_same() {
 
 #[test]
 fn no_timing_hides_the_milliseconds() {
-    let dir = temp();
+    let dir = temp_dir();
     let lines = "state q, p\nparam eps\nA = average eps*[p, -q + cos(t)*q^2] to 2 in eps";
     let timed = ordex(dir.path(), &["-e", lines]);
     assert_eq!(code(&timed), 0, "{}", stderr(&timed));
@@ -303,7 +289,7 @@ fn no_timing_hides_the_milliseconds() {
 
 #[test]
 fn version_help_and_usage_errors() {
-    let dir = temp();
+    let dir = temp_dir();
     let version = ordex(dir.path(), &["--version"]);
     assert_eq!(code(&version), 0);
     assert_eq!(
@@ -325,12 +311,9 @@ fn version_help_and_usage_errors() {
 
 #[test]
 fn a_closed_pipe_ends_quietly() {
-    let dir = temp();
+    let dir = temp_dir();
     let many = "help\n".repeat(5000);
-    let mut child = Command::new(env!("CARGO_BIN_EXE_ordex"))
-        .args(["-e", &many])
-        .current_dir(dir.path())
-        .env("NO_COLOR", "1")
+    let mut child = ordex_command(dir.path(), &dir.path().join("home"), &["-e", &many])
         .stdin(Stdio::null())
         .stdout(Stdio::piped())
         .stderr(Stdio::piped())
@@ -357,16 +340,13 @@ fn a_closed_pipe_ends_quietly() {
 
 #[test]
 fn a_full_disk_on_standard_output_is_an_error() {
-    let dir = temp();
+    let dir = temp_dir();
     write(dir.path(), "failcheck.ordex", b"state q\ncheck q == 2*q\n");
     let Ok(full) = std::fs::OpenOptions::new().write(true).open("/dev/full") else {
         eprintln!("no /dev/full here: skipped");
         return;
     };
-    let out = Command::new(env!("CARGO_BIN_EXE_ordex"))
-        .arg("failcheck.ordex")
-        .current_dir(dir.path())
-        .env("NO_COLOR", "1")
+    let out = ordex_command(dir.path(), &dir.path().join("home"), &["failcheck.ordex"])
         .stdin(Stdio::null())
         .stdout(Stdio::from(full))
         .output()
@@ -381,15 +361,12 @@ fn a_full_disk_on_standard_output_is_an_error() {
 
 #[test]
 fn output_to_a_pipe_closed_before_the_first_line_exits_with_status_2() {
-    let dir = temp();
+    let dir = temp_dir();
     write(dir.path(), "good.ordex", GOOD.as_bytes());
     // `| head -0`: the reading end is gone before ordex writes anything.
     let (reader, writer) = nix::unistd::pipe().expect("a pipe");
     drop(reader);
-    let out = Command::new(env!("CARGO_BIN_EXE_ordex"))
-        .arg("good.ordex")
-        .current_dir(dir.path())
-        .env("NO_COLOR", "1")
+    let out = ordex_command(dir.path(), &dir.path().join("home"), &["good.ordex"])
         .stdin(Stdio::null())
         .stdout(Stdio::from(writer))
         .output()
@@ -400,7 +377,7 @@ fn output_to_a_pipe_closed_before_the_first_line_exits_with_status_2() {
 
 #[test]
 fn run_keeps_what_earlier_lines_printed_when_a_later_line_errors() {
-    let dir = temp();
+    let dir = temp_dir();
     write(
         dir.path(),
         "inner.ordex",
@@ -438,7 +415,7 @@ fn run_keeps_what_earlier_lines_printed_when_a_later_line_errors() {
 #[cfg(unix)]
 #[test]
 fn save_writes_through_a_symlink_and_refuses_devices_and_plots_over_scripts() {
-    let dir = temp();
+    let dir = temp_dir();
     let d = dir.path();
     write(d, "real.ordex", b"# old\n");
     std::os::unix::fs::symlink("real.ordex", d.join("link.ordex")).expect("a link");
@@ -485,7 +462,7 @@ fn a_printed_result_of_1330_terms_pastes_back() {
     // A flat sum is as deep as its nesting, not as long as it is: a
     // printed result of 1330 terms (more than the 1000 levels of the
     // depth limit) is input again.
-    let dir = temp();
+    let dir = temp_dir();
     let mut terms = Vec::new();
     for i in 0..38 {
         for j in 0..35 {
@@ -523,7 +500,7 @@ fn a_printed_result_of_1330_terms_pastes_back() {
 
 #[test]
 fn names_that_are_not_ascii_get_a_hint() {
-    let dir = temp();
+    let dir = temp_dir();
     let out = ordex(dir.path(), &["-e", "state \u{3b8}"]);
     assert_eq!(code(&out), 2);
     assert!(
@@ -539,7 +516,7 @@ fn a_system_outside_the_bracket_form_still_averages() {
     // form cannot grade a letter without a positive power of k; the
     // concrete result must still come, with a note saying why there is no
     // Lie polynomial.
-    let dir = temp();
+    let dir = temp_dir();
     let out = ordex(
         dir.path(),
         &[
@@ -553,7 +530,7 @@ fn a_system_outside_the_bracket_form_still_averages() {
 
 #[test]
 fn code_for_simulation_refuses_unspecified_functions_and_phases() {
-    let dir = temp();
+    let dir = temp_dir();
     let out = ordex(
         dir.path(),
         &["-e", "state q, p\nfunc V(s)\nshow [p, -V'(q)] as python"],

@@ -19,6 +19,8 @@ use ordex::lang::{Session, Style};
 use ordex::numeric::compile::CompiledExpr;
 use ordex::render::code::Lang;
 
+use crate::util::{have, in_ci};
+
 /// A vibrating-pivot boom with extra terms that exercise every factor the
 /// generator writes: parameters whose names are keywords (`lambda`, `del`),
 /// negative powers, `exp`, `pi`, powers of `t`, time frequencies 1 and 1/2.
@@ -104,10 +106,6 @@ fn expected(s: &Session, name: &str, pt: &Point) -> Vec<f64> {
                 .eval(pt.t, &pt.x)
         })
         .collect()
-}
-
-fn in_ci() -> bool {
-    std::env::var("CI").is_ok_and(|v| v == "true" || v == "1")
 }
 
 fn skip_or_fail(what: &str) {
@@ -228,13 +226,6 @@ fn uses(s: &Session, name: &str, p: &str) -> bool {
         Value::Field(f) => f.field.0.iter().any(|e| e.mentions(sym)),
         Value::Matrix(m) => m.data.iter().any(|e| e.mentions(sym)),
     }
-}
-
-fn have(tool: &str) -> bool {
-    Command::new(tool)
-        .arg("--version")
-        .output()
-        .is_ok_and(|o| o.status.success())
 }
 
 fn dim(s: &Session, name: &str) -> usize {

@@ -2,7 +2,9 @@
 //! under the right place, never a panic, and leave the session usable.
 //! The whole catalogue is one snapshot, so a changed message is reviewed.
 
-use ordex::lang::{Event, Session};
+use ordex::lang::Session;
+
+use crate::util::{quiet_session, run_in, run_quiet};
 
 /// A common preamble, then one bad line per case.
 const PREAMBLE: &str = "state q, p\nparam eps, k\ninput u\nX = [p, -q]\nY = [q^2, p]\nM = {1, 2; 3, 4}\nh = q^2 + p^2\n";
@@ -74,24 +76,15 @@ const CASES: &[&str] = &[
 ];
 
 fn run_one(line: &str) -> (String, i32, bool) {
-    let mut session = Session::new();
-    session.show_timing = false;
-    let mut out = String::new();
+    let mut session = quiet_session();
     let text = format!("{PREAMBLE}{line}\n");
-    let status = session.run_text(&text, Some("bad.ordex"), &mut |e| {
-        if let Event::Error(m) = e {
-            out.push_str(&m);
-            out.push('\n');
-        }
-    });
+    let ran = run_in(&mut session, &text, Some("bad.ordex"));
     // The session survives: a later good line still runs.
-    let mut later = false;
-    session.run_text("h\n", None, &mut |e| {
-        if let Event::Report(r) = e {
-            later |= r.lines.iter().any(|l| l.text == "q^2 + p^2");
-        }
-    });
-    (out, status.exit_code(), later)
+    let later = run_in(&mut session, "h\n", None)
+        .lines()
+        .lines()
+        .any(|l| l == "q^2 + p^2");
+    (ran.errors(), ran.status.exit_code(), later)
 }
 
 #[test]
@@ -114,18 +107,9 @@ fn bad_inputs_give_clear_messages() {
 
 #[test]
 fn an_unclosed_bracket_is_reported_at_the_bracket() {
-    let mut session = Session::new();
-    let mut out = String::new();
-    let status = session.run_text(
-        "state q, p\nX = [p,\n  -q\nY = 1\n",
-        Some("open.ordex"),
-        &mut |e| {
-            if let Event::Error(m) = e {
-                out.push_str(&m);
-            }
-        },
-    );
-    assert_eq!(status.exit_code(), 2);
+    let ran = run_quiet("state q, p\nX = [p,\n  -q\nY = 1\n", Some("open.ordex"));
+    let out = ran.errors();
+    assert_eq!(ran.status.exit_code(), 2);
     assert!(out.starts_with("open.ordex:2:5:"), "{out}");
 }
 
@@ -169,36 +153,18 @@ fn bad_uses_of_unspecified_functions_change_nothing() {
         "average [p, -q] + eps*[0, -V'(q)] to 1 in eps",
         "Z = V'",
     ];
-    let listing = |s: &mut Session| {
-        let mut out = String::new();
-        s.run_text("names\nX\nh\n", Some("after.ordex"), &mut |e| {
-            if let Event::Report(r) = e {
-                for l in r.lines {
-                    out.push_str(&l.text);
-                    out.push('\n');
-                }
-            }
-        });
-        out
-    };
-    let mut clean = Session::new();
-    clean.show_timing = false;
-    clean.run_text(FUNC_PREAMBLE, Some("pre.ordex"), &mut |_| {});
+    let listing = |s: &mut Session| run_in(s, "names\nX\nh\n", Some("after.ordex")).lines();
+    let mut clean = quiet_session();
+    run_in(&mut clean, FUNC_PREAMBLE, Some("pre.ordex"));
     let before = listing(&mut clean);
     let mut all = String::new();
     for case in FUNC_CASES {
-        let mut session = Session::new();
-        session.show_timing = false;
-        session.run_text(FUNC_PREAMBLE, Some("pre.ordex"), &mut |_| {});
-        let mut out = String::new();
-        let status = session.run_text(&format!("{case}\n"), Some("bad.ordex"), &mut |e| {
-            if let Event::Error(m) = e {
-                out.push_str(&m);
-                out.push('\n');
-            }
-        });
+        let mut session = quiet_session();
+        run_in(&mut session, FUNC_PREAMBLE, Some("pre.ordex"));
+        let ran = run_in(&mut session, &format!("{case}\n"), Some("bad.ordex"));
+        let out = ran.errors();
         assert_eq!(
-            status.exit_code(),
+            ran.status.exit_code(),
             2,
             "`{case}` should be an error, got:\n{out}"
         );

@@ -3,24 +3,14 @@
 //! concrete system, and the shuffle reduction of a product agrees with the
 //! product of the concrete values (Ree 1958, after Chen 1957; from memory).
 
-use ordex::lang::{Event, Session};
 use proptest::prelude::*;
 
+use crate::util::run_quiet;
+
 fn holds(text: &str) -> Result<(), String> {
-    let mut s = Session::new();
-    s.show_timing = false;
-    let mut log = String::new();
-    let status = s.run_text(text, None, &mut |e| match e {
-        Event::Report(r) => {
-            for l in r.lines {
-                log.push_str(&l.text);
-                log.push('\n');
-            }
-        }
-        Event::Error(m) => log.push_str(&m),
-    });
-    if status.error || status.check_failed {
-        Err(format!("{text}\n---\n{log}"))
+    let ran = run_quiet(text, None);
+    if ran.status.error || ran.status.check_failed {
+        Err(format!("{text}\n---\n{}", ran.transcript()))
     } else {
         Ok(())
     }

@@ -16,7 +16,7 @@ fn a_notebook_runs_with_the_real_jupyter_client() {
         Some(python) => python,
         None => {
             assert!(
-                std::env::var("CI").as_deref() != Ok("true"),
+                !crate::util::in_ci(),
                 "ORDEX_TEST_PYTHON is not set: .ci/run installs the Jupyter client into a \
                  virtual environment and exports it"
             );

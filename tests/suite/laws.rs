@@ -25,9 +25,11 @@ use ordex::core::expr::{Key, TimeFactor, TrigFactor};
 use ordex::core::sum::{Keep, SumBuilder};
 use ordex::core::{Expr, Field, Sym, Q};
 use ordex::lang::value::Value;
-use ordex::lang::{Event, Session, Style};
+use ordex::lang::Session;
 use proptest::prelude::*;
 use proptest::test_runner::{FileFailurePersistence, TestCaseError};
+
+use crate::util::{field_text, run_in};
 
 // ---------------------------------------------------------------------------
 // Random expressions.
@@ -282,26 +284,17 @@ fn config(cases: u32) -> ProptestConfig {
 /// Runs `text` in `session`; returns the printed lines, or the error or
 /// failed check as a message.
 fn run(session: &mut Session, text: &str) -> Result<Vec<String>, String> {
-    let mut lines = Vec::new();
-    let mut error = None;
-    let status = session.run_text(text, Some("laws"), &mut |ev| match ev {
-        Event::Report(r) => {
-            lines.extend(r.lines.iter().map(|l| (l.style, l.text.clone())));
-        }
-        Event::Error(msg) => error = Some(msg),
-    });
-    if let Some(msg) = error {
+    let ran = run_in(session, text, Some("laws"));
+    if let Some(msg) = ran.last_error() {
         return Err(format!("error running `{text}`: {msg}"));
     }
-    if status.check_failed {
-        let all: Vec<String> = lines.iter().map(|(_, l)| l.clone()).collect();
-        return Err(format!("check failed in `{text}`:\n{}", all.join("\n")));
+    if ran.status.check_failed {
+        return Err(format!(
+            "check failed in `{text}`:\n{}",
+            ran.lines().trim_end()
+        ));
     }
-    Ok(lines
-        .into_iter()
-        .filter(|(s, _)| *s == Style::Result)
-        .map(|(_, l)| l)
-        .collect())
+    Ok(ran.results())
 }
 
 fn session_for(dim: usize) -> Result<Session, TestCaseError> {
@@ -312,11 +305,6 @@ fn session_for(dim: usize) -> Result<Session, TestCaseError> {
     );
     run(&mut s, &decl).map_err(TestCaseError::fail)?;
     Ok(s)
-}
-
-fn field_text(f: &Field) -> String {
-    let parts: Vec<String> = f.0.iter().map(|e| e.to_string()).collect();
-    format!("[{}]", parts.join(", "))
 }
 
 // ---------------------------------------------------------------------------

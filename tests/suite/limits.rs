@@ -16,7 +16,9 @@ use std::io::Read;
 use std::path::Path;
 use std::process::{Command, Stdio};
 
-use ordex::lang::{Event, RunStatus, Session};
+use ordex::lang::RunStatus;
+
+use crate::util::{quiet_session, run_in, temp_dir};
 
 /// Peak resident memory allowed for any case.
 const MAX_RSS_KIB: u64 = 1 << 20;
@@ -36,37 +38,23 @@ fn session_run_in(text: &str, dir: Option<&Path>) -> Run {
     let worker = std::thread::Builder::new()
         .stack_size(8 << 20)
         .spawn(move || {
-            let mut session = Session::new();
-            session.show_timing = false;
+            let mut session = quiet_session();
             if let Some(dir) = dir {
                 session.set_base_dir(dir);
             }
-            let (mut out, mut err) = (String::new(), String::new());
-            let status = session.run_text(&text, Some("limits"), &mut |e| match e {
-                Event::Report(r) => {
-                    for l in r.lines {
-                        out.push_str(&l.text);
-                        out.push('\n');
-                    }
-                }
-                Event::Error(m) => {
-                    err.push_str(&m);
-                    err.push('\n');
-                }
-            });
+            let ran = run_in(&mut session, &text, Some("limits"));
             // The session survives: it still answers afterwards.
-            let mut after = String::new();
-            let again = session.run_text("1 + 1", None, &mut |e| {
-                if let Event::Report(r) = e {
-                    after.extend(r.lines.into_iter().map(|l| l.text));
-                }
-            });
+            let again = run_in(&mut session, "1 + 1", None);
             assert_eq!(
-                (again.exit_code(), after.as_str()),
-                (0, "2"),
+                (again.status.exit_code(), again.lines().as_str()),
+                (0, "2\n"),
                 "the session did not survive:\n{text}"
             );
-            Run { status, out, err }
+            Run {
+                status: ran.status,
+                out: ran.lines(),
+                err: ran.errors(),
+            }
         })
         .expect("start a session thread");
     worker.join().expect("the session panicked")
@@ -83,21 +71,15 @@ fn session_chunks(chunks: &[&str]) -> Vec<Run> {
     let worker = std::thread::Builder::new()
         .stack_size(8 << 20)
         .spawn(move || {
-            let mut session = Session::new();
-            session.show_timing = false;
+            let mut session = quiet_session();
             let mut runs = Vec::new();
             for chunk in &chunks {
-                let (mut out, mut err) = (String::new(), String::new());
-                let status = session.run_text(chunk, Some("limits"), &mut |e| match e {
-                    Event::Report(r) => {
-                        for l in r.lines {
-                            out.push_str(&l.text);
-                            out.push('\n');
-                        }
-                    }
-                    Event::Error(m) => err.push_str(&m),
+                let ran = run_in(&mut session, chunk, Some("limits"));
+                runs.push(Run {
+                    status: ran.status,
+                    out: ran.lines(),
+                    err: ran.errors(),
                 });
-                runs.push(Run { status, out, err });
             }
             runs
         })
@@ -126,7 +108,7 @@ struct ChildRun {
 // the lint cannot see.
 #[allow(clippy::zombie_processes)]
 fn binary_run(text: &str) -> ChildRun {
-    let dir = tempfile::tempdir().expect("a temporary directory");
+    let dir = temp_dir();
     let peak_file = dir.path().join("peak");
     let time = Path::new("/usr/bin/time");
     let mut command = if time.exists() {
@@ -755,10 +737,6 @@ fn deepest_accepted_inputs_fit_the_main_thread_stack() {
 
 // ---------------------------------------------------------------------------
 // Files.
-
-fn temp_dir() -> tempfile::TempDir {
-    tempfile::tempdir().expect("a temporary directory")
-}
 
 fn file_error(dir: &Path, line: &str, wanted: &str) {
     let run = session_run_in(line, Some(dir));

@@ -20,10 +20,12 @@ use ordex::core::calc::Period;
 use ordex::core::expr::{LinearForm, TimeFactor, TrigFactor};
 use ordex::core::{Expr, Field, Sym, Q};
 use ordex::lang::value::Value;
-use ordex::lang::{Event, Session};
+use ordex::lang::Session;
 use ordex::series::chrono::{at_time, field_at_period, flow_terms, magnus_generator, Graded};
 use proptest::prelude::*;
 use proptest::test_runner::{FileFailurePersistence, TestCaseError};
+
+use crate::util::{field_text, run_in};
 
 // ---------------------------------------------------------------------------
 // Helpers: exact 3×3 matrices, fields, evaluation in f64, sessions.
@@ -177,22 +179,12 @@ fn eval_f64(e: &Expr, vals: &HashMap<Sym, f64>) -> f64 {
 
 /// Runs `text` in `session`; fails on an error or a failed check.
 fn run(session: &mut Session, text: &str) -> Result<(), String> {
-    let mut error = None;
-    let status = session.run_text(text, Some("crosscheck"), &mut |ev| {
-        if let Event::Error(msg) = ev {
-            error = Some(msg);
-        }
-    });
-    match error {
+    let ran = run_in(session, text, Some("crosscheck"));
+    match ran.last_error() {
         Some(msg) => Err(format!("error running `{text}`: {msg}")),
-        None if status.check_failed => Err(format!("check failed in `{text}`")),
+        None if ran.status.check_failed => Err(format!("check failed in `{text}`")),
         None => Ok(()),
     }
-}
-
-fn field_text(f: &Field) -> String {
-    let parts: Vec<String> = f.0.iter().map(|e| e.to_string()).collect();
-    format!("[{}]", parts.join(", "))
 }
 
 fn session_field(s: &Session, name: &str) -> Field {

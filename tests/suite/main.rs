@@ -25,4 +25,5 @@ mod resume;
 mod save_checks;
 mod scripts;
 mod strobo_routes;
+mod util;
 mod vibrational;

@@ -1,25 +1,13 @@
 //! The numerical commands end to end: `compare` slopes against theory,
 //! the plot files, `stability`, `simulate`, and their error messages.
 
-use ordex::lang::{Event, Session};
+use crate::util::run_quiet;
 
+/// Runs `text` in a fresh session: what it printed (errors included) and
+/// its exit status.
 fn run(text: &str) -> (String, i32) {
-    let mut session = Session::new();
-    session.show_timing = false;
-    let mut out = String::new();
-    let status = session.run_text(text, Some("test"), &mut |e| match e {
-        Event::Report(r) => {
-            for l in r.lines {
-                out.push_str(&l.text);
-                out.push('\n');
-            }
-        }
-        Event::Error(m) => {
-            out.push_str(&m);
-            out.push('\n');
-        }
-    });
-    (out, status.exit_code())
+    let ran = run_quiet(text, Some("test"));
+    (ran.transcript(), ran.status.exit_code())
 }
 
 fn slopes(out: &str) -> Vec<f64> {

@@ -20,6 +20,8 @@ use std::time::{Duration, Instant};
 use nix::poll::{poll, PollFd, PollFlags};
 use nix::pty::{openpty, Winsize};
 
+use crate::util::temp_dir;
+
 /// Generous deadline for a reply on a busy machine.
 const REPLY: Duration = Duration::from_secs(60);
 
@@ -221,13 +223,9 @@ fn clean(text: &str) -> String {
     out
 }
 
-fn temp_home() -> tempfile::TempDir {
-    tempfile::tempdir().expect("a temporary directory")
-}
-
 #[test]
 fn definitions_results_multiline_completion_and_ctrl_d() {
-    let home = temp_home();
+    let home = temp_dir();
     let mut term = Terminal::start(home.path(), &[]);
     let banner = term.expect(PROMPT);
     assert!(banner.contains("ordex "), "banner: {banner:?}");
@@ -294,7 +292,7 @@ fn definitions_results_multiline_completion_and_ctrl_d() {
 
 #[test]
 fn ctrl_c_interrupts_a_long_computation_and_keeps_the_session() {
-    let home = temp_home();
+    let home = temp_dir();
     let mut term = Terminal::start(home.path(), &["--no-timing"]);
     term.expect(PROMPT);
     term.enter("state q, p", PROMPT);
@@ -334,7 +332,7 @@ fn a_burst_of_typed_ahead_lines_runs_every_line_whole() {
     // does: some while the prompt reads, some while a statement runs.
     // Every line must run, whole and in order: a dropped line or a
     // fragment (` 61*p`) changes the sum or is an error.
-    let home = temp_home();
+    let home = temp_dir();
     let mut term = Terminal::start(home.path(), &["--no-timing"]);
     term.expect(PROMPT);
     term.enter("state q, p", PROMPT);
@@ -371,7 +369,7 @@ fn a_burst_of_typed_ahead_lines_runs_every_line_whole() {
 
 #[test]
 fn a_dumb_terminal_gets_no_colour() {
-    let home = temp_home();
+    let home = temp_dir();
     let mut term = Terminal::start_with(home.path(), &[], &[("TERM", "dumb")]);
     term.expect(PROMPT);
     term.enter("state q", PROMPT);

@@ -10,16 +10,14 @@
 use std::io::{BufRead, BufReader, Write};
 use std::path::Path;
 use std::process::{Child, Command, Output, Stdio};
+
+use crate::util::{ordex_command, stderr, stdout, temp_dir};
 use std::sync::mpsc::{channel, Receiver};
 use std::time::{Duration, Instant};
 
 fn prompt(work: &Path, home: &Path, args: &[&str]) -> Command {
-    let mut command = Command::new(env!("CARGO_BIN_EXE_ordex"));
+    let mut command = ordex_command(work, home, args);
     command
-        .args(args)
-        .current_dir(work)
-        .env("NO_COLOR", "1")
-        .env("ORDEX_HOME", home)
         .stdin(Stdio::piped())
         .stdout(Stdio::piped())
         .stderr(Stdio::piped());
@@ -69,18 +67,10 @@ fn wait_for(lines: &Receiver<String>, needle: &str) -> Vec<String> {
     panic!("no line with {needle:?}; saw {seen:?}");
 }
 
-fn stdout(out: &Output) -> String {
-    String::from_utf8_lossy(&out.stdout).into_owned()
-}
-
-fn stderr(out: &Output) -> String {
-    String::from_utf8_lossy(&out.stderr).into_owned()
-}
-
 #[test]
 fn a_killed_session_resumes_with_every_accepted_line() {
-    let work = tempfile::tempdir().expect("a temporary directory");
-    let home = tempfile::tempdir().expect("a temporary directory");
+    let work = temp_dir();
+    let home = temp_dir();
     let (work, home) = (work.path(), home.path());
 
     let mut child = prompt(work, home, &[]).spawn().expect("ordex runs");
@@ -170,8 +160,8 @@ fn a_killed_session_resumes_with_every_accepted_line() {
 
 #[test]
 fn a_journal_cut_inside_a_statement_replays_up_to_the_cut() {
-    let work = tempfile::tempdir().expect("a temporary directory");
-    let home = tempfile::tempdir().expect("a temporary directory");
+    let work = temp_dir();
+    let home = temp_dir();
     let (work, home) = (work.path(), home.path());
     std::fs::write(
         home.join("journal.ordex"),
@@ -191,8 +181,8 @@ fn a_journal_cut_inside_a_statement_replays_up_to_the_cut() {
 
 #[test]
 fn resume_without_a_journal_starts_empty() {
-    let work = tempfile::tempdir().expect("a temporary directory");
-    let home = tempfile::tempdir().expect("a temporary directory");
+    let work = temp_dir();
+    let home = temp_dir();
     let out = session(
         work.path(),
         home.path().join("new").as_path(),
@@ -213,8 +203,8 @@ fn lines_of_a_run_that_failed_partway_are_journalled() {
     // `run FILE` executes the file's statements one by one; when a later
     // one fails, the earlier ones have changed the session, so a resumed
     // session must have them too.
-    let work = tempfile::tempdir().expect("a temporary directory");
-    let home = tempfile::tempdir().expect("a temporary directory");
+    let work = temp_dir();
+    let home = temp_dir();
     std::fs::write(
         work.path().join("partial.ordex"),
         "state q, p\nX = [p, -q]\nY = nosuch + 1\nZ = [q, p]\n",
@@ -235,8 +225,8 @@ fn lines_of_a_run_that_failed_partway_are_journalled() {
 
 #[test]
 fn a_second_prompt_leaves_the_journal_in_use_alone() {
-    let work = tempfile::tempdir().expect("a temporary directory");
-    let home = tempfile::tempdir().expect("a temporary directory");
+    let work = temp_dir();
+    let home = temp_dir();
     let (work, home) = (work.path(), home.path());
 
     let mut first = prompt(work, home, &[]).spawn().expect("ordex runs");
@@ -286,8 +276,8 @@ fn a_second_prompt_leaves_the_journal_in_use_alone() {
 
 #[test]
 fn a_session_that_accepts_nothing_does_not_rotate_the_journal() {
-    let work = tempfile::tempdir().expect("a temporary directory");
-    let home = tempfile::tempdir().expect("a temporary directory");
+    let work = temp_dir();
+    let home = temp_dir();
     let (work, home) = (work.path(), home.path());
     let first = session(work, home, &[], "state q, p\nX = [p, -q]\n");
     assert_eq!(first.status.code(), Some(0), "{}", stderr(&first));
@@ -313,8 +303,8 @@ fn a_session_that_accepts_nothing_does_not_rotate_the_journal() {
 
 #[test]
 fn a_failing_resume_keeps_every_line_in_a_numbered_backup() {
-    let work = tempfile::tempdir().expect("a temporary directory");
-    let home = tempfile::tempdir().expect("a temporary directory");
+    let work = temp_dir();
+    let home = temp_dir();
     let (work, home) = (work.path(), home.path());
     let journal = "state q, p\nX = [p, -q]\nY = [q, nosuch]\nZ = [q, p]\nW = [p, p]\n";
     std::fs::write(home.join("journal.ordex"), journal).expect("journal");
@@ -344,8 +334,8 @@ fn a_failing_resume_keeps_every_line_in_a_numbered_backup() {
 
 #[test]
 fn an_unterminated_last_record_is_reported_and_not_run() {
-    let work = tempfile::tempdir().expect("a temporary directory");
-    let home = tempfile::tempdir().expect("a temporary directory");
+    let work = temp_dir();
+    let home = temp_dir();
     let (work, home) = (work.path(), home.path());
     // What a write cut off by a full disk left: `k0 = 1234567` cut short.
     std::fs::write(home.join("journal.ordex"), "state q\nk1 = 7\nk0 = 1234").expect("journal");
@@ -387,8 +377,8 @@ impl Drop for SmallDisk {
 
 #[test]
 fn a_full_disk_cuts_the_journal_back_to_its_last_complete_record() {
-    let work = tempfile::tempdir().expect("a temporary directory");
-    let mount = tempfile::tempdir().expect("a temporary directory");
+    let work = temp_dir();
+    let mount = temp_dir();
     let Some(disk) = SmallDisk::mount(mount.path()) else {
         eprintln!("cannot mount a tmpfs here: the injected failure test in src/app/journal.rs covers this");
         return;

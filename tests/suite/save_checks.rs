@@ -5,14 +5,12 @@
 
 use std::io::Write;
 use std::path::Path;
-use std::process::{Command, Output, Stdio};
+use std::process::{Output, Stdio};
+
+use crate::util::{ordex_command, temp_dir};
 
 fn ordex(dir: &Path, args: &[&str], stdin: Option<&str>) -> Output {
-    let mut child = Command::new(env!("CARGO_BIN_EXE_ordex"))
-        .args(args)
-        .current_dir(dir)
-        .env("NO_COLOR", "1")
-        .env("ORDEX_HOME", dir.join("home"))
+    let mut child = ordex_command(dir, &dir.join("home"), args)
         .env("XDG_STATE_HOME", dir.join("state"))
         .stdin(if stdin.is_some() {
             Stdio::piped()
@@ -51,7 +49,7 @@ save derivation.ordex with checks
 
 #[test]
 fn a_script_saved_with_checks_replays_and_catches_an_altered_coefficient() {
-    let dir = tempfile::tempdir().unwrap();
+    let dir = temp_dir();
     std::fs::write(dir.path().join("session.ordex"), SESSION).unwrap();
     let out = ordex(dir.path(), &["session.ordex"], None);
     assert_eq!(out.status.code(), Some(0), "{out:?}");
@@ -113,7 +111,7 @@ fn a_script_saved_with_checks_replays_and_catches_an_altered_coefficient() {
 
 #[test]
 fn a_failed_check_at_the_prompt_names_its_line_in_the_session() {
-    let dir = tempfile::tempdir().unwrap();
+    let dir = temp_dir();
     let input = "state x\nparam a\nX = [a*x]\n\ncheck X(x) == x\ncheck X(x) == a*x\ncheck [X,\n X] == [1]\n";
     let out = ordex(dir.path(), &[], Some(input));
     let text =

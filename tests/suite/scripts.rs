@@ -13,6 +13,8 @@ use ordex::lang::session::render_error;
 use ordex::lang::split::split_statements;
 use ordex::lang::{Session, Style};
 
+use crate::util::{have, in_ci};
+
 struct Outcome {
     /// The session as it reads: each input line echoed (`» …`), then its output.
     text: String,
@@ -225,17 +227,6 @@ fn latex_document(outputs: &[(String, Vec<String>)]) -> String {
     }
     doc.push_str("\\end{document}\n");
     doc
-}
-
-fn in_ci() -> bool {
-    std::env::var("CI").is_ok_and(|v| v == "true" || v == "1")
-}
-
-fn have(tool: &str) -> bool {
-    std::process::Command::new(tool)
-        .arg("--version")
-        .output()
-        .is_ok_and(|o| o.status.success())
 }
 
 #[test]

@@ -7,16 +7,14 @@ use ordex::averaging::{stroboscopic, stroboscopic_by_logarithm};
 use ordex::core::calc::common_period;
 use ordex::core::{Field, Sym};
 use ordex::lang::value::Value;
-use ordex::lang::{Event, Session};
+use ordex::lang::Session;
+
+use crate::util::run_in;
 
 fn standard_form(script: &str, n: usize) -> (Vec<Field>, Vec<Sym>) {
     let mut session = Session::new();
-    let status = session.run_text(script, None, &mut |e| {
-        if let Event::Error(m) = e {
-            panic!("{m}");
-        }
-    });
-    assert_eq!(status.exit_code(), 0);
+    let ran = run_in(&mut session, script, None);
+    assert_eq!(ran.status.exit_code(), 0, "{}", ran.errors());
     let Some(Value::Field(f)) = session.get("S") else {
         panic!("S is not a field")
     };

@@ -3,25 +3,13 @@
 //! evaluates to the concrete averaged field, and the symbolic frequency
 //! `in 1/w` refuses what it cannot take.
 
-use ordex::lang::{Event, Session};
+use crate::util::run_quiet;
 
+/// Runs `text` in a fresh session: what it printed (errors included) and
+/// its exit status.
 fn run(text: &str) -> (String, i32) {
-    let mut session = Session::new();
-    session.show_timing = false;
-    let mut out = String::new();
-    let status = session.run_text(text, Some("test"), &mut |e| match e {
-        Event::Report(r) => {
-            for l in r.lines {
-                out.push_str(&l.text);
-                out.push('\n');
-            }
-        }
-        Event::Error(m) => {
-            out.push_str(&m);
-            out.push('\n');
-        }
-    });
-    (out, status.exit_code())
+    let ran = run_quiet(text, Some("test"));
+    (ran.transcript(), ran.status.exit_code())
 }
 
 /// A pendulum on an elliptically driven pivot (our own scenario).
@@ -64,8 +52,8 @@ fn classical_fast_oscillation_tracks_the_system() {
     assert!(last[0] < 2e-2 && last[1] < 1e-4 && last[2] < 1e-5, "{out}");
     // Halving eps divides the order-k error by about 2^k (local ratios
     // over the last two eps values).
-    for k in 0..3 {
-        let ratio = rows[2][k] / rows[3][k];
+    for (k, (coarse, fine)) in rows[2].iter().zip(&rows[3]).take(3).enumerate() {
+        let ratio = coarse / fine;
         let want = 2f64.powi(k as i32 + 1);
         assert!(
             ratio > want * 0.7 && ratio < want * 1.5,
