@@ -9,6 +9,12 @@
 //! `tests/checks` (published check values), `tests/fixtures` (reference
 //! results from other programs) and `tests/kernel` (the notebook driver).
 
+
+// Test code may unwrap: a failing unwrap is a failing test (the library
+// denies `clippy::unwrap_used`; clippy.toml lets `#[test]` functions
+// unwrap, and this covers the helpers they call).
+#![allow(clippy::unwrap_used)]
+
 mod charts;
 mod cli;
 mod codegen;
