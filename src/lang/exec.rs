@@ -138,72 +138,78 @@ impl Session {
                 report.rich = Some(Rich::Latex);
                 latex::value(&v, &self.states)
             }
-            "brackets" => match &v {
-                Value::Field(f) => match &f.structure {
-                    Some(terms) => super::structural::show_terms(terms),
-                    None => return Err(SessionError::invalid(
-                        expr.span,
-                        "no bracket form: it exists for results of `magnus`, `average` and `bch` \
-                             on systems written as Σ c_i(t)*X_i with named fields X_i",
-                    )),
-                },
-                _ => {
-                    return Err(SessionError::invalid(
-                        expr.span,
-                        format!("a {} has no bracket form", v.kind_name()),
-                    ))
-                }
-            },
-            word => {
-                let Some(lang) = code::Lang::from_word(word) else {
-                    return Err(SessionError::invalid(
-                        how.span,
-                        format!(
-                            "unknown display `{word}`: use `latex`, `brackets`, or code: \
-                             `python`, `julia`, `c`, `rust`"
-                        ),
-                    ));
-                };
-                let entries: Vec<&crate::core::Expr> = match &v {
-                    Value::Scalar(e) => vec![e],
-                    Value::Field(f) => f.field.0.iter().collect(),
-                    Value::Matrix(m) => m.data.iter().collect(),
-                };
-                // Floating-point code needs numbers: no unspecified function,
-                // no symbolic-frequency phase.
-                if let Some(a) = entries.iter().find_map(|e| e.first_atom()) {
-                    return Err(SessionError::invalid(
-                        expr.span,
-                        format!(
-                            "code needs numbers, and `{a}` is an unspecified function \
-                             (hint: plug a definition first, e.g. `plug(E, {}({}) = …)`)",
-                            a.sig.name,
-                            a.sig.params.join(", ")
-                        ),
-                    ));
-                }
-                self.refuse_phase(entries.iter().copied(), expr.span, "the value")?;
-                let shape = match &v {
-                    Value::Scalar(e) => code::Shape::Scalar(e),
-                    Value::Field(f) => code::Shape::Field(&f.field),
-                    Value::Matrix(m) => code::Shape::Matrix(m),
-                };
-                let name = match &expr.kind {
-                    super::ast::ExprKind::Name(n) => n.clone(),
-                    _ => "ordex_value".to_string(),
-                };
-                let declared: Vec<Sym> = self
-                    .symbols
-                    .iter()
-                    .filter(|(_, k)| **k == SymKind::Param)
-                    .map(|(n, _)| Sym::new(n))
-                    .collect();
-                let mut declared = declared;
-                declared.sort();
-                let params = code::parameters(&shape, &self.states, &declared);
-                code::function(lang, &name, &shape, &self.states, &params)
-            }
+            "brackets" => brackets_text(expr, &v)?,
+            word => self.code_text(expr, how, word, &v)?,
         };
+        self.show_output(text, how, to, report)
+    }
+
+    /// `show E as python|julia|c|rust`: a function evaluating the value in
+    /// floating point (refused for unspecified functions and phases).
+    fn code_text(
+        &self,
+        expr: &super::ast::SyntaxExpr,
+        how: &Ident,
+        word: &str,
+        v: &Value,
+    ) -> SessionResult<String> {
+        let Some(lang) = code::Lang::from_word(word) else {
+            return Err(SessionError::invalid(
+                how.span,
+                format!(
+                    "unknown display `{word}`: use `latex`, `brackets`, or code: \
+                     `python`, `julia`, `c`, `rust`"
+                ),
+            ));
+        };
+        let entries: Vec<&crate::core::Expr> = match v {
+            Value::Scalar(e) => vec![e],
+            Value::Field(f) => f.field.0.iter().collect(),
+            Value::Matrix(m) => m.data.iter().collect(),
+        };
+        // Floating-point code needs numbers: no unspecified function,
+        // no symbolic-frequency phase.
+        if let Some(a) = entries.iter().find_map(|e| e.first_atom()) {
+            return Err(SessionError::invalid(
+                expr.span,
+                format!(
+                    "code needs numbers, and `{a}` is an unspecified function \
+                     (hint: plug a definition first, e.g. `plug(E, {}({}) = …)`)",
+                    a.sig.name,
+                    a.sig.params.join(", ")
+                ),
+            ));
+        }
+        self.refuse_phase(entries.iter().copied(), expr.span, "the value")?;
+        let shape = match v {
+            Value::Scalar(e) => code::Shape::Scalar(e),
+            Value::Field(f) => code::Shape::Field(&f.field),
+            Value::Matrix(m) => code::Shape::Matrix(m),
+        };
+        let name = match &expr.kind {
+            super::ast::ExprKind::Name(n) => n.clone(),
+            _ => "ordex_value".to_string(),
+        };
+        let declared: Vec<Sym> = self
+            .symbols
+            .iter()
+            .filter(|(_, k)| **k == SymKind::Param)
+            .map(|(n, _)| Sym::new(n))
+            .collect();
+        let mut declared = declared;
+        declared.sort();
+        let params = code::parameters(&shape, &self.states, &declared);
+        Ok(code::function(lang, &name, &shape, &self.states, &params))
+    }
+
+    /// Prints the text of `show`, or writes it to the file of `to FILE`.
+    fn show_output(
+        &self,
+        text: String,
+        how: &Ident,
+        to: Option<&super::ast::PathArg>,
+        report: &mut Report,
+    ) -> SessionResult<()> {
         match to {
             None => {
                 for l in text.lines() {
@@ -698,6 +704,29 @@ fn value_uses(v: &Value, name: &str) -> bool {
         Value::Field(f) => f.field.0.iter().any(uses),
         Value::Matrix(m) => m.data.iter().any(uses),
     }
+}
+
+/// `show A as brackets`: the Lie-polynomial form of a result written over
+/// named fields.
+fn brackets_text(expr: &super::ast::SyntaxExpr, v: &Value) -> SessionResult<String> {
+    Ok(match v {
+        Value::Field(f) => match &f.structure {
+            Some(terms) => super::structural::show_terms(terms),
+            None => {
+                return Err(SessionError::invalid(
+                    expr.span,
+                    "no bracket form: it exists for results of `magnus`, `average` and `bch` \
+                     on systems written as Σ c_i(t)*X_i with named fields X_i",
+                ))
+            }
+        },
+        _ => {
+            return Err(SessionError::invalid(
+                expr.span,
+                format!("a {} has no bracket form", v.kind_name()),
+            ))
+        }
+    })
 }
 
 /// `set budget N`: the term budget, capped so that one statement cannot
