@@ -16,7 +16,7 @@ use std::collections::BTreeMap;
 use super::ast::{Arg, Assign, Command, CommandKind, ExprKind, Ident, Rhs, Span, SyntaxExpr};
 use super::ast::{Stmt, StmtKind};
 use super::session::{Report, Session, SessionError, SessionResult, Style, SymKind};
-use super::value::{FieldValue, Value};
+use super::value::{AveragedInfo, FieldValue, Value};
 use crate::core::chart::Change;
 use crate::core::{CoreError, Expr, Field, Sym};
 use crate::render::plain;
@@ -432,27 +432,7 @@ impl Session {
             ..
         })) = out.first()
         {
-            let transform = info.transform.iter().flatten();
-            let printed = info
-                .orders
-                .iter()
-                .enumerate()
-                .map(|(k, f)| (format!("order {}  ", k + 1), f))
-                .chain(
-                    transform
-                        .enumerate()
-                        .map(|(k, w)| (format!("w_{}     ", k + 1), w)),
-                );
-            for (head, f) in printed {
-                let renamed = rename(f).map_err(core)?;
-                if let Some(line) = report
-                    .lines
-                    .iter_mut()
-                    .find(|l| l.style == Style::Result && l.text.starts_with(&head))
-                {
-                    line.text = format!("{head}{}", plain::field(&renamed));
-                }
-            }
+            reprint_renamed(info, &map, &new, span, report)?;
         }
         self.states = new.clone();
         self.charts.moved = true;
@@ -647,6 +627,40 @@ fn args_mentions<'a>(args: &'a [Arg], out: &mut Vec<Mention<'a>>, model: bool) {
             }
         }
     }
+}
+
+/// Rewrites the printed orders (and transform) of an averaged result with
+/// the averaged state's new names.
+fn reprint_renamed(
+    info: &AveragedInfo,
+    map: &std::collections::HashMap<Sym, Sym>,
+    new: &[Sym],
+    span: Span,
+    report: &mut Report,
+) -> SessionResult<()> {
+    let core = |e: CoreError| SessionError::core(span, e);
+    let transform = info.transform.iter().flatten();
+    let printed = info
+        .orders
+        .iter()
+        .enumerate()
+        .map(|(k, f)| (format!("order {}  ", k + 1), f))
+        .chain(
+            transform
+                .enumerate()
+                .map(|(k, w)| (format!("w_{}     ", k + 1), w)),
+        );
+    for (head, f) in printed {
+        let renamed = f.map(|c| c.rename(map, new)).map_err(core)?;
+        if let Some(line) = report
+            .lines
+            .iter_mut()
+            .find(|l| l.style == Style::Result && l.text.starts_with(&head))
+        {
+            line.text = format!("{head}{}", plain::field(&renamed));
+        }
+    }
+    Ok(())
 }
 
 /// The right-hand sides of `by`, one per old coordinate in the chart's

@@ -279,27 +279,7 @@ impl Session {
         report: &mut Report,
     ) -> SessionResult<Value> {
         let core = |e: CoreError| SessionError::core(span, e);
-        let mut horizon_span = span;
-        let (horizon, period) = match over {
-            Some((t, tspan)) => {
-                horizon_span = tspan;
-                let p = period_from_expr(&t);
-                if t.as_number().is_none() && p.is_none() {
-                    return Err(SessionError::invalid(
-                        tspan,
-                        format!(
-                            "the horizon must be a number or a rational multiple of pi, got `{t}`"
-                        ),
-                    ));
-                }
-                (t, p)
-            }
-            None => {
-                let exprs: Vec<&Expr> = v.field.0.iter().collect();
-                let p = chrono::period_of(&exprs).ok_or_else(|| core(chrono::no_period_error()))?;
-                (p.to_expr(), Some(p))
-            }
-        };
+        let (horizon, period, horizon_span) = magnus_horizon(v, over, span)?;
         let w = chrono::magnus_generator(&Graded::single(v.field.clone()), n, &self.states)
             .map_err(core)?;
         let mut orders = Vec::with_capacity(n);
@@ -797,6 +777,37 @@ fn report_averaging_form(res: &Averaged, e: &str, report: &mut Report) {
             );
         }
     }
+}
+
+/// The horizon of `magnus … [over T]`: `T` (a number or a rational multiple
+/// of pi, with its period when it is one) or the field's period, and the
+/// span that errors at the horizon point to.
+fn magnus_horizon(
+    v: &FieldValue,
+    over: Option<(Expr, Span)>,
+    span: Span,
+) -> SessionResult<(Expr, Option<Period>, Span)> {
+    let core = |e: CoreError| SessionError::core(span, e);
+    let mut horizon_span = span;
+    let (horizon, period) = match over {
+        Some((t, tspan)) => {
+            horizon_span = tspan;
+            let p = period_from_expr(&t);
+            if t.as_number().is_none() && p.is_none() {
+                return Err(SessionError::invalid(
+                    tspan,
+                    format!("the horizon must be a number or a rational multiple of pi, got `{t}`"),
+                ));
+            }
+            (t, p)
+        }
+        None => {
+            let exprs: Vec<&Expr> = v.field.0.iter().collect();
+            let p = chrono::period_of(&exprs).ok_or_else(|| core(chrono::no_period_error()))?;
+            (p.to_expr(), Some(p))
+        }
+    };
+    Ok((horizon, period, horizon_span))
 }
 
 /// Refuses more names on the left of `=` than the command gives results.
