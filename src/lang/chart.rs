@@ -678,7 +678,7 @@ fn old_coordinates_given<'a>(
                 format!(
                     "`{}` is not a coordinate of {}: `by` gives each old coordinate in the new ones",
                     a.name.name,
-                    chart_name(&old)
+                    chart_name(old)
                 ),
             ));
         };
