@@ -16,7 +16,7 @@ use std::collections::BTreeMap;
 use super::ast::{Arg, Assign, Command, CommandKind, ExprKind, Ident, Rhs, Span, SyntaxExpr};
 use super::ast::{Stmt, StmtKind};
 use super::session::{Report, Session, SessionError, SessionResult, Style, SymKind};
-use super::value::{FieldValue, Value};
+use super::value::{AveragedInfo, FieldValue, Value};
 use crate::core::chart::Change;
 use crate::core::{CoreError, Expr, Field, Sym};
 use crate::render::plain;
@@ -307,62 +307,12 @@ impl Session {
                 ),
             ));
         }
-        // Each old coordinate exactly once.
-        let mut psi_ast: Vec<Option<&SyntaxExpr>> = vec![None; old.len()];
-        for a in by {
-            let Some(i) = old.iter().position(|s| s.name() == a.name.name) else {
-                return Err(SessionError::invalid(
-                    a.name.span,
-                    format!(
-                        "`{}` is not a coordinate of {}: `by` gives each old coordinate in the new ones",
-                        a.name.name,
-                        chart_name(&old)
-                    ),
-                ));
-            };
-            if psi_ast[i].is_some() {
-                return Err(SessionError::invalid(
-                    a.name.span,
-                    format!("`{}` is given twice", a.name.name),
-                ));
-            }
-            psi_ast[i] = Some(&a.value);
-        }
-        if let Some(i) = psi_ast.iter().position(Option::is_none) {
-            return Err(SessionError::invalid(
-                span,
-                format!(
-                    "`by` must give every old coordinate: `{} = …` is missing",
-                    old[i].name()
-                ),
-            ));
-        }
+        let psi_ast = old_coordinates_given(&old, by, span)?;
         let new = self.new_chart(to)?;
         // The map's right-hand sides live in the new chart.
         self.states = new.clone();
         self.charts.moved = true;
-        let mut psi = Vec::with_capacity(old.len());
-        let mut shown = Vec::with_capacity(old.len());
-        for (s, e) in old.iter().zip(psi_ast.into_iter().flatten()) {
-            let x = self.eval_scalar(e, "the value of an old coordinate")?;
-            if let Some(bad) = x
-                .symbols()
-                .into_iter()
-                .find(|y| !new.contains(y) && self.chart_of_coordinate(&y.name()).is_some())
-            {
-                return Err(SessionError::invalid(
-                    e.span,
-                    format!(
-                        "`{}` must be written in the new coordinates {} (and t), but mentions `{}`",
-                        s.name(),
-                        chart_name(&new),
-                        bad.name()
-                    ),
-                ));
-            }
-            shown.push(format!("{} = {}", s.name(), x));
-            psi.push(x);
-        }
+        let (psi, shown) = self.old_coordinates_in(&old, &new, &psi_ast)?;
         let core = |e: CoreError| SessionError::core(span, e);
         let change = Change::new(&old, &new, psi).map_err(core)?;
         let result = match value {
@@ -397,6 +347,40 @@ impl Session {
             ),
         );
         Ok(result)
+    }
+
+    /// Evaluates the old coordinates as expressions in the new chart (the
+    /// session already in it), refusing coordinates of other charts; also
+    /// returns them as `q = …` for the note.
+    fn old_coordinates_in(
+        &self,
+        old: &[Sym],
+        new: &[Sym],
+        psi_ast: &[&SyntaxExpr],
+    ) -> SessionResult<(Vec<Expr>, Vec<String>)> {
+        let mut psi = Vec::with_capacity(old.len());
+        let mut shown = Vec::with_capacity(old.len());
+        for (s, e) in old.iter().zip(psi_ast.iter().copied()) {
+            let x = self.eval_scalar(e, "the value of an old coordinate")?;
+            if let Some(bad) = x
+                .symbols()
+                .into_iter()
+                .find(|y| !new.contains(y) && self.chart_of_coordinate(&y.name()).is_some())
+            {
+                return Err(SessionError::invalid(
+                    e.span,
+                    format!(
+                        "`{}` must be written in the new coordinates {} (and t), but mentions `{}`",
+                        s.name(),
+                        chart_name(new),
+                        bad.name()
+                    ),
+                ));
+            }
+            shown.push(format!("{} = {}", s.name(), x));
+            psi.push(x);
+        }
+        Ok((psi, shown))
     }
 
     /// `average … as z1, z2`: the averaged results under new names (the
@@ -448,27 +432,7 @@ impl Session {
             ..
         })) = out.first()
         {
-            let transform = info.transform.iter().flatten();
-            let printed = info
-                .orders
-                .iter()
-                .enumerate()
-                .map(|(k, f)| (format!("order {}  ", k + 1), f))
-                .chain(
-                    transform
-                        .enumerate()
-                        .map(|(k, w)| (format!("w_{}     ", k + 1), w)),
-                );
-            for (head, f) in printed {
-                let renamed = rename(f).map_err(core)?;
-                if let Some(line) = report
-                    .lines
-                    .iter_mut()
-                    .find(|l| l.style == Style::Result && l.text.starts_with(&head))
-                {
-                    line.text = format!("{head}{}", plain::field(&renamed));
-                }
-            }
+            reprint_renamed(info, &map, &new, span, report)?;
         }
         self.states = new.clone();
         self.charts.moved = true;
@@ -663,4 +627,77 @@ fn args_mentions<'a>(args: &'a [Arg], out: &mut Vec<Mention<'a>>, model: bool) {
             }
         }
     }
+}
+
+/// Rewrites the printed orders (and transform) of an averaged result with
+/// the averaged state's new names.
+fn reprint_renamed(
+    info: &AveragedInfo,
+    map: &std::collections::HashMap<Sym, Sym>,
+    new: &[Sym],
+    span: Span,
+    report: &mut Report,
+) -> SessionResult<()> {
+    let core = |e: CoreError| SessionError::core(span, e);
+    let transform = info.transform.iter().flatten();
+    let printed = info
+        .orders
+        .iter()
+        .enumerate()
+        .map(|(k, f)| (format!("order {}  ", k + 1), f))
+        .chain(
+            transform
+                .enumerate()
+                .map(|(k, w)| (format!("w_{}     ", k + 1), w)),
+        );
+    for (head, f) in printed {
+        let renamed = f.map(|c| c.rename(map, new)).map_err(core)?;
+        if let Some(line) = report
+            .lines
+            .iter_mut()
+            .find(|l| l.style == Style::Result && l.text.starts_with(&head))
+        {
+            line.text = format!("{head}{}", plain::field(&renamed));
+        }
+    }
+    Ok(())
+}
+
+/// The right-hand sides of `by`, one per old coordinate in the chart's
+/// order: each old coordinate must be given exactly once.
+fn old_coordinates_given<'a>(
+    old: &[Sym],
+    by: &'a [Assign],
+    span: Span,
+) -> SessionResult<Vec<&'a SyntaxExpr>> {
+    let mut psi_ast: Vec<Option<&SyntaxExpr>> = vec![None; old.len()];
+    for a in by {
+        let Some(i) = old.iter().position(|s| s.name() == a.name.name) else {
+            return Err(SessionError::invalid(
+                a.name.span,
+                format!(
+                    "`{}` is not a coordinate of {}: `by` gives each old coordinate in the new ones",
+                    a.name.name,
+                    chart_name(old)
+                ),
+            ));
+        };
+        if psi_ast[i].is_some() {
+            return Err(SessionError::invalid(
+                a.name.span,
+                format!("`{}` is given twice", a.name.name),
+            ));
+        }
+        psi_ast[i] = Some(&a.value);
+    }
+    if let Some(i) = psi_ast.iter().position(Option::is_none) {
+        return Err(SessionError::invalid(
+            span,
+            format!(
+                "`by` must give every old coordinate: `{} = …` is missing",
+                old[i].name()
+            ),
+        ));
+    }
+    Ok(psi_ast.into_iter().flatten().collect())
 }

@@ -7,8 +7,8 @@ use std::time::Instant;
 
 use super::ast::{Command, CommandKind, Ident, Span};
 use super::session::{Report, Session, SessionError, SessionResult, Style, SymKind};
-use super::value::{AveragedInfo, FieldValue, Value};
-use crate::averaging::{self, Form, Method, Options};
+use super::value::{AveragedInfo, BracketTerm, FieldValue, Value};
+use crate::averaging::{self, Averaged, Form, Method, Options};
 use crate::core::calc::Period;
 use crate::core::error::LimitKind;
 use crate::core::{limits, CoreError, Expr, Field, Matrix, Sym, Q};
@@ -58,23 +58,10 @@ impl Session {
         report: &mut Report,
         started: Instant,
     ) -> SessionResult<()> {
-        let want = |n: usize, span: Span| -> SessionResult<()> {
-            if names.len() > n {
-                return Err(SessionError::invalid(
-                    span,
-                    format!(
-                        "this command gives {n} result{}, {} names given",
-                        if n == 1 { "" } else { "s" },
-                        names.len()
-                    ),
-                ));
-            }
-            Ok(())
-        };
         let span = cmd.span;
         let results: Vec<Value> = match &cmd.kind {
             CommandKind::Flow { field, on, to } => {
-                want(1, span)?;
+                want_results(names, 1, span)?;
                 let n = order_arg(to.value, to.span)?;
                 let v = self.eval_field(field, "the field of `flow`")?;
                 self.refuse_phase(&v.field.0, field.span, "the field of `flow`")?;
@@ -85,7 +72,7 @@ impl Session {
                 vec![self.flow(&v.field, h, n, span, report)?]
             }
             CommandKind::Magnus { field, to, over } => {
-                want(1, span)?;
+                want_results(names, 1, span)?;
                 let n = order_arg(to.value, to.span)?;
                 let v = self.eval_field(field, "the field of `magnus`")?;
                 self.refuse_phase(&v.field.0, field.span, "the field of `magnus`")?;
@@ -98,68 +85,13 @@ impl Session {
                 };
                 vec![self.magnus(&v, n, period, span, report)?]
             }
-            CommandKind::Average {
-                field,
-                to,
-                param,
-                inverse,
-                method,
-                depth,
-                with_transform,
-                chart,
-            } => {
-                let n = order_arg(to.value, to.span)?;
-                let v = self.eval_field(field, "the system of `average`")?;
-                let eps = self.param_sym(param)?;
-                if !*inverse {
-                    self.refuse_phase(&v.field.0, field.span, "the system of `average … in eps`")?;
-                }
-                let method = match method.as_ref().map(|m| m.name.as_str()) {
-                    None | Some("strobo") => Method::Strobo,
-                    Some("classic") => Method::Classic,
-                    Some(other) => {
-                        let sp = method.as_ref().map_or(span, |m| m.span);
-                        return Err(SessionError::invalid(
-                            sp,
-                            format!("unknown method `{other}`: use `strobo` or `classic`"),
-                        ));
-                    }
-                };
-                if *with_transform && method != Method::Classic {
-                    return Err(SessionError::invalid(span, "`with transform` goes with `classic` (stroboscopic averaging needs no transform)"));
-                }
-                want(if *with_transform { 2 } else { 1 }, span)?;
-                let depth = match depth {
-                    Some(d) => {
-                        limits::check_order(d.value).map_err(|e| SessionError::core(d.span, e))?;
-                        d.value
-                    }
-                    None => 8,
-                };
-                let opts = Options {
-                    method,
-                    order: n,
-                    depth,
-                    with_transform: *with_transform,
-                };
-                let results = if *inverse {
-                    self.average_in_frequency(&v, eps, &opts, span, report)?
-                } else {
-                    self.average(&v, eps, &opts, span, report)?
-                };
-                if chart.is_empty() {
-                    self.note_averaged_chart(report);
-                    results
-                } else {
-                    self.name_averaged_state(chart, results, span, report)?
-                }
-            }
+            CommandKind::Average { .. } => self.run_average(cmd, names, report)?,
             CommandKind::Change { field, to, by } => {
-                want(1, span)?;
+                want_results(names, 1, span)?;
                 vec![self.change(field, to, by, span, report)?]
             }
             CommandKind::Carleman { field, degree } => {
-                want(1, span)?;
+                want_results(names, 1, span)?;
                 let v = self.eval_field(field, "the field of `carleman`")?;
                 if degree.value > 12 {
                     return Err(SessionError::invalid(
@@ -173,26 +105,91 @@ impl Session {
             | CommandKind::Compare { .. }
             | CommandKind::Stability { .. }
             | CommandKind::Equilibria { .. } => {
-                want(0, span)?;
+                want_results(names, 0, span)?;
                 self.run_numeric(cmd, report)?;
                 Vec::new()
             }
         };
-        let elapsed = started.elapsed();
         if self.show_timing {
-            if let Some(last) = report.lines.last_mut() {
-                if last.style == Style::Note
-                    && (last.text.contains(" term") || last.text.contains(" section"))
-                {
-                    last.text.push_str(&format!(", {} ms", elapsed.as_millis()));
-                }
-            }
+            append_timing(report, started);
         }
         for (name, value) in names.iter().zip(results) {
             let mut tmp = Report::default();
             self.bind(name, value, &mut tmp)?;
         }
         Ok(())
+    }
+
+    /// `average`: the options checked, the averaging run (in eps or in a
+    /// symbolic frequency `1/w`), the averaged state named.
+    fn run_average(
+        &mut self,
+        cmd: &Command,
+        names: &[Ident],
+        report: &mut Report,
+    ) -> SessionResult<Vec<Value>> {
+        let span = cmd.span;
+        let CommandKind::Average {
+            field,
+            to,
+            param,
+            inverse,
+            method,
+            depth,
+            with_transform,
+            chart,
+        } = &cmd.kind
+        else {
+            return Err(SessionError::invalid(span, "not `average`"));
+        };
+        let n = order_arg(to.value, to.span)?;
+        let v = self.eval_field(field, "the system of `average`")?;
+        let eps = self.param_sym(param)?;
+        if !*inverse {
+            self.refuse_phase(&v.field.0, field.span, "the system of `average … in eps`")?;
+        }
+        let method = match method.as_ref().map(|m| m.name.as_str()) {
+            None | Some("strobo") => Method::Strobo,
+            Some("classic") => Method::Classic,
+            Some(other) => {
+                let sp = method.as_ref().map_or(span, |m| m.span);
+                return Err(SessionError::invalid(
+                    sp,
+                    format!("unknown method `{other}`: use `strobo` or `classic`"),
+                ));
+            }
+        };
+        if *with_transform && method != Method::Classic {
+            return Err(SessionError::invalid(
+                span,
+                "`with transform` goes with `classic` (stroboscopic averaging needs no transform)",
+            ));
+        }
+        want_results(names, if *with_transform { 2 } else { 1 }, span)?;
+        let depth = match depth {
+            Some(d) => {
+                limits::check_order(d.value).map_err(|e| SessionError::core(d.span, e))?;
+                d.value
+            }
+            None => 8,
+        };
+        let opts = Options {
+            method,
+            order: n,
+            depth,
+            with_transform: *with_transform,
+        };
+        let results = if *inverse {
+            self.average_in_frequency(&v, eps, &opts, span, report)?
+        } else {
+            self.average(&v, eps, &opts, span, report)?
+        };
+        if chart.is_empty() {
+            self.note_averaged_chart(report);
+            Ok(results)
+        } else {
+            self.name_averaged_state(chart, results, span, report)
+        }
     }
 
     pub(crate) fn param_sym(&self, id: &Ident) -> SessionResult<Sym> {
@@ -282,27 +279,7 @@ impl Session {
         report: &mut Report,
     ) -> SessionResult<Value> {
         let core = |e: CoreError| SessionError::core(span, e);
-        let mut horizon_span = span;
-        let (horizon, period) = match over {
-            Some((t, tspan)) => {
-                horizon_span = tspan;
-                let p = period_from_expr(&t);
-                if t.as_number().is_none() && p.is_none() {
-                    return Err(SessionError::invalid(
-                        tspan,
-                        format!(
-                            "the horizon must be a number or a rational multiple of pi, got `{t}`"
-                        ),
-                    ));
-                }
-                (t, p)
-            }
-            None => {
-                let exprs: Vec<&Expr> = v.field.0.iter().collect();
-                let p = chrono::period_of(&exprs).ok_or_else(|| core(chrono::no_period_error()))?;
-                (p.to_expr(), Some(p))
-            }
-        };
+        let (horizon, period, horizon_span) = magnus_horizon(v, over, span)?;
         let w = chrono::magnus_generator(&Graded::single(v.field.clone()), n, &self.states)
             .map_err(core)?;
         let mut orders = Vec::with_capacity(n);
@@ -376,59 +353,7 @@ impl Session {
         let res = averaging::average(&v.field, eps, opts, &self.states)
             .map_err(|e| core(name_small_parameter(e, eps)))?;
         let e = eps.name();
-        match &res.form {
-            Form::Standard => report.push(
-                Style::Note,
-                format!(
-                    "standard form x' = Σ {e}^j f_j(t, x), period {}",
-                    res.period
-                ),
-            ),
-            Form::FastOscillation {
-                generator,
-                zero_mean,
-                depth,
-                ended,
-            } => {
-                let g: Vec<String> = generator
-                    .iter()
-                    .map(|(u, g)| format!("({u})*{}", plain::field(g)))
-                    .collect();
-                report.push(
-                    Style::Note,
-                    format!(
-                        "fast-oscillation form: x = exp(Y(t))(z), Y = {}; z is averaged, period {}",
-                        g.join(" + "),
-                        res.period
-                    ),
-                );
-                report.push(
-                    Style::Note,
-                    if *zero_mean {
-                        "base: zero-mean antiderivatives U_i = ∫_0^t u_i - mean(∫_0^t u_i) (classical, \
-                         the vibrational transform); full transform x = exp(Y(t))(y + W(t, y))"
-                    } else {
-                        "base: U_i = ∫_0^t u_i (stroboscopic: x = z at multiples of the period)"
-                    },
-                );
-                if *ended {
-                    report.push(Style::Note, format!("ad-series ends at depth {depth}"));
-                } else {
-                    report.push(Style::Warn, format!("warning: ad-series truncated at depth {depth} (raise it with `depth D`)"));
-                }
-            }
-            Form::LinearCentre { a, rotation } => {
-                report.push(
-                    Style::Note,
-                    format!(
-                        "linear centre A = {}: rotating coordinates x = R(t) z, R(t) = exp(A*t) = {}; z is averaged, period {}",
-                        plain::matrix(a),
-                        plain::matrix(rotation),
-                        res.period
-                    ),
-                );
-            }
-        }
+        report_averaging_form(&res, &e, report);
         let method = opts.method.adjective();
         report.push(
             Style::Note,
@@ -443,62 +368,9 @@ impl Session {
             n_terms += f.n_terms();
         }
         let total = res.total(eps).map_err(core)?;
-        // Structural form, when the system was written over named fields.
-        let structure = match (&v.combo, &res.form) {
-            (Some(combo), Form::Standard) => match opts.method {
-                Method::Strobo => optional_structure(
-                    super::structural::magnus_structure(
-                        combo,
-                        opts.order,
-                        &res.period.to_expr(),
-                        Some(&res.period),
-                        Some(eps),
-                        &self.states,
-                    ),
-                    report,
-                )
-                .map_err(core)?,
-                Method::Classic => optional_structure(
-                    super::structural::classic_structure(combo, opts.order, &res.period, eps),
-                    report,
-                )
-                .map_err(core)?,
-            },
-            (Some(combo), Form::FastOscillation { zero_mean, .. }) => {
-                let s = optional_structure(
-                    super::structural::fast_oscillation_structure(
-                        combo,
-                        opts.order,
-                        &res.period,
-                        eps,
-                        *zero_mean,
-                        opts.depth,
-                        &self.states,
-                    ),
-                    report,
-                )
-                .map_err(core)?;
-                if s.is_some() {
-                    let g: Vec<&str> = combo
-                        .parts
-                        .iter()
-                        .filter(|(_, _, c)| !c.coeff_of_power(eps, 0).is_zero())
-                        .map(|(n, _, _)| n.as_str())
-                        .collect();
-                    report.push(
-                        Style::Note,
-                        format!(
-                            "bracket form in the letters with {} commuting (as the fast-oscillation \
-                             form needs): over ad-words [G, [G, …]], those that vanish on these \
-                             fields left out",
-                            g.join(", ")
-                        ),
-                    );
-                }
-                s
-            }
-            _ => None,
-        };
+        let structure = self
+            .averaged_structure(v, &res, eps, opts, report)
+            .map_err(core)?;
         if structure.is_some() {
             report.push(
                 Style::Note,
@@ -537,6 +409,71 @@ impl Session {
         }
         report.push(Style::Note, summary(opts.order, n_terms));
         Ok(out)
+    }
+
+    /// The bracket form of an averaged result, when the system was written
+    /// over named fields and the method and form give one (with a note on
+    /// the letters a fast-oscillation form treats as commuting).
+    fn averaged_structure(
+        &self,
+        v: &FieldValue,
+        res: &Averaged,
+        eps: Sym,
+        opts: &Options,
+        report: &mut Report,
+    ) -> Result<Option<Vec<BracketTerm>>, CoreError> {
+        Ok(match (&v.combo, &res.form) {
+            (Some(combo), Form::Standard) => match opts.method {
+                Method::Strobo => optional_structure(
+                    super::structural::magnus_structure(
+                        combo,
+                        opts.order,
+                        &res.period.to_expr(),
+                        Some(&res.period),
+                        Some(eps),
+                        &self.states,
+                    ),
+                    report,
+                )?,
+                Method::Classic => optional_structure(
+                    super::structural::classic_structure(combo, opts.order, &res.period, eps),
+                    report,
+                )?,
+            },
+            (Some(combo), Form::FastOscillation { zero_mean, .. }) => {
+                let s = optional_structure(
+                    super::structural::fast_oscillation_structure(
+                        combo,
+                        opts.order,
+                        &res.period,
+                        eps,
+                        *zero_mean,
+                        opts.depth,
+                        &self.states,
+                    ),
+                    report,
+                )?;
+                if s.is_some() {
+                    let g: Vec<&str> = combo
+                        .parts
+                        .iter()
+                        .filter(|(_, _, c)| !c.coeff_of_power(eps, 0).is_zero())
+                        .map(|(n, _, _)| n.as_str())
+                        .collect();
+                    report.push(
+                        Style::Note,
+                        format!(
+                            "bracket form in the letters with {} commuting (as the fast-oscillation \
+                             form needs): over ad-words [G, [G, …]], those that vanish on these \
+                             fields left out",
+                            g.join(", ")
+                        ),
+                    );
+                }
+                s
+            }
+            _ => None,
+        })
     }
 
     fn carleman(
@@ -776,5 +713,127 @@ impl Expr {
             }
         }
         Ok(out)
+    }
+}
+
+/// The notes on the form the system was recognised in (standard, fast
+/// oscillation with its generator and base, linear centre).
+fn report_averaging_form(res: &Averaged, e: &str, report: &mut Report) {
+    match &res.form {
+        Form::Standard => report.push(
+            Style::Note,
+            format!(
+                "standard form x' = Σ {e}^j f_j(t, x), period {}",
+                res.period
+            ),
+        ),
+        Form::FastOscillation {
+            generator,
+            zero_mean,
+            depth,
+            ended,
+        } => {
+            let g: Vec<String> = generator
+                .iter()
+                .map(|(u, g)| format!("({u})*{}", plain::field(g)))
+                .collect();
+            report.push(
+                Style::Note,
+                format!(
+                    "fast-oscillation form: x = exp(Y(t))(z), Y = {}; z is averaged, period {}",
+                    g.join(" + "),
+                    res.period
+                ),
+            );
+            report.push(
+                Style::Note,
+                if *zero_mean {
+                    "base: zero-mean antiderivatives U_i = ∫_0^t u_i - mean(∫_0^t u_i) (classical, \
+                     the vibrational transform); full transform x = exp(Y(t))(y + W(t, y))"
+                } else {
+                    "base: U_i = ∫_0^t u_i (stroboscopic: x = z at multiples of the period)"
+                },
+            );
+            if *ended {
+                report.push(Style::Note, format!("ad-series ends at depth {depth}"));
+            } else {
+                report.push(
+                    Style::Warn,
+                    format!(
+                        "warning: ad-series truncated at depth {depth} (raise it with `depth D`)"
+                    ),
+                );
+            }
+        }
+        Form::LinearCentre { a, rotation } => {
+            report.push(
+                Style::Note,
+                format!(
+                    "linear centre A = {}: rotating coordinates x = R(t) z, R(t) = exp(A*t) = {}; z is averaged, period {}",
+                    plain::matrix(a),
+                    plain::matrix(rotation),
+                    res.period
+                ),
+            );
+        }
+    }
+}
+
+/// The horizon of `magnus … [over T]`: `T` (a number or a rational multiple
+/// of pi, with its period when it is one) or the field's period, and the
+/// span that errors at the horizon point to.
+fn magnus_horizon(
+    v: &FieldValue,
+    over: Option<(Expr, Span)>,
+    span: Span,
+) -> SessionResult<(Expr, Option<Period>, Span)> {
+    let core = |e: CoreError| SessionError::core(span, e);
+    let mut horizon_span = span;
+    let (horizon, period) = match over {
+        Some((t, tspan)) => {
+            horizon_span = tspan;
+            let p = period_from_expr(&t);
+            if t.as_number().is_none() && p.is_none() {
+                return Err(SessionError::invalid(
+                    tspan,
+                    format!("the horizon must be a number or a rational multiple of pi, got `{t}`"),
+                ));
+            }
+            (t, p)
+        }
+        None => {
+            let exprs: Vec<&Expr> = v.field.0.iter().collect();
+            let p = chrono::period_of(&exprs).ok_or_else(|| core(chrono::no_period_error()))?;
+            (p.to_expr(), Some(p))
+        }
+    };
+    Ok((horizon, period, horizon_span))
+}
+
+/// Refuses more names on the left of `=` than the command gives results.
+fn want_results(names: &[Ident], n: usize, span: Span) -> SessionResult<()> {
+    if names.len() > n {
+        return Err(SessionError::invalid(
+            span,
+            format!(
+                "this command gives {n} result{}, {} names given",
+                if n == 1 { "" } else { "s" },
+                names.len()
+            ),
+        ));
+    }
+    Ok(())
+}
+
+/// Adds the time since `started` to the last note when it is a command's
+/// summary (`… terms`, `… section`).
+fn append_timing(report: &mut Report, started: Instant) {
+    let elapsed = started.elapsed();
+    if let Some(last) = report.lines.last_mut() {
+        if last.style == Style::Note
+            && (last.text.contains(" term") || last.text.contains(" section"))
+        {
+            last.text.push_str(&format!(", {} ms", elapsed.as_millis()));
+        }
     }
 }

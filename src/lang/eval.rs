@@ -33,6 +33,15 @@ fn kind_err(span: Span, op: &str, left: &Value, right: Option<&Value>) -> Sessio
     )
 }
 
+/// A call of a built-in: its row of the table, its name as typed, its
+/// arguments and the span of the whole call.
+struct BuiltinCall<'a> {
+    builtin: &'static Builtin,
+    name: &'a Ident,
+    args: &'a [Arg],
+    span: Span,
+}
+
 /// The usage line of `plug`, for its errors.
 fn plug_usage() -> String {
     let usage = builtins::find("plug").map_or("", |builtin| builtin.usage);
@@ -227,99 +236,127 @@ impl Session {
         b: &SyntaxExpr,
         span: Span,
     ) -> SessionResult<Value> {
-        let core = |err: CoreError| SessionError::core(span, err);
         if op == BinOp::Pow {
-            let base = self.eval(a)?;
-            let n = self.eval_count(b, "an exponent")?;
-            return match base {
-                Value::Scalar(x) => Ok(Value::Scalar(x.pow(n).map_err(core)?)),
-                Value::Matrix(m) if m.is_square() && (0..=10_000).contains(&n) => {
-                    let mut acc = Matrix::identity(m.rows);
-                    for _ in 0..n {
-                        acc = acc.mul(&m).map_err(core)?;
-                    }
-                    Ok(Value::Matrix(acc))
-                }
-                other => Err(kind_err(span, "`^`", &other, None)),
-            };
+            return self.eval_pow(a, b, span);
         }
         let x = self.eval(a)?;
         let y = self.eval(b)?;
-        let opname = format!("`{}`", op.symbol());
         match op {
-            BinOp::Add | BinOp::Sub => {
-                let sign = if op == BinOp::Add { Q::ONE } else { Q::int(-1) };
-                // A sum is at most as large as its parts together, but a long
-                // sum of parts each within the budget is not: check it too.
-                let sum = match (&x, &y) {
-                    (Value::Scalar(p), Value::Scalar(q)) => {
-                        Ok(Value::Scalar(p.add_scaled(q, &sign)))
-                    }
-                    (Value::Field(p), Value::Field(q)) => {
-                        let field = p.field.add_scaled(&q.field, &sign).map_err(core)?;
-                        let combo = match (&p.combo, &q.combo) {
-                            (Some(c1), Some(c2)) => Some(merge_combinations(c1, c2, &sign)),
-                            _ => None,
-                        };
-                        Ok(Value::Field(FieldValue {
-                            field,
-                            combo,
-                            structure: None,
-                            averaged: None,
-                        }))
-                    }
-                    (Value::Matrix(p), Value::Matrix(q)) => {
-                        Ok(Value::Matrix(p.add_scaled(q, &sign).map_err(core)?))
-                    }
-                    _ => Err(kind_err(span, &opname, &x, Some(&y))),
-                }?;
-                crate::core::limits::check_terms(value_size(&sum)).map_err(core)?;
-                Ok(sum)
-            }
-            BinOp::Mul => match (&x, &y) {
-                (Value::Scalar(p), Value::Scalar(q)) => Ok(Value::Scalar(p.mul(q).map_err(core)?)),
-                (Value::Scalar(s), Value::Field(f)) | (Value::Field(f), Value::Scalar(s)) => {
-                    let mut out = scale_field_value(f, s).map_err(core)?;
-                    if !self.is_state_free(s) {
-                        out.combo = None;
-                    }
-                    Ok(Value::Field(out))
-                }
-                (Value::Scalar(s), Value::Matrix(m)) | (Value::Matrix(m), Value::Scalar(s)) => {
-                    Ok(Value::Matrix(m.mul_expr(s).map_err(core)?))
-                }
-                (Value::Matrix(m), Value::Matrix(n)) => Ok(Value::Matrix(m.mul(n).map_err(core)?)),
-                (Value::Matrix(m), Value::Field(f)) => {
-                    Ok(Value::field(m.apply(&f.field).map_err(core)?))
-                }
-                _ => Err(kind_err(span, &opname, &x, Some(&y))),
-            },
-            BinOp::Div => {
-                let d = match &y {
-                    Value::Scalar(d) => d.clone(),
-                    _ => return Err(kind_err(span, &opname, &x, Some(&y))),
-                };
-                let inv = if let Some(q) = d.as_number() {
-                    Expr::num(
-                        q.recip()
-                            .ok_or_else(|| SessionError::core(b.span, CoreError::DivisionByZero))?,
-                    )
-                } else {
-                    d.recip().map_err(|e| SessionError::core(b.span, e))?
-                };
-                match x {
-                    Value::Scalar(p) => Ok(Value::Scalar(p.mul(&inv).map_err(core)?)),
-                    Value::Field(f) => {
-                        let mut out = scale_field_value(&f, &inv).map_err(core)?;
-                        if !self.is_state_free(&inv) {
-                            out.combo = None;
-                        }
-                        Ok(Value::Field(out))
-                    }
-                    Value::Matrix(m) => Ok(Value::Matrix(m.mul_expr(&inv).map_err(core)?)),
-                }
-            }
+            BinOp::Add | BinOp::Sub => self.eval_sum(op, &x, &y, span),
+            BinOp::Mul => self.eval_product(op, &x, &y, span),
+            BinOp::Div => self.eval_quotient(op, x, &y, b.span, span),
             BinOp::Pow => unreachable_pow(span),
+        }
+    }
+
+    /// `a ^ n`: a scalar to an integer power, or a square matrix to a
+    /// power from 0 to 10000.
+    fn eval_pow(&self, a: &SyntaxExpr, b: &SyntaxExpr, span: Span) -> SessionResult<Value> {
+        let core = |err: CoreError| SessionError::core(span, err);
+        let base = self.eval(a)?;
+        let n = self.eval_count(b, "an exponent")?;
+        match base {
+            Value::Scalar(x) => Ok(Value::Scalar(x.pow(n).map_err(core)?)),
+            Value::Matrix(m) if m.is_square() && (0..=10_000).contains(&n) => {
+                let mut acc = Matrix::identity(m.rows);
+                for _ in 0..n {
+                    acc = acc.mul(&m).map_err(core)?;
+                }
+                Ok(Value::Matrix(acc))
+            }
+            other => Err(kind_err(span, "`^`", &other, None)),
+        }
+    }
+
+    /// `x + y` and `x - y` of two values of one kind (fields keep their
+    /// combination of named fields).
+    fn eval_sum(&self, op: BinOp, x: &Value, y: &Value, span: Span) -> SessionResult<Value> {
+        let core = |err: CoreError| SessionError::core(span, err);
+        let opname = format!("`{}`", op.symbol());
+        let sign = if op == BinOp::Add { Q::ONE } else { Q::int(-1) };
+        // A sum is at most as large as its parts together, but a long
+        // sum of parts each within the budget is not: check it too.
+        let sum = match (x, y) {
+            (Value::Scalar(p), Value::Scalar(q)) => Ok(Value::Scalar(p.add_scaled(q, &sign))),
+            (Value::Field(p), Value::Field(q)) => {
+                let field = p.field.add_scaled(&q.field, &sign).map_err(core)?;
+                let combo = match (&p.combo, &q.combo) {
+                    (Some(c1), Some(c2)) => Some(merge_combinations(c1, c2, &sign)),
+                    _ => None,
+                };
+                Ok(Value::Field(FieldValue {
+                    field,
+                    combo,
+                    structure: None,
+                    averaged: None,
+                }))
+            }
+            (Value::Matrix(p), Value::Matrix(q)) => {
+                Ok(Value::Matrix(p.add_scaled(q, &sign).map_err(core)?))
+            }
+            _ => Err(kind_err(span, &opname, x, Some(y))),
+        }?;
+        crate::core::limits::check_terms(value_size(&sum)).map_err(core)?;
+        Ok(sum)
+    }
+
+    /// `x * y`: scalars, a scalar times a field or matrix, matrix products
+    /// and a matrix applied to a field.
+    fn eval_product(&self, op: BinOp, x: &Value, y: &Value, span: Span) -> SessionResult<Value> {
+        let core = |err: CoreError| SessionError::core(span, err);
+        match (x, y) {
+            (Value::Scalar(p), Value::Scalar(q)) => Ok(Value::Scalar(p.mul(q).map_err(core)?)),
+            (Value::Scalar(s), Value::Field(f)) | (Value::Field(f), Value::Scalar(s)) => {
+                let mut out = scale_field_value(f, s).map_err(core)?;
+                if !self.is_state_free(s) {
+                    out.combo = None;
+                }
+                Ok(Value::Field(out))
+            }
+            (Value::Scalar(s), Value::Matrix(m)) | (Value::Matrix(m), Value::Scalar(s)) => {
+                Ok(Value::Matrix(m.mul_expr(s).map_err(core)?))
+            }
+            (Value::Matrix(m), Value::Matrix(n)) => Ok(Value::Matrix(m.mul(n).map_err(core)?)),
+            (Value::Matrix(m), Value::Field(f)) => {
+                Ok(Value::field(m.apply(&f.field).map_err(core)?))
+            }
+            _ => Err(kind_err(span, &format!("`{}`", op.symbol()), x, Some(y))),
+        }
+    }
+
+    /// `x / d` for a scalar `d` (division by zero reported at the divisor,
+    /// `divisor_span`).
+    fn eval_quotient(
+        &self,
+        op: BinOp,
+        x: Value,
+        y: &Value,
+        divisor_span: Span,
+        span: Span,
+    ) -> SessionResult<Value> {
+        let core = |err: CoreError| SessionError::core(span, err);
+        let d = match y {
+            Value::Scalar(d) => d.clone(),
+            _ => return Err(kind_err(span, &format!("`{}`", op.symbol()), &x, Some(y))),
+        };
+        let inv = if let Some(q) = d.as_number() {
+            Expr::num(
+                q.recip()
+                    .ok_or_else(|| SessionError::core(divisor_span, CoreError::DivisionByZero))?,
+            )
+        } else {
+            d.recip().map_err(|e| SessionError::core(divisor_span, e))?
+        };
+        match x {
+            Value::Scalar(p) => Ok(Value::Scalar(p.mul(&inv).map_err(core)?)),
+            Value::Field(f) => {
+                let mut out = scale_field_value(&f, &inv).map_err(core)?;
+                if !self.is_state_free(&inv) {
+                    out.combo = None;
+                }
+                Ok(Value::Field(out))
+            }
+            Value::Matrix(m) => Ok(Value::Matrix(m.mul_expr(&inv).map_err(core)?)),
         }
     }
 
@@ -425,14 +462,10 @@ impl Session {
 
     /// The positional arguments of a call of `builtin`, which takes a
     /// fixed number of them (`name = value` arguments are refused).
-    fn pos_args<'a>(
-        &self,
-        name: &Ident,
-        args: &'a [Arg],
-        builtin: &Builtin,
-    ) -> SessionResult<Vec<&'a SyntaxExpr>> {
-        let usage = builtin.usage;
-        let n = match builtin.arity {
+    fn pos_args<'a>(&self, call: &BuiltinCall<'a>) -> SessionResult<Vec<&'a SyntaxExpr>> {
+        let (name, args) = (call.name, call.args);
+        let usage = call.builtin.usage;
+        let n = match call.builtin.arity {
             Arity::Exactly(n) => n,
             Arity::OneThenBindings | Arity::AtLeastOne => 1,
         };
@@ -493,20 +526,26 @@ impl Session {
     /// A call of a built-in of the table in `super::builtins`, by family.
     fn eval_builtin(
         &self,
-        builtin: &Builtin,
+        builtin: &'static Builtin,
         name: &Ident,
         args: &[Arg],
         span: Span,
     ) -> SessionResult<Value> {
+        let call = BuiltinCall {
+            builtin,
+            name,
+            args,
+            span,
+        };
         match builtin.name {
-            "sin" | "cos" | "exp" => self.eval_elementary(builtin, name, args),
-            "ad" => self.eval_ad(builtin, name, args, span),
-            "pd" => self.eval_pd(builtin, name, args, span),
-            "jac" | "div" => self.eval_field_derivative(builtin, name, args, span),
-            "det" | "trace" => self.eval_matrix_scalar(builtin, name, args, span),
+            "sin" | "cos" | "exp" => self.eval_elementary(&call),
+            "ad" => self.eval_ad(&call),
+            "pd" => self.eval_pd(&call),
+            "jac" | "div" => self.eval_field_derivative(&call),
+            "det" | "trace" => self.eval_matrix_scalar(&call),
             "plug" => self.eval_plug(name, args, span),
-            "order" => self.eval_order(builtin, name, args),
-            "mean" => self.eval_mean(builtin, name, args, span),
+            "order" => self.eval_order(&call),
+            "mean" => self.eval_mean(&call),
             "bch" => self.eval_bch(name, args, span),
             "iint" => self.eval_iint(args, span),
             other => Err(self.unknown(other, name.span)),
@@ -514,14 +553,9 @@ impl Session {
     }
 
     /// `sin(x)`, `cos(x)`, `exp(x)` of a scalar (linear arguments).
-    fn eval_elementary(
-        &self,
-        builtin: &Builtin,
-        name: &Ident,
-        args: &[Arg],
-    ) -> SessionResult<Value> {
-        let f = builtin.name;
-        let a = self.pos_args(name, args, builtin)?;
+    fn eval_elementary(&self, call: &BuiltinCall<'_>) -> SessionResult<Value> {
+        let f = call.builtin.name;
+        let a = self.pos_args(call)?;
         let x = self.eval_scalar(a[0], &format!("the argument of `{f}`"))?;
         // `w*t` (w a parameter) is a symbolic-frequency phase.
         let (x, mut st) = match f {
@@ -540,14 +574,8 @@ impl Session {
     }
 
     /// `ad(X, Y, k)`: `[X, [X, … Y]]` with `k` brackets.
-    fn eval_ad(
-        &self,
-        builtin: &Builtin,
-        name: &Ident,
-        args: &[Arg],
-        span: Span,
-    ) -> SessionResult<Value> {
-        let a = self.pos_args(name, args, builtin)?;
+    fn eval_ad(&self, call: &BuiltinCall<'_>) -> SessionResult<Value> {
+        let a = self.pos_args(call)?;
         let x = self.eval_field(a[0], "the first argument of `ad`")?;
         let y = self.eval_field(a[1], "the second argument of `ad`")?;
         let k = self.eval_count(a[2], "the power of `ad`")?;
@@ -561,24 +589,18 @@ impl Session {
         Ok(Value::field(
             x.field
                 .ad_pow(&y.field, k as u64, &self.states)
-                .map_err(|err| SessionError::core(span, err))?,
+                .map_err(|err| SessionError::core(call.span, err))?,
         ))
     }
 
     /// `pd(h, q)`: the partial derivative of a value by a state, a
     /// parameter or `t`, entry by entry.
-    fn eval_pd(
-        &self,
-        builtin: &Builtin,
-        name: &Ident,
-        args: &[Arg],
-        span: Span,
-    ) -> SessionResult<Value> {
-        let a = self.pos_args(name, args, builtin)?;
+    fn eval_pd(&self, call: &BuiltinCall<'_>) -> SessionResult<Value> {
+        let a = self.pos_args(call)?;
         if let ExprKind::Name(n) = &a[0].kind {
             if let Some(f) = self.funcs.get(n) {
                 return Err(SessionError::invalid(
-                    span,
+                    call.span,
                     format!(
                         "a derivative of the function `{n}` is applied to arguments: \
                          write `pd({n}, {})(…)` (or `{n}'(…)` for one argument)",
@@ -609,17 +631,11 @@ impl Session {
     }
 
     /// `jac(X)` (the Jacobian matrix) and `div(X)` (the divergence).
-    fn eval_field_derivative(
-        &self,
-        builtin: &Builtin,
-        name: &Ident,
-        args: &[Arg],
-        span: Span,
-    ) -> SessionResult<Value> {
-        let core = |err: CoreError| SessionError::core(span, err);
-        let a = self.pos_args(name, args, builtin)?;
-        let x = self.eval_field(a[0], &format!("the argument of `{}`", builtin.name))?;
-        if builtin.name == "jac" {
+    fn eval_field_derivative(&self, call: &BuiltinCall<'_>) -> SessionResult<Value> {
+        let core = |err: CoreError| SessionError::core(call.span, err);
+        let a = self.pos_args(call)?;
+        let x = self.eval_field(a[0], &format!("the argument of `{}`", call.builtin.name))?;
+        if call.builtin.name == "jac" {
             Ok(Value::Matrix(x.field.jacobian(&self.states).map_err(core)?))
         } else {
             Ok(Value::Scalar(
@@ -629,29 +645,23 @@ impl Session {
     }
 
     /// `det(M)` and `trace(M)` of a matrix.
-    fn eval_matrix_scalar(
-        &self,
-        builtin: &Builtin,
-        name: &Ident,
-        args: &[Arg],
-        span: Span,
-    ) -> SessionResult<Value> {
-        let f = builtin.name;
-        let a = self.pos_args(name, args, builtin)?;
+    fn eval_matrix_scalar(&self, call: &BuiltinCall<'_>) -> SessionResult<Value> {
+        let f = call.builtin.name;
+        let a = self.pos_args(call)?;
         let m = match self.eval(a[0])? {
             Value::Matrix(m) => m,
             other => return Err(kind_err(a[0].span, &format!("`{f}`"), &other, None)),
         };
         let r = if f == "det" { m.det() } else { m.trace() };
         Ok(Value::Scalar(
-            r.map_err(|err| SessionError::core(span, err))?,
+            r.map_err(|err| SessionError::core(call.span, err))?,
         ))
     }
 
     /// `order(e, eps, k)`: the coefficient of `eps^k`, entry by entry (a
     /// field keeps the matching terms of its structure).
-    fn eval_order(&self, builtin: &Builtin, name: &Ident, args: &[Arg]) -> SessionResult<Value> {
-        let a = self.pos_args(name, args, builtin)?;
+    fn eval_order(&self, call: &BuiltinCall<'_>) -> SessionResult<Value> {
+        let a = self.pos_args(call)?;
         let s = self.symbol_arg(
             a[1],
             &[SymKind::Param, SymKind::State],
@@ -691,15 +701,9 @@ impl Session {
 
     /// `mean(e)`: the mean over the common period of every entry (a value
     /// without time dependence is its own mean).
-    fn eval_mean(
-        &self,
-        builtin: &Builtin,
-        name: &Ident,
-        args: &[Arg],
-        span: Span,
-    ) -> SessionResult<Value> {
-        let core = |err: CoreError| SessionError::core(span, err);
-        let a = self.pos_args(name, args, builtin)?;
+    fn eval_mean(&self, call: &BuiltinCall<'_>) -> SessionResult<Value> {
+        let core = |err: CoreError| SessionError::core(call.span, err);
+        let a = self.pos_args(call)?;
         let v = self.eval(a[0])?;
         let exprs = entries_of(&v);
         self.refuse_phase(exprs.iter().copied(), a[0].span, "the argument of `mean`")?;

@@ -4,7 +4,7 @@
 
 use std::time::Instant;
 
-use super::ast::{Ident, Rhs, Stmt, StmtKind};
+use super::ast::{Ident, PathArg, Rhs, Span, Spanned, Stmt, StmtKind};
 use super::session::{
     ErrorKind, Report, Rich, Session, SessionError, SessionResult, Style, SymKind,
 };
@@ -49,93 +49,78 @@ impl Session {
             StmtKind::Run(c) => self.run_command(c, &[], &mut report, started)?,
             StmtKind::Check { lhs, rhs } => self.check(lhs, rhs, &mut report, src, origin)?,
             StmtKind::Show { expr, how, to } => self.show(expr, how, to.as_ref(), &mut report)?,
-            StmtKind::Save { path, checks } => {
-                if !self.replaying {
-                    let p = self.resolve_path(&path.path);
-                    let (text, added) = if *checks {
-                        self.script_with_checks()
-                    } else {
-                        let mut text = self.accepted.join("\n");
-                        text.push('\n');
-                        (text, 0)
-                    };
-                    crate::lang::files::write_file(
-                        &p,
-                        text.as_bytes(),
-                        crate::lang::files::FileKind::Script,
-                    )
-                    .map_err(|e| {
-                        SessionError::at(
-                            path.span,
-                            ErrorKind::File {
-                                path: path.path.clone(),
-                                reason: e,
-                            },
-                        )
-                    })?;
-                    let mut note = format!("saved {} lines to {}", self.accepted.len(), path.path);
-                    if *checks {
-                        note.push_str(&format!(
-                            " with {added} {}",
-                            super::commands::plural(added, "check")
-                        ));
-                    }
-                    report.push(Style::Note, note);
-                }
-            }
+            StmtKind::Save { path, checks } => self.save_session(path, *checks, &mut report)?,
             StmtKind::RunFile(path) => self.run_file(&path.path, path.span, &mut report)?,
             StmtKind::Names => self.list_names(&mut report),
             StmtKind::Forget(id) => self.forget(id, &mut report)?,
-            StmtKind::Help(word) => {
-                let text =
-                    super::help::help(word.as_ref().map(|w| w.name.as_str())).ok_or_else(|| {
-                        let w = word.as_ref().map_or(String::new(), |w| w.name.clone());
-                        let hint = super::diag::nearest(&w, super::help::topic_words())
-                            .map(|h| format!(" (did you mean `help {h}`?)"))
-                            .unwrap_or_default();
-                        SessionError::invalid(
-                            word.as_ref().map_or(stmt.span, |w| w.span),
-                            format!("no help for `{w}`{hint}; `help` lists the topics"),
-                        )
-                    })?;
-                for l in text.lines() {
-                    report.push(Style::Plain, l);
-                }
-            }
-            StmtKind::SetBudget(n) => {
-                if n.value == 0 {
-                    return Err(SessionError::invalid(n.span, "the budget must be positive"));
-                }
-                let mut l: Limits = limits::limits();
-                let asked = usize::try_from(n.value).unwrap_or(usize::MAX);
-                l.max_terms = asked;
-                if let Some(memory) = crate::lang::files::usable_memory() {
-                    let cap = limits::budget_cap(memory);
-                    if asked > cap {
-                        l.max_terms = cap;
-                        report.push(
-                            Style::Warn,
-                            format!(
-                                "a budget of {} terms could let one statement take about {} \
-                                 ({} bytes a term), more than half of the {} this process may \
-                                 use: capped at {cap}",
-                                n.value,
-                                human_bytes(
-                                    u128::from(n.value) * u128::from(limits::BYTES_PER_BUDGET_TERM)
-                                ),
-                                limits::BYTES_PER_BUDGET_TERM,
-                                human_bytes(u128::from(memory)),
-                            ),
-                        );
-                    }
-                }
-                limits::set_limits(l);
-                report.push(Style::Note, format!("term budget {}", l.max_terms));
-            }
+            StmtKind::Help(word) => self.help_topic(word.as_ref(), stmt.span, &mut report)?,
+            StmtKind::SetBudget(n) => set_budget(n, &mut report)?,
             StmtKind::SetTolerance(value) => self.set_tolerance(value, &mut report)?,
             StmtKind::Quit => report.quit = true,
         }
         Ok(report)
+    }
+
+    /// `save FILE [with checks]`: the accepted lines written as a script
+    /// (not while a script replays).
+    fn save_session(&self, path: &PathArg, checks: bool, report: &mut Report) -> SessionResult<()> {
+        if !self.replaying {
+            let p = self.resolve_path(&path.path);
+            let (text, added) = if checks {
+                self.script_with_checks()
+            } else {
+                let mut text = self.accepted.join("\n");
+                text.push('\n');
+                (text, 0)
+            };
+            crate::lang::files::write_file(
+                &p,
+                text.as_bytes(),
+                crate::lang::files::FileKind::Script,
+            )
+            .map_err(|e| {
+                SessionError::at(
+                    path.span,
+                    ErrorKind::File {
+                        path: path.path.clone(),
+                        reason: e,
+                    },
+                )
+            })?;
+            let mut note = format!("saved {} lines to {}", self.accepted.len(), path.path);
+            if checks {
+                note.push_str(&format!(
+                    " with {added} {}",
+                    super::commands::plural(added, "check")
+                ));
+            }
+            report.push(Style::Note, note);
+        }
+        Ok(())
+    }
+
+    /// `help [WORD]`: the topic's lines, or an error suggesting the
+    /// nearest topic.
+    fn help_topic(
+        &self,
+        word: Option<&Ident>,
+        span: Span,
+        report: &mut Report,
+    ) -> SessionResult<()> {
+        let text = super::help::help(word.map(|w| w.name.as_str())).ok_or_else(|| {
+            let w = word.map_or(String::new(), |w| w.name.clone());
+            let hint = super::diag::nearest(&w, super::help::topic_words())
+                .map(|h| format!(" (did you mean `help {h}`?)"))
+                .unwrap_or_default();
+            SessionError::invalid(
+                word.map_or(span, |w| w.span),
+                format!("no help for `{w}`{hint}; `help` lists the topics"),
+            )
+        })?;
+        for l in text.lines() {
+            report.push(Style::Plain, l);
+        }
+        Ok(())
     }
 
     /// `show E as WORD [to FILE]`: LaTeX, the bracket form, or code for
@@ -153,72 +138,78 @@ impl Session {
                 report.rich = Some(Rich::Latex);
                 v.latex(&self.states)
             }
-            "brackets" => match &v {
-                Value::Field(f) => match &f.structure {
-                    Some(terms) => super::structural::show_terms(terms),
-                    None => return Err(SessionError::invalid(
-                        expr.span,
-                        "no bracket form: it exists for results of `magnus`, `average` and `bch` \
-                             on systems written as Σ c_i(t)*X_i with named fields X_i",
-                    )),
-                },
-                _ => {
-                    return Err(SessionError::invalid(
-                        expr.span,
-                        format!("a {} has no bracket form", v.kind_name()),
-                    ))
-                }
-            },
-            word => {
-                let Some(lang) = code::Lang::from_word(word) else {
-                    return Err(SessionError::invalid(
-                        how.span,
-                        format!(
-                            "unknown display `{word}`: use `latex`, `brackets`, or code: \
-                             `python`, `julia`, `c`, `rust`"
-                        ),
-                    ));
-                };
-                let entries: Vec<&crate::core::Expr> = match &v {
-                    Value::Scalar(e) => vec![e],
-                    Value::Field(f) => f.field.0.iter().collect(),
-                    Value::Matrix(m) => m.data.iter().collect(),
-                };
-                // Floating-point code needs numbers: no unspecified function,
-                // no symbolic-frequency phase.
-                if let Some(a) = entries.iter().find_map(|e| e.first_atom()) {
-                    return Err(SessionError::invalid(
-                        expr.span,
-                        format!(
-                            "code needs numbers, and `{a}` is an unspecified function \
-                             (hint: plug a definition first, e.g. `plug(E, {}({}) = …)`)",
-                            a.sig.name,
-                            a.sig.params.join(", ")
-                        ),
-                    ));
-                }
-                self.refuse_phase(entries.iter().copied(), expr.span, "the value")?;
-                let shape = match &v {
-                    Value::Scalar(e) => code::Shape::Scalar(e),
-                    Value::Field(f) => code::Shape::Field(&f.field),
-                    Value::Matrix(m) => code::Shape::Matrix(m),
-                };
-                let name = match &expr.kind {
-                    super::ast::ExprKind::Name(n) => n.clone(),
-                    _ => "ordex_value".to_string(),
-                };
-                let declared: Vec<Sym> = self
-                    .symbols
-                    .iter()
-                    .filter(|(_, k)| **k == SymKind::Param)
-                    .map(|(n, _)| Sym::new(n))
-                    .collect();
-                let mut declared = declared;
-                declared.sort();
-                let params = code::parameters(&shape, &self.states, &declared);
-                code::function(lang, &name, &shape, &self.states, &params)
-            }
+            "brackets" => brackets_text(expr, &v)?,
+            word => self.code_text(expr, how, word, &v)?,
         };
+        self.show_output(text, how, to, report)
+    }
+
+    /// `show E as python|julia|c|rust`: a function evaluating the value in
+    /// floating point (refused for unspecified functions and phases).
+    fn code_text(
+        &self,
+        expr: &super::ast::SyntaxExpr,
+        how: &Ident,
+        word: &str,
+        v: &Value,
+    ) -> SessionResult<String> {
+        let Some(lang) = code::Lang::from_word(word) else {
+            return Err(SessionError::invalid(
+                how.span,
+                format!(
+                    "unknown display `{word}`: use `latex`, `brackets`, or code: \
+                     `python`, `julia`, `c`, `rust`"
+                ),
+            ));
+        };
+        let entries: Vec<&crate::core::Expr> = match v {
+            Value::Scalar(e) => vec![e],
+            Value::Field(f) => f.field.0.iter().collect(),
+            Value::Matrix(m) => m.data.iter().collect(),
+        };
+        // Floating-point code needs numbers: no unspecified function,
+        // no symbolic-frequency phase.
+        if let Some(a) = entries.iter().find_map(|e| e.first_atom()) {
+            return Err(SessionError::invalid(
+                expr.span,
+                format!(
+                    "code needs numbers, and `{a}` is an unspecified function \
+                     (hint: plug a definition first, e.g. `plug(E, {}({}) = …)`)",
+                    a.sig.name,
+                    a.sig.params.join(", ")
+                ),
+            ));
+        }
+        self.refuse_phase(entries.iter().copied(), expr.span, "the value")?;
+        let shape = match v {
+            Value::Scalar(e) => code::Shape::Scalar(e),
+            Value::Field(f) => code::Shape::Field(&f.field),
+            Value::Matrix(m) => code::Shape::Matrix(m),
+        };
+        let name = match &expr.kind {
+            super::ast::ExprKind::Name(n) => n.clone(),
+            _ => "ordex_value".to_string(),
+        };
+        let declared: Vec<Sym> = self
+            .symbols
+            .iter()
+            .filter(|(_, k)| **k == SymKind::Param)
+            .map(|(n, _)| Sym::new(n))
+            .collect();
+        let mut declared = declared;
+        declared.sort();
+        let params = code::parameters(&shape, &self.states, &declared);
+        Ok(code::function(lang, &name, &shape, &self.states, &params))
+    }
+
+    /// Prints the text of `show`, or writes it to the file of `to FILE`.
+    fn show_output(
+        &self,
+        text: String,
+        how: &Ident,
+        to: Option<&super::ast::PathArg>,
+        report: &mut Report,
+    ) -> SessionResult<()> {
         match to {
             None => {
                 for l in text.lines() {
@@ -713,4 +704,59 @@ fn value_uses(v: &Value, name: &str) -> bool {
         Value::Field(f) => f.field.0.iter().any(uses),
         Value::Matrix(m) => m.data.iter().any(uses),
     }
+}
+
+/// `show A as brackets`: the Lie-polynomial form of a result written over
+/// named fields.
+fn brackets_text(expr: &super::ast::SyntaxExpr, v: &Value) -> SessionResult<String> {
+    Ok(match v {
+        Value::Field(f) => match &f.structure {
+            Some(terms) => super::structural::show_terms(terms),
+            None => {
+                return Err(SessionError::invalid(
+                    expr.span,
+                    "no bracket form: it exists for results of `magnus`, `average` and `bch` \
+                     on systems written as Σ c_i(t)*X_i with named fields X_i",
+                ))
+            }
+        },
+        _ => {
+            return Err(SessionError::invalid(
+                expr.span,
+                format!("a {} has no bracket form", v.kind_name()),
+            ))
+        }
+    })
+}
+
+/// `set budget N`: the term budget, capped so that one statement cannot
+/// take more than half of the memory this process may use.
+fn set_budget(n: &Spanned<u64>, report: &mut Report) -> SessionResult<()> {
+    if n.value == 0 {
+        return Err(SessionError::invalid(n.span, "the budget must be positive"));
+    }
+    let mut l: Limits = limits::limits();
+    let asked = usize::try_from(n.value).unwrap_or(usize::MAX);
+    l.max_terms = asked;
+    if let Some(memory) = crate::lang::files::usable_memory() {
+        let cap = limits::budget_cap(memory);
+        if asked > cap {
+            l.max_terms = cap;
+            report.push(
+                Style::Warn,
+                format!(
+                    "a budget of {} terms could let one statement take about {} \
+                     ({} bytes a term), more than half of the {} this process may \
+                     use: capped at {cap}",
+                    n.value,
+                    human_bytes(u128::from(n.value) * u128::from(limits::BYTES_PER_BUDGET_TERM)),
+                    limits::BYTES_PER_BUDGET_TERM,
+                    human_bytes(u128::from(memory)),
+                ),
+            );
+        }
+    }
+    limits::set_limits(l);
+    report.push(Style::Note, format!("term budget {}", l.max_terms));
+    Ok(())
 }

@@ -15,7 +15,7 @@ use std::collections::HashMap;
 use super::ast::Span;
 use super::session::{Report, Session, SessionError, SessionResult, Style, SymKind};
 use super::value::{FieldValue, Value};
-use crate::averaging::{self, Form, Options};
+use crate::averaging::{self, Averaged, Form, Options};
 use crate::core::expr::{TimeFactor, TrigFactor};
 use crate::core::{CoreError, Expr, Field, Sym};
 use crate::render::plain;
@@ -177,66 +177,9 @@ impl Session {
     ) -> SessionResult<Vec<Value>> {
         let core = |e: CoreError| SessionError::core(span, e);
         let ph = phase_of(w);
-        let comps: Vec<&Expr> = v.field.0.iter().collect();
-        for other in phases_all(comps.iter().copied()) {
-            if other != ph {
-                return Err(SessionError::invalid(
-                    span,
-                    format!(
-                        "independent symbolic frequencies `{}` and `{}`: `in 1/{}` averages \
-                         over one fast frequency (rational multiples of {}*t only)",
-                        ph.name(),
-                        other.name(),
-                        w.name(),
-                        w.name()
-                    ),
-                ));
-            }
-        }
-        // Rescaled: dx/ds = S/w with s = w*t and eps = 1/w; a term with w^k
-        // becomes eps^(1-k): k ≤ 1, and slow time t must not appear.
+        self.check_rescalable(v, w, ph, span)?;
+        // Rescaled: dx/ds = S/w with s = w*t and eps = 1/w.
         let eps = Sym::new("1/w");
-        for (i, c) in v.field.0.iter().enumerate() {
-            for (k, q) in c.terms() {
-                let term = Expr::term(k.clone(), q.clone());
-                if term.is_time_varying() {
-                    return Err(SessionError::invalid(
-                        span,
-                        format!(
-                            "the term `{term}` (component {}) depends on t other than through \
-                             {}: with s = {}*t it would vary slowly in s; write the time \
-                             dependence through the phase only",
-                            i + 1,
-                            ph.name(),
-                            w.name()
-                        ),
-                    ));
-                }
-                let pw = k.mono.power_of(w);
-                if pw >= 2 {
-                    let amp = k
-                        .mono
-                        .0
-                        .iter()
-                        .find(|(s, e)| {
-                            *e > 0 && *s != w && self.sym_kind(&s.name()) == Some(SymKind::Param)
-                        })
-                        .map(|(s, _)| *s)
-                        .map_or_else(|| "a".to_string(), |s| s.name());
-                    return Err(SessionError::invalid(
-                        span,
-                        format!(
-                            "the term `{term}` (component {}) grows like {w}^{} after rescaling \
-                             s = {w}*t (dx/ds = S/{w}): hold an amplitude times {w} fixed, e.g. \
-                             `plug(S, {amp} = b/{w})` with a new parameter b",
-                            i + 1,
-                            pw - 1,
-                            w = w.name()
-                        ),
-                    ));
-                }
-            }
-        }
         let mut map: HashMap<Sym, Expr> = HashMap::new();
         map.insert(ph, Expr::sym(Sym::T));
         map.insert(w, Expr::sym(eps).pow(-1).map_err(core)?);
@@ -291,23 +234,9 @@ impl Session {
         }
         let mut out = vec![Value::field(total)];
         if opts.with_transform {
-            // W(s, y) = Σ eps^k w_k(s, y) with s = w*t, eps = 1/w.
-            let mut back: HashMap<Sym, Expr> = HashMap::new();
-            back.insert(Sym::T, Expr::sym(ph));
-            let mut wsum = Field::zero(self.states.len());
-            let mut scale = winv.clone();
-            for (k, wk) in res.transform.iter().flatten().enumerate() {
-                let wt = wk
-                    .map(|c| c.subst(&back, &ext)?.mul(&scale))
-                    .map_err(core)?;
-                report.push(
-                    Style::Result,
-                    format!("w_{}     {}", k + 1, plain::field(&wt)),
-                );
-                wsum = wsum.add(&wt).map_err(core)?;
-                scale = scale.mul(&winv).map_err(core)?;
-            }
-            out.push(Value::field(wsum));
+            out.push(Value::field(
+                self.transform_in_time(&res, ph, &ext, &winv, span, report)?,
+            ));
         }
         report.push(
             Style::Note,
@@ -320,5 +249,99 @@ impl Session {
             ),
         );
         Ok(out)
+    }
+
+    /// Refuses a system that `average … in 1/w` cannot rescale: a second
+    /// independent phase, slow time outside the phase, or a term that
+    /// grows with `w` after rescaling (a term with `w^k` becomes
+    /// `eps^(1-k)`, so `k ≤ 1`).
+    fn check_rescalable(&self, v: &FieldValue, w: Sym, ph: Sym, span: Span) -> SessionResult<()> {
+        let comps: Vec<&Expr> = v.field.0.iter().collect();
+        for other in phases_all(comps.iter().copied()) {
+            if other != ph {
+                return Err(SessionError::invalid(
+                    span,
+                    format!(
+                        "independent symbolic frequencies `{}` and `{}`: `in 1/{}` averages \
+                         over one fast frequency (rational multiples of {}*t only)",
+                        ph.name(),
+                        other.name(),
+                        w.name(),
+                        w.name()
+                    ),
+                ));
+            }
+        }
+        for (i, c) in v.field.0.iter().enumerate() {
+            for (k, q) in c.terms() {
+                let term = Expr::term(k.clone(), q.clone());
+                if term.is_time_varying() {
+                    return Err(SessionError::invalid(
+                        span,
+                        format!(
+                            "the term `{term}` (component {}) depends on t other than through \
+                             {}: with s = {}*t it would vary slowly in s; write the time \
+                             dependence through the phase only",
+                            i + 1,
+                            ph.name(),
+                            w.name()
+                        ),
+                    ));
+                }
+                let pw = k.mono.power_of(w);
+                if pw >= 2 {
+                    let amp = k
+                        .mono
+                        .0
+                        .iter()
+                        .find(|(s, e)| {
+                            *e > 0 && *s != w && self.sym_kind(&s.name()) == Some(SymKind::Param)
+                        })
+                        .map(|(s, _)| *s)
+                        .map_or_else(|| "a".to_string(), |s| s.name());
+                    return Err(SessionError::invalid(
+                        span,
+                        format!(
+                            "the term `{term}` (component {}) grows like {w}^{} after rescaling \
+                             s = {w}*t (dx/ds = S/{w}): hold an amplitude times {w} fixed, e.g. \
+                             `plug(S, {amp} = b/{w})` with a new parameter b",
+                            i + 1,
+                            pw - 1,
+                            w = w.name()
+                        ),
+                    ));
+                }
+            }
+        }
+        Ok(())
+    }
+
+    /// The transform `W(s, y) = Σ eps^k w_k(s, y)` back in the original
+    /// time (`s = w*t`, `eps = 1/w`), each order reported.
+    fn transform_in_time(
+        &self,
+        res: &Averaged,
+        ph: Sym,
+        ext: &[Sym],
+        winv: &Expr,
+        span: Span,
+        report: &mut Report,
+    ) -> SessionResult<Field> {
+        let core = |e: CoreError| SessionError::core(span, e);
+        // W(s, y) = Σ eps^k w_k(s, y) with s = w*t, eps = 1/w.
+        let mut back: HashMap<Sym, Expr> = HashMap::new();
+        back.insert(Sym::T, Expr::sym(ph));
+        let mut wsum = Field::zero(self.states.len());
+        let mut scale = winv.clone();
+        for (k, wk) in res.transform.iter().flatten().enumerate() {
+            let wt = wk.map(|c| c.subst(&back, ext)?.mul(&scale)).map_err(core)?;
+            report.push(
+                Style::Result,
+                format!("w_{}     {}", k + 1, plain::field(&wt)),
+            );
+            wsum = wsum.add(&wt).map_err(core)?;
+            scale = scale.mul(winv).map_err(core)?;
+        }
+        Ok(wsum)
     }
 }

@@ -544,7 +544,7 @@ pub fn bch_series(n: u32) -> CoreResult<LiePoly<Expr>> {
 /// over them, averaged by the same free-Lie route as any standard form.
 /// Ad-words that vanish on the concrete fields are left out, as the
 /// concrete ad-series ends there (or is truncated at `depth`).
-fn pulled_back_combo(
+fn pulled_back_combination(
     combo: &FieldCombination,
     eps: Sym,
     period: &Period,
@@ -649,7 +649,8 @@ pub fn fast_oscillation_structure(
     if classic && n > 2 {
         return Ok(None);
     }
-    let Some((pulled, tex)) = pulled_back_combo(combo, eps, period, classic, depth, states)? else {
+    let Some((pulled, tex)) = pulled_back_combination(combo, eps, period, classic, depth, states)?
+    else {
         return Ok(None);
     };
     if pulled.parts.is_empty() || pulled.parts.len() > 16 {

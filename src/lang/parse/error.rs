@@ -324,6 +324,24 @@ impl<'a> Parser<'a> {
         }
     }
 
+    /// An optional clause of a command that may be given at most once:
+    /// refuses a second one (at `span`, before parsing it), otherwise
+    /// parses it into `slot` and returns the input after it.
+    pub(super) fn once<T>(
+        &self,
+        slot: &mut Option<T>,
+        span: Span,
+        clause: &str,
+        parse: impl FnOnce() -> GrammarResult<'a, T>,
+    ) -> Result<&'a str, NomErr<GrammarError>> {
+        if slot.is_some() {
+            return self.duplicate(span, clause).map(|(rest, ())| rest);
+        }
+        let (rest, value) = parse()?;
+        *slot = Some(value);
+        Ok(rest)
+    }
+
     pub(super) fn duplicate<T>(&self, span: Span, clause: &str) -> GrammarResult<'a, T> {
         self.fail(
             span,

@@ -32,12 +32,7 @@ impl<'a> Parser<'a> {
             let span = Span::new(self.off(at), self.off(after));
             match word {
                 "with" => {
-                    if with.is_some() {
-                        return self.duplicate(span, "`with`");
-                    }
-                    let (next, values) = self.assigns(after, "with")?;
-                    with = Some(values);
-                    rest = next;
+                    rest = self.once(&mut with, span, "`with`", || self.assigns(after, "with"))?;
                 }
                 "plot" => {
                     if let Some((next, pair)) = self.phase_plot(after)? {
@@ -48,12 +43,9 @@ impl<'a> Parser<'a> {
                         rest = next;
                         continue;
                     }
-                    if plot.is_some() {
-                        return self.duplicate(span, "`plot`");
-                    }
-                    let (next, path) = self.path(after, "a file name after `plot`")?;
-                    plot = Some(path);
-                    rest = next;
+                    rest = self.once(&mut plot, span, "`plot`", || {
+                        self.path(after, "a file name after `plot`")
+                    })?;
                 }
                 _ => break,
             }
@@ -103,28 +95,15 @@ impl<'a> Parser<'a> {
             let span = Span::new(self.off(at), self.off(after));
             match word {
                 "with" => {
-                    if with.is_some() {
-                        return self.duplicate(span, "`with`");
-                    }
-                    let (next, values) = self.assigns(after, "with")?;
-                    with = Some(values);
-                    rest = next;
+                    rest = self.once(&mut with, span, "`with`", || self.assigns(after, "with"))?;
                 }
                 "sweep" => {
-                    if sweep.is_some() {
-                        return self.duplicate(span, "`sweep`");
-                    }
-                    let (next, swept) = self.sweep(after)?;
-                    sweep = Some(swept);
-                    rest = next;
+                    rest = self.once(&mut sweep, span, "`sweep`", || self.sweep(after))?;
                 }
                 "tol" => {
-                    if tol.is_some() {
-                        return self.duplicate(span, "`tol`");
-                    }
-                    let (next, value) = self.expect_expr(after, "a tolerance after `tol`")?;
-                    tol = Some(value);
-                    rest = next;
+                    rest = self.once(&mut tol, span, "`tol`", || {
+                        self.expect_expr(after, "a tolerance after `tol`")
+                    })?;
                 }
                 "plot" => {
                     if let Some((next, path)) = self.paths_plot(after)? {
@@ -135,20 +114,14 @@ impl<'a> Parser<'a> {
                         rest = next;
                         continue;
                     }
-                    if plot.is_some() {
-                        return self.duplicate(span, "`plot`");
-                    }
-                    let (next, path) = self.path(after, "a file name after `plot`")?;
-                    plot = Some(path);
-                    rest = next;
+                    rest = self.once(&mut plot, span, "`plot`", || {
+                        self.path(after, "a file name after `plot`")
+                    })?;
                 }
                 "table" => {
-                    if table.is_some() {
-                        return self.duplicate(span, "`table`");
-                    }
-                    let (next, path) = self.path(after, "a file name after `table`")?;
-                    table = Some(path);
-                    rest = next;
+                    rest = self.once(&mut table, span, "`table`", || {
+                        self.path(after, "a file name after `table`")
+                    })?;
                 }
                 _ => break,
             }

@@ -105,20 +105,15 @@ impl<'a> Parser<'a> {
             let span = Span::new(self.off(at), self.off(after));
             match word {
                 "strobo" | "classic" => {
-                    if method.is_some() {
-                        return self.duplicate(span, "the method (`strobo` or `classic`)");
-                    }
-                    method = Some(Ident::new(word, span));
-                    rest = after;
+                    let clause = "the method (`strobo` or `classic`)";
+                    rest = self.once(&mut method, span, clause, || {
+                        Ok((after, Ident::new(word, span)))
+                    })?;
                 }
                 "depth" => {
-                    if depth.is_some() {
-                        return self.duplicate(span, "`depth`");
-                    }
-                    let (next, value) =
-                        self.uint(after, "the depth (a whole number) after `depth`")?;
-                    depth = Some(value);
-                    rest = next;
+                    rest = self.once(&mut depth, span, "`depth`", || {
+                        self.uint(after, "the depth (a whole number) after `depth`")
+                    })?;
                 }
                 "with" => {
                     if with_transform {
