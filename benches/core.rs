@@ -479,7 +479,7 @@ fn bench_functions_here() -> CoreResult<()> {
 fn bench_bch() -> CoreResult<()> {
     use num_rational::BigRational;
     use ordex::series::freelie::bch_by_tensor;
-    use ordex::series::lyndon;
+    use ordex::series::freelie as lyndon;
     let top: u32 = std::env::var("ORDEX_BCH_MAX")
         .ok()
         .and_then(|v| v.parse().ok())

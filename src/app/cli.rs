@@ -5,7 +5,6 @@
 //! in one session. This module owns argument parsing only (with clap); it
 //! must not run anything or know about sessions.
 
-use std::ffi::OsString;
 use std::path::PathBuf;
 
 use clap::{ArgMatches, CommandFactory, FromArgMatches, Parser, Subcommand};
@@ -72,7 +71,7 @@ enum KernelCommand {
 
 /// What `ordex kernel …` asks for.
 #[derive(Clone, Debug, PartialEq, Eq)]
-pub enum Kernel {
+pub(crate) enum Kernel {
     /// Register the kernel spec.
     Install,
     /// Serve the kernel with this connection file.
@@ -81,7 +80,7 @@ pub enum Kernel {
 
 /// One thing to run non-interactively.
 #[derive(Clone, Debug, PartialEq, Eq)]
-pub enum Source {
+pub(crate) enum Source {
     /// A script file.
     File(PathBuf),
     /// Lines given with `-e`.
@@ -92,13 +91,13 @@ pub enum Source {
 #[derive(Clone, Debug, PartialEq, Eq)]
 pub struct Invocation {
     /// Scripts and inline lines in command-line order; empty for the prompt.
-    pub sources: Vec<Source>,
+    pub(crate) sources: Vec<Source>,
     /// Replay the last prompt session before prompting.
-    pub resume: bool,
+    pub(crate) resume: bool,
     /// Show timings in command summaries.
-    pub timing: bool,
+    pub(crate) timing: bool,
     /// `ordex kernel …` (then nothing else is run).
-    pub kernel: Option<Kernel>,
+    pub(crate) kernel: Option<Kernel>,
 }
 
 impl Invocation {
@@ -109,10 +108,11 @@ impl Invocation {
     }
 
     /// Parses `args` (the first one is the program name).
-    pub fn try_parse_from<I, T>(args: I) -> Result<Invocation, clap::Error>
+    #[cfg(test)]
+    pub(crate) fn try_parse_from<I, T>(args: I) -> Result<Invocation, clap::Error>
     where
         I: IntoIterator<Item = T>,
-        T: Into<OsString> + Clone,
+        T: Into<std::ffi::OsString> + Clone,
     {
         let matches = Args::command().try_get_matches_from(args)?;
         Ok(Invocation::from_matches(matches))

@@ -30,11 +30,11 @@ use crate::lang::files::{write_file, FileKind};
 use crate::lang::split::split_statements;
 
 /// File name of the current journal inside the home directory.
-pub const JOURNAL_FILE: &str = "journal.ordex";
+pub(crate) const JOURNAL_FILE: &str = "journal.ordex";
 /// File name of the previous session's journal.
-pub const PREVIOUS_FILE: &str = "journal.prev.ordex";
+pub(crate) const PREVIOUS_FILE: &str = "journal.prev.ordex";
 /// File whose lock marks the journal as in use by a prompt.
-pub const LOCK_FILE: &str = "journal.lock";
+pub(crate) const LOCK_FILE: &str = "journal.lock";
 /// Numbered backups are `journal.backup-N.ordex`.
 const BACKUP_STEM: &str = "journal.backup-";
 
@@ -42,7 +42,7 @@ const BACKUP_STEM: &str = "journal.backup-";
 /// `<home>/journal.lock` for its lifetime, so that a second prompt on the
 /// same home neither rotates nor appends to a journal in use.
 #[derive(Debug)]
-pub struct Journal {
+pub(crate) struct Journal {
     file: File,
     path: PathBuf,
     /// Length of the file up to the end of its last complete record.
@@ -56,14 +56,14 @@ pub struct Journal {
 /// The lock on a home's journal, taken before anything is written: the
 /// journal is started (rotating the old one) or resumed from it.
 #[derive(Debug)]
-pub struct Claim {
+pub(crate) struct Claim {
     home: PathBuf,
     lock: File,
 }
 
 /// A journal opened for resuming.
 #[derive(Debug)]
-pub struct Resumed {
+pub(crate) struct Resumed {
     /// The journal, appending after its complete records.
     pub journal: Journal,
     /// The text of its complete records (empty when there was none).
@@ -75,7 +75,7 @@ pub struct Resumed {
 /// An unterminated last record found on resume: not run, cut from the
 /// journal, kept in a backup.
 #[derive(Debug)]
-pub struct Unterminated {
+pub(crate) struct Unterminated {
     /// The record's text as found.
     pub record: String,
     /// Where the whole journal, the record included, was copied.
@@ -134,13 +134,13 @@ fn backup(path: &Path) -> io::Result<PathBuf> {
 
 impl Claim {
     /// The home directory claimed.
-    pub fn home(&self) -> &Path {
+    pub(crate) fn home(&self) -> &Path {
         &self.home
     }
 
     /// Starts a new journal: the old journal, if any, becomes the previous
     /// one.
-    pub fn start_new(self) -> io::Result<Journal> {
+    pub(crate) fn start_new(self) -> io::Result<Journal> {
         let path = self.home.join(JOURNAL_FILE);
         if path.exists() {
             std::fs::rename(&path, self.home.join(PREVIOUS_FILE))?;
@@ -154,7 +154,7 @@ impl Claim {
     /// Opens the journal for resuming, appending to the same file. An
     /// unterminated last record is cut off (after a numbered backup of the
     /// whole file) and returned apart from the text.
-    pub fn resume(self) -> io::Result<Resumed> {
+    pub(crate) fn resume(self) -> io::Result<Resumed> {
         let path = self.home.join(JOURNAL_FILE);
         let mut text = match std::fs::read(&path) {
             Ok(bytes) => String::from_utf8_lossy(&bytes).into_owned(),
@@ -186,7 +186,7 @@ impl Claim {
 
 impl Journal {
     /// Takes the lock of the journal in `home` (created if missing).
-    pub fn claim(home: &Path) -> io::Result<Claim> {
+    pub(crate) fn claim(home: &Path) -> io::Result<Claim> {
         std::fs::create_dir_all(home)?;
         let lock = lock(home)?;
         Ok(Claim {
@@ -196,19 +196,21 @@ impl Journal {
     }
 
     /// Claims and starts a new journal in `home` at once.
-    pub fn start_new(home: &Path) -> io::Result<Journal> {
+    #[cfg(test)]
+    pub(crate) fn start_new(home: &Path) -> io::Result<Journal> {
         Journal::claim(home)?.start_new()
     }
 
     /// Claims the journal in `home` and opens it for resuming.
-    pub fn resume(home: &Path) -> io::Result<Resumed> {
+    #[cfg(test)]
+    pub(crate) fn resume(home: &Path) -> io::Result<Resumed> {
         Journal::claim(home)?.resume()
     }
 
     /// Replaces the journal's contents by `statements` (a resume that could
     /// not replay everything keeps what it replayed); the whole old text is
     /// first copied to a numbered backup, whose path is returned.
-    pub fn rewrite(&mut self, statements: &[String]) -> io::Result<PathBuf> {
+    pub(crate) fn rewrite(&mut self, statements: &[String]) -> io::Result<PathBuf> {
         let backup = backup(&self.path)?;
         let mut text = header();
         for statement in statements {
@@ -222,7 +224,7 @@ impl Journal {
 
     /// Appends statements and syncs them to disk. When the write fails,
     /// the file is cut back to its last complete record.
-    pub fn append(&mut self, statements: &[String]) -> io::Result<()> {
+    pub(crate) fn append(&mut self, statements: &[String]) -> io::Result<()> {
         if statements.is_empty() {
             return Ok(());
         }
@@ -234,7 +236,7 @@ impl Journal {
     }
 
     /// Where the journal lives.
-    pub fn path(&self) -> &Path {
+    pub(crate) fn path(&self) -> &Path {
         &self.path
     }
 
@@ -320,7 +322,7 @@ fn header() -> String {
 /// are kept as they are; a text that would split into several statements
 /// (a multi-line text whose continuation backslashes were removed) gets a
 /// trailing `\` on each inner line so that it stays one statement.
-pub fn encode(statement: &str) -> String {
+pub(crate) fn encode(statement: &str) -> String {
     let body = statement.trim_end_matches(['\n', '\r']);
     let one = split_statements(body).is_ok_and(|statements| statements.len() <= 1);
     let mut text = if one {

@@ -11,11 +11,11 @@
 //! data dir); the environment variable `ORDEX_HOME`, when set and not empty,
 //! replaces both `…/ordex` directories.
 
-pub mod cli;
-pub mod journal;
-pub mod kernel;
-pub mod repl;
-pub mod style;
+pub(crate) mod cli;
+pub(crate) mod journal;
+pub(crate) mod kernel;
+pub(crate) mod repl;
+pub(crate) mod style;
 
 use std::io::{self, Write};
 use std::path::PathBuf;
@@ -25,11 +25,12 @@ use crate::lang::session::render_error;
 use crate::lang::split::split_statements;
 use crate::lang::{Line, Report, RunStatus, Session};
 
-pub use cli::{Invocation, Source};
-pub use style::Painter;
+pub use cli::Invocation;
+pub(crate) use cli::Source;
+pub(crate) use style::Painter;
 
 /// The origin shown for lines given with `-e`.
-pub const INLINE_ORIGIN: &str = "-e";
+pub(crate) const INLINE_ORIGIN: &str = "-e";
 
 /// Runs what the command line asks for and returns the exit status:
 /// for scripts 0 (all well), 1 (a check failed) or 2 (an error); for the
@@ -53,7 +54,7 @@ pub fn run(invocation: &Invocation) -> u8 {
 /// standard error and stops everything. Standard output that cannot be
 /// written stops the run with status 2: a closed pipe quietly, any other
 /// failure (a full disk) with a message on standard error.
-pub fn run_sources(sources: &[Source], timing: bool, painter: Painter) -> u8 {
+pub(crate) fn run_sources(sources: &[Source], timing: bool, painter: Painter) -> u8 {
     let mut session = new_session(timing);
     let output = Output {
         painter,
@@ -103,7 +104,7 @@ pub fn run_sources(sources: &[Source], timing: bool, painter: Painter) -> u8 {
 /// The origin of the `index`-th of `count` `-e` arguments in messages:
 /// `-e` alone, `-e#2` for the second of several (line numbers count within
 /// the argument: `-e#2:3:5`).
-pub fn inline_origin(index: usize, count: usize) -> String {
+pub(crate) fn inline_origin(index: usize, count: usize) -> String {
     if count > 1 {
         format!("{INLINE_ORIGIN}#{index}")
     } else {

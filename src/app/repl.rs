@@ -30,17 +30,17 @@ use rustyline::{CompletionType, Config, Context, Editor, Helper};
 use super::journal::{Claim, Journal, Resumed, Unterminated};
 use super::{home_dir, new_session, HomeKind, Invocation, Output, Painter};
 use crate::core::limits;
-use crate::lang::eval::BUILTINS;
+use crate::lang::builtins::BUILTIN_NAMES;
 use crate::lang::parse::RESERVED_WORDS;
 use crate::lang::session::render_error;
 use crate::lang::split::{needs_more, split_statements, SourceStmt};
 use crate::lang::{Line, Report, Session};
 
 /// The prompt string.
-pub const PROMPT: &str = "» ";
+pub(crate) const PROMPT: &str = "» ";
 
 /// File name of the history inside the data home.
-pub const HISTORY_FILE: &str = "history";
+pub(crate) const HISTORY_FILE: &str = "history";
 
 /// Ctrl-C presses during one statement after which the process ends.
 const PRESSES_TO_LEAVE: usize = 3;
@@ -52,7 +52,7 @@ static PRESSES: AtomicUsize = AtomicUsize::new(0);
 
 /// Runs the prompt until `quit`, Ctrl-D or the end of input; returns the
 /// exit status: 0, or 2 when standard output could not be written.
-pub fn run_prompt(invocation: &Invocation, painter: Painter) -> u8 {
+pub(crate) fn run_prompt(invocation: &Invocation, painter: Painter) -> u8 {
     let interactive = io::stdin().is_terminal();
     let output = Output {
         painter,
@@ -514,7 +514,7 @@ struct PromptHelper {
 pub(crate) fn candidates(prefix: &str, names: &[String]) -> Vec<String> {
     let mut words: Vec<String> = RESERVED_WORDS
         .iter()
-        .chain(BUILTINS.iter())
+        .chain(BUILTIN_NAMES.iter())
         .map(|w| w.to_string())
         .chain(names.iter().cloned())
         .filter(|w| w.starts_with(prefix))
@@ -605,16 +605,6 @@ impl Validator for PromptHelper {
 }
 
 impl Helper for PromptHelper {}
-
-/// The history file in use, for messages and tests.
-pub fn history_path() -> Option<PathBuf> {
-    home_dir(HomeKind::Data).map(|dir| dir.join(HISTORY_FILE))
-}
-
-/// The journal file in use, for messages and tests.
-pub fn journal_path() -> Option<PathBuf> {
-    home_dir(HomeKind::State).map(|dir| dir.join(super::journal::JOURNAL_FILE))
-}
 
 #[cfg(test)]
 mod tests {

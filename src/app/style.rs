@@ -16,7 +16,10 @@ use crate::lang::Style;
 /// Whether the environment allows colour at all: not when `NO_COLOR` is
 /// set to anything non-empty, nor on a terminal that says it has no
 /// escape sequences (`TERM=dumb`, or no `TERM` at all).
-pub fn colour_allowed(no_color: Option<&std::ffi::OsStr>, term: Option<&std::ffi::OsStr>) -> bool {
+pub(crate) fn colour_allowed(
+    no_color: Option<&std::ffi::OsStr>,
+    term: Option<&std::ffi::OsStr>,
+) -> bool {
     let no_color_set = no_color.is_some_and(|v| !v.is_empty());
     let dumb = term.is_none_or(|t| t.is_empty() || t == "dumb");
     !no_color_set && !dumb
@@ -24,7 +27,7 @@ pub fn colour_allowed(no_color: Option<&std::ffi::OsStr>, term: Option<&std::ffi
 
 /// Decides the colour of printed lines, per output stream.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub struct Painter {
+pub(crate) struct Painter {
     /// Colour lines written to standard output.
     stdout: bool,
     /// Colour lines written to standard error.
@@ -32,8 +35,9 @@ pub struct Painter {
 }
 
 impl Painter {
-    /// A painter that never colours (tests, pipes).
-    pub fn plain() -> Painter {
+    /// A painter that never colours.
+    #[cfg(test)]
+    pub(crate) fn plain() -> Painter {
         Painter {
             stdout: false,
             stderr: false,
@@ -42,7 +46,7 @@ impl Painter {
 
     /// Looks at the environment and the two output streams, and sets the
     /// `colored` crate's global switch to match.
-    pub fn detect() -> Painter {
+    pub(crate) fn detect() -> Painter {
         let allowed = colour_allowed(
             std::env::var_os("NO_COLOR").as_deref(),
             std::env::var_os("TERM").as_deref(),
@@ -57,7 +61,7 @@ impl Painter {
     }
 
     /// `text` as a report line of style `style`, for standard output.
-    pub fn line(&self, style: Style, text: &str) -> String {
+    pub(crate) fn line(&self, style: Style, text: &str) -> String {
         if !self.stdout {
             return text.to_string();
         }
@@ -72,7 +76,7 @@ impl Painter {
 
     /// A rendered error (`place: error: message`, the line, the caret) for
     /// standard error: the first line in red, the rest as is.
-    pub fn error(&self, rendered: &str) -> String {
+    pub(crate) fn error(&self, rendered: &str) -> String {
         if !self.stderr {
             return rendered.to_string();
         }
@@ -84,12 +88,12 @@ impl Painter {
 
     /// A one-line note written by the binary itself (banner, resume notes)
     /// to standard output.
-    pub fn note(&self, text: &str) -> String {
+    pub(crate) fn note(&self, text: &str) -> String {
         self.line(Style::Note, text)
     }
 
     /// A one-line warning written by the binary itself to standard error.
-    pub fn warning(&self, text: &str) -> String {
+    pub(crate) fn warning(&self, text: &str) -> String {
         if self.stderr {
             text.yellow().to_string()
         } else {

@@ -18,7 +18,8 @@ use std::collections::HashMap;
 use crate::core::calc::{common_period, Period, TimeKey};
 use crate::core::expr::TimeFactor;
 use crate::core::field::{
-    bracket_sum_onto_parts, bracket_sum_onto_prepared, BracketStart, Prepared,
+    bracket_sum_onto_parts, bracket_sum_onto_prepared, bracket_work, map_on_workers, BracketStart,
+    Prepared,
 };
 use crate::core::sum::Keep;
 use crate::core::sum::{TimePart, TimeParts};
@@ -345,7 +346,13 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
                 .max()
                 .unwrap_or(Q::ZERO);
         }
-        for p in 1..=n - k {
+        // The sums H_{p,k}, p = 1..n−k, use lower orders only: they are
+        // independent, and the cores share them.
+        let work: Vec<usize> = (1..=n - k)
+            .map(|p| bracket_work(&grade_pairs(&w, &h[p + 1], k)))
+            .collect();
+        let sums = map_on_workers(&work, |i| {
+            let p = i + 1;
             limits::poll()?;
             // On the last diagonal (p + k = n), H_{p,k} reaches F_n only
             // through p brackets with W_1 and the mean: frequencies above
@@ -363,7 +370,10 @@ pub fn stroboscopic(standard: &[Field], period: &Period, states: &[Sym]) -> Core
                 ),
             ];
             let pairs = grade_pairs(&w, &h[p + 1], k);
-            h[p][k] = bracket_sum_onto_prepared(&u, &pairs, true, states, keep)?;
+            bracket_sum_onto_prepared(&u, &pairs, true, states, keep)
+        })?;
+        for (p, sum) in (1..).zip(sums) {
+            h[p][k] = sum;
         }
         f_out.push(fk);
     }
@@ -651,4 +661,61 @@ fn ad_series_length(fs: &[Field], y: &Field, depth: u64, states: &[Sym]) -> Core
 pub fn show_field(f: &Field) -> String {
     let parts: Vec<String> = f.0.iter().map(|e| e.to_string()).collect();
     format!("[{}]", parts.join(", "))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::core::field::with_workers;
+
+    /// Case e of the benchmarks: a three-state quadratic system with
+    /// harmonics 1 and 2 (`scripts/bench_cases/e_strobo_quadratic.ordex`).
+    fn case_e() -> (Vec<Field>, Vec<Sym>) {
+        let states: Vec<Sym> = ["x", "y", "z"].iter().map(|n| Sym::new(n)).collect();
+        let (x, y, z) = (
+            Expr::sym(states[0]),
+            Expr::sym(states[1]),
+            Expr::sym(states[2]),
+        );
+        let t = Expr::sym(Sym::T);
+        let cos = |k: i64| Expr::cos_of(&t.scale(&Q::int(k)), &states).expect("cos");
+        let sin = |k: i64| Expr::sin_of(&t.scale(&Q::int(k)), &states).expect("sin");
+        let mul = |a: &Expr, b: &Expr| a.mul(b).expect("product");
+        let half = Q::ratio(1, 2).expect("half");
+        let f = Field(vec![
+            mul(&mul(&y, &z), &cos(1)).sub(&x.scale(&half)),
+            mul(&mul(&x, &z), &sin(1)).add(&mul(&mul(&y, &y), &cos(2))),
+            mul(&x, &y).sub(&mul(&z, &sin(1))),
+        ]);
+        (vec![f], states)
+    }
+
+    #[test]
+    fn stroboscopic_averaging_is_the_same_on_one_and_on_several_threads() {
+        let (mut standard, states) = case_e();
+        // Order 7: every cap of the recursion (mean only, harmonics with
+        // sine constants, the last diagonal) is used, on sums of several
+        // pairs.
+        let dim = states.len();
+        standard.extend((1..7).map(|_| Field::zero(dim)));
+        let period = Period(Q::int(2));
+        let one = with_workers(1, || stroboscopic(&standard, &period, &states)).expect("one");
+        for workers in [2, 3] {
+            let many = with_workers(workers, || stroboscopic(&standard, &period, &states))
+                .expect("several");
+            assert_eq!(one, many, "{workers} workers");
+            let shown = |v: &[Field]| v.iter().map(show_field).collect::<Vec<_>>();
+            assert_eq!(shown(&one), shown(&many), "{workers} workers, as text");
+        }
+        // F_1 is the mean of the field over the period, by hand:
+        // mean(cos t) = mean(sin t) = mean(cos 2t) = 0.
+        let (x, y) = (Expr::sym(states[0]), Expr::sym(states[1]));
+        let mean = Field(vec![
+            x.scale(&Q::ratio(-1, 2).expect("half")),
+            Expr::zero(),
+            x.mul(&y).expect("product"),
+        ]);
+        assert_eq!(one[0], mean);
+        assert!(one.iter().all(|f| !f.is_zero()));
+    }
 }

@@ -33,6 +33,120 @@ pub(crate) fn parallelism() -> usize {
     })
 }
 
+/// Workers and the least work of a split sum for the sums on this thread,
+/// when a test sets them (see [`with_workers`]).
+#[cfg(test)]
+thread_local! {
+    static WORKERS: std::cell::Cell<Option<usize>> = const { std::cell::Cell::new(None) };
+}
+
+/// Runs `f` with the sums of brackets on this thread split over `workers`
+/// threads however small they are (a test of the split).
+#[cfg(test)]
+pub(crate) fn with_workers<R>(workers: usize, f: impl FnOnce() -> R) -> R {
+    let before = WORKERS.with(|w| w.replace(Some(workers.max(1))));
+    let out = f();
+    WORKERS.with(|w| w.set(before));
+    out
+}
+
+thread_local! {
+    /// True on the workers of [`on_workers`]: their sums do not split again.
+    static ON_WORKER: std::cell::Cell<bool> = const { std::cell::Cell::new(false) };
+}
+
+/// The workers for `work` term products: one below [`PARALLEL_WORK`] and
+/// on a worker already.
+fn workers_for(work: usize) -> usize {
+    #[cfg(test)]
+    if let Some(w) = WORKERS.with(std::cell::Cell::get) {
+        return w;
+    }
+    if work < PARALLEL_WORK || ON_WORKER.with(std::cell::Cell::get) {
+        1
+    } else {
+        parallelism()
+    }
+}
+
+/// Runs `body` on `workers` scoped threads, each with this thread's limits
+/// (counting work against this statement) and without further splits; the
+/// results in the order of the workers.
+fn on_workers<R: Send>(
+    workers: usize,
+    body: impl Fn() -> CoreResult<R> + Sync,
+) -> Vec<CoreResult<R>> {
+    let ctx = limits::context();
+    std::thread::scope(|scope| {
+        let handles: Vec<_> = (0..workers)
+            .map(|_| {
+                let (body, ctx) = (&body, ctx.clone());
+                scope.spawn(move || {
+                    limits::enter(ctx);
+                    ON_WORKER.with(|w| w.set(true));
+                    body()
+                })
+            })
+            .collect();
+        handles
+            .into_iter()
+            .map(|h| h.join().unwrap_or(Err(CoreError::Interrupted)))
+            .collect()
+    })
+}
+
+/// The term products of a sum of brackets of these pairs, as
+/// [`bracket_sum`] estimates them to decide on a split.
+pub fn bracket_work(pairs: &[(&Prepared, &Prepared)]) -> usize {
+    pairs.iter().fold(0usize, |w, (x, y)| {
+        w.saturating_add(x.n_terms.saturating_mul(y.n_terms))
+    })
+}
+
+/// `f(0), …, f(count − 1)` computed on the available cores when `work`
+/// (the estimated term products of each) is large, largest first; one at a
+/// time otherwise, and when the largest is more than half the total (then
+/// its own sum is better split, see [`bracket_sum`]). The results are in
+/// the order of the indices whatever thread computed them.
+pub fn map_on_workers<T: Send>(
+    work: &[usize],
+    f: impl Fn(usize) -> CoreResult<T> + Sync,
+) -> CoreResult<Vec<T>> {
+    let total = work.iter().fold(0usize, |a, &w| a.saturating_add(w));
+    let largest = work.iter().copied().max().unwrap_or(0);
+    let workers = workers_for(total).min(work.len());
+    if workers < 2 || largest > total / 2 {
+        return (0..work.len()).map(f).collect();
+    }
+    let mut order: Vec<usize> = (0..work.len()).collect();
+    order.sort_by_key(|&i| std::cmp::Reverse(work[i]));
+    let next = std::sync::atomic::AtomicUsize::new(0);
+    let failed = std::sync::atomic::AtomicBool::new(false);
+    let results = on_workers(workers, || {
+        let mut done = Vec::new();
+        while !failed.load(std::sync::atomic::Ordering::Relaxed) {
+            let k = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+            let Some(&i) = order.get(k) else {
+                break;
+            };
+            match f(i) {
+                Ok(t) => done.push((i, t)),
+                Err(e) => {
+                    failed.store(true, std::sync::atomic::Ordering::Relaxed);
+                    return Err(e);
+                }
+            }
+        }
+        Ok(done)
+    });
+    let mut out: Vec<(usize, T)> = Vec::with_capacity(work.len());
+    for r in results {
+        out.extend(r?);
+    }
+    out.sort_by_key(|(i, _)| *i);
+    Ok(out.into_iter().map(|(_, t)| t).collect())
+}
+
 /// A (possibly time-varying) vector field in the coordinates of a state list.
 #[derive(Clone, PartialEq, Eq, Hash, Debug, Default)]
 pub struct Field(pub Vec<Expr>);
@@ -281,7 +395,7 @@ pub fn bracket_sum(
         false,
         states,
         keep,
-        SumBuilder::finish,
+        |acc, _| acc.finish(),
     )?))
 }
 
@@ -316,14 +430,17 @@ pub fn bracket_sum_onto_parts(
     states: &[Sym],
     keep: Keep,
 ) -> CoreResult<(Vec<TimeParts>, Field)> {
-    let sums = component_sums(
-        init,
-        pairs,
-        negate,
-        states,
-        keep,
-        SumBuilder::finish_parts_with_sines,
-    )?;
+    let sums = component_sums(init, pairs, negate, states, keep, |acc, more| {
+        let (parts, sines) = acc.finish_parts_with_sines();
+        (
+            parts,
+            if more.is_zero() {
+                sines
+            } else {
+                sines.add(&more)
+            },
+        )
+    })?;
     let (parts, sines) = sums.into_iter().unzip();
     Ok((parts, Field(sines)))
 }
@@ -338,21 +455,29 @@ pub fn bracket_sum_onto_prepared(
     states: &[Sym],
     keep: Keep,
 ) -> CoreResult<Prepared> {
-    let parts = component_sums(init, pairs, negate, states, keep, SumBuilder::finish_parts)?;
+    let parts = component_sums(init, pairs, negate, states, keep, |acc, _| {
+        acc.finish_parts()
+    })?;
     Ok(Prepared::from_parts(parts, states))
 }
 
 /// The sum of [`bracket_sum_onto_parts`] for every component, each accumulator
-/// handed to `finish`. Large sums split their components over the
-/// available cores (each worker gets this thread's limits and counts its
-/// work against this statement).
+/// handed to `finish` with the sine constants of merged partial sums (zero
+/// when the component was summed in one piece). Large sums are cut into
+/// pieces (the start terms of a component; the two products of one state
+/// coordinate of one pair) that the available cores take largest first;
+/// each worker keeps one accumulator per component and the partial sums of
+/// a component are added at the end. Sums are exact and normal forms
+/// canonical, so the result does not depend on how the pieces were dealt
+/// (each worker gets this thread's limits and counts its work against this
+/// statement).
 fn component_sums<T: Send>(
     init: &[(BracketStart, Q)],
     pairs: &[(&Prepared, &Prepared)],
     negate: bool,
     states: &[Sym],
     keep: Keep,
-    finish: impl Fn(SumBuilder) -> T + Sync,
+    finish: impl Fn(SumBuilder, Expr) -> T + Sync,
 ) -> CoreResult<Vec<T>> {
     let n = states.len();
     if let Some((f, _)) = init.iter().find(|(f, _)| f.dim() != n) {
@@ -374,56 +499,116 @@ fn component_sums<T: Send>(
             });
         }
     }
-    let component = |i: usize| -> CoreResult<T> {
-        let mut acc = SumBuilder::new();
-        for (start, q) in init {
-            match start {
-                BracketStart::Field(f) => acc.add_scaled(&f.0[i], q, keep)?,
-                BracketStart::Parts(p) => acc.add_parts(&p[i], q, keep)?,
+    let add_piece = |acc: &mut SumBuilder, piece: &Piece| -> CoreResult<()> {
+        let i = piece.component;
+        let Some((m, s)) = piece.products else {
+            for (start, q) in init {
+                match start {
+                    BracketStart::Field(f) => acc.add_scaled(&f.0[i], q, keep)?,
+                    BracketStart::Parts(p) => acc.add_parts(&p[i], q, keep)?,
+                }
             }
-        }
-        for (x, y) in pairs {
-            for s in 0..n {
-                acc.add_product_harmonics(&x.parts[s], &y.d[i][s], negate, keep)?;
-                acc.add_product_harmonics(&y.parts[s], &x.d[i][s], !negate, keep)?;
-            }
-        }
-        Ok(finish(acc))
+            return Ok(());
+        };
+        let (x, y) = pairs[m];
+        acc.add_product_harmonics(&x.parts[s], &y.d[i][s], negate, keep)?;
+        acc.add_product_harmonics(&y.parts[s], &x.d[i][s], !negate, keep)
     };
-    let work = pairs.iter().fold(0usize, |w, (x, y)| {
-        w.saturating_add(x.n_terms.saturating_mul(y.n_terms))
-    });
-    let workers = parallelism().min(n);
-    if workers > 1 && work >= PARALLEL_WORK {
-        let ctx = limits::context();
-        let results: Vec<CoreResult<Vec<(usize, T)>>> = std::thread::scope(|scope| {
-            let handles: Vec<_> = (0..workers)
-                .map(|w| {
-                    let component = &component;
-                    let ctx = ctx.clone();
-                    scope.spawn(move || {
-                        limits::enter(ctx);
-                        (w..n)
-                            .step_by(workers)
-                            .map(|i| Ok((i, component(i)?)))
-                            .collect()
-                    })
-                })
-                .collect();
-            handles
-                .into_iter()
-                .map(|h| h.join().unwrap_or(Err(CoreError::Interrupted)))
-                .collect()
-        });
-        let mut out: Vec<(usize, T)> = Vec::with_capacity(n);
-        for r in results {
-            out.extend(r?);
-        }
-        out.sort_by_key(|(i, _)| *i);
-        Ok(out.into_iter().map(|(_, t)| t).collect())
-    } else {
-        (0..n).map(component).collect()
+    let workers = workers_for(bracket_work(pairs));
+    if workers < 2 {
+        return (0..n)
+            .map(|i| {
+                let mut acc = SumBuilder::new();
+                for piece in pieces_of(i, init, pairs, n) {
+                    add_piece(&mut acc, &piece)?;
+                }
+                Ok(finish(acc, Expr::zero()))
+            })
+            .collect();
     }
+    let mut pieces: Vec<Piece> = (0..n).flat_map(|i| pieces_of(i, init, pairs, n)).collect();
+    // Largest first, so that the last pieces taken are small (a stable
+    // sort: the list is the same on every run).
+    pieces.sort_by_key(|p| std::cmp::Reverse(p.work));
+    let workers = workers.min(pieces.len()).max(1);
+    let next = std::sync::atomic::AtomicUsize::new(0);
+    let failed = std::sync::atomic::AtomicBool::new(false);
+    let partials = on_workers(workers, || {
+        let mut accs: Vec<Option<SumBuilder>> = (0..n).map(|_| None).collect();
+        while !failed.load(std::sync::atomic::Ordering::Relaxed) {
+            let k = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+            let Some(piece) = pieces.get(k) else {
+                break;
+            };
+            let acc = accs[piece.component].get_or_insert_with(SumBuilder::new);
+            if let Err(e) = add_piece(acc, piece) {
+                failed.store(true, std::sync::atomic::Ordering::Relaxed);
+                return Err(e);
+            }
+        }
+        Ok(accs)
+    });
+    // By component, the partial sums in the order of the workers.
+    let mut by_component: Vec<Vec<SumBuilder>> = (0..n).map(|_| Vec::new()).collect();
+    for accs in partials {
+        for (i, acc) in accs?.into_iter().enumerate() {
+            by_component[i].extend(acc);
+        }
+    }
+    by_component
+        .into_iter()
+        .map(|mut accs| {
+            if accs.len() <= 1 {
+                return Ok(finish(accs.pop().unwrap_or_default(), Expr::zero()));
+            }
+            let mut merged = SumBuilder::new();
+            let mut sines = Expr::zero();
+            for acc in accs {
+                let (parts, s) = acc.finish_parts_with_sines();
+                merged.add_parts(&parts, &Q::ONE, Keep::All)?;
+                sines = sines.add(&s);
+            }
+            Ok(finish(merged, sines))
+        })
+        .collect()
+}
+
+/// A piece of a sum of brackets for one component (see [`component_sums`]):
+/// its start terms (`products` = `None`) or the two products of state
+/// coordinate `s` of pair `m`, with an estimate of its work.
+struct Piece {
+    component: usize,
+    products: Option<(usize, usize)>,
+    work: usize,
+}
+
+/// The pieces of component `i`, in the order of a sum in one piece: the
+/// start terms, then pair by pair and state by state (pieces without
+/// products left out).
+fn pieces_of(
+    i: usize,
+    init: &[(BracketStart, Q)],
+    pairs: &[(&Prepared, &Prepared)],
+    n: usize,
+) -> Vec<Piece> {
+    let len = |p: &[TimePart]| p.iter().map(TimePart::len).sum::<usize>();
+    let start = (!init.is_empty()).then_some(Piece {
+        component: i,
+        products: None,
+        work: 0,
+    });
+    let products = pairs.iter().enumerate().flat_map(move |(m, (x, y))| {
+        (0..n).filter_map(move |s| {
+            let work = len(&x.parts[s]).saturating_mul(len(&y.d[i][s]))
+                + len(&y.parts[s]).saturating_mul(len(&x.d[i][s]));
+            (work > 0).then_some(Piece {
+                component: i,
+                products: Some((m, s)),
+                work,
+            })
+        })
+    });
+    start.into_iter().chain(products).collect()
 }
 
 impl Matrix {

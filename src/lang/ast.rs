@@ -89,7 +89,7 @@ impl BinOp {
 
 /// An expression node with its span (parentheses around it are included).
 #[derive(Clone, Debug, PartialEq)]
-pub struct Expr {
+pub struct SyntaxExpr {
     /// What the node is.
     pub kind: ExprKind,
     /// Where it was written.
@@ -104,30 +104,30 @@ pub enum ExprKind {
     /// An identifier used as a value, including `t` and `pi`.
     Name(String),
     /// Unary minus.
-    Neg(Box<Expr>),
+    Neg(Box<SyntaxExpr>),
     /// A binary operation.
-    Bin(BinOp, Box<Expr>, Box<Expr>),
+    Bin(BinOp, Box<SyntaxExpr>, Box<SyntaxExpr>),
     /// `NAME(args)`: a built-in such as `sin` or `plug`, or `X(h)` for a named field `X`.
     Call(Ident, Vec<Arg>),
     /// Any other postfix application, e.g. `[X, Y](h)` or `(X + Y)(h)`.
-    Apply(Box<Expr>, Vec<Arg>),
+    Apply(Box<SyntaxExpr>, Vec<Arg>),
     /// `[a, b, ...]` (at least one entry): a field literal, or a Lie bracket
     /// when it has two field entries (decided later by kinds).
-    List(Vec<Expr>),
+    List(Vec<SyntaxExpr>),
     /// `{a, b; c, d}`: rows separated by `;` (equal row lengths are not checked here).
-    Matrix(Vec<Vec<Expr>>),
+    Matrix(Vec<Vec<SyntaxExpr>>),
 }
 
 /// An argument of a call or application.
 #[derive(Clone, Debug, PartialEq)]
 pub enum Arg {
     /// A plain argument.
-    Pos(Expr),
+    Pos(SyntaxExpr),
     /// `q = v`, as in `plug(e, q = v)`.
-    Bind(Ident, Expr),
+    Bind(Ident, SyntaxExpr),
     /// `V(s) = body`, as in `plug(e, V(s) = -cos(s))`: a definition of an
     /// unspecified function (name, placeholders, body).
-    BindFunc(Ident, Vec<Ident>, Expr),
+    BindFunc(Ident, Vec<Ident>, SyntaxExpr),
 }
 
 /// One function of a `func` declaration: `J(a, b)`.
@@ -167,20 +167,20 @@ pub enum StmtKind {
         rhs: Rhs,
     },
     /// A bare expression line: print its value.
-    Print(Expr),
+    Print(SyntaxExpr),
     /// A series or numeric command not bound to a name.
     Run(Command),
     /// `check A == B`
     Check {
         /// Left side.
-        lhs: Expr,
+        lhs: SyntaxExpr,
         /// Right side.
-        rhs: Expr,
+        rhs: SyntaxExpr,
     },
     /// `show E as WORD [to PATH]` (the word is kept as typed; lowering validates it).
     Show {
         /// What to show.
-        expr: Expr,
+        expr: SyntaxExpr,
         /// The format word, e.g. `latex`, `brackets` or `python`.
         how: Ident,
         /// `to PATH`: write the text to a file instead of printing it.
@@ -204,7 +204,7 @@ pub enum StmtKind {
     /// `set budget N`
     SetBudget(Spanned<u64>),
     /// `set tolerance E` (the integration tolerance of numerical commands)
-    SetTolerance(Expr),
+    SetTolerance(SyntaxExpr),
     /// `quit`
     Quit,
 }
@@ -216,7 +216,7 @@ pub enum StmtKind {
 #[derive(Clone, Debug, PartialEq)]
 pub enum Rhs {
     /// `A = EXPR`
-    Expr(Expr),
+    Expr(SyntaxExpr),
     /// `A = COMMAND` or `A, W = COMMAND`
     Command(Command),
 }
@@ -256,7 +256,7 @@ pub struct Assign {
     /// The name assigned to.
     pub name: Ident,
     /// Its value.
-    pub value: Expr,
+    pub value: SyntaxExpr,
 }
 
 /// A series or numeric command with its span (from the command word on).
@@ -276,25 +276,25 @@ pub enum CommandKind {
     /// `flow E [on E] to N`
     Flow {
         /// The time-varying field.
-        field: Expr,
+        field: SyntaxExpr,
         /// The output expression after `on`.
-        on: Option<Expr>,
+        on: Option<SyntaxExpr>,
         /// The order after `to`.
         to: Spanned<u64>,
     },
     /// `magnus E to N [over E]`
     Magnus {
         /// The time-varying field.
-        field: Expr,
+        field: SyntaxExpr,
         /// The order after `to`.
         to: Spanned<u64>,
         /// The time span after `over`.
-        over: Option<Expr>,
+        over: Option<SyntaxExpr>,
     },
     /// `average E to N in NAME [strobo|classic] [depth N] [with transform]`
     Average {
         /// The system.
-        field: Expr,
+        field: SyntaxExpr,
         /// The order after `to`.
         to: Spanned<u64>,
         /// The small parameter after `in` (the frequency of `in 1/w`).
@@ -313,7 +313,7 @@ pub enum CommandKind {
     /// `change E to r, phi by x = r*cos(phi), v = r*sin(phi)`
     Change {
         /// The field or scalar to rewrite.
-        field: Expr,
+        field: SyntaxExpr,
         /// The new coordinates after `to`.
         to: Vec<Ident>,
         /// The old coordinates as expressions in the new ones, after `by`.
@@ -322,18 +322,18 @@ pub enum CommandKind {
     /// `carleman E degree N`
     Carleman {
         /// The field.
-        field: Expr,
+        field: SyntaxExpr,
         /// The degree after `degree`.
         degree: Spanned<u64>,
     },
     /// `simulate E from q=1, p=0 for E [with a=1] [plot PATH]`
     Simulate {
         /// The system.
-        field: Expr,
+        field: SyntaxExpr,
         /// Initial values.
         from: Vec<Assign>,
         /// Time horizon after `for`.
-        horizon: Expr,
+        horizon: SyntaxExpr,
         /// Parameter values after `with`.
         with: Vec<Assign>,
         /// Plot file after `plot`.
@@ -344,21 +344,21 @@ pub enum CommandKind {
     /// `compare E with E from ... for E [with ...] sweep eps=0.2,0.1 [tol E] [plot PATH]`
     Compare {
         /// The original system.
-        system: Expr,
+        system: SyntaxExpr,
         /// The averaged model after `with`.
-        model: Expr,
+        model: SyntaxExpr,
         /// Initial values.
         from: Vec<Assign>,
         /// Time horizon after `for`.
-        horizon: Expr,
+        horizon: SyntaxExpr,
         /// Parameter values after the second `with`.
         with: Vec<Assign>,
         /// The swept parameter.
         sweep_param: Ident,
         /// Its values.
-        sweep: Vec<Expr>,
+        sweep: Vec<SyntaxExpr>,
         /// Error tolerance after `tol`.
-        tol: Option<Expr>,
+        tol: Option<SyntaxExpr>,
         /// Plot file after `plot`.
         plot: Option<PathArg>,
         /// Plot file of the trajectories after `plot paths`.
@@ -369,7 +369,7 @@ pub enum CommandKind {
     /// `equilibria E near q=1, p=0 [with k=1]`
     Equilibria {
         /// The autonomous field.
-        field: Expr,
+        field: SyntaxExpr,
         /// The guess.
         near: Vec<Assign>,
         /// Parameter values after `with`.
@@ -378,7 +378,7 @@ pub enum CommandKind {
     /// `stability E at q=pi, p=0 [with k=1]`
     Stability {
         /// The autonomous field.
-        field: Expr,
+        field: SyntaxExpr,
         /// The point.
         at: Vec<Assign>,
         /// Parameter values after `with`.
@@ -386,10 +386,10 @@ pub enum CommandKind {
     },
 }
 
-impl Expr {
+impl SyntaxExpr {
     /// An expression node.
-    pub fn new(kind: ExprKind, span: Span) -> Expr {
-        Expr { kind, span }
+    pub fn new(kind: ExprKind, span: Span) -> SyntaxExpr {
+        SyntaxExpr { kind, span }
     }
 
     /// A compact bracketed rendering that makes structure visible, e.g.
@@ -403,7 +403,7 @@ impl Expr {
 }
 
 impl Arg {
-    /// The bracketed rendering of the argument (see [`Expr::sexpr`]).
+    /// The bracketed rendering of the argument (see [`SyntaxExpr::sexpr`]).
     pub fn sexpr(&self) -> String {
         let mut out = String::new();
         write_arg(&mut out, self);
@@ -437,7 +437,7 @@ impl Stmt {
     }
 }
 
-fn write_expr(out: &mut String, expr: &Expr) {
+fn write_expr(out: &mut String, expr: &SyntaxExpr) {
     match &expr.kind {
         ExprKind::Num(text) | ExprKind::Name(text) => out.push_str(text),
         ExprKind::Neg(inner) => {
@@ -484,7 +484,7 @@ fn write_expr(out: &mut String, expr: &Expr) {
     }
 }
 
-fn write_seq(out: &mut String, exprs: &[Expr]) {
+fn write_seq(out: &mut String, exprs: &[SyntaxExpr]) {
     for (idx, expr) in exprs.iter().enumerate() {
         if idx > 0 {
             out.push(' ');
@@ -538,7 +538,7 @@ fn write_assigns(out: &mut String, word: &str, assigns: &[Assign]) {
     out.push(']');
 }
 
-fn write_optional_expr(out: &mut String, word: &str, expr: Option<&Expr>) {
+fn write_optional_expr(out: &mut String, word: &str, expr: Option<&SyntaxExpr>) {
     if let Some(expr) = expr {
         out.push(' ');
         out.push_str(word);
@@ -799,8 +799,8 @@ fn write_stmt(out: &mut String, stmt: &Stmt) {
 mod tests {
     use super::*;
 
-    fn name(text: &str, start: usize) -> Expr {
-        Expr::new(
+    fn name(text: &str, start: usize) -> SyntaxExpr {
+        SyntaxExpr::new(
             ExprKind::Name(text.to_string()),
             Span::new(start, start + text.len()),
         )
@@ -815,11 +815,11 @@ mod tests {
 
     #[test]
     fn sexpr_brackets_every_node() {
-        let sum = Expr::new(
+        let sum = SyntaxExpr::new(
             ExprKind::Bin(
                 BinOp::Add,
                 Box::new(name("a", 0)),
-                Box::new(Expr::new(
+                Box::new(SyntaxExpr::new(
                     ExprKind::Neg(Box::new(name("b", 5))),
                     Span::new(4, 6),
                 )),
@@ -827,12 +827,12 @@ mod tests {
             Span::new(0, 6),
         );
         assert_eq!(sum.sexpr(), "(+ a (neg b))");
-        let matrix = Expr::new(
+        let matrix = SyntaxExpr::new(
             ExprKind::Matrix(vec![vec![name("a", 1), name("b", 4)], vec![name("c", 7)]]),
             Span::new(0, 9),
         );
         assert_eq!(matrix.sexpr(), "{a b; c}");
-        let call = Expr::new(
+        let call = SyntaxExpr::new(
             ExprKind::Call(
                 Ident::new("plug", Span::new(0, 4)),
                 vec![

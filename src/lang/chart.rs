@@ -13,15 +13,13 @@
 
 use std::collections::BTreeMap;
 
-use super::ast::{Arg, Assign, Command, CommandKind, Expr as Ast, ExprKind, Ident, Rhs, Span};
+use super::ast::{Arg, Assign, Command, CommandKind, ExprKind, Ident, Rhs, Span, SyntaxExpr};
 use super::ast::{Stmt, StmtKind};
-use super::session::{Report, Session, SessionError, Style, SymKind};
+use super::session::{Report, Session, SessionError, SessionResult, Style, SymKind};
 use super::value::{FieldValue, Value};
 use crate::core::chart::Change;
 use crate::core::{CoreError, Expr, Field, Sym};
 use crate::render::plain;
-
-type R<T> = Result<T, SessionError>;
 
 /// The charts of a session beyond the declared state, and which chart each
 /// bound name lives in.
@@ -125,7 +123,7 @@ impl Session {
 
     /// Puts the session in the chart of what `stmt` mentions; refuses a
     /// statement that mentions two charts.
-    pub(crate) fn enter_chart(&mut self, stmt: &Stmt) -> R<Scope> {
+    pub(crate) fn enter_chart(&mut self, stmt: &Stmt) -> SessionResult<Scope> {
         self.charts.moved = false;
         let saved = self.states.clone();
         self.charts.declared = saved.clone();
@@ -202,7 +200,7 @@ impl Session {
 
     /// Refuses a `state` declaration that would split an existing chart;
     /// declaring exactly a chart's coordinates makes it the state.
-    pub(crate) fn check_state_against_charts(&mut self, ids: &[Ident]) -> R<()> {
+    pub(crate) fn check_state_against_charts(&mut self, ids: &[Ident]) -> SessionResult<()> {
         let names: Vec<&str> = ids.iter().map(|i| i.name.as_str()).collect();
         for id in ids {
             if let Some(c) = self
@@ -235,7 +233,7 @@ impl Session {
     }
 
     /// A new chart named `to`, or the existing chart with exactly these names.
-    fn new_chart(&mut self, to: &[Ident]) -> R<Vec<Sym>> {
+    fn new_chart(&mut self, to: &[Ident]) -> SessionResult<Vec<Sym>> {
         for (i, id) in to.iter().enumerate() {
             if to[..i].iter().any(|j| j.name == id.name) {
                 return Err(SessionError::invalid(
@@ -276,12 +274,12 @@ impl Session {
     /// `change E to NEW by OLD = ψ(NEW), …`: the value in the new chart.
     pub(crate) fn change(
         &mut self,
-        target: &Ast,
+        target: &SyntaxExpr,
         to: &[Ident],
         by: &[Assign],
         span: Span,
         report: &mut Report,
-    ) -> R<Value> {
+    ) -> SessionResult<Value> {
         let old = self.states.clone();
         if old.is_empty() {
             return Err(SessionError::invalid(
@@ -310,7 +308,7 @@ impl Session {
             ));
         }
         // Each old coordinate exactly once.
-        let mut psi_ast: Vec<Option<&Ast>> = vec![None; old.len()];
+        let mut psi_ast: Vec<Option<&SyntaxExpr>> = vec![None; old.len()];
         for a in by {
             let Some(i) = old.iter().position(|s| s.name() == a.name.name) else {
                 return Err(SessionError::invalid(
@@ -387,7 +385,7 @@ impl Session {
                 }
             ),
         );
-        report.push(Style::Result, plain::value(&result));
+        report.push(Style::Result, result.plain());
         let n = result.n_terms();
         report.push(
             Style::Note,
@@ -409,7 +407,7 @@ impl Session {
         results: Vec<Value>,
         span: Span,
         report: &mut Report,
-    ) -> R<Vec<Value>> {
+    ) -> SessionResult<Vec<Value>> {
         let old = self.states.clone();
         if names.len() != old.len() {
             let sp = names[0].span.join(names[names.len() - 1].span);
@@ -505,7 +503,7 @@ impl Session {
     }
 }
 
-fn unreachable_matrix(span: Span) -> R<Value> {
+fn unreachable_matrix(span: Span) -> SessionResult<Value> {
     Err(SessionError::invalid(
         span,
         "internal: matrix refused above",
@@ -621,7 +619,7 @@ fn command_mentions<'a>(c: &'a Command, out: &mut Vec<Mention<'a>>) {
     }
 }
 
-fn expr_mentions<'a>(e: &'a Ast, out: &mut Vec<Mention<'a>>, model: bool) {
+fn expr_mentions<'a>(e: &'a SyntaxExpr, out: &mut Vec<Mention<'a>>, model: bool) {
     match &e.kind {
         ExprKind::Num(_) => {}
         ExprKind::Name(n) => out.push(Mention {

@@ -6,7 +6,7 @@
 use std::time::Instant;
 
 use super::ast::{Command, CommandKind, Ident, Span};
-use super::session::{Report, Session, SessionError, Style, SymKind};
+use super::session::{Report, Session, SessionError, SessionResult, Style, SymKind};
 use super::value::{AveragedInfo, FieldValue, Value};
 use crate::averaging::{self, Form, Method, Options};
 use crate::core::calc::Period;
@@ -15,9 +15,7 @@ use crate::core::{limits, CoreError, Expr, Field, Matrix, Sym, Q};
 use crate::render::plain;
 use crate::series::chrono::{self, Graded};
 
-type R<T> = Result<T, SessionError>;
-
-fn order_arg(n: u64, span: Span) -> R<usize> {
+fn order_arg(n: u64, span: Span) -> SessionResult<usize> {
     limits::check_order(n).map_err(|e| SessionError::core(span, e))?;
     if n == 0 {
         return Err(SessionError::invalid(span, "the order must be at least 1"));
@@ -59,8 +57,8 @@ impl Session {
         names: &[Ident],
         report: &mut Report,
         started: Instant,
-    ) -> R<()> {
-        let want = |n: usize, span: Span| -> R<()> {
+    ) -> SessionResult<()> {
+        let want = |n: usize, span: Span| -> SessionResult<()> {
             if names.len() > n {
                 return Err(SessionError::invalid(
                     span,
@@ -197,7 +195,7 @@ impl Session {
         Ok(())
     }
 
-    pub(crate) fn param_sym(&self, id: &Ident) -> R<Sym> {
+    pub(crate) fn param_sym(&self, id: &Ident) -> SessionResult<Sym> {
         match self.sym_kind(&id.name) {
             Some(SymKind::Param) => Ok(Sym::new(&id.name)),
             _ => Err(SessionError::invalid(
@@ -225,7 +223,7 @@ impl Session {
         n: usize,
         span: Span,
         report: &mut Report,
-    ) -> R<Value> {
+    ) -> SessionResult<Value> {
         let core = |e: CoreError| SessionError::core(span, e);
         let inputs: Vec<Sym> = self
             .input_syms()
@@ -270,7 +268,7 @@ impl Session {
         } else {
             Value::field(Field(totals))
         };
-        report.push(Style::Result, format!("total    {}", plain::value(&value)));
+        report.push(Style::Result, format!("total    {}", value.plain()));
         report.push(Style::Note, summary(n, n_terms));
         Ok(value)
     }
@@ -282,7 +280,7 @@ impl Session {
         over: Option<(Expr, Span)>,
         span: Span,
         report: &mut Report,
-    ) -> R<Value> {
+    ) -> SessionResult<Value> {
         let core = |e: CoreError| SessionError::core(span, e);
         let mut horizon_span = span;
         let (horizon, period) = match over {
@@ -373,7 +371,7 @@ impl Session {
         opts: &Options,
         span: Span,
         report: &mut Report,
-    ) -> R<Vec<Value>> {
+    ) -> SessionResult<Vec<Value>> {
         let core = |e: CoreError| SessionError::core(span, e);
         let res = averaging::average(&v.field, eps, opts, &self.states)
             .map_err(|e| core(name_small_parameter(e, eps)))?;
@@ -541,7 +539,13 @@ impl Session {
         Ok(out)
     }
 
-    fn carleman(&self, x: &Field, degree: u32, span: Span, report: &mut Report) -> R<Value> {
+    fn carleman(
+        &self,
+        x: &Field,
+        degree: u32,
+        span: Span,
+        report: &mut Report,
+    ) -> SessionResult<Value> {
         let core = |e: CoreError| SessionError::core(span, e);
         if let Some(a) = x.0.iter().find_map(Expr::first_atom) {
             return Err(SessionError::invalid(

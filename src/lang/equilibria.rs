@@ -5,9 +5,9 @@
 
 use std::collections::HashMap;
 
-use super::ast::{Assign, Expr as Ast, Span};
-use super::numeric_cmds::{compile_err, refuse_functions, sci, R};
-use super::session::{Report, Session, SessionError, Style};
+use super::ast::{Assign, Span, SyntaxExpr};
+use super::numeric_cmds::{compile_err, refuse_functions, sci};
+use super::session::{Report, Session, SessionError, SessionResult, Style};
 use crate::core::{limits, CoreError, Expr, Field, Matrix, Sym, Q};
 use crate::numeric::compile::{float_values, CompiledExpr, CompiledField};
 use crate::numeric::sweep::{decimal, num};
@@ -69,7 +69,12 @@ struct CompiledJacobian {
 }
 
 impl CompiledJacobian {
-    fn new(jac: &Matrix, states: &[Sym], floats: &HashMap<Sym, f64>, span: Span) -> R<Self> {
+    fn new(
+        jac: &Matrix,
+        states: &[Sym],
+        floats: &HashMap<Sym, f64>,
+        span: Span,
+    ) -> SessionResult<Self> {
         let entries = jac
             .data
             .iter()
@@ -115,7 +120,7 @@ fn snap(x: f64) -> Option<Expr> {
 }
 
 impl Session {
-    fn autonomous(&self, e: &Ast, what: &str) -> R<Field> {
+    fn autonomous(&self, e: &SyntaxExpr, what: &str) -> SessionResult<Field> {
         let v = self.eval_field(e, what)?;
         refuse_functions(&v.field, e.span, what_word(what))?;
         if v.field.0.iter().any(Expr::is_time_varying) {
@@ -134,11 +139,11 @@ impl Session {
     pub(crate) fn stability(
         &mut self,
         span: Span,
-        field: &Ast,
+        field: &SyntaxExpr,
         at: &[Assign],
         with: &[Assign],
         report: &mut Report,
-    ) -> R<()> {
+    ) -> SessionResult<()> {
         let f = self.autonomous(field, "the field of `stability`")?;
         let exact = self.with_values(with)?;
         let point = self.point_values(at, &exact, span)?;
@@ -154,7 +159,7 @@ impl Session {
         exact: &HashMap<Sym, Q>,
         span: Span,
         report: &mut Report,
-    ) -> R<()> {
+    ) -> SessionResult<()> {
         let core = |e: CoreError| SessionError::core(span, e);
         let jac = f.jacobian(&self.states).map_err(core)?;
         let mut map = Self::with_map(exact);
@@ -188,7 +193,7 @@ impl Session {
         let x: Vec<f64> = point
             .iter()
             .map(|e| self.float_of(e, &floats, span))
-            .collect::<R<_>>()?;
+            .collect::<SessionResult<_>>()?;
         let cf = CompiledField::new(f, &self.states, &floats).map_err(|e| compile_err(span, e))?;
         let cj = CompiledJacobian::new(&jac, &self.states, &floats, span)?;
         self.numeric_report(&cf, &cj, &x, span, report)
@@ -202,7 +207,7 @@ impl Session {
         floats: &HashMap<Sym, f64>,
         span: Span,
         report: &mut Report,
-    ) -> R<()> {
+    ) -> SessionResult<()> {
         let core = |e: CoreError| SessionError::core(span, e);
         report.push(Style::Result, format!("Jacobian {}", plain::matrix(&jp)));
         let numeric: Option<Vec<Vec<f64>>> = (0..jp.rows)
@@ -281,7 +286,7 @@ impl Session {
         x: &[f64],
         span: Span,
         report: &mut Report,
-    ) -> R<()> {
+    ) -> SessionResult<()> {
         let rows = jac.rows(x);
         report.push(
             Style::Result,
@@ -320,7 +325,7 @@ impl Session {
         }
     }
 
-    fn eigen_lines(&self, rows: &[Vec<f64>], span: Span, report: &mut Report) -> R<()> {
+    fn eigen_lines(&self, rows: &[Vec<f64>], span: Span, report: &mut Report) -> SessionResult<()> {
         let eigs =
             eigen::eigenvalues(rows).map_err(|e| SessionError::invalid(span, e.to_string()))?;
         // Conjugate pairs are listed together as a ± bi.
@@ -346,11 +351,11 @@ impl Session {
     pub(crate) fn equilibria(
         &mut self,
         span: Span,
-        field: &Ast,
+        field: &SyntaxExpr,
         near: &[Assign],
         with: &[Assign],
         report: &mut Report,
-    ) -> R<()> {
+    ) -> SessionResult<()> {
         let f = self.autonomous(field, "the field of `equilibria`")?;
         let exact = self.with_values(with)?;
         let floats = float_values(&exact);

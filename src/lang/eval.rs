@@ -3,21 +3,24 @@
 
 use std::collections::HashMap;
 
-use super::ast::{Arg, BinOp, Expr as Ast, ExprKind, Ident, Span};
-use super::session::{ErrorKind, Session, SessionError, SymKind};
-use super::value::{Combo, FieldValue, Value};
+use super::ast::{Arg, BinOp, ExprKind, Ident, Span, SyntaxExpr};
+use super::builtins::{self, Arity, Builtin, BUILTIN_NAMES};
+use super::session::{ErrorKind, Session, SessionError, SessionResult, SymKind};
+use super::value::{FieldCombination, FieldValue, Value};
 use crate::core::calc::common_period;
 use crate::core::func::{Arg as FuncArg, Definition, Signature};
 use crate::core::{CoreError, Expr, Field, Matrix, Sym, Q};
 use std::sync::Arc;
 
-/// Names of the built-in functions.
-pub const BUILTINS: &[&str] = &[
-    "sin", "cos", "exp", "ad", "pd", "jac", "div", "det", "trace", "plug", "order", "mean", "bch",
-    "iint",
-];
-
-type R<T> = Result<T, SessionError>;
+/// The entries of a value: a scalar, a field's components or a matrix's
+/// entries.
+fn entries_of(value: &Value) -> Vec<&Expr> {
+    match value {
+        Value::Scalar(x) => vec![x],
+        Value::Field(f) => f.field.0.iter().collect(),
+        Value::Matrix(m) => m.data.iter().collect(),
+    }
+}
 
 fn kind_err(span: Span, op: &str, left: &Value, right: Option<&Value>) -> SessionError {
     SessionError::at(
@@ -28,6 +31,12 @@ fn kind_err(span: Span, op: &str, left: &Value, right: Option<&Value>) -> Sessio
             right: right.map(Value::kind_name),
         },
     )
+}
+
+/// The usage line of `plug`, for its errors.
+fn plug_usage() -> String {
+    let usage = builtins::find("plug").map_or("", |builtin| builtin.usage);
+    format!("usage: {usage}")
 }
 
 /// The symbol name of an iterated integral `iint(u1, u2)`.
@@ -73,7 +82,7 @@ impl Session {
         let candidates = known
             .iter()
             .map(String::as_str)
-            .chain(BUILTINS.iter().copied())
+            .chain(BUILTIN_NAMES.iter().copied())
             .chain(["t", "pi"]);
         super::diag::nearest(name, candidates).map(str::to_string)
     }
@@ -89,7 +98,7 @@ impl Session {
     }
 
     /// Evaluates an expression.
-    pub fn eval(&self, e: &Ast) -> R<Value> {
+    pub fn eval(&self, e: &SyntaxExpr) -> SessionResult<Value> {
         let core = |err: CoreError| SessionError::core(e.span, err);
         match &e.kind {
             ExprKind::Num(text) => {
@@ -142,7 +151,7 @@ impl Session {
     }
 
     /// Evaluates an expression that must be a scalar.
-    pub fn eval_scalar(&self, e: &Ast, what: &str) -> R<Expr> {
+    pub fn eval_scalar(&self, e: &SyntaxExpr, what: &str) -> SessionResult<Expr> {
         match self.eval(e)? {
             Value::Scalar(x) => Ok(x),
             other => Err(SessionError::invalid(
@@ -153,7 +162,7 @@ impl Session {
     }
 
     /// Evaluates an expression that must be a field.
-    pub fn eval_field(&self, e: &Ast, what: &str) -> R<FieldValue> {
+    pub fn eval_field(&self, e: &SyntaxExpr, what: &str) -> SessionResult<FieldValue> {
         match self.eval(e)? {
             Value::Field(f) => Ok(f),
             other => Err(SessionError::invalid(
@@ -164,7 +173,7 @@ impl Session {
     }
 
     /// Evaluates a non-negative integer.
-    pub fn eval_count(&self, e: &Ast, what: &str) -> R<i64> {
+    pub fn eval_count(&self, e: &SyntaxExpr, what: &str) -> SessionResult<i64> {
         let x = self.eval_scalar(e, what)?;
         match x.as_number().and_then(|q| q.to_i64()) {
             Some(n) => Ok(n),
@@ -175,7 +184,7 @@ impl Session {
         }
     }
 
-    fn eval_name(&self, name: &str, span: Span) -> R<Value> {
+    fn eval_name(&self, name: &str, span: Span) -> SessionResult<Value> {
         match name {
             "t" => return Ok(Value::Scalar(Expr::sym(Sym::T))),
             "pi" => return Ok(Value::Scalar(Expr::sym(Sym::PI))),
@@ -200,7 +209,7 @@ impl Session {
             Some(Value::Field(f)) => {
                 let mut f = f.clone();
                 if f.combo.is_none() && !f.field.0.iter().any(Expr::is_time_varying) {
-                    f.combo = Some(Combo {
+                    f.combo = Some(FieldCombination {
                         parts: vec![(name.to_string(), f.field.clone(), Expr::int(1))],
                     });
                 }
@@ -211,7 +220,13 @@ impl Session {
         }
     }
 
-    fn eval_bin(&self, op: BinOp, a: &Ast, b: &Ast, span: Span) -> R<Value> {
+    fn eval_bin(
+        &self,
+        op: BinOp,
+        a: &SyntaxExpr,
+        b: &SyntaxExpr,
+        span: Span,
+    ) -> SessionResult<Value> {
         let core = |err: CoreError| SessionError::core(span, err);
         if op == BinOp::Pow {
             let base = self.eval(a)?;
@@ -243,7 +258,7 @@ impl Session {
                     (Value::Field(p), Value::Field(q)) => {
                         let field = p.field.add_scaled(&q.field, &sign).map_err(core)?;
                         let combo = match (&p.combo, &q.combo) {
-                            (Some(c1), Some(c2)) => Some(merge_combo(c1, c2, &sign)),
+                            (Some(c1), Some(c2)) => Some(merge_combinations(c1, c2, &sign)),
                             _ => None,
                         };
                         Ok(Value::Field(FieldValue {
@@ -308,8 +323,11 @@ impl Session {
         }
     }
 
-    fn eval_list(&self, items: &[Ast], span: Span) -> R<Value> {
-        let values: Vec<Value> = items.iter().map(|i| self.eval(i)).collect::<R<_>>()?;
+    fn eval_list(&self, items: &[SyntaxExpr], span: Span) -> SessionResult<Value> {
+        let values: Vec<Value> = items
+            .iter()
+            .map(|i| self.eval(i))
+            .collect::<SessionResult<_>>()?;
         if values.len() == 2 {
             if let (Value::Field(x), Value::Field(y)) = (&values[0], &values[1]) {
                 let b = x
@@ -363,7 +381,13 @@ impl Session {
             .join(", ")
     }
 
-    fn apply_field(&self, target: Value, tspan: Span, args: &[Arg], span: Span) -> R<Value> {
+    fn apply_field(
+        &self,
+        target: Value,
+        tspan: Span,
+        args: &[Arg],
+        span: Span,
+    ) -> SessionResult<Value> {
         let f = match target {
             Value::Field(f) => f,
             other => {
@@ -399,13 +423,19 @@ impl Session {
         }
     }
 
+    /// The positional arguments of a call of `builtin`, which takes a
+    /// fixed number of them (`name = value` arguments are refused).
     fn pos_args<'a>(
         &self,
         name: &Ident,
         args: &'a [Arg],
-        n: usize,
-        usage: &str,
-    ) -> R<Vec<&'a Ast>> {
+        builtin: &Builtin,
+    ) -> SessionResult<Vec<&'a SyntaxExpr>> {
+        let usage = builtin.usage;
+        let n = match builtin.arity {
+            Arity::Exactly(n) => n,
+            Arity::OneThenBindings | Arity::AtLeastOne => 1,
+        };
         let mut out = Vec::new();
         for a in args {
             match a {
@@ -437,7 +467,7 @@ impl Session {
     }
 
     /// Resolves an argument that must be a declared name of the given kinds.
-    fn symbol_arg(&self, e: &Ast, kinds: &[SymKind], what: &str) -> R<Sym> {
+    fn symbol_arg(&self, e: &SyntaxExpr, kinds: &[SymKind], what: &str) -> SessionResult<Sym> {
         if let ExprKind::Name(n) = &e.kind {
             if n == "t" {
                 return Ok(Sym::T);
@@ -451,255 +481,330 @@ impl Session {
         Err(SessionError::invalid(e.span, what.to_string()))
     }
 
-    fn eval_call(&self, name: &Ident, args: &[Arg], span: Span) -> R<Value> {
-        let core = |err: CoreError| SessionError::core(span, err);
-        match name.name.as_str() {
-            f @ ("sin" | "cos" | "exp") => {
-                let a = self.pos_args(name, args, 1, &format!("{f}(x)"))?;
-                let x = self.eval_scalar(a[0], &format!("the argument of `{f}`"))?;
-                // `w*t` (w a parameter) is a symbolic-frequency phase (DESIGN §2.7c).
-                let (x, mut st) = match f {
-                    "exp" => (x, self.states.clone()),
-                    _ => self.phase_arg(&x),
-                };
-                st.extend(self.placeholders.borrow().iter().map(|(_, s)| *s));
-                let r = match f {
-                    "sin" => Expr::sin_of(&x, &st),
-                    "cos" => Expr::cos_of(&x, &st),
-                    _ => Expr::exp_of(&x, &st),
-                };
-                Ok(Value::Scalar(
-                    r.map_err(|e| SessionError::core(a[0].span, e))?,
-                ))
-            }
-            "ad" => {
-                let a = self.pos_args(name, args, 3, "ad(X, Y, k)")?;
-                let x = self.eval_field(a[0], "the first argument of `ad`")?;
-                let y = self.eval_field(a[1], "the second argument of `ad`")?;
-                let k = self.eval_count(a[2], "the power of `ad`")?;
-                if k < 0 {
-                    return Err(SessionError::invalid(
-                        a[2].span,
-                        "the power of `ad` must be non-negative",
-                    ));
-                }
-                crate::core::limits::check_order(k as u64)
-                    .map_err(|e| SessionError::core(a[2].span, e))?;
-                Ok(Value::field(
-                    x.field
-                        .ad_pow(&y.field, k as u64, &self.states)
-                        .map_err(core)?,
-                ))
-            }
-            "pd" => {
-                let a = self.pos_args(name, args, 2, "pd(h, q)")?;
-                if let ExprKind::Name(n) = &a[0].kind {
-                    if let Some(f) = self.funcs.get(n) {
-                        return Err(SessionError::invalid(
-                            span,
-                            format!(
-                                "a derivative of the function `{n}` is applied to arguments: \
-                                 write `pd({n}, {})(…)` (or `{n}'(…)` for one argument)",
-                                f.params[0],
-                            ),
-                        ));
-                    }
-                }
-                let s = self.symbol_arg(
-                    a[1],
-                    &[SymKind::State, SymKind::Param],
-                    "the second argument of `pd` must be a state, a parameter or t",
-                )?;
-                let v = self.eval(a[0])?;
-                if s == Sym::T {
-                    let es: Vec<&Expr> = match &v {
-                        Value::Scalar(x) => vec![x],
-                        Value::Field(f) => f.field.0.iter().collect(),
-                        Value::Matrix(m) => m.data.iter().collect(),
-                    };
-                    self.refuse_phase(es, a[0].span, "`pd(…, t)` of this expression")?;
-                }
-                match v {
-                    Value::Scalar(h) => Ok(Value::Scalar(h.pd(s))),
-                    Value::Field(f) => Ok(Value::field(Field(
-                        f.field.0.iter().map(|c| c.pd(s)).collect(),
-                    ))),
-                    Value::Matrix(m) => Ok(Value::Matrix(Matrix {
-                        data: m.data.iter().map(|c| c.pd(s)).collect(),
-                        ..m
-                    })),
-                }
-            }
-            "jac" => {
-                let a = self.pos_args(name, args, 1, "jac(X)")?;
-                let x = self.eval_field(a[0], "the argument of `jac`")?;
-                Ok(Value::Matrix(x.field.jacobian(&self.states).map_err(core)?))
-            }
-            "div" => {
-                let a = self.pos_args(name, args, 1, "div(X)")?;
-                let x = self.eval_field(a[0], "the argument of `div`")?;
-                Ok(Value::Scalar(
-                    x.field.divergence(&self.states).map_err(core)?,
-                ))
-            }
-            f @ ("det" | "trace") => {
-                let a = self.pos_args(name, args, 1, &format!("{f}(M)"))?;
-                let m = match self.eval(a[0])? {
-                    Value::Matrix(m) => m,
-                    other => return Err(kind_err(a[0].span, &format!("`{f}`"), &other, None)),
-                };
-                let r = if f == "det" { m.det() } else { m.trace() };
-                Ok(Value::Scalar(r.map_err(core)?))
-            }
-            "plug" => self.eval_plug(name, args, span),
-            "order" => {
-                let a = self.pos_args(name, args, 3, "order(e, eps, k)")?;
-                let s = self.symbol_arg(
-                    a[1],
-                    &[SymKind::Param, SymKind::State],
-                    "the second argument of `order` must be a parameter",
-                )?;
-                let k = self.eval_count(a[2], "the order")?;
-                let k = i32::try_from(k)
-                    .map_err(|_| SessionError::invalid(a[2].span, "the order is out of range"))?;
-                Ok(match self.eval(a[0])? {
-                    Value::Scalar(x) => Value::Scalar(x.coeff_of_power(s, k)),
-                    Value::Field(f) => {
-                        let structure = f.structure.as_ref().map(|terms| {
-                            terms
-                                .iter()
-                                .filter_map(|t| {
-                                    let c = t.coeff.coeff_of_power(s, k);
-                                    (!c.is_zero()).then(|| super::value::BracketTerm {
-                                        coeff: c,
-                                        ..t.clone()
-                                    })
-                                })
-                                .collect()
-                        });
-                        Value::Field(FieldValue {
-                            field: Field(
-                                f.field.0.iter().map(|c| c.coeff_of_power(s, k)).collect(),
-                            ),
-                            combo: None,
-                            structure,
-                            averaged: None,
-                        })
-                    }
-                    Value::Matrix(m) => Value::Matrix(Matrix {
-                        data: m.data.iter().map(|c| c.coeff_of_power(s, k)).collect(),
-                        ..m
-                    }),
-                })
-            }
-            "mean" => {
-                let a = self.pos_args(name, args, 1, "mean(e)")?;
-                let v = self.eval(a[0])?;
-                let exprs: Vec<&Expr> = match &v {
-                    Value::Scalar(x) => vec![x],
-                    Value::Field(f) => f.field.0.iter().collect(),
-                    Value::Matrix(m) => m.data.iter().collect(),
-                };
-                self.refuse_phase(exprs.iter().copied(), a[0].span, "the argument of `mean`")?;
-                let mut freqs = Vec::new();
-                for x in &exprs {
-                    x.check_periodic()
-                        .map_err(|e| SessionError::core(a[0].span, e))?;
-                    freqs.extend(x.frequencies());
-                }
-                let Some(period) = common_period(&freqs) else {
-                    return Ok(v);
-                };
-                let m = |x: &Expr| x.mean_over(&period);
-                Ok(match v {
-                    Value::Scalar(x) => Value::Scalar(m(&x).map_err(core)?),
-                    Value::Field(f) => Value::field(f.field.map(m).map_err(core)?),
-                    Value::Matrix(mm) => Value::Matrix(Matrix {
-                        data: mm
-                            .data
-                            .iter()
-                            .map(m)
-                            .collect::<Result<_, _>>()
-                            .map_err(core)?,
-                        ..mm
-                    }),
-                })
-            }
-            "bch" => self.eval_bch(name, args, span),
-            "iint" => {
-                let mut names = Vec::new();
-                for a in args {
-                    match a {
-                        Arg::Pos(Ast {
-                            kind: ExprKind::Name(n),
-                            ..
-                        }) if self.sym_kind(n) == Some(SymKind::Input) => names.push(n.clone()),
-                        Arg::Pos(Ast {
-                            kind: ExprKind::Num(n),
-                            ..
-                        }) if n == "1" => names.push("1".to_string()),
-                        Arg::Pos(e) | Arg::Bind(_, e) | Arg::BindFunc(_, _, e) => {
-                            return Err(SessionError::invalid(
-                                e.span,
-                                "`iint` takes input names (declared with `input`) or 1",
-                            ))
-                        }
-                    }
-                }
-                if names.is_empty() {
-                    return Err(SessionError::invalid(
-                        span,
-                        "`iint` needs at least one input",
-                    ));
-                }
-                Ok(Value::Scalar(Expr::sym(Sym::new(&iint_name(&names)))))
-            }
-            other => {
-                let base = other.trim_end_matches('\'');
-                if let Some(sig) = self.funcs.get(base) {
-                    let primes = (other.len() - base.len()) as u32;
-                    if primes > 0 && sig.params.len() != 1 {
-                        return Err(SessionError::invalid(
-                            name.span,
-                            format!(
-                                "primes mark derivatives of a function of one argument; \
-                                 `{base}` takes {}: write `pd({base}, {})(…)`",
-                                sig.params.len(),
-                                sig.params[0],
-                            ),
-                        ));
-                    }
-                    let deriv = if primes > 0 {
-                        vec![primes]
-                    } else {
-                        vec![0; sig.params.len()]
-                    };
-                    let sig = sig.clone();
-                    return self.apply_func(&sig, &deriv, name.span, args, span);
-                }
-                if base.len() != other.len() {
-                    return Err(SessionError::invalid(
-                        name.span,
-                        format!(
-                            "`{base}` is not an unspecified function (declare it with `func {base}(s)`)"
-                        ),
-                    ));
-                }
-                if let Some(v) = self.names.get(other) {
-                    return self.apply_field(v.clone(), name.span, args, span);
-                }
-                if self.symbols.contains_key(other) {
-                    return Err(SessionError::invalid(
-                        name.span,
-                        format!("`{other}` is a symbol, not a field: it cannot be applied (write `{other}*(...)` for a product)"),
-                    ));
-                }
-                Err(self.unknown(other, name.span))
-            }
+    /// A call `name(args)`: a built-in, an unspecified function (or one of
+    /// its derivatives `V'`), or a named field applied to a scalar.
+    fn eval_call(&self, name: &Ident, args: &[Arg], span: Span) -> SessionResult<Value> {
+        match builtins::find(&name.name) {
+            Some(builtin) => self.eval_builtin(builtin, name, args, span),
+            None => self.eval_user_call(name, args, span),
         }
     }
 
-    fn eval_plug(&self, name: &Ident, args: &[Arg], span: Span) -> R<Value> {
+    /// A call of a built-in of the table in `super::builtins`, by family.
+    fn eval_builtin(
+        &self,
+        builtin: &Builtin,
+        name: &Ident,
+        args: &[Arg],
+        span: Span,
+    ) -> SessionResult<Value> {
+        match builtin.name {
+            "sin" | "cos" | "exp" => self.eval_elementary(builtin, name, args),
+            "ad" => self.eval_ad(builtin, name, args, span),
+            "pd" => self.eval_pd(builtin, name, args, span),
+            "jac" | "div" => self.eval_field_derivative(builtin, name, args, span),
+            "det" | "trace" => self.eval_matrix_scalar(builtin, name, args, span),
+            "plug" => self.eval_plug(name, args, span),
+            "order" => self.eval_order(builtin, name, args),
+            "mean" => self.eval_mean(builtin, name, args, span),
+            "bch" => self.eval_bch(name, args, span),
+            "iint" => self.eval_iint(args, span),
+            other => Err(self.unknown(other, name.span)),
+        }
+    }
+
+    /// `sin(x)`, `cos(x)`, `exp(x)` of a scalar (linear arguments).
+    fn eval_elementary(
+        &self,
+        builtin: &Builtin,
+        name: &Ident,
+        args: &[Arg],
+    ) -> SessionResult<Value> {
+        let f = builtin.name;
+        let a = self.pos_args(name, args, builtin)?;
+        let x = self.eval_scalar(a[0], &format!("the argument of `{f}`"))?;
+        // `w*t` (w a parameter) is a symbolic-frequency phase.
+        let (x, mut st) = match f {
+            "exp" => (x, self.states.clone()),
+            _ => self.phase_arg(&x),
+        };
+        st.extend(self.placeholders.borrow().iter().map(|(_, s)| *s));
+        let r = match f {
+            "sin" => Expr::sin_of(&x, &st),
+            "cos" => Expr::cos_of(&x, &st),
+            _ => Expr::exp_of(&x, &st),
+        };
+        Ok(Value::Scalar(
+            r.map_err(|e| SessionError::core(a[0].span, e))?,
+        ))
+    }
+
+    /// `ad(X, Y, k)`: `[X, [X, … Y]]` with `k` brackets.
+    fn eval_ad(
+        &self,
+        builtin: &Builtin,
+        name: &Ident,
+        args: &[Arg],
+        span: Span,
+    ) -> SessionResult<Value> {
+        let a = self.pos_args(name, args, builtin)?;
+        let x = self.eval_field(a[0], "the first argument of `ad`")?;
+        let y = self.eval_field(a[1], "the second argument of `ad`")?;
+        let k = self.eval_count(a[2], "the power of `ad`")?;
+        if k < 0 {
+            return Err(SessionError::invalid(
+                a[2].span,
+                "the power of `ad` must be non-negative",
+            ));
+        }
+        crate::core::limits::check_order(k as u64).map_err(|e| SessionError::core(a[2].span, e))?;
+        Ok(Value::field(
+            x.field
+                .ad_pow(&y.field, k as u64, &self.states)
+                .map_err(|err| SessionError::core(span, err))?,
+        ))
+    }
+
+    /// `pd(h, q)`: the partial derivative of a value by a state, a
+    /// parameter or `t`, entry by entry.
+    fn eval_pd(
+        &self,
+        builtin: &Builtin,
+        name: &Ident,
+        args: &[Arg],
+        span: Span,
+    ) -> SessionResult<Value> {
+        let a = self.pos_args(name, args, builtin)?;
+        if let ExprKind::Name(n) = &a[0].kind {
+            if let Some(f) = self.funcs.get(n) {
+                return Err(SessionError::invalid(
+                    span,
+                    format!(
+                        "a derivative of the function `{n}` is applied to arguments: \
+                         write `pd({n}, {})(…)` (or `{n}'(…)` for one argument)",
+                        f.params[0],
+                    ),
+                ));
+            }
+        }
+        let s = self.symbol_arg(
+            a[1],
+            &[SymKind::State, SymKind::Param],
+            "the second argument of `pd` must be a state, a parameter or t",
+        )?;
+        let v = self.eval(a[0])?;
+        if s == Sym::T {
+            self.refuse_phase(entries_of(&v), a[0].span, "`pd(…, t)` of this expression")?;
+        }
+        match v {
+            Value::Scalar(h) => Ok(Value::Scalar(h.pd(s))),
+            Value::Field(f) => Ok(Value::field(Field(
+                f.field.0.iter().map(|c| c.pd(s)).collect(),
+            ))),
+            Value::Matrix(m) => Ok(Value::Matrix(Matrix {
+                data: m.data.iter().map(|c| c.pd(s)).collect(),
+                ..m
+            })),
+        }
+    }
+
+    /// `jac(X)` (the Jacobian matrix) and `div(X)` (the divergence).
+    fn eval_field_derivative(
+        &self,
+        builtin: &Builtin,
+        name: &Ident,
+        args: &[Arg],
+        span: Span,
+    ) -> SessionResult<Value> {
+        let core = |err: CoreError| SessionError::core(span, err);
+        let a = self.pos_args(name, args, builtin)?;
+        let x = self.eval_field(a[0], &format!("the argument of `{}`", builtin.name))?;
+        if builtin.name == "jac" {
+            Ok(Value::Matrix(x.field.jacobian(&self.states).map_err(core)?))
+        } else {
+            Ok(Value::Scalar(
+                x.field.divergence(&self.states).map_err(core)?,
+            ))
+        }
+    }
+
+    /// `det(M)` and `trace(M)` of a matrix.
+    fn eval_matrix_scalar(
+        &self,
+        builtin: &Builtin,
+        name: &Ident,
+        args: &[Arg],
+        span: Span,
+    ) -> SessionResult<Value> {
+        let f = builtin.name;
+        let a = self.pos_args(name, args, builtin)?;
+        let m = match self.eval(a[0])? {
+            Value::Matrix(m) => m,
+            other => return Err(kind_err(a[0].span, &format!("`{f}`"), &other, None)),
+        };
+        let r = if f == "det" { m.det() } else { m.trace() };
+        Ok(Value::Scalar(
+            r.map_err(|err| SessionError::core(span, err))?,
+        ))
+    }
+
+    /// `order(e, eps, k)`: the coefficient of `eps^k`, entry by entry (a
+    /// field keeps the matching terms of its structure).
+    fn eval_order(&self, builtin: &Builtin, name: &Ident, args: &[Arg]) -> SessionResult<Value> {
+        let a = self.pos_args(name, args, builtin)?;
+        let s = self.symbol_arg(
+            a[1],
+            &[SymKind::Param, SymKind::State],
+            "the second argument of `order` must be a parameter",
+        )?;
+        let k = self.eval_count(a[2], "the order")?;
+        let k = i32::try_from(k)
+            .map_err(|_| SessionError::invalid(a[2].span, "the order is out of range"))?;
+        Ok(match self.eval(a[0])? {
+            Value::Scalar(x) => Value::Scalar(x.coeff_of_power(s, k)),
+            Value::Field(f) => {
+                let structure = f.structure.as_ref().map(|terms| {
+                    terms
+                        .iter()
+                        .filter_map(|t| {
+                            let c = t.coeff.coeff_of_power(s, k);
+                            (!c.is_zero()).then(|| super::value::BracketTerm {
+                                coeff: c,
+                                ..t.clone()
+                            })
+                        })
+                        .collect()
+                });
+                Value::Field(FieldValue {
+                    field: Field(f.field.0.iter().map(|c| c.coeff_of_power(s, k)).collect()),
+                    combo: None,
+                    structure,
+                    averaged: None,
+                })
+            }
+            Value::Matrix(m) => Value::Matrix(Matrix {
+                data: m.data.iter().map(|c| c.coeff_of_power(s, k)).collect(),
+                ..m
+            }),
+        })
+    }
+
+    /// `mean(e)`: the mean over the common period of every entry (a value
+    /// without time dependence is its own mean).
+    fn eval_mean(
+        &self,
+        builtin: &Builtin,
+        name: &Ident,
+        args: &[Arg],
+        span: Span,
+    ) -> SessionResult<Value> {
+        let core = |err: CoreError| SessionError::core(span, err);
+        let a = self.pos_args(name, args, builtin)?;
+        let v = self.eval(a[0])?;
+        let exprs = entries_of(&v);
+        self.refuse_phase(exprs.iter().copied(), a[0].span, "the argument of `mean`")?;
+        let mut freqs = Vec::new();
+        for x in &exprs {
+            x.check_periodic()
+                .map_err(|e| SessionError::core(a[0].span, e))?;
+            freqs.extend(x.frequencies());
+        }
+        let Some(period) = common_period(&freqs) else {
+            return Ok(v);
+        };
+        let m = |x: &Expr| x.mean_over(&period);
+        Ok(match v {
+            Value::Scalar(x) => Value::Scalar(m(&x).map_err(core)?),
+            Value::Field(f) => Value::field(f.field.map(m).map_err(core)?),
+            Value::Matrix(mm) => Value::Matrix(Matrix {
+                data: mm
+                    .data
+                    .iter()
+                    .map(m)
+                    .collect::<Result<_, _>>()
+                    .map_err(core)?,
+                ..mm
+            }),
+        })
+    }
+
+    /// `iint(u1, …)`: the symbol of an iterated integral of inputs (or 1).
+    fn eval_iint(&self, args: &[Arg], span: Span) -> SessionResult<Value> {
+        let mut names = Vec::new();
+        for a in args {
+            match a {
+                Arg::Pos(SyntaxExpr {
+                    kind: ExprKind::Name(n),
+                    ..
+                }) if self.sym_kind(n) == Some(SymKind::Input) => names.push(n.clone()),
+                Arg::Pos(SyntaxExpr {
+                    kind: ExprKind::Num(n),
+                    ..
+                }) if n == "1" => names.push("1".to_string()),
+                Arg::Pos(e) | Arg::Bind(_, e) | Arg::BindFunc(_, _, e) => {
+                    return Err(SessionError::invalid(
+                        e.span,
+                        "`iint` takes input names (declared with `input`) or 1",
+                    ))
+                }
+            }
+        }
+        if names.is_empty() {
+            return Err(SessionError::invalid(
+                span,
+                "`iint` needs at least one input",
+            ));
+        }
+        Ok(Value::Scalar(Expr::sym(Sym::new(&iint_name(&names)))))
+    }
+
+    /// A call of a name that is not a built-in: an unspecified function or
+    /// its derivative, or a named field applied to a scalar.
+    fn eval_user_call(&self, name: &Ident, args: &[Arg], span: Span) -> SessionResult<Value> {
+        let other = name.name.as_str();
+        let base = other.trim_end_matches('\'');
+        if let Some(sig) = self.funcs.get(base) {
+            let primes = (other.len() - base.len()) as u32;
+            if primes > 0 && sig.params.len() != 1 {
+                return Err(SessionError::invalid(
+                    name.span,
+                    format!(
+                        "primes mark derivatives of a function of one argument; \
+                         `{base}` takes {}: write `pd({base}, {})(…)`",
+                        sig.params.len(),
+                        sig.params[0],
+                    ),
+                ));
+            }
+            let deriv = if primes > 0 {
+                vec![primes]
+            } else {
+                vec![0; sig.params.len()]
+            };
+            let sig = sig.clone();
+            return self.apply_func(&sig, &deriv, name.span, args, span);
+        }
+        if base.len() != other.len() {
+            return Err(SessionError::invalid(
+                name.span,
+                format!(
+                    "`{base}` is not an unspecified function (declare it with `func {base}(s)`)"
+                ),
+            ));
+        }
+        if let Some(v) = self.names.get(other) {
+            return self.apply_field(v.clone(), name.span, args, span);
+        }
+        if self.symbols.contains_key(other) {
+            return Err(SessionError::invalid(
+                name.span,
+                format!("`{other}` is a symbol, not a field: it cannot be applied (write `{other}*(...)` for a product)"),
+            ));
+        }
+        Err(self.unknown(other, name.span))
+    }
+
+    fn eval_plug(&self, name: &Ident, args: &[Arg], span: Span) -> SessionResult<Value> {
         let mut target = None;
         let mut map: HashMap<Sym, Expr> = HashMap::new();
         let mut defs: Vec<Definition> = Vec::new();
@@ -708,9 +813,7 @@ impl Session {
             match a {
                 Arg::BindFunc(id, params, body) => defs.push(self.definition(id, params, body)?),
                 Arg::Pos(e) if target.is_none() => target = Some(e),
-                Arg::Pos(e) => {
-                    return Err(SessionError::invalid(e.span, "usage: plug(e, q = v, …)"))
-                }
+                Arg::Pos(e) => return Err(SessionError::invalid(e.span, plug_usage())),
                 Arg::Bind(id, v) => {
                     if self.sym_kind(&id.name) == Some(SymKind::Input) {
                         let val = self.eval_scalar(v, "a plugged input")?;
@@ -745,7 +848,7 @@ impl Session {
             }
         }
         let Some(target) = target else {
-            return Err(SessionError::invalid(name.span, "usage: plug(e, q = v, …)"));
+            return Err(SessionError::invalid(name.span, plug_usage()));
         };
         let core = |err: CoreError| SessionError::core(span, err);
         let mut value = self.eval(target)?;
@@ -826,7 +929,7 @@ impl Session {
         name_span: Span,
         args: &[Arg],
         span: Span,
-    ) -> R<Value> {
+    ) -> SessionResult<Value> {
         let n = sig.params.len();
         let shown = format!("{}({})", sig.name, sig.params.join(", "));
         let mut values = Vec::with_capacity(n);
@@ -875,14 +978,19 @@ impl Session {
 
     /// `pd(J, a, …)(x, y)`: a derivative of a declared function applied;
     /// `None` when `target` is not `pd` of a function.
-    fn eval_derivative_call(&self, target: &Ast, args: &[Arg], span: Span) -> R<Option<Value>> {
+    fn eval_derivative_call(
+        &self,
+        target: &SyntaxExpr,
+        args: &[Arg],
+        span: Span,
+    ) -> SessionResult<Option<Value>> {
         let ExprKind::Call(head, pd_args) = &target.kind else {
             return Ok(None);
         };
         if head.name != "pd" {
             return Ok(None);
         }
-        let Some(Arg::Pos(Ast {
+        let Some(Arg::Pos(SyntaxExpr {
             kind: ExprKind::Name(fname),
             ..
         })) = pd_args.first()
@@ -895,7 +1003,7 @@ impl Session {
         let mut deriv = vec![0u32; sig.params.len()];
         for a in &pd_args[1..] {
             let j = match a {
-                Arg::Pos(Ast {
+                Arg::Pos(SyntaxExpr {
                     kind: ExprKind::Name(p),
                     ..
                 }) => sig.params.iter().position(|q| q == p),
@@ -923,7 +1031,12 @@ impl Session {
     }
 
     /// Reads `V(s) = body` of `plug`.
-    fn definition(&self, id: &Ident, params: &[Ident], body: &Ast) -> R<Definition> {
+    fn definition(
+        &self,
+        id: &Ident,
+        params: &[Ident],
+        body: &SyntaxExpr,
+    ) -> SessionResult<Definition> {
         let Some(sig) = self.funcs.get(&id.name).cloned() else {
             return Err(SessionError::invalid(
                 id.span,
@@ -1036,7 +1149,7 @@ fn number_size_ok(text: &str) -> Result<(), CoreError> {
     Ok(())
 }
 
-fn unreachable_pow(span: Span) -> R<Value> {
+fn unreachable_pow(span: Span) -> SessionResult<Value> {
     Err(SessionError::invalid(span, "internal: power handled above"))
 }
 
@@ -1044,7 +1157,7 @@ fn unreachable_pow(span: Span) -> R<Value> {
 pub(crate) fn scale_field_value(f: &FieldValue, s: &Expr) -> Result<FieldValue, CoreError> {
     let field = f.field.mul_expr(s)?;
     let combo = match &f.combo {
-        Some(c) => Some(Combo {
+        Some(c) => Some(FieldCombination {
             parts: c
                 .parts
                 .iter()
@@ -1061,7 +1174,7 @@ pub(crate) fn scale_field_value(f: &FieldValue, s: &Expr) -> Result<FieldValue, 
     })
 }
 
-fn merge_combo(a: &Combo, b: &Combo, sign: &Q) -> Combo {
+fn merge_combinations(a: &FieldCombination, b: &FieldCombination, sign: &Q) -> FieldCombination {
     let mut parts = a.parts.clone();
     for (n, g, k) in &b.parts {
         match parts.iter_mut().find(|(m, _, _)| m == n) {
@@ -1070,5 +1183,5 @@ fn merge_combo(a: &Combo, b: &Combo, sign: &Q) -> Combo {
         }
     }
     parts.retain(|(_, _, k)| !k.is_zero());
-    Combo { parts }
+    FieldCombination { parts }
 }

@@ -5,14 +5,14 @@
 use std::time::Instant;
 
 use super::ast::{Ident, Rhs, Stmt, StmtKind};
-use super::session::{ErrorKind, Report, Rich, Session, SessionError, Style, SymKind};
+use super::session::{
+    ErrorKind, Report, Rich, Session, SessionError, SessionResult, Style, SymKind,
+};
 use super::split::SourceStmt;
 use super::value::Value;
 use crate::core::limits::{self, Limits};
 use crate::core::Sym;
-use crate::render::{code, latex, plain};
-
-type R<T> = Result<T, SessionError>;
+use crate::render::code;
 
 impl Session {
     pub(crate) fn execute_parsed(
@@ -21,7 +21,7 @@ impl Session {
         src: &SourceStmt,
         origin: Option<&str>,
         started: Instant,
-    ) -> R<Report> {
+    ) -> SessionResult<Report> {
         let mut report = Report::default();
         match &stmt.kind {
             StmtKind::State(ids) => self.declare_state(ids)?,
@@ -43,7 +43,7 @@ impl Session {
             },
             StmtKind::Print(e) => {
                 let v = self.eval(e)?;
-                report.push(Style::Result, plain::value(&v));
+                report.push(Style::Result, v.plain());
                 report.rich = Some(Rich::Value(v, self.states.clone()));
             }
             StmtKind::Run(c) => self.run_command(c, &[], &mut report, started)?,
@@ -142,16 +142,16 @@ impl Session {
     /// simulation; printed, or written atomically to the file.
     fn show(
         &self,
-        expr: &super::ast::Expr,
+        expr: &super::ast::SyntaxExpr,
         how: &Ident,
         to: Option<&super::ast::PathArg>,
         report: &mut Report,
-    ) -> R<()> {
+    ) -> SessionResult<()> {
         let v = self.eval(expr)?;
         let text = match how.name.as_str() {
             "latex" => {
                 report.rich = Some(Rich::Latex);
-                latex::value(&v, &self.states)
+                v.latex(&self.states)
             }
             "brackets" => match &v {
                 Value::Field(f) => match &f.structure {
@@ -249,7 +249,11 @@ impl Session {
         Ok(())
     }
 
-    pub(crate) fn check_new_name(&self, id: &Ident, allow_redefine_value: bool) -> R<()> {
+    pub(crate) fn check_new_name(
+        &self,
+        id: &Ident,
+        allow_redefine_value: bool,
+    ) -> SessionResult<()> {
         if let Some(k) = self.symbols.get(&id.name) {
             let what = match k {
                 SymKind::State => "a state coordinate",
@@ -271,7 +275,7 @@ impl Session {
                 ),
             ));
         }
-        if super::eval::BUILTINS.contains(&id.name.as_str()) {
+        if super::builtins::is_builtin(&id.name) {
             return Err(SessionError::invalid(
                 id.span,
                 format!("`{}` is a built-in function", id.name),
@@ -280,7 +284,7 @@ impl Session {
         Ok(())
     }
 
-    fn declare_state(&mut self, ids: &[Ident]) -> R<()> {
+    fn declare_state(&mut self, ids: &[Ident]) -> SessionResult<()> {
         let new: Vec<String> = ids.iter().map(|i| i.name.clone()).collect();
         let old: Vec<String> = self.states.iter().map(|s| s.name()).collect();
         if new == old {
@@ -320,7 +324,7 @@ impl Session {
 
     /// `func V(s), J(a, b)`: checks every declaration before recording
     /// any; declaring a function again with the same arguments is a no-op.
-    fn declare_funcs(&mut self, decls: &[super::ast::FuncDecl]) -> R<()> {
+    fn declare_funcs(&mut self, decls: &[super::ast::FuncDecl]) -> SessionResult<()> {
         use crate::core::func::Signature;
         let mut new: Vec<Signature> = Vec::new();
         for (i, d) in decls.iter().enumerate() {
@@ -367,7 +371,7 @@ impl Session {
         Ok(())
     }
 
-    fn declare(&mut self, ids: &[Ident], kind: SymKind) -> R<()> {
+    fn declare(&mut self, ids: &[Ident], kind: SymKind) -> SessionResult<()> {
         for id in ids {
             if self.symbols.get(&id.name) == Some(&kind) {
                 continue;
@@ -382,7 +386,7 @@ impl Session {
     }
 
     /// Binds a value to a name, saying so when it replaces an old value.
-    pub(crate) fn bind(&mut self, id: &Ident, v: Value, report: &mut Report) -> R<()> {
+    pub(crate) fn bind(&mut self, id: &Ident, v: Value, report: &mut Report) -> SessionResult<()> {
         self.check_new_name(id, true)?;
         let summary = self.describe(&v);
         self.record_chart(&id.name, &v);
@@ -502,7 +506,7 @@ impl Session {
 
     /// `forget NAME`: a defined value, or a parameter or input that no
     /// defined value uses. Coordinates stay (a new `state` replaces the state).
-    fn forget(&mut self, id: &Ident, report: &mut Report) -> R<()> {
+    fn forget(&mut self, id: &Ident, report: &mut Report) -> SessionResult<()> {
         let name = id.name.as_str();
         if let Some(old) = self.names.remove(name) {
             self.retire(name, old);
@@ -564,12 +568,12 @@ impl Session {
 
     fn check(
         &self,
-        lhs: &super::ast::Expr,
-        rhs: &super::ast::Expr,
+        lhs: &super::ast::SyntaxExpr,
+        rhs: &super::ast::SyntaxExpr,
         report: &mut Report,
         src: &SourceStmt,
         origin: Option<&str>,
-    ) -> R<()> {
+    ) -> SessionResult<()> {
         let a = self.eval(lhs)?;
         let b = self.eval(rhs)?;
         let span = lhs.span.join(rhs.span);
@@ -611,15 +615,20 @@ impl Session {
                     Style::Fail,
                     format!("check failed at {place}: {}", src.text.trim()),
                 );
-                report.push(Style::Fail, format!("  left:       {}", plain::value(&a)));
-                report.push(Style::Fail, format!("  right:      {}", plain::value(&b)));
-                report.push(Style::Fail, format!("  difference: {}", plain::value(&d)));
+                report.push(Style::Fail, format!("  left:       {}", a.plain()));
+                report.push(Style::Fail, format!("  right:      {}", b.plain()));
+                report.push(Style::Fail, format!("  difference: {}", d.plain()));
             }
         }
         Ok(())
     }
 
-    fn run_file(&mut self, path: &str, span: super::ast::Span, report: &mut Report) -> R<()> {
+    fn run_file(
+        &mut self,
+        path: &str,
+        span: super::ast::Span,
+        report: &mut Report,
+    ) -> SessionResult<()> {
         if self.run_depth >= 16 {
             return Err(SessionError::invalid(
                 span,

@@ -1,6 +1,8 @@
 //! Help texts: `help` lists the topics, `help WORD` explains one with an
 //! example. The averaging and validation topics carry the safety caution.
 
+use super::builtins;
+
 const CAUTION: &str = "\
 caution: an averaged model is an approximation, valid only for fast enough
 oscillation (small enough eps, large enough w). Before a result drives a real machine,
@@ -31,7 +33,8 @@ const TOPICS: &[(&str, &str)] = &[
     ("set", "set tolerance E\n  the integration tolerance of `simulate` and `compare` (relative E, absolute E/100; from 1e-13\n  to 1e-3; default 1e-11).\nset budget N\n  the most terms one result may hold (a large coefficient counts as a term per 64 bytes),\n  and with it the work of one statement (250*N term products), before the computation\n  stops with a message. Digits (100,000), order (40) and nesting (256) are fixed limits."),
     ("kernel", "ordex kernel install   (at the shell, once)\n  register ordex as a Jupyter kernel for this user (kernel.json in the Jupyter data directory,\n  JUPYTER_DATA_DIR when set); then pick the kernel \"ordex\" in a notebook. A cell runs as a script:\n  results in input syntax and LaTeX, plots inline, errors with the caret, failed checks as errors;\n  interrupt keeps the session; `save FILE` writes the accepted lines as a script."),
     ("quit", "quit\n  leave the prompt (Ctrl-D too)."),
-    ("builtins", "built-in functions\n  sin cos exp (of linear arguments), ad(X, Y, k), pd(h, q), jac(X), div(X), det(M), trace(M),\n  plug(e, q = v, ...), order(e, eps, k), mean(e), bch(X, Y, N), iint(u1, ...), X(h) (Lie derivative),\n  [X, Y] (Lie bracket: [X,Y](h) = X(Y(h)) - Y(X(h)))."),
+    // The text of this topic is built from the table of built-ins.
+    ("builtins", ""),
 ];
 
 /// Paragraphs added to a topic (kept apart so that topics stay one entry each).
@@ -56,14 +59,17 @@ pub fn help(word: Option<&str>) -> Option<String> {
         }
         Some(w) => {
             let key = match w {
-                "sin" | "cos" | "exp" | "ad" | "pd" | "jac" | "div" | "det" | "trace" | "plug"
-                | "order" | "mean" | "bch" | "iint" => "builtins",
+                w if builtins::is_builtin(w) => "builtins",
                 "budget" | "tolerance" => "set",
                 "chart" | "charts" | "coordinates" => "change",
                 other => other,
             };
             let (_, text) = TOPICS.iter().find(|(k, _)| *k == key)?;
-            let mut s = text.to_string();
+            let mut s = if key == "builtins" {
+                builtins::help_text()
+            } else {
+                text.to_string()
+            };
             if let Some(extra) = EXTRA.iter().find(|(k, _)| *k == key).map(|(_, e)| e) {
                 s.push('\n');
                 s.push_str(extra);
@@ -84,9 +90,13 @@ pub fn help(word: Option<&str>) -> Option<String> {
 pub fn topic_words() -> Vec<&'static str> {
     let mut v: Vec<&'static str> = TOPICS.iter().map(|(w, _)| *w).collect();
     v.extend(super::parse::COMMAND_WORDS);
-    v.extend([
-        "sin", "cos", "exp", "pd", "jac", "plug", "order", "mean", "bch", "iint", "chart",
-    ]);
+    v.extend(
+        builtins::BUILTINS
+            .iter()
+            .filter(|builtin| builtin.help_suggests)
+            .map(|builtin| builtin.name),
+    );
+    v.push("chart");
     v
 }
 

@@ -5,6 +5,7 @@
 //! never sees raw text; the session returns reports and never prints.
 
 pub mod ast;
+pub mod builtins;
 pub mod chart;
 pub mod commands;
 pub mod diag;

@@ -4,11 +4,12 @@
 //! `equilibria.rs`.
 
 use std::collections::HashMap;
+use std::sync::Arc;
 
-use super::ast::{Assign, Command, CommandKind, Expr as Ast, PathArg, PhasePlot, Span};
+use super::ast::{Assign, Command, CommandKind, PathArg, PhasePlot, Span, SyntaxExpr};
 use super::files::FileKind;
 use super::progress::Progress;
-use super::session::{ErrorKind, Report, Session, SessionError, Style, SymKind};
+use super::session::{ErrorKind, Report, Session, SessionError, SessionResult, Style, SymKind};
 use super::value::AveragedInfo;
 use crate::core::{limits, CoreError, Expr, Sym, Q};
 use crate::numeric::compile::{float_values, CompileError, CompiledExpr, CompiledField};
@@ -17,11 +18,9 @@ use crate::numeric::sweep::{self, num};
 use crate::numeric::validate::{self, compare_errors, CompareResult, CompareRun};
 use crate::numeric::{plot, plot::PlotError};
 
-pub(crate) type R<T> = Result<T, SessionError>;
-
 /// Numerical commands need concrete functions: an unspecified one is
 /// refused, naming it, with the hint to plug a definition.
-pub(crate) fn refuse_functions(f: &crate::core::Field, span: Span, cmd: &str) -> R<()> {
+pub(crate) fn refuse_functions(f: &crate::core::Field, span: Span, cmd: &str) -> SessionResult<()> {
     match f.0.iter().find_map(Expr::first_atom) {
         None => Ok(()),
         Some(a) => Err(SessionError::invalid(
@@ -75,7 +74,7 @@ impl Horizon {
 
 impl Session {
     /// Exact values of `with` assignments (parameters only).
-    pub(crate) fn with_values(&self, with: &[Assign]) -> R<HashMap<Sym, Q>> {
+    pub(crate) fn with_values(&self, with: &[Assign]) -> SessionResult<HashMap<Sym, Q>> {
         let mut out = HashMap::new();
         for a in with {
             if self.sym_kind(&a.name.name) != Some(SymKind::Param) {
@@ -115,7 +114,7 @@ impl Session {
         point: &[Assign],
         exact: &HashMap<Sym, Q>,
         span: Span,
-    ) -> R<Vec<Expr>> {
+    ) -> SessionResult<Vec<Expr>> {
         let subst = Self::with_map(exact);
         let mut vals: HashMap<String, Expr> = HashMap::new();
         for a in point {
@@ -174,7 +173,12 @@ impl Session {
 
     /// The value of a constant expression in floating point (`pi` and the
     /// given parameter values known).
-    pub(crate) fn float_of(&self, e: &Expr, floats: &HashMap<Sym, f64>, span: Span) -> R<f64> {
+    pub(crate) fn float_of(
+        &self,
+        e: &Expr,
+        floats: &HashMap<Sym, f64>,
+        span: Span,
+    ) -> SessionResult<f64> {
         let c = CompiledExpr::new(e, &[], floats).map_err(|err| compile_err(span, err))?;
         Ok(c.eval(0.0, &[]))
     }
@@ -185,7 +189,7 @@ impl Session {
         point: &[Assign],
         exact: &HashMap<Sym, Q>,
         span: Span,
-    ) -> R<Vec<f64>> {
+    ) -> SessionResult<Vec<f64>> {
         let floats = float_values(exact);
         self.point_values(point, exact, span)?
             .iter()
@@ -193,7 +197,12 @@ impl Session {
             .collect()
     }
 
-    fn positive(&self, e: &Ast, floats: &HashMap<Sym, f64>, what: &str) -> R<f64> {
+    fn positive(
+        &self,
+        e: &SyntaxExpr,
+        floats: &HashMap<Sym, f64>,
+        what: &str,
+    ) -> SessionResult<f64> {
         let v = self.eval_scalar(e, what)?;
         let f = self.float_of(&v, floats, e.span)?;
         if !(f.is_finite() && f > 0.0) {
@@ -214,7 +223,7 @@ impl Session {
         kind: FileKind,
         what: &str,
         report: &mut Report,
-    ) -> R<()> {
+    ) -> SessionResult<()> {
         if self.replaying {
             return Ok(());
         }
@@ -243,7 +252,7 @@ impl Session {
         svg: Result<String, PlotError>,
         what: &str,
         report: &mut Report,
-    ) -> R<()> {
+    ) -> SessionResult<()> {
         if self.replaying {
             return Ok(());
         }
@@ -260,7 +269,11 @@ impl Session {
     }
 
     /// `set tolerance E`.
-    pub(crate) fn set_tolerance(&mut self, value: &Ast, report: &mut Report) -> R<()> {
+    pub(crate) fn set_tolerance(
+        &mut self,
+        value: &SyntaxExpr,
+        report: &mut Report,
+    ) -> SessionResult<()> {
         let v = self.eval_scalar(value, "the tolerance")?;
         let tol = v.as_number().map(|q| q.to_f64()).unwrap_or(f64::NAN);
         let (lo, hi) = TOLERANCE_RANGE;
@@ -282,10 +295,16 @@ impl Session {
         Ok(())
     }
 
-    pub(crate) fn run_numeric(&mut self, cmd: &Command, report: &mut Report) -> R<()> {
+    pub(crate) fn run_numeric(&mut self, cmd: &Command, report: &mut Report) -> SessionResult<()> {
         match &cmd.kind {
-            CommandKind::Simulate { .. } => self.simulate(cmd, report),
-            CommandKind::Compare { .. } => self.compare(cmd, report),
+            CommandKind::Simulate { .. } => {
+                let spec = self.lower_simulate(cmd)?;
+                self.simulate(&spec, cmd.span, report)
+            }
+            CommandKind::Compare { .. } => {
+                let spec = self.lower_compare(cmd)?;
+                self.compare(&spec, cmd.span, report)
+            }
             CommandKind::Stability { field, at, with } => {
                 self.stability(cmd.span, field, at, with, report)
             }
@@ -296,7 +315,10 @@ impl Session {
         }
     }
 
-    fn simulate(&mut self, cmd: &Command, report: &mut Report) -> R<()> {
+    /// Checks a `simulate` command against the session and compiles it:
+    /// every error about what was typed comes from here, before any
+    /// integration starts.
+    fn lower_simulate<'a>(&self, cmd: &'a Command) -> SessionResult<SimulateSpec<'a>> {
         let CommandKind::Simulate {
             field,
             from,
@@ -312,17 +334,37 @@ impl Session {
         refuse_functions(&v.field, field.span, "simulate")?;
         let exact = self.with_values(with)?;
         let floats = float_values(&exact);
-        let f = CompiledField::new(&v.field, &self.states, &floats)
+        let compiled = CompiledField::new(&v.field, &self.states, &floats)
             .map_err(|e| compile_err(field.span, e))?;
         let x0 = self.float_point(from, &exact, cmd.span)?;
         let len = self.positive(horizon, &floats, "the horizon")?;
-        let names: Vec<String> = self.states.iter().map(|s| s.name()).collect();
-        let phase_idx = match phase {
-            Some(ph) => Some(self.phase_indices(ph)?),
+        let phase = match phase {
+            Some(ph) => {
+                let (i, j) = self.phase_indices(ph)?;
+                Some((&ph.path, i, j))
+            }
             None => None,
         };
+        Ok(SimulateSpec {
+            field: compiled,
+            x0,
+            len,
+            plot: plot.as_ref(),
+            phase,
+        })
+    }
+
+    /// Integrates a lowered `simulate` and reports the table and plots.
+    fn simulate(
+        &mut self,
+        spec: &SimulateSpec<'_>,
+        span: Span,
+        report: &mut Report,
+    ) -> SessionResult<()> {
+        let (len, x0) = (spec.len, &spec.x0);
+        let names: Vec<String> = self.states.iter().map(|s| s.name()).collect();
         let n_rows = 10;
-        let n_dense = if plot.is_some() || phase.is_some() {
+        let n_dense = if spec.plot.is_some() || spec.phase.is_some() {
             2000
         } else {
             n_rows
@@ -330,18 +372,18 @@ impl Session {
         let times: Vec<f64> = (1..=n_dense)
             .map(|i| len * i as f64 / n_dense as f64)
             .collect();
-        let mut rhs = |t: f64, x: &[f64], dx: &mut [f64]| f.eval(t, x, dx);
+        let mut rhs = |t: f64, x: &[f64], dx: &mut [f64]| spec.field.eval(t, x, dx);
         let mut bar = Progress::new(1000, "simulate");
         let out = integrate_at(
             &mut rhs,
             0.0,
-            &x0,
+            x0,
             &times,
             &validate::options_for(self.tolerance),
             &limits::is_interrupted,
             &mut |t| bar.set((t / len * 1000.0) as u64),
         )
-        .map_err(|e| ode_err(cmd.span, e))?;
+        .map_err(|e| ode_err(span, e))?;
         drop(bar);
         report.push(
             Style::Result,
@@ -360,7 +402,7 @@ impl Session {
                     .collect::<String>()
             )
         };
-        report.push(Style::Result, row(0.0, &x0));
+        report.push(Style::Result, row(0.0, x0));
         let step = n_dense / n_rows;
         for i in (step - 1..n_dense).step_by(step) {
             report.push(Style::Result, row(times[i], &out.states[i]));
@@ -383,20 +425,20 @@ impl Session {
                     .collect()
             })
             .collect();
-        if let Some(p) = plot {
-            let title = format!("simulate from {}", point_text(&names, &x0));
+        if let Some(p) = spec.plot {
+            let title = format!("simulate from {}", point_text(&names, x0));
             let svg = plot::time_series_svg(&title, &names, &all_t, &series);
             self.plot_output(p, svg, "plot", report)?;
         }
-        if let (Some(ph), Some((i, j))) = (phase, phase_idx) {
+        if let Some((path, i, j)) = spec.phase {
             let title = format!("phase portrait, t from 0 to {}", num(len));
             let svg = plot::phase_svg(&title, &names[i], &names[j], &series[i], &series[j]);
-            self.plot_output(&ph.path, svg, "phase portrait", report)?;
+            self.plot_output(path, svg, "phase portrait", report)?;
         }
         Ok(())
     }
 
-    fn phase_indices(&self, ph: &PhasePlot) -> R<(usize, usize)> {
+    fn phase_indices(&self, ph: &PhasePlot) -> SessionResult<(usize, usize)> {
         let find = |id: &super::ast::Ident| {
             self.states
                 .iter()
@@ -429,11 +471,11 @@ impl Session {
     /// The horizon of `compare`: `L` (meaning `eps*t <= L`) or `L/eps^k`.
     fn compare_horizon(
         &self,
-        horizon: &Ast,
+        horizon: &SyntaxExpr,
         eps: Sym,
         exact: &HashMap<Sym, Q>,
         floats: &HashMap<Sym, f64>,
-    ) -> R<Horizon> {
+    ) -> SessionResult<Horizon> {
         let v = self.eval_scalar(horizon, "the horizon")?;
         let v = v
             .subst(&Self::with_map(exact), &self.states)
@@ -476,7 +518,10 @@ impl Session {
         })
     }
 
-    fn compare(&mut self, cmd: &Command, report: &mut Report) -> R<()> {
+    /// Checks a `compare` command against the session and compiles the
+    /// system (once per eps) and every order of the model: every error
+    /// about what was typed comes from here, before any integration starts.
+    fn lower_compare<'a>(&self, cmd: &'a Command) -> SessionResult<CompareSpec<'a>> {
         let CommandKind::Compare {
             system,
             model,
@@ -497,7 +542,7 @@ impl Session {
         let m = self.eval_field(model, "the averaged model of `compare`")?;
         refuse_functions(&s.field, system.span, "compare")?;
         refuse_functions(&m.field, model.span, "compare")?;
-        let info: std::sync::Arc<AveragedInfo> = m.averaged.clone().ok_or_else(|| {
+        let info: Arc<AveragedInfo> = m.averaged.clone().ok_or_else(|| {
             SessionError::invalid(
                 model.span,
                 "the model must be the result of `average` (e.g. `A = average S to 3 in eps`)",
@@ -521,7 +566,7 @@ impl Session {
         }
         let floats = float_values(&exact);
         let y0 = self.float_point(from, &exact, cmd.span)?;
-        let hz = self.compare_horizon(horizon, info.eps, &exact, &floats)?;
+        let horizon_spec = self.compare_horizon(horizon, info.eps, &exact, &floats)?;
         let mut eps_values = Vec::with_capacity(sweep.len());
         for e in sweep {
             eps_values.push(self.positive(e, &floats, "an eps value")?);
@@ -531,12 +576,39 @@ impl Session {
             None => None,
         };
         let period = self.float_of(&info.period.to_expr(), &floats, cmd.span)?;
-        let compile_all = |fields: &[crate::core::Field]| -> R<Vec<CompiledField>> {
+        let model_spec = self.compile_model(&info, &floats, model.span)?;
+        let mut spec = CompareSpec {
+            info,
+            y0,
+            horizon: horizon_spec,
+            eps_values,
+            tol,
+            period,
+            model: model_spec,
+            systems: Vec::new(),
+            n_periods: Vec::new(),
+            plot: plot.as_ref(),
+            paths: paths.as_ref(),
+            table: table.as_ref(),
+        };
+        self.compile_systems(&mut spec, &s.field, &floats, system.span, horizon.span)?;
+        Ok(spec)
+    }
+
+    /// The compiled orders of an averaged model, with the transform and the
+    /// outer map of a classical model.
+    fn compile_model(
+        &self,
+        info: &AveragedInfo,
+        floats: &HashMap<Sym, f64>,
+        model_span: Span,
+    ) -> SessionResult<CompiledModel> {
+        let compile_all = |fields: &[crate::core::Field]| -> SessionResult<Vec<CompiledField>> {
             fields
                 .iter()
-                .map(|f| CompiledField::new(f, &self.states, &floats))
+                .map(|f| CompiledField::new(f, &self.states, floats))
                 .collect::<Result<_, _>>()
-                .map_err(|e| compile_err(model.span, e))
+                .map_err(|e| compile_err(model_span, e))
         };
         let orders = compile_all(&info.orders)?;
         let transform = match (&info.transform, info.classic) {
@@ -545,24 +617,41 @@ impl Session {
         };
         let outer = match (&info.outer, info.classic) {
             (Some(y), true) => Some(
-                CompiledField::new(y, &self.states, &floats)
-                    .map_err(|e| compile_err(model.span, e))?,
+                CompiledField::new(y, &self.states, floats)
+                    .map_err(|e| compile_err(model_span, e))?,
             ),
             _ => None,
         };
-        let mut systems = Vec::with_capacity(eps_values.len());
-        let mut n_periods = Vec::with_capacity(eps_values.len());
-        for e in &eps_values {
+        Ok(CompiledModel {
+            orders,
+            transform,
+            outer,
+        })
+    }
+
+    /// The system compiled at every eps of the sweep, and the number of
+    /// periods each run integrates (refused above a million).
+    fn compile_systems(
+        &self,
+        spec: &mut CompareSpec<'_>,
+        system: &crate::core::Field,
+        floats: &HashMap<Sym, f64>,
+        system_span: Span,
+        horizon_span: Span,
+    ) -> SessionResult<()> {
+        for e in &spec.eps_values {
             let mut vals = floats.clone();
-            vals.insert(info.eps, *e);
-            systems.push(
-                CompiledField::new(&s.field, &self.states, &vals)
-                    .map_err(|err| compile_err(system.span, err))?,
+            vals.insert(spec.info.eps, *e);
+            spec.systems.push(
+                CompiledField::new(system, &self.states, &vals)
+                    .map_err(|err| compile_err(system_span, err))?,
             );
-            let n = (hz.t_end(*e) / period * (1.0 + 1e-12)).floor().max(1.0);
+            let n = (spec.horizon.t_end(*e) / spec.period * (1.0 + 1e-12))
+                .floor()
+                .max(1.0);
             if !(n <= 1e6) {
                 return Err(SessionError::invalid(
-                    horizon.span,
+                    horizon_span,
                     format!(
                         "eps = {} needs {} periods: too many (at most 1000000; shorten the horizon or drop the smallest eps)",
                         num(*e),
@@ -570,41 +659,62 @@ impl Session {
                     ),
                 ));
             }
-            n_periods.push(n as usize);
+            spec.n_periods.push(n as usize);
         }
-        let run_at = |i: usize| CompareRun {
-            system: &systems[i],
-            orders: &orders,
-            transform: transform.as_deref(),
-            outer: outer.as_ref(),
-            eps: eps_values[i],
-            period,
-            n_periods: n_periods[i],
-            y0: &y0,
-            tolerance: self.tolerance,
-        };
-        let mut results: Vec<CompareResult> = Vec::with_capacity(eps_values.len());
-        let mut bar = Progress::new(1000 * eps_values.len() as u64, "compare");
-        for i in 0..eps_values.len() {
-            let r = compare_errors(&run_at(i), &limits::is_interrupted, &mut |f| {
-                bar.set((1000.0 * (i as f64 + f)) as u64)
-            })
-            .map_err(|err| ode_err(cmd.span, err))?;
+        Ok(())
+    }
+
+    /// Runs a lowered `compare` at every eps and reports the errors, the
+    /// slopes and the requested files.
+    fn compare(
+        &mut self,
+        spec: &CompareSpec<'_>,
+        span: Span,
+        report: &mut Report,
+    ) -> SessionResult<()> {
+        let n_eps = spec.eps_values.len();
+        let mut results: Vec<CompareResult> = Vec::with_capacity(n_eps);
+        let mut bar = Progress::new(1000 * n_eps as u64, "compare");
+        for i in 0..n_eps {
+            let r = compare_errors(
+                &spec.run_at(i, self.tolerance),
+                &limits::is_interrupted,
+                &mut |f| bar.set((1000.0 * (i as f64 + f)) as u64),
+            )
+            .map_err(|err| ode_err(span, err))?;
             results.push(r);
         }
         drop(bar);
+        self.report_compare(spec, &results, report);
+        self.compare_files(spec, &results, report)?;
+        if let Some(p) = spec.paths {
+            if !self.replaying {
+                self.plot_paths(spec, p, span, report)?;
+            }
+        }
+        report.push(
+            Style::Warn,
+            "an averaged model is an approximation: validate it before it drives a real machine (help compare)",
+        );
+        Ok(())
+    }
 
+    /// The notes and result lines of `compare`: what was compared, the
+    /// error table, the slopes and the tolerance lines.
+    fn report_compare(
+        &self,
+        spec: &CompareSpec<'_>,
+        results: &[CompareResult],
+        report: &mut Report,
+    ) {
+        let (info, hz, eps_values) = (&spec.info, &spec.horizon, &spec.eps_values);
         let eps_name = info.eps.name();
-        let kind = if info.classic {
-            "classical model (through its transform)"
-        } else {
-            "stroboscopic model"
-        };
         let names: Vec<String> = self.states.iter().map(|s| s.name()).collect();
         report.push(
             Style::Note,
             format!(
-                "{kind} vs the system at multiples of the period {}, over {}",
+                "{} vs the system at multiples of the period {}, over {}",
+                spec.kind(),
                 info.period,
                 hz.describe(&eps_name)
             ),
@@ -628,28 +738,39 @@ impl Session {
                 tolerance_text(self.tolerance)
             ),
         );
-        for l in sweep::table_lines(&eps_values, &results) {
+        for l in sweep::table_lines(eps_values, results) {
             report.push(Style::Result, l);
         }
-        for l in sweep::slope_lines(&eps_values, &results) {
+        for l in sweep::slope_lines(eps_values, results) {
             report.push(Style::Result, l);
         }
-        if let Some(tol) = tol {
-            for l in sweep::tol_lines(&eps_values, &results, tol) {
+        if let Some(tol) = spec.tol {
+            for l in sweep::tol_lines(eps_values, results, tol) {
                 report.push(Style::Result, l);
             }
         }
-        if let Some(p) = table {
+    }
+
+    /// The `table FILE.csv` and `plot FILE.svg` outputs of `compare`.
+    fn compare_files(
+        &mut self,
+        spec: &CompareSpec<'_>,
+        results: &[CompareResult],
+        report: &mut Report,
+    ) -> SessionResult<()> {
+        let eps_values = &spec.eps_values;
+        if let Some(p) = spec.table {
             self.write_output(
                 p,
-                &sweep::csv(&eps_values, &results),
+                &sweep::csv(eps_values, results),
                 FileKind::Table,
                 "table",
                 report,
             )?;
         }
-        if let Some(p) = plot {
-            let per: Vec<(String, Vec<f64>, Vec<bool>)> = (0..orders.len())
+        if let Some(p) = spec.plot {
+            let eps_name = spec.info.eps.name();
+            let per: Vec<(String, Vec<f64>, Vec<bool>)> = (0..spec.model.orders.len())
                 .map(|k| {
                     (
                         format!("order {}", k + 1),
@@ -659,58 +780,135 @@ impl Session {
                 })
                 .collect();
             let title = format!(
-                "{kind}: error against {eps_name}, {}",
-                hz.describe(&eps_name)
+                "{}: error against {eps_name}, {}",
+                spec.kind(),
+                spec.horizon.describe(&eps_name)
             );
             let svg = plot::error_vs_eps_svg(
                 &title,
                 "largest distance to the system (log scale)",
-                &eps_values,
+                eps_values,
                 &per,
             );
             self.plot_output(p, svg, "plot", report)?;
         }
-        if let Some(p) = paths {
-            if !self.replaying {
-                // The largest eps shows the difference best.
-                let i = (0..eps_values.len())
-                    .max_by(|a, b| eps_values[*a].total_cmp(&eps_values[*b]))
-                    .unwrap_or(0);
-                let run = run_at(i);
-                let t_end = hz.t_end(eps_values[i]);
-                let n = ((t_end / period) * 60.0).clamp(600.0, 6000.0) as usize;
-                let tr = validate::paths(&run, t_end, n, &limits::is_interrupted)
-                    .map_err(|err| ode_err(cmd.span, err))?;
-                let per_state = |states: &[Vec<f64>]| -> Vec<Vec<f64>> {
-                    (0..names.len())
-                        .map(|k| states.iter().map(|s| s[k]).collect())
-                        .collect()
-                };
-                let models: Vec<(String, Vec<Vec<f64>>)> = tr
-                    .models
-                    .iter()
-                    .enumerate()
-                    .map(|(k, st)| (format!("averaged, order {}", k + 1), per_state(st)))
-                    .collect();
-                let title = format!(
-                    "system and averaged model at {eps_name} = {}{}",
-                    num(eps_values[i]),
-                    if info.classic {
-                        " (model in averaged coordinates)"
-                    } else {
-                        ""
-                    }
-                );
-                let svg =
-                    plot::paths_svg(&title, &names, &tr.times, &per_state(&tr.system), &models);
-                self.plot_output(p, svg, "plot of paths", report)?;
-            }
-        }
-        report.push(
-            Style::Warn,
-            "an averaged model is an approximation: validate it before it drives a real machine (help compare)",
-        );
         Ok(())
+    }
+
+    /// `plot paths FILE.svg`: the system and every averaged order at the
+    /// largest eps, which shows the difference best.
+    fn plot_paths(
+        &mut self,
+        spec: &CompareSpec<'_>,
+        path: &PathArg,
+        span: Span,
+        report: &mut Report,
+    ) -> SessionResult<()> {
+        let eps_values = &spec.eps_values;
+        let names: Vec<String> = self.states.iter().map(|s| s.name()).collect();
+        let i = (0..eps_values.len())
+            .max_by(|a, b| eps_values[*a].total_cmp(&eps_values[*b]))
+            .unwrap_or(0);
+        let run = spec.run_at(i, self.tolerance);
+        let t_end = spec.horizon.t_end(eps_values[i]);
+        let n = ((t_end / spec.period) * 60.0).clamp(600.0, 6000.0) as usize;
+        let tr = validate::paths(&run, t_end, n, &limits::is_interrupted)
+            .map_err(|err| ode_err(span, err))?;
+        let per_state = |states: &[Vec<f64>]| -> Vec<Vec<f64>> {
+            (0..names.len())
+                .map(|k| states.iter().map(|s| s[k]).collect())
+                .collect()
+        };
+        let models: Vec<(String, Vec<Vec<f64>>)> = tr
+            .models
+            .iter()
+            .enumerate()
+            .map(|(k, st)| (format!("averaged, order {}", k + 1), per_state(st)))
+            .collect();
+        let title = format!(
+            "system and averaged model at {} = {}{}",
+            spec.info.eps.name(),
+            num(eps_values[i]),
+            if spec.info.classic {
+                " (model in averaged coordinates)"
+            } else {
+                ""
+            }
+        );
+        let svg = plot::paths_svg(&title, &names, &tr.times, &per_state(&tr.system), &models);
+        self.plot_output(path, svg, "plot of paths", report)
+    }
+}
+
+/// A `simulate` command checked against the session: the field compiled
+/// with the `with` values, the start point and the horizon in floating
+/// point, and the requested plots (a phase portrait with the indices of
+/// its two states).
+struct SimulateSpec<'a> {
+    field: CompiledField,
+    x0: Vec<f64>,
+    len: f64,
+    plot: Option<&'a PathArg>,
+    phase: Option<(&'a PathArg, usize, usize)>,
+}
+
+/// The compiled orders of an averaged model (and, for a classical model,
+/// its transform and outer map).
+struct CompiledModel {
+    orders: Vec<CompiledField>,
+    transform: Option<Vec<CompiledField>>,
+    outer: Option<CompiledField>,
+}
+
+/// A `compare` command checked against the session: everything the runs
+/// need, in floating point and compiled, and the requested outputs.
+struct CompareSpec<'a> {
+    /// The averaging result behind the model.
+    info: Arc<AveragedInfo>,
+    /// The start point.
+    y0: Vec<f64>,
+    /// How long each run lasts, as a function of eps.
+    horizon: Horizon,
+    /// The swept values of eps, as given.
+    eps_values: Vec<f64>,
+    /// The error bound of `tol E`.
+    tol: Option<f64>,
+    /// The period of the averaged standard form.
+    period: f64,
+    /// The model, compiled once.
+    model: CompiledModel,
+    /// The system compiled at each eps.
+    systems: Vec<CompiledField>,
+    /// The number of periods each run integrates.
+    n_periods: Vec<usize>,
+    plot: Option<&'a PathArg>,
+    paths: Option<&'a PathArg>,
+    table: Option<&'a PathArg>,
+}
+
+impl CompareSpec<'_> {
+    /// The run at the `i`-th eps of the sweep.
+    fn run_at(&self, i: usize, tolerance: f64) -> CompareRun<'_> {
+        CompareRun {
+            system: &self.systems[i],
+            orders: &self.model.orders,
+            transform: self.model.transform.as_deref(),
+            outer: self.model.outer.as_ref(),
+            eps: self.eps_values[i],
+            period: self.period,
+            n_periods: self.n_periods[i],
+            y0: &self.y0,
+            tolerance,
+        }
+    }
+
+    /// What kind of model is compared, for the report and the plot title.
+    fn kind(&self) -> &'static str {
+        if self.info.classic {
+            "classical model (through its transform)"
+        } else {
+            "stroboscopic model"
+        }
     }
 }
 

@@ -13,14 +13,12 @@
 use std::collections::HashMap;
 
 use super::ast::Span;
-use super::session::{Report, Session, SessionError, Style, SymKind};
+use super::session::{Report, Session, SessionError, SessionResult, Style, SymKind};
 use super::value::{FieldValue, Value};
 use crate::averaging::{self, Form, Options};
 use crate::core::expr::{TimeFactor, TrigFactor};
 use crate::core::{CoreError, Expr, Field, Sym};
 use crate::render::plain;
-
-type R<T> = Result<T, SessionError>;
 
 /// The phase atom `w*t` of a parameter `w`.
 pub fn phase_of(w: Sym) -> Sym {
@@ -88,7 +86,7 @@ impl Session {
         es: impl IntoIterator<Item = &'a Expr>,
         span: Span,
         what: &str,
-    ) -> R<()> {
+    ) -> SessionResult<()> {
         if let Some(ph) = phases_all(es).first() {
             let w = param_of(*ph).map_or_else(String::new, |s| s.name());
             return Err(SessionError::invalid(
@@ -113,7 +111,7 @@ impl Session {
         target: &[&Expr],
         map: &mut HashMap<Sym, Expr>,
         span: Span,
-    ) -> R<Vec<Sym>> {
+    ) -> SessionResult<Vec<Sym>> {
         let present = phases_all(target.iter().copied());
         let mut states = self.states.clone();
         states.extend(present.iter().copied());
@@ -176,7 +174,7 @@ impl Session {
         opts: &Options,
         span: Span,
         report: &mut Report,
-    ) -> R<Vec<Value>> {
+    ) -> SessionResult<Vec<Value>> {
         let core = |e: CoreError| SessionError::core(span, e);
         let ph = phase_of(w);
         let comps: Vec<&Expr> = v.field.0.iter().collect();

@@ -127,6 +127,9 @@ pub enum ErrorKind {
     },
 }
 
+/// What the session's steps return: a value, or an error with its span.
+pub(crate) type SessionResult<T> = Result<T, SessionError>;
+
 /// An error with the span of the offending input.
 #[derive(Clone, Debug, PartialEq)]
 pub struct SessionError {
@@ -412,7 +415,7 @@ impl Session {
             while let Some(b) = bound.next_if(|b| b.line <= i) {
                 let value = b.retired.as_ref().or_else(|| self.names.get(&b.name));
                 let Some(value) = value else { continue };
-                let check = format!("check {} == {}", b.name, crate::render::plain::value(value));
+                let check = format!("check {} == {}", b.name, value.plain());
                 let already = self.accepted.iter().skip(i + 1);
                 if already
                     .take_while(|l| l.starts_with("check "))

@@ -10,13 +10,13 @@ use std::num::NonZeroU64;
 
 use super::ast::{Arg, ExprKind, Ident, Span};
 use super::session::{Session, SessionError};
-use super::value::{BracketTerm, Combo, FieldValue, Value};
+use super::value::{BracketTerm, FieldCombination, FieldValue, Value};
 use crate::core::calc::Period;
 use crate::core::{CoreError, CoreResult, Expr, Field, Sym, Q};
 use crate::render::latex;
 use crate::series::chrono;
 use crate::series::freelie::{self, Alphabet, Coeff, FreeLieError, LiePoly, Tensor};
-use crate::series::lyndon as freelie_lyndon;
+use crate::series::{freelie as freelie_lyndon, lie_fields};
 
 thread_local! {
     static COEFF_ERROR: RefCell<Option<CoreError>> = const { RefCell::new(None) };
@@ -218,7 +218,7 @@ fn truncate_eps(e: &Expr, eps: Option<Sym>, n: usize) -> Expr {
 /// The logarithm of the Chen series of `Σ c_i(t) X_i` over `[0, T]` in the
 /// Lyndon basis of the names, divided by `T` when `eps` (averaging) is given.
 pub fn magnus_structure(
-    combo: &Combo,
+    combo: &FieldCombination,
     n: usize,
     horizon: &Expr,
     period: Option<&Period>,
@@ -231,7 +231,7 @@ pub fn magnus_structure(
 
 /// The Lie polynomial of `magnus_structure`.
 fn magnus_poly(
-    combo: &Combo,
+    combo: &FieldCombination,
     n: usize,
     horizon: &Expr,
     period: Option<&Period>,
@@ -311,7 +311,7 @@ fn magnus_poly(
 /// The classical averaged field in bracket form, orders 1 and 2
 /// (G_1 = Σ mean(a_i) X_i, G_2 = Σ_{i<j} −mean(a_i A_j) [X_i, X_j] + Σ mean(b_i) X_i).
 pub fn classic_structure(
-    combo: &Combo,
+    combo: &FieldCombination,
     n: usize,
     period: &Period,
     eps: Sym,
@@ -335,7 +335,12 @@ pub fn classic_structure(
 
 /// The Lie polynomial of `classic_structure` (n ≤ 2, every coefficient
 /// of order eps or higher).
-fn classic_poly(combo: &Combo, n: usize, period: &Period, eps: Sym) -> CoreResult<LiePoly<Expr>> {
+fn classic_poly(
+    combo: &FieldCombination,
+    n: usize,
+    period: &Period,
+    eps: Sym,
+) -> CoreResult<LiePoly<Expr>> {
     let a: Vec<Expr> = combo
         .parts
         .iter()
@@ -456,12 +461,13 @@ impl Session {
         args: &[Arg],
         span: Span,
     ) -> Result<Value, SessionError> {
-        let pos: Vec<&super::ast::Expr> = args
+        let pos: Vec<&super::ast::SyntaxExpr> = args
             .iter()
             .filter_map(|a| if let Arg::Pos(e) = a { Some(e) } else { None })
             .collect();
         if pos.len() != 3 || pos.len() != args.len() {
-            return Err(SessionError::invalid(name.span, "usage: bch(X, Y, N)"));
+            let usage = super::builtins::find("bch").map_or("", |builtin| builtin.usage);
+            return Err(SessionError::invalid(name.span, format!("usage: {usage}")));
         }
         let x = self.eval_field(pos[0], "the first argument of `bch`")?;
         let y = self.eval_field(pos[1], "the second argument of `bch`")?;
@@ -477,30 +483,13 @@ impl Session {
         let core = |e: CoreError| SessionError::core(span, e);
         let _ = take_error();
         let poly = bch_series(n as u32).map_err(core)?;
-        let label = |e: &super::ast::Expr, d: &str| match &e.kind {
+        let label = |e: &super::ast::SyntaxExpr, d: &str| match &e.kind {
             ExprKind::Name(n) => n.clone(),
             _ => d.to_string(),
         };
         let names = vec![label(pos[0], "X"), label(pos[1], "Y")];
         let fields = [x.field.clone(), y.field.clone()];
-        let states = &self.states;
-        let value = freelie::evaluate(
-            &poly,
-            |l| Ok::<Field, BchError>(fields[l as usize].clone()),
-            |a, b| a.bracket(b, states).map_err(BchError::Core),
-            |acc, c, v| {
-                let scaled = v.mul_expr(c).map_err(BchError::Core)?;
-                match acc {
-                    None => Ok(scaled),
-                    Some(a) => a.add(&scaled).map_err(BchError::Core),
-                }
-            },
-        )
-        .map_err(|e| match e {
-            BchError::Core(c) => core(c),
-            BchError::Lie(l) => core(lie_err(l)),
-        })?
-        .unwrap_or_else(|| Field::zero(states.len()));
+        let value = lie_fields::evaluate_on_fields(&poly, &fields, &self.states).map_err(core)?;
         Ok(Value::Field(FieldValue {
             field: value,
             combo: None,
@@ -540,17 +529,6 @@ pub fn bch_series(n: u32) -> CoreResult<LiePoly<Expr>> {
     }
 }
 
-enum BchError {
-    Core(CoreError),
-    Lie(FreeLieError),
-}
-
-impl From<FreeLieError> for BchError {
-    fn from(e: FreeLieError) -> Self {
-        BchError::Lie(e)
-    }
-}
-
 /// The letters of a fast-oscillation system `Σ c_a(t, eps) X_a` after the
 /// pull-back by `exp(Σ U_i G_i)`: the standard form as a combination of
 /// ad-words `ad_G^α X_b = [G_i1, [G_i2, … X_b]]` (DESIGN §2.6, §2.7).
@@ -567,13 +545,13 @@ impl From<FreeLieError> for BchError {
 /// Ad-words that vanish on the concrete fields are left out, as the
 /// concrete ad-series ends there (or is truncated at `depth`).
 fn pulled_back_combo(
-    combo: &Combo,
+    combo: &FieldCombination,
     eps: Sym,
     period: &Period,
     zero_mean: bool,
     depth: u64,
     states: &[Sym],
-) -> CoreResult<Option<(Combo, Vec<String>)>> {
+) -> CoreResult<Option<(FieldCombination, Vec<String>)>> {
     // u_a (eps^0 part) and r_a (the rest) of each letter.
     let mut osc: Vec<(usize, Expr)> = Vec::new();
     let mut slow: Vec<(usize, Expr)> = Vec::new();
@@ -652,7 +630,7 @@ fn pulled_back_combo(
     }
     // Letters with equal names (a letter both slow and oscillating) stay
     // apart: the display names them the same, and evaluation agrees.
-    Ok(Some((Combo { parts }, tex)))
+    Ok(Some((FieldCombination { parts }, tex)))
 }
 
 /// The bracket form of a fast-oscillation result written over named fields
@@ -660,7 +638,7 @@ fn pulled_back_combo(
 /// classical to order 2 (DESIGN §2.7). `None` when the system is not of
 /// that shape or has too many ad-words for the free-Lie route.
 pub fn fast_oscillation_structure(
-    combo: &Combo,
+    combo: &FieldCombination,
     n: usize,
     period: &Period,
     eps: Sym,

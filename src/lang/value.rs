@@ -10,11 +10,12 @@ use std::sync::Arc;
 
 use crate::core::calc::Period;
 use crate::core::{Expr, Field, Matrix, Sym};
+use crate::render::{latex, plain};
 
 /// A linear combination `Σ c_i X_i` of named fields with scalar
 /// coefficients free of the state (functions of time and parameters).
 #[derive(Clone, Debug, PartialEq)]
-pub struct Combo {
+pub struct FieldCombination {
     /// `(name, value of the field, coefficient)` in order of first appearance.
     pub parts: Vec<(String, Field, Expr)>,
 }
@@ -36,7 +37,7 @@ pub struct FieldValue {
     /// The concrete field.
     pub field: Field,
     /// How it was written over named fields, when known.
-    pub combo: Option<Combo>,
+    pub combo: Option<FieldCombination>,
     /// A structural display (Lie polynomial), when known.
     pub structure: Option<Vec<BracketTerm>>,
     /// The averaging result behind this field, for `compare`.
@@ -103,5 +104,38 @@ impl Value {
             Value::Field(f) => f.field.n_terms(),
             Value::Matrix(m) => m.data.iter().map(Expr::len).sum(),
         }
+    }
+
+    /// The value on one line in the input syntax (it can be pasted back).
+    pub fn plain(&self) -> String {
+        match self {
+            Value::Scalar(e) => e.to_string(),
+            Value::Field(f) => plain::field(&f.field),
+            Value::Matrix(m) => plain::matrix(m),
+        }
+    }
+
+    /// The value in LaTeX over the state coordinates `states`: an averaged
+    /// result as an `aligned` block of its equations of motion, other
+    /// fields and matrices as `pmatrix`, scalars inline.
+    pub fn latex(&self, states: &[Sym]) -> String {
+        match self {
+            Value::Scalar(e) => latex::expr(e, states),
+            Value::Field(f) => match &f.averaged {
+                Some(info) => {
+                    let coords = self.coordinate_names(states);
+                    latex::aligned(&f.field, info.eps, states, &coords)
+                }
+                None => latex::field(&f.field, states),
+            },
+            Value::Matrix(m) => latex::matrix(m, states),
+        }
+    }
+
+    /// The names of the coordinates the value is written in, for the
+    /// left-hand sides of an aligned block. The one place that decides
+    /// them: today the session's state names.
+    pub fn coordinate_names(&self, states: &[Sym]) -> Vec<String> {
+        states.iter().map(|s| s.name()).collect()
     }
 }

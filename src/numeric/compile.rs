@@ -58,7 +58,7 @@ pub struct CompiledExpr {
 
 /// A compiled field.
 #[derive(Clone, Debug)]
-pub struct CompiledField {
+pub(crate) struct CompiledField {
     comps: Vec<CompiledExpr>,
 }
 
@@ -167,7 +167,7 @@ impl CompiledExpr {
 
 impl CompiledField {
     /// Compiles every component.
-    pub fn new(
+    pub(crate) fn new(
         f: &Field,
         states: &[Sym],
         values: &HashMap<Sym, f64>,
@@ -190,20 +190,20 @@ impl CompiledField {
     }
 
     /// Evaluates into `out`.
-    pub fn eval(&self, t: f64, x: &[f64], out: &mut [f64]) {
+    pub(crate) fn eval(&self, t: f64, x: &[f64], out: &mut [f64]) {
         for (o, c) in out.iter_mut().zip(&self.comps) {
             *o = c.eval(t, x);
         }
     }
 
     /// Dimension.
-    pub fn dim(&self) -> usize {
+    pub(crate) fn dim(&self) -> usize {
         self.comps.len()
     }
 }
 
 /// Converts exact parameter values to doubles.
-pub fn float_values(values: &HashMap<Sym, Q>) -> HashMap<Sym, f64> {
+pub(crate) fn float_values(values: &HashMap<Sym, Q>) -> HashMap<Sym, f64> {
     values.iter().map(|(s, q)| (*s, q.to_f64())).collect()
 }
 

@@ -15,7 +15,7 @@ use nalgebra::{DMatrix, Schur};
 
 /// Why eigenvalues could not be computed.
 #[derive(Clone, Debug, PartialEq, Eq)]
-pub enum EigenError {
+pub(crate) enum EigenError {
     /// The matrix has no rows.
     Empty,
     /// Row `row` has `len` entries where `expected` (the number of rows)
@@ -70,7 +70,7 @@ impl std::error::Error for EigenError {}
 /// part, opposite imaginary parts). Imaginary parts smaller than `1e-12`
 /// times the largest entry of the matrix are round-off and set to zero.
 /// Negative zeros are normalised to `0.0`, so printing is reproducible.
-pub fn eigenvalues(rows: &[Vec<f64>]) -> Result<Vec<(f64, f64)>, EigenError> {
+pub(crate) fn eigenvalues(rows: &[Vec<f64>]) -> Result<Vec<(f64, f64)>, EigenError> {
     let dim = rows.len();
     if dim == 0 {
         return Err(EigenError::Empty);
@@ -196,7 +196,7 @@ fn balance(mut a: DMatrix<f64>) -> DMatrix<f64> {
 
 /// What the eigenvalues of a linearisation say about an equilibrium.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum Stability {
+pub(crate) enum Stability {
     /// Every eigenvalue has negative real part.
     AsymptoticallyStable,
     /// Some eigenvalue has positive real part and none has negative real
@@ -233,7 +233,7 @@ impl fmt::Display for Stability {
 }
 
 /// Relative size below which a real part counts as zero in [`classify`].
-pub const ZERO_REAL_PART: f64 = 1e-10;
+pub(crate) const ZERO_REAL_PART: f64 = 1e-10;
 
 /// Classify an equilibrium from the eigenvalues `(re, im)` of its
 /// linearisation (Lyapunov's indirect method).
@@ -242,7 +242,7 @@ pub const ZERO_REAL_PART: f64 = 1e-10;
 /// times the largest eigenvalue modulus, since the eigenvalues carry
 /// round-off of that order. An empty list is vacuously asymptotically
 /// stable.
-pub fn classify(eigs: &[(f64, f64)]) -> Stability {
+pub(crate) fn classify(eigs: &[(f64, f64)]) -> Stability {
     let largest = eigs
         .iter()
         .map(|(re, im)| re.hypot(*im))

@@ -41,7 +41,7 @@ pub fn loglog_slope(xs: &[f64], ys: &[f64]) -> Option<f64> {
 /// Local slopes `ln(y_i / y_{i+1}) / ln(x_i / x_{i+1})` between consecutive
 /// points; `None` where either point cannot sit on a log axis or the two
 /// `x` are equal.
-pub fn local_slopes(xs: &[f64], ys: &[f64]) -> Vec<Option<f64>> {
+pub(crate) fn local_slopes(xs: &[f64], ys: &[f64]) -> Vec<Option<f64>> {
     let n = xs.len().min(ys.len());
     (1..n)
         .map(|i| {
@@ -69,7 +69,7 @@ fn settled_band(slopes: &[f64]) -> f64 {
 
 /// A slope fitted over the asymptotic range of a sweep.
 #[derive(Clone, Debug, PartialEq)]
-pub struct AsymptoticFit {
+pub(crate) struct AsymptoticFit {
     /// The fitted slope of `ln y` against `ln x` over `used`.
     pub slope: f64,
     /// Indices (into the input) of the points the fit used, in input order.
@@ -87,7 +87,7 @@ pub struct AsymptoticFit {
 /// usable points ending at the smallest usable `x` over which the local
 /// slopes stay within a band (0.2, or 10% for steep slopes). `None` when
 /// fewer than two points are usable.
-pub fn asymptotic_fit(xs: &[f64], ys: &[f64], excluded: &[bool]) -> Option<AsymptoticFit> {
+pub(crate) fn asymptotic_fit(xs: &[f64], ys: &[f64], excluded: &[bool]) -> Option<AsymptoticFit> {
     let n = xs.len().min(ys.len());
     let mut usable: Vec<usize> = (0..n)
         .filter(|&i| {

@@ -4,10 +4,10 @@
 //! `stability`. The exact core never depends on this module.
 
 pub mod compile;
-pub mod eigen;
+pub(crate) mod eigen;
 pub mod fit;
-pub mod newton;
-pub mod ode;
-pub mod plot;
-pub mod sweep;
-pub mod validate;
+pub(crate) mod newton;
+pub(crate) mod ode;
+pub(crate) mod plot;
+pub(crate) mod sweep;
+pub(crate) mod validate;

@@ -13,7 +13,7 @@ use nalgebra::{DMatrix, DVector};
 
 /// Why Newton's method stopped without an equilibrium.
 #[derive(Clone, Debug, PartialEq)]
-pub enum NewtonError {
+pub(crate) enum NewtonError {
     /// The Jacobian is singular (or nearly so) at an iterate.
     Singular {
         /// The iterate.
@@ -61,7 +61,7 @@ impl std::error::Error for NewtonError {}
 
 /// A converged equilibrium.
 #[derive(Clone, Debug, PartialEq)]
-pub struct Root {
+pub(crate) struct Root {
     /// The point.
     pub x: Vec<f64>,
     /// `|F(x)|` (Euclidean).
@@ -71,7 +71,7 @@ pub struct Root {
 }
 
 /// Most Newton steps.
-pub const MAX_ITERATIONS: usize = 60;
+pub(crate) const MAX_ITERATIONS: usize = 60;
 
 fn norm(v: &[f64]) -> f64 {
     v.iter().map(|x| x * x).sum::<f64>().sqrt()
@@ -81,7 +81,7 @@ fn norm(v: &[f64]) -> f64 {
 /// Jacobian row by row (`n·n` entries). Converged when the step is below
 /// `1e-13·(1 + |x|)` or the residual is at rounding level (`F` evaluated
 /// with its scale `1e-14·(1 + |J|·|x|)`).
-pub fn solve(
+pub(crate) fn solve(
     f: &dyn Fn(&[f64], &mut [f64]),
     jac: &dyn Fn(&[f64], &mut [f64]),
     guess: &[f64],

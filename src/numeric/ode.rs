@@ -23,7 +23,7 @@ use std::fmt;
 
 /// Tolerances and limits for [`integrate_at`].
 #[derive(Clone, Debug, PartialEq)]
-pub struct OdeOptions {
+pub(crate) struct OdeOptions {
     /// Relative tolerance per component (must be non-negative).
     pub rtol: f64,
     /// Absolute tolerance per component (must be non-negative; `rtol` and
@@ -48,7 +48,7 @@ impl Default for OdeOptions {
 
 /// Why an integration stopped before reaching its last output time.
 #[derive(Clone, Debug, PartialEq)]
-pub enum OdeError {
+pub(crate) enum OdeError {
     /// The solution or the right-hand side stopped being finite near `t`
     /// (typically a blow-up) and smaller steps did not help.
     NonFinite {
@@ -110,7 +110,7 @@ impl std::error::Error for OdeError {}
 /// It takes `&mut self` so an implementation may keep scratch space or
 /// counters. Non-finite values written into `dy` are handled by the
 /// integrator (the step is retried smaller, then reported), never a panic.
-pub trait Rhs {
+pub(crate) trait Rhs {
     /// Write `f(t, y)` into `dy`.
     fn eval(&mut self, t: f64, y: &[f64], dy: &mut [f64]);
 }
@@ -123,7 +123,7 @@ impl<F: FnMut(f64, &[f64], &mut [f64])> Rhs for F {
 
 /// Work counters of one integration.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
-pub struct OdeStats {
+pub(crate) struct OdeStats {
     /// Accepted steps.
     pub steps: usize,
     /// Rejected steps (error too large or non-finite values).
@@ -134,7 +134,7 @@ pub struct OdeStats {
 
 /// The result of [`integrate_at`].
 #[derive(Clone, Debug, PartialEq)]
-pub struct OdeOutput {
+pub(crate) struct OdeOutput {
     /// `states[i]` is the state at `times[i]`.
     pub states: Vec<Vec<f64>>,
     /// Work done to get there.
@@ -150,7 +150,7 @@ pub struct OdeOutput {
 /// it, not by interpolation, so the reported states carry the full
 /// fifth-order accuracy. `cancel` is polled before every step attempt;
 /// `progress(t)` is called every 1000 attempted steps with the current time.
-pub fn integrate_at<R: Rhs + ?Sized>(
+pub(crate) fn integrate_at<R: Rhs + ?Sized>(
     rhs: &mut R,
     t0: f64,
     y0: &[f64],
@@ -173,24 +173,32 @@ pub fn integrate_at<R: Rhs + ?Sized>(
     }
 
     let mut work = Stages::new(dim);
-    let mut t = t0;
-    let mut y = y0.to_vec();
-    rhs.eval(t, &y, &mut work.k[0]);
+    let y = y0.to_vec();
+    rhs.eval(t0, &y, &mut work.k[0]);
     stats.evals += 1;
     if !all_finite(&work.k[0]) {
-        return Err(OdeError::NonFinite { t });
+        return Err(OdeError::NonFinite { t: t0 });
     }
 
     let t_end = times.last().copied().unwrap_or(t0);
     let span = (t_end - t0).abs();
-    let mut h = initial_step(rhs, t, &y, dir, &mut work, opts, span);
+    let h = initial_step(rhs, t0, &y, dir, &mut work, opts, span);
     stats.evals += 1;
-    let mut just_rejected = false;
+    let mut stepper = Stepper {
+        t: t0,
+        y,
+        h,
+        dir,
+        just_rejected: false,
+        work,
+        stats,
+    };
     let mut attempts: usize = 0;
 
     for &t_out in times {
         // Integrate until `t` equals `t_out` exactly.
-        while (t_out - t) * dir > 0.0 {
+        while (t_out - stepper.t) * dir > 0.0 {
+            let t = stepper.t;
             if cancel() {
                 return Err(OdeError::Cancelled { t });
             }
@@ -201,63 +209,102 @@ pub fn integrate_at<R: Rhs + ?Sized>(
             if attempts.is_multiple_of(1000) {
                 progress(t);
             }
-
-            let h_min = 16.0 * f64::EPSILON * t.abs().max(f64::MIN_POSITIVE);
-            if h < h_min {
-                return Err(if work.last_nonfinite {
-                    OdeError::NonFinite { t }
-                } else {
-                    OdeError::StepTooSmall { t }
-                });
-            }
-            // Shorten the step so it lands on `t_out`; a step that would
-            // leave a sliver of less than 1% is stretched to land there too.
-            let remaining = (t_out - t).abs();
-            let clipped = h * 1.01 >= remaining;
-            let h_step = if clipped { remaining } else { h };
-
-            work.step(rhs, t, &y, dir * h_step);
-            stats.evals += 6;
-            let err = work.error_norm(&y, opts);
-            if !err.is_finite() {
-                // Overflow or NaN inside the step: retry much smaller.
-                work.last_nonfinite = true;
-                stats.rejected += 1;
-                just_rejected = true;
-                h = h_step * FAC_MIN;
-                continue;
-            }
-            work.last_nonfinite = false;
-            let factor = step_factor(err, just_rejected);
-            if err <= 1.0 {
-                stats.steps += 1;
-                t = if clipped { t_out } else { t + dir * h_step };
-                std::mem::swap(&mut y, &mut work.y_new);
-                // First same as last: the seventh stage is f(t_new, y_new).
-                work.k.swap(0, 6);
-                let h_next = h_step * factor;
-                // After a step shortened to hit an output time, keep the
-                // step the controller had proposed before the clipping.
-                h = if clipped { h_next.max(h) } else { h_next };
-                h = h.min(opts.h_max);
-                just_rejected = false;
-            } else {
-                stats.rejected += 1;
-                h = h_step * factor;
-                just_rejected = true;
-            }
+            stepper.attempt(rhs, t_out, opts)?;
         }
-        states.push(y.clone());
+        states.push(stepper.y.clone());
     }
-    Ok(OdeOutput { states, stats })
+    Ok(OdeOutput {
+        states,
+        stats: stepper.stats,
+    })
+}
+
+/// The adaptive driver between two step attempts: where it is, the step it
+/// proposes next, its stages and its counters.
+struct Stepper {
+    t: f64,
+    y: Vec<f64>,
+    /// The proposed size of the next step (positive; `dir` gives the sign).
+    h: f64,
+    /// 1 forward, −1 backward.
+    dir: f64,
+    /// Whether the last attempt was rejected (the controller then does not
+    /// let the step grow).
+    just_rejected: bool,
+    work: Stages,
+    stats: OdeStats,
+}
+
+impl Stepper {
+    /// One step attempt towards `t_out`: accepted (the state moves on) or
+    /// rejected (only the proposed step shrinks). An error when the step
+    /// has shrunk below what `t` can resolve.
+    fn attempt<R: Rhs + ?Sized>(
+        &mut self,
+        rhs: &mut R,
+        t_out: f64,
+        opts: &OdeOptions,
+    ) -> Result<(), OdeError> {
+        let t = self.t;
+        let h_min = 16.0 * f64::EPSILON * t.abs().max(f64::MIN_POSITIVE);
+        if self.h < h_min {
+            return Err(if self.work.last_nonfinite {
+                OdeError::NonFinite { t }
+            } else {
+                OdeError::StepTooSmall { t }
+            });
+        }
+        // Shorten the step so it lands on `t_out`; a step that would
+        // leave a sliver of less than 1% is stretched to land there too.
+        let remaining = (t_out - t).abs();
+        let clipped = self.h * 1.01 >= remaining;
+        let h_step = if clipped { remaining } else { self.h };
+
+        self.work.step(rhs, t, &self.y, self.dir * h_step);
+        self.stats.evals += 6;
+        let err = self.work.error_norm(&self.y, opts);
+        if !err.is_finite() {
+            // Overflow or NaN inside the step: retry much smaller.
+            self.work.last_nonfinite = true;
+            self.stats.rejected += 1;
+            self.just_rejected = true;
+            self.h = h_step * FAC_MIN;
+            return Ok(());
+        }
+        self.work.last_nonfinite = false;
+        let factor = step_factor(err, self.just_rejected);
+        if err <= 1.0 {
+            self.stats.steps += 1;
+            self.t = if clipped {
+                t_out
+            } else {
+                t + self.dir * h_step
+            };
+            std::mem::swap(&mut self.y, &mut self.work.y_new);
+            // First same as last: the seventh stage is f(t_new, y_new).
+            self.work.k.swap(0, 6);
+            let h_next = h_step * factor;
+            // After a step shortened to hit an output time, keep the
+            // step the controller had proposed before the clipping.
+            let h = if clipped { h_next.max(self.h) } else { h_next };
+            self.h = h.min(opts.h_max);
+            self.just_rejected = false;
+        } else {
+            self.stats.rejected += 1;
+            self.h = h_step * factor;
+            self.just_rejected = true;
+        }
+        Ok(())
+    }
 }
 
 /// One Dormand–Prince step of size `h` (negative to go backward) from
 /// `(t, y)` with the fifth-order formula, without error control.
 ///
-/// This is the same stage computation the adaptive driver uses; it is
-/// exposed for convergence checks with a constant step.
-pub fn rk_fixed_step<R: Rhs + ?Sized>(rhs: &mut R, t: f64, y: &[f64], h: f64) -> Vec<f64> {
+/// This is the same stage computation the adaptive driver uses, for the
+/// convergence checks with a constant step.
+#[cfg(test)]
+pub(crate) fn rk_fixed_step<R: Rhs + ?Sized>(rhs: &mut R, t: f64, y: &[f64], h: f64) -> Vec<f64> {
     let mut work = Stages::new(y.len());
     rhs.eval(t, y, &mut work.k[0]);
     work.step(rhs, t, y, h);

@@ -10,7 +10,7 @@ use super::validate::{CompareResult, FLOOR_FACTOR};
 /// Formats a float compactly and deterministically: up to six decimals
 /// between 1e-3 and 1e5, otherwise three significant decimals in
 /// scientific notation.
-pub fn num(v: f64) -> String {
+pub(crate) fn num(v: f64) -> String {
     if v == 0.0 {
         "0".to_string()
     } else if v.abs() >= 1e-3 && v.abs() < 1e5 {
@@ -24,7 +24,7 @@ pub fn num(v: f64) -> String {
 
 /// A value with `digits` significant digits, trailing zeros dropped
 /// (scientific notation outside 1e-4..1e6).
-pub fn decimal(v: f64, digits: usize) -> String {
+pub(crate) fn decimal(v: f64, digits: usize) -> String {
     if v == 0.0 || !v.is_finite() {
         return if v == 0.0 {
             "0".to_string()
@@ -62,7 +62,7 @@ const COL: usize = 13;
 /// The error table: a row per eps, a column per order; between two rows,
 /// the local slope of each order. Errors at the integrator's floor carry
 /// `*` (and a footnote says what that means).
-pub fn table_lines(eps: &[f64], results: &[CompareResult]) -> Vec<String> {
+pub(crate) fn table_lines(eps: &[f64], results: &[CompareResult]) -> Vec<String> {
     let n_orders = results.first().map_or(0, |r| r.orders.len());
     let mut lines = Vec::new();
     let header: String = (1..=n_orders)
@@ -115,7 +115,7 @@ pub fn table_lines(eps: &[f64], results: &[CompareResult]) -> Vec<String> {
 
 /// The line `slope order K: S.SS (…)` for each order: the slope fitted over
 /// the asymptotic range, which eps it used, which it left out and why.
-pub fn slope_lines(eps: &[f64], results: &[CompareResult]) -> Vec<String> {
+pub(crate) fn slope_lines(eps: &[f64], results: &[CompareResult]) -> Vec<String> {
     let n_orders = results.first().map_or(0, |r| r.orders.len());
     (0..n_orders)
         .map(|k| {
@@ -165,7 +165,7 @@ pub fn slope_lines(eps: &[f64], results: &[CompareResult]) -> Vec<String> {
 }
 
 /// For a tolerance, the largest eps whose error meets it, per order.
-pub fn tol_lines(eps: &[f64], results: &[CompareResult], tol: f64) -> Vec<String> {
+pub(crate) fn tol_lines(eps: &[f64], results: &[CompareResult], tol: f64) -> Vec<String> {
     let n_orders = results.first().map_or(0, |r| r.orders.len());
     (0..n_orders)
         .map(|k| {
@@ -197,7 +197,7 @@ pub fn tol_lines(eps: &[f64], results: &[CompareResult], tol: f64) -> Vec<String
 /// Every sample as CSV: `eps,order,time,error,at_floor` (the last column
 /// says whether the order's largest error at this eps is at the
 /// integrator's floor). Numbers in Rust's shortest round-trip notation.
-pub fn csv(eps: &[f64], results: &[CompareResult]) -> String {
+pub(crate) fn csv(eps: &[f64], results: &[CompareResult]) -> String {
     let mut out = String::from("eps,order,time,error,at_floor\n");
     for (e, r) in eps.iter().zip(results) {
         for (k, o) in r.orders.iter().enumerate() {

@@ -19,7 +19,7 @@ use super::compile::CompiledField;
 use super::ode::{integrate_at, OdeError, OdeOptions};
 
 /// One `compare` run at a fixed eps.
-pub struct CompareRun<'a> {
+pub(crate) struct CompareRun<'a> {
     /// The original system `x' = S(t, x)`.
     pub system: &'a CompiledField,
     /// `F_1..F_N` (autonomous).
@@ -43,7 +43,7 @@ pub struct CompareRun<'a> {
 
 /// The integration options for a tolerance: relative `tol`, absolute
 /// `tol / 100`.
-pub fn options_for(tol: f64) -> OdeOptions {
+pub(crate) fn options_for(tol: f64) -> OdeOptions {
     OdeOptions {
         rtol: tol,
         atol: tol / 100.0,
@@ -52,7 +52,7 @@ pub fn options_for(tol: f64) -> OdeOptions {
 }
 
 /// The default integration tolerance of the numerical commands.
-pub const DEFAULT_TOLERANCE: f64 = 1e-11;
+pub(crate) const DEFAULT_TOLERANCE: f64 = 1e-11;
 
 /// Factor by which the check integration is tighter.
 const TIGHTER: f64 = 10.0;
@@ -61,11 +61,11 @@ const TIGHTER: f64 = 10.0;
 /// times the estimated integration error (the change the tighter check
 /// integration makes): the integration error is then more than a tenth of
 /// the measured error.
-pub const FLOOR_FACTOR: f64 = 10.0;
+pub(crate) const FLOOR_FACTOR: f64 = 10.0;
 
 /// The errors of one order at one eps.
 #[derive(Clone, Debug, PartialEq)]
-pub struct OrderErrors {
+pub(crate) struct OrderErrors {
     /// Euclidean distance between system and model at each sample time.
     pub errors: Vec<f64>,
     /// The largest of `errors` (the table's entry).
@@ -77,14 +77,14 @@ pub struct OrderErrors {
 
 impl OrderErrors {
     /// Whether the error is at the integrator's floor.
-    pub fn at_floor(&self) -> bool {
+    pub(crate) fn at_floor(&self) -> bool {
         self.max <= FLOOR_FACTOR * self.floor
     }
 }
 
 /// The result of one `compare` run.
 #[derive(Clone, Debug, PartialEq)]
-pub struct CompareResult {
+pub(crate) struct CompareResult {
     /// The sample times `m·T`, `m = 1..=n`.
     pub times: Vec<f64>,
     /// One entry per order.
@@ -137,7 +137,7 @@ fn distance(a: &[f64], b: &[f64]) -> f64 {
 }
 
 /// The averaged model of order `order`: `y' = Σ_{j ≤ order} eps^j F_j(y)`.
-pub fn model_rhs<'a>(
+pub(crate) fn model_rhs<'a>(
     orders: &'a [CompiledField],
     order: usize,
     eps: f64,
@@ -177,9 +177,12 @@ impl Work<'_> {
     }
 }
 
+/// The state at each output time of one integration.
+type States = Vec<Vec<f64>>;
+
 /// Integrates from `x0` at the tolerance and at the tighter one: the
 /// states of both and the first run's accepted steps.
-type Pair = (Vec<Vec<f64>>, Vec<Vec<f64>>, usize);
+type Pair = (States, States, usize);
 
 fn both(
     rhs: &mut dyn super::ode::Rhs,
@@ -210,7 +213,7 @@ fn both(
 /// `1..=orders.len()` at the sample times `m·T`, `m = 1..=n` (Euclidean
 /// distance in the original coordinates), with the integration floor of
 /// each. `progress` receives the fraction of the run done.
-pub fn compare_errors(
+pub(crate) fn compare_errors(
     run: &CompareRun<'_>,
     cancel: &dyn Fn() -> bool,
     progress: &mut dyn FnMut(f64),
@@ -225,7 +228,7 @@ pub fn compare_errors(
         report: progress,
     };
     let mut sys = |t: f64, x: &[f64], dx: &mut [f64]| run.system.eval(t, x, dx);
-    let mut cached: Option<(Vec<Vec<f64>>, Vec<Vec<f64>>)> = None;
+    let mut cached: Option<(States, States)> = None;
     let mut steps = 0;
     let mut orders = Vec::with_capacity(n_orders);
     for order in 1..=n_orders {
@@ -286,7 +289,7 @@ pub fn compare_errors(
 /// plot of paths: `n` equally spaced times over `(0, t_end]`, the model in
 /// its own (averaged) coordinates, started from `y0`; the system from
 /// `y0` (stroboscopic) or `y0 + W(0, y0)` of the highest order (classical).
-pub struct Paths {
+pub(crate) struct Paths {
     /// The sample times, starting at 0.
     pub times: Vec<f64>,
     /// The system's state at each time.
@@ -296,7 +299,7 @@ pub struct Paths {
 }
 
 /// Integrates the system and each model densely for [`Paths`].
-pub fn paths(
+pub(crate) fn paths(
     run: &CompareRun<'_>,
     t_end: f64,
     n: usize,

@@ -27,7 +27,7 @@ pub enum Lang {
 
 impl Lang {
     /// The language for a `show … as WORD` word.
-    pub fn from_word(w: &str) -> Option<Lang> {
+    pub(crate) fn from_word(w: &str) -> Option<Lang> {
         match w {
             "python" => Some(Lang::Python),
             "julia" => Some(Lang::Julia),
@@ -130,7 +130,7 @@ impl Lang {
 
 /// What is evaluated.
 #[derive(Clone, Copy, Debug)]
-pub enum Shape<'a> {
+pub(crate) enum Shape<'a> {
     /// A scalar: the function returns one number.
     Scalar(&'a Expr),
     /// A field: one number per state coordinate.
@@ -152,7 +152,7 @@ impl Shape<'_> {
 /// The parameters a value needs (symbols other than the states, `t` and
 /// `pi`), in the order of `order` (the session's declarations), then any
 /// others in symbol order.
-pub fn parameters(shape: &Shape, states: &[Sym], order: &[Sym]) -> Vec<Sym> {
+pub(crate) fn parameters(shape: &Shape, states: &[Sym], order: &[Sym]) -> Vec<Sym> {
     let mut found: Vec<Sym> = Vec::new();
     for e in shape.entries() {
         for s in e.symbols() {
@@ -348,157 +348,202 @@ fn exact_comment(lang: Lang, name: &str, shape: &Shape) -> Vec<String> {
 
 /// The function `name(t, state, params…)` evaluating `shape` in `lang`.
 /// `params` are the named arguments, in order (see [`parameters`]).
-pub fn function(lang: Lang, name: &str, shape: &Shape, states: &[Sym], params: &[Sym]) -> String {
+pub(crate) fn function(
+    lang: Lang,
+    name: &str,
+    shape: &Shape,
+    states: &[Sym],
+    params: &[Sym],
+) -> String {
     let w = Writer { lang, states };
-    let fname = lang.ident(name);
     let state_names: Vec<String> = w.states.iter().map(|s| w.sym(*s)).collect();
-    let param_names: Vec<String> = params.iter().map(|s| w.sym(*s)).collect();
-    let entries: Vec<String> = shape.entries().iter().map(|e| w.expr(e)).collect();
-    let n = state_names.len();
-    let mut out: Vec<String> = exact_comment(lang, name, shape);
     let what = match shape {
         Shape::Scalar(_) => "a number".to_string(),
         Shape::Field(f) => format!("the {} components", f.dim()),
         Shape::Matrix(m) => format!("the {}x{} matrix", m.rows, m.cols),
     };
-    let state_doc = format!("state = ({})", state_names.join(", "));
+    let parts = Parts {
+        fname: lang.ident(name),
+        state_doc: format!("state = ({})", state_names.join(", ")),
+        param_names: params.iter().map(|s| w.sym(*s)).collect(),
+        entries: shape.entries().iter().map(|e| w.expr(e)).collect(),
+        state_names,
+        what,
+    };
+    let mut out: Vec<String> = exact_comment(lang, name, shape);
     match lang {
-        Lang::Python => {
-            out.push(format!(
-                "{} state = ({}); returns {what}",
-                lang.comment(),
-                state_names.join(", ")
-            ));
-            out.push("import numpy as np".to_string());
-            out.push(String::new());
-            out.push(String::new());
-            let mut sig = vec!["t".to_string(), "state".to_string()];
-            if !param_names.is_empty() {
-                sig.push("*".to_string());
-                sig.extend(param_names.iter().cloned());
-            }
-            out.push(format!("def {fname}({}):", sig.join(", ")));
-            if n > 0 {
-                out.push(format!("    {} = state", unpack(&state_names)));
-            }
-            let body = match shape {
-                Shape::Scalar(_) => entries[0].clone(),
-                Shape::Field(_) => format!("np.array([{}])", indent_list(&entries, "        ")),
-                Shape::Matrix(m) => {
-                    let rows: Vec<String> = (0..m.rows)
-                        .map(|i| format!("[{}]", entries[i * m.cols..(i + 1) * m.cols].join(", ")))
-                        .collect();
-                    format!("np.array([{}])", indent_list(&rows, "        "))
-                }
-            };
-            out.push(format!("    return {body}"));
-        }
-        Lang::Julia => {
-            out.push(format!("# {state_doc}; returns {what}"));
-            let params = if param_names.is_empty() {
-                String::new()
-            } else {
-                format!("; {}", param_names.join(", "))
-            };
-            out.push(format!("function {fname}(t, state{params})"));
-            if n > 0 {
-                out.push(format!("    {} = state", unpack(&state_names)));
-            }
-            let body = match shape {
-                Shape::Scalar(_) => entries[0].clone(),
-                Shape::Field(_) => format!("[{}]", indent_list(&entries, "        ")),
-                Shape::Matrix(m) => {
-                    let rows: Vec<String> = (0..m.rows)
-                        .map(|i| {
-                            entries[i * m.cols..(i + 1) * m.cols]
-                                .iter()
-                                .map(|e| format!("({e})"))
-                                .collect::<Vec<_>>()
-                                .join(" ")
-                        })
-                        .collect();
-                    format!("[{}]", rows.join(";\n        "))
-                }
-            };
-            out.push(format!("    return {body}"));
-            out.push("end".to_string());
-        }
-        Lang::C => {
-            out.push(format!(
-                "// {state_doc}; {}",
-                match shape {
-                    Shape::Scalar(_) => "returns a number".to_string(),
-                    Shape::Field(_) => format!("writes {what} to out[0..{}]", n),
-                    Shape::Matrix(m) =>
-                        format!("writes {what} to out, row by row (out[i*{} + j])", m.cols),
-                }
-            ));
-            out.push("#include <math.h>".to_string());
-            out.push(String::new());
-            let mut sig = vec!["double t".to_string(), "const double *state".to_string()];
-            sig.extend(param_names.iter().map(|p| format!("double {p}")));
-            let ret = match shape {
-                Shape::Scalar(_) => "double",
-                _ => {
-                    sig.push("double *out".to_string());
-                    "void"
-                }
-            };
-            out.push(format!("{ret} {fname}({})", sig.join(", ")));
-            out.push("{".to_string());
-            for (i, s) in state_names.iter().enumerate() {
-                out.push(format!("    const double {s} = state[{i}];"));
-            }
-            let mut unused = vec!["t".to_string(), "state".to_string()];
-            unused.extend(state_names.iter().cloned());
-            unused.extend(param_names.iter().cloned());
-            for u in unused {
-                out.push(format!("    (void){u};"));
-            }
-            match shape {
-                Shape::Scalar(_) => out.push(format!("    return {};", entries[0])),
-                _ => {
-                    for (i, e) in entries.iter().enumerate() {
-                        out.push(format!("    out[{i}] = {e};"));
-                    }
-                }
-            }
-            out.push("}".to_string());
-        }
-        Lang::Rust => {
-            out.push(format!("// {state_doc}; returns {what}"));
-            let mut sig = vec!["t: f64".to_string(), "state: &[f64]".to_string()];
-            sig.extend(param_names.iter().map(|p| format!("{p}: f64")));
-            let ret = match shape {
-                Shape::Scalar(_) => "f64".to_string(),
-                Shape::Field(f) => format!("[f64; {}]", f.dim()),
-                Shape::Matrix(m) => format!("[[f64; {}]; {}]", m.cols, m.rows),
-            };
-            out.push(
-                "#[allow(unused_variables, unused_parens, non_snake_case, clippy::all)]"
-                    .to_string(),
-            );
-            out.push(format!("pub fn {fname}({}) -> {ret} {{", sig.join(", ")));
-            for (i, s) in state_names.iter().enumerate() {
-                out.push(format!("    let {s} = state[{i}];"));
-            }
-            let body = match shape {
-                Shape::Scalar(_) => entries[0].clone(),
-                Shape::Field(_) => format!("[{}]", indent_list(&entries, "        ")),
-                Shape::Matrix(m) => {
-                    let rows: Vec<String> = (0..m.rows)
-                        .map(|i| format!("[{}]", entries[i * m.cols..(i + 1) * m.cols].join(", ")))
-                        .collect();
-                    format!("[{}]", indent_list(&rows, "        "))
-                }
-            };
-            out.push(format!("    {body}"));
-            out.push("}".to_string());
-        }
+        Lang::Python => python(&parts, shape, &mut out),
+        Lang::Julia => julia(&parts, shape, &mut out),
+        Lang::C => c(&parts, shape, &mut out),
+        Lang::Rust => rust(&parts, shape, &mut out),
     }
     let mut s = out.join("\n");
     s.push('\n');
     s
+}
+
+/// What every target needs of the function, already in its syntax.
+struct Parts {
+    /// The function's name.
+    fname: String,
+    /// The states' names, in order.
+    state_names: Vec<String>,
+    /// The parameters' names, in order.
+    param_names: Vec<String>,
+    /// The entries of the shape (row by row for a matrix).
+    entries: Vec<String>,
+    /// What the function returns, for its comment.
+    what: String,
+    /// `state = (x, y)`, for its comment.
+    state_doc: String,
+}
+
+/// `def name(t, state, *, params):` returning a number or a NumPy array.
+fn python(p: &Parts, shape: &Shape, out: &mut Vec<String>) {
+    let (fname, what) = (&p.fname, &p.what);
+    out.push(format!(
+        "{} state = ({}); returns {what}",
+        Lang::Python.comment(),
+        p.state_names.join(", ")
+    ));
+    out.push("import numpy as np".to_string());
+    out.push(String::new());
+    out.push(String::new());
+    let mut sig = vec!["t".to_string(), "state".to_string()];
+    if !p.param_names.is_empty() {
+        sig.push("*".to_string());
+        sig.extend(p.param_names.iter().cloned());
+    }
+    out.push(format!("def {fname}({}):", sig.join(", ")));
+    if !p.state_names.is_empty() {
+        out.push(format!("    {} = state", unpack(&p.state_names)));
+    }
+    let entries = &p.entries;
+    let body = match shape {
+        Shape::Scalar(_) => entries[0].clone(),
+        Shape::Field(_) => format!("np.array([{}])", indent_list(entries, "        ")),
+        Shape::Matrix(m) => {
+            let rows = bracketed_rows(entries, m.rows, m.cols);
+            format!("np.array([{}])", indent_list(&rows, "        "))
+        }
+    };
+    out.push(format!("    return {body}"));
+}
+
+/// `function name(t, state; params)` returning a number, vector or matrix.
+fn julia(p: &Parts, shape: &Shape, out: &mut Vec<String>) {
+    let (fname, what, state_doc) = (&p.fname, &p.what, &p.state_doc);
+    out.push(format!("# {state_doc}; returns {what}"));
+    let params = if p.param_names.is_empty() {
+        String::new()
+    } else {
+        format!("; {}", p.param_names.join(", "))
+    };
+    out.push(format!("function {fname}(t, state{params})"));
+    if !p.state_names.is_empty() {
+        out.push(format!("    {} = state", unpack(&p.state_names)));
+    }
+    let entries = &p.entries;
+    let body = match shape {
+        Shape::Scalar(_) => entries[0].clone(),
+        Shape::Field(_) => format!("[{}]", indent_list(entries, "        ")),
+        Shape::Matrix(m) => {
+            let rows: Vec<String> = (0..m.rows)
+                .map(|i| {
+                    entries[i * m.cols..(i + 1) * m.cols]
+                        .iter()
+                        .map(|e| format!("({e})"))
+                        .collect::<Vec<_>>()
+                        .join(" ")
+                })
+                .collect();
+            format!("[{}]", rows.join(";\n        "))
+        }
+    };
+    out.push(format!("    return {body}"));
+    out.push("end".to_string());
+}
+
+/// `double name(t, state, params)`, or `void` writing to `out` for fields
+/// and matrices.
+fn c(p: &Parts, shape: &Shape, out: &mut Vec<String>) {
+    let (fname, what, state_doc) = (&p.fname, &p.what, &p.state_doc);
+    let n = p.state_names.len();
+    out.push(format!(
+        "// {state_doc}; {}",
+        match shape {
+            Shape::Scalar(_) => "returns a number".to_string(),
+            Shape::Field(_) => format!("writes {what} to out[0..{}]", n),
+            Shape::Matrix(m) => format!("writes {what} to out, row by row (out[i*{} + j])", m.cols),
+        }
+    ));
+    out.push("#include <math.h>".to_string());
+    out.push(String::new());
+    let mut sig = vec!["double t".to_string(), "const double *state".to_string()];
+    sig.extend(p.param_names.iter().map(|p| format!("double {p}")));
+    let ret = match shape {
+        Shape::Scalar(_) => "double",
+        _ => {
+            sig.push("double *out".to_string());
+            "void"
+        }
+    };
+    out.push(format!("{ret} {fname}({})", sig.join(", ")));
+    out.push("{".to_string());
+    for (i, s) in p.state_names.iter().enumerate() {
+        out.push(format!("    const double {s} = state[{i}];"));
+    }
+    let mut unused = vec!["t".to_string(), "state".to_string()];
+    unused.extend(p.state_names.iter().cloned());
+    unused.extend(p.param_names.iter().cloned());
+    for u in unused {
+        out.push(format!("    (void){u};"));
+    }
+    match shape {
+        Shape::Scalar(_) => out.push(format!("    return {};", p.entries[0])),
+        _ => {
+            for (i, e) in p.entries.iter().enumerate() {
+                out.push(format!("    out[{i}] = {e};"));
+            }
+        }
+    }
+    out.push("}".to_string());
+}
+
+/// `pub fn name(t, state, params) -> f64` (or a fixed-size array).
+fn rust(p: &Parts, shape: &Shape, out: &mut Vec<String>) {
+    let (fname, what, state_doc) = (&p.fname, &p.what, &p.state_doc);
+    out.push(format!("// {state_doc}; returns {what}"));
+    let mut sig = vec!["t: f64".to_string(), "state: &[f64]".to_string()];
+    sig.extend(p.param_names.iter().map(|p| format!("{p}: f64")));
+    let ret = match shape {
+        Shape::Scalar(_) => "f64".to_string(),
+        Shape::Field(f) => format!("[f64; {}]", f.dim()),
+        Shape::Matrix(m) => format!("[[f64; {}]; {}]", m.cols, m.rows),
+    };
+    out.push("#[allow(unused_variables, unused_parens, non_snake_case, clippy::all)]".to_string());
+    out.push(format!("pub fn {fname}({}) -> {ret} {{", sig.join(", ")));
+    for (i, s) in p.state_names.iter().enumerate() {
+        out.push(format!("    let {s} = state[{i}];"));
+    }
+    let entries = &p.entries;
+    let body = match shape {
+        Shape::Scalar(_) => entries[0].clone(),
+        Shape::Field(_) => format!("[{}]", indent_list(entries, "        ")),
+        Shape::Matrix(m) => {
+            let rows = bracketed_rows(entries, m.rows, m.cols);
+            format!("[{}]", indent_list(&rows, "        "))
+        }
+    };
+    out.push(format!("    {body}"));
+    out.push("}".to_string());
+}
+
+/// The rows of a matrix's entries as list literals `[a, b]`.
+fn bracketed_rows(entries: &[String], rows: usize, cols: usize) -> Vec<String> {
+    (0..rows)
+        .map(|i| format!("[{}]", entries[i * cols..(i + 1) * cols].join(", ")))
+        .collect()
 }
 
 /// The left side of `… = state`: `x,` for one name, `a, b` for several.

@@ -7,12 +7,11 @@
 //! subscripts, `q_dot` → `\dot{q}`.
 //!
 //! Rendering needs only core types and the list of state coordinates (to
-//! order factors); the names on the left of an aligned block come from
-//! [`coordinate_names`], the one place that decides them.
+//! order factors); the names on the left of an aligned block are handed
+//! in by the caller (the language decides them, in one place).
 
 use crate::core::expr::{Key, LinearForm, TimeFactor, TrigFactor};
 use crate::core::{Expr, Field, Matrix, Sym, Q};
-use crate::lang::value::Value;
 
 /// Names that render as Greek letters: full names and the usual short ones.
 const GREEK: &[(&str, &str)] = &[
@@ -77,7 +76,7 @@ const ACCENTS: &[(&str, &str)] = &[
 
 /// A name in LaTeX: Greek letters, trailing digits and `_x` as subscripts,
 /// `q_dot` → `\dot{q}`, other multi-letter names upright.
-pub fn name(n: &str) -> String {
+pub(crate) fn name(n: &str) -> String {
     if !n.is_empty() && n.bytes().all(|b| b.is_ascii_digit()) {
         return n.to_string();
     }
@@ -128,13 +127,6 @@ fn base_name(base: &str) -> String {
         None if base.chars().count() == 1 => base.to_string(),
         None => format!("\\mathrm{{{base}}}"),
     }
-}
-
-/// The names of the coordinates a value is written in, for the left-hand
-/// sides of an aligned block. The one place that decides them: today the
-/// session's state names.
-pub fn coordinate_names(_v: &Value, states: &[Sym]) -> Vec<String> {
-    states.iter().map(|s| s.name()).collect()
 }
 
 /// A symbol in LaTeX: a name (see [`name`]) or an application of an
@@ -352,7 +344,7 @@ fn expr_lead(e: &Expr, states: &[Sym], lead: Option<Sym>) -> String {
 }
 
 /// A scalar expression in LaTeX over the state coordinates `states`.
-pub fn expr(e: &Expr, states: &[Sym]) -> String {
+pub(crate) fn expr(e: &Expr, states: &[Sym]) -> String {
     expr_lead(e, states, None)
 }
 
@@ -406,7 +398,7 @@ const WIDE: usize = 90;
 
 /// An `aligned` block: `\dot{x}_i &= …` for each component of `f`, terms
 /// grouped by powers of `eps`, the coordinates named by `coords`.
-pub fn aligned(f: &Field, eps: Sym, states: &[Sym], coords: &[String]) -> String {
+pub(crate) fn aligned(f: &Field, eps: Sym, states: &[Sym], coords: &[String]) -> String {
     let mut rows = Vec::new();
     for (i, comp) in f.0.iter().enumerate() {
         let lhs = coords
@@ -446,7 +438,7 @@ fn dot(tex: &str) -> String {
 }
 
 /// A field as a column `pmatrix`.
-pub fn field(f: &Field, states: &[Sym]) -> String {
+pub(crate) fn field(f: &Field, states: &[Sym]) -> String {
     let rows: Vec<String> = f.0.iter().map(|e| expr(e, states)).collect();
     format!(
         "\\begin{{pmatrix}} {} \\end{{pmatrix}}",
@@ -455,7 +447,7 @@ pub fn field(f: &Field, states: &[Sym]) -> String {
 }
 
 /// A matrix as a `pmatrix`.
-pub fn matrix(m: &Matrix, states: &[Sym]) -> String {
+pub(crate) fn matrix(m: &Matrix, states: &[Sym]) -> String {
     let rows: Vec<String> = (0..m.rows)
         .map(|i| {
             m.row(i)
@@ -469,19 +461,6 @@ pub fn matrix(m: &Matrix, states: &[Sym]) -> String {
         "\\begin{{pmatrix}} {} \\end{{pmatrix}}",
         rows.join(" \\\\ ")
     )
-}
-
-/// Any value: an averaged result as an `aligned` block of its equations
-/// of motion, other fields and matrices as `pmatrix`, scalars inline.
-pub fn value(v: &Value, states: &[Sym]) -> String {
-    match v {
-        Value::Scalar(e) => expr(e, states),
-        Value::Field(f) => match &f.averaged {
-            Some(info) => aligned(&f.field, info.eps, states, &coordinate_names(v, states)),
-            None => field(&f.field, states),
-        },
-        Value::Matrix(m) => matrix(m, states),
-    }
 }
 
 #[cfg(test)]

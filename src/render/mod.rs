@@ -2,5 +2,5 @@
 //! can be pasted back), LaTeX, and code for simulation.
 
 pub mod code;
-pub mod latex;
-pub mod plain;
+pub(crate) mod latex;
+pub(crate) mod plain;

@@ -5,6 +5,6 @@
 
 pub mod chrono;
 pub mod freelie;
-pub mod lyndon;
+pub mod lie_fields;
 pub mod shuffle;
 pub mod taylor;

@@ -23,7 +23,6 @@ use crate::core::CoreError;
 use crate::lang::session::{render_error, ErrorKind, SessionError, Style};
 use crate::lang::split::{needs_more, split_runnable, split_statements};
 use crate::lang::{Report, Rich, Session};
-use crate::render::latex;
 
 /// The content of `kernel_info_reply`.
 pub(crate) fn kernel_info() -> Json {
@@ -432,7 +431,7 @@ impl Kernel {
             Some(format!(
                 "{word}: {}\n{}",
                 self.session.describe(v),
-                crate::render::plain::value(v)
+                v.plain()
             ))
         } else if word.is_empty() {
             None
@@ -552,7 +551,7 @@ impl Outputs<'_> {
             .collect();
         let plain = results.join("\n");
         let tex = match &report.rich {
-            Some(Rich::Value(v, states)) => latex::value(v, states),
+            Some(Rich::Value(v, states)) => v.latex(states),
             Some(Rich::Latex) => plain.clone(),
             None => return,
         };

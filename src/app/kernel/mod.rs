@@ -11,8 +11,8 @@
 
 mod cell;
 mod server;
-pub mod spec;
-pub mod wire;
+pub(crate) mod spec;
+pub(crate) mod wire;
 
 use std::path::Path;
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -30,7 +30,7 @@ pub(crate) fn interrupt_now() {
 }
 
 /// `ordex kernel install`: registers the kernel; returns the exit status.
-pub fn install() -> u8 {
+pub(crate) fn install() -> u8 {
     match spec::install() {
         Ok(dir) => {
             println!(
@@ -50,7 +50,7 @@ pub fn install() -> u8 {
 
 /// `ordex kernel CONNECTION_FILE`: serves the kernel until Jupyter shuts
 /// it down; returns the exit status (2 when it cannot start).
-pub fn run(connection_file: &Path) -> u8 {
+pub(crate) fn run(connection_file: &Path) -> u8 {
     let conn = match wire::Connection::read(connection_file) {
         Ok(conn) => conn,
         Err(e) => {

@@ -11,10 +11,10 @@ use std::path::{Path, PathBuf};
 use serde_json::json;
 
 /// The kernel's name in Jupyter (its directory under `kernels/`).
-pub const KERNEL_NAME: &str = "ordex";
+pub(crate) const KERNEL_NAME: &str = "ordex";
 
 /// The user's Jupyter data directory; `None` when there is no home.
-pub fn jupyter_data_dir() -> Option<PathBuf> {
+pub(crate) fn jupyter_data_dir() -> Option<PathBuf> {
     if let Some(dir) = std::env::var_os("JUPYTER_DATA_DIR").filter(|v| !v.is_empty()) {
         return Some(PathBuf::from(dir));
     }
@@ -28,7 +28,7 @@ pub fn jupyter_data_dir() -> Option<PathBuf> {
 /// `interrupt_request` messages on the control channel (`interrupt_mode`
 /// `message`), which reach the kernel however it was started; SIGINT works
 /// too.
-pub fn kernel_json(exe: &Path) -> String {
+pub(crate) fn kernel_json(exe: &Path) -> String {
     let spec = json!({
         "argv": [exe.to_string_lossy(), "kernel", "{connection_file}"],
         "display_name": "ordex",
@@ -43,7 +43,7 @@ pub fn kernel_json(exe: &Path) -> String {
 
 /// Writes the kernel spec for this binary into the user's Jupyter data
 /// directory; returns the spec's directory.
-pub fn install() -> Result<PathBuf, String> {
+pub(crate) fn install() -> Result<PathBuf, String> {
     let exe = std::env::current_exe()
         .and_then(|p| p.canonicalize())
         .map_err(|e| format!("cannot find the ordex binary to register: {e}"))?;

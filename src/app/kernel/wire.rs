@@ -16,14 +16,14 @@ use sha2::Sha256;
 use zeromq::ZmqMessage;
 
 /// The protocol version the kernel speaks.
-pub const PROTOCOL_VERSION: &str = "5.3";
+pub(crate) const PROTOCOL_VERSION: &str = "5.3";
 
 /// The frame that separates routing identities from the message.
-pub const DELIMITER: &[u8] = b"<IDS|MSG>";
+pub(crate) const DELIMITER: &[u8] = b"<IDS|MSG>";
 
 /// The connection file Jupyter writes before it starts the kernel.
 #[derive(Clone, Debug, Deserialize)]
-pub struct Connection {
+pub(crate) struct Connection {
     /// `tcp` (the only transport the kernel binds).
     #[serde(default = "tcp")]
     pub transport: String,
@@ -57,14 +57,14 @@ fn hmac_sha256() -> String {
 
 impl Connection {
     /// Reads and checks a connection file.
-    pub fn read(path: &Path) -> Result<Connection, String> {
+    pub(crate) fn read(path: &Path) -> Result<Connection, String> {
         let text = std::fs::read_to_string(path)
             .map_err(|e| format!("cannot read the connection file {}: {e}", path.display()))?;
         Connection::parse(&text).map_err(|e| format!("the connection file {} {e}", path.display()))
     }
 
     /// Parses and checks the JSON of a connection file.
-    pub fn parse(text: &str) -> Result<Connection, String> {
+    pub(crate) fn parse(text: &str) -> Result<Connection, String> {
         let c: Connection = serde_json::from_str(text).map_err(|e| format!("is not valid: {e}"))?;
         if c.transport != "tcp" {
             return Err(format!(
@@ -82,21 +82,21 @@ impl Connection {
     }
 
     /// The endpoint of a port, e.g. `tcp://127.0.0.1:5555`.
-    pub fn endpoint(&self, port: u16) -> String {
+    pub(crate) fn endpoint(&self, port: u16) -> String {
         format!("{}://{}:{}", self.transport, self.ip, port)
     }
 }
 
 /// Signs and verifies messages with the connection's key.
 #[derive(Clone)]
-pub struct Signer {
+pub(crate) struct Signer {
     /// `None` when the key is empty (signatures are then empty).
     mac: Option<Hmac<Sha256>>,
 }
 
 impl Signer {
     /// A signer for `key` (HMAC-SHA256; an empty key signs nothing).
-    pub fn new(key: &[u8]) -> Signer {
+    pub(crate) fn new(key: &[u8]) -> Signer {
         let mac = if key.is_empty() {
             None
         } else {
@@ -115,7 +115,7 @@ impl Signer {
     }
 
     /// The hex signature of the four JSON frames.
-    pub fn sign(&self, parts: &[&[u8]]) -> String {
+    pub(crate) fn sign(&self, parts: &[&[u8]]) -> String {
         self.mac_of(parts)
             .map(|mac| hex::encode(mac.finalize().into_bytes()))
             .unwrap_or_default()
@@ -123,7 +123,7 @@ impl Signer {
 
     /// True when `signature` (hex) signs the four JSON frames; without a
     /// key every message is accepted. The comparison takes constant time.
-    pub fn verify(&self, signature: &[u8], parts: &[&[u8]]) -> bool {
+    pub(crate) fn verify(&self, signature: &[u8], parts: &[&[u8]]) -> bool {
         match self.mac_of(parts) {
             None => true,
             Some(mac) => match hex::decode(signature) {
@@ -136,7 +136,7 @@ impl Signer {
 
 /// A message header.
 #[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
-pub struct Header {
+pub(crate) struct Header {
     /// Unique per message.
     #[serde(default)]
     pub msg_id: String,
@@ -159,7 +159,7 @@ pub struct Header {
 
 /// The kernel's side of headers: its session id and user name.
 #[derive(Clone, Debug)]
-pub struct Origin {
+pub(crate) struct Origin {
     /// The kernel's session id (a UUID).
     pub session: String,
     /// The user name put in headers.
@@ -168,7 +168,7 @@ pub struct Origin {
 
 impl Origin {
     /// A new kernel origin with a fresh session id.
-    pub fn new() -> Origin {
+    pub(crate) fn new() -> Origin {
         Origin {
             session: uuid::Uuid::new_v4().to_string(),
             username: std::env::var("USER").unwrap_or_else(|_| "ordex".to_string()),
@@ -176,7 +176,7 @@ impl Origin {
     }
 
     /// A fresh header of type `msg_type`.
-    pub fn header(&self, msg_type: &str) -> Header {
+    pub(crate) fn header(&self, msg_type: &str) -> Header {
         Header {
             msg_id: uuid::Uuid::new_v4().to_string(),
             session: self.session.clone(),
@@ -188,7 +188,7 @@ impl Origin {
     }
 
     /// A reply to `request` (same routing identities, its header as parent).
-    pub fn reply(&self, request: &Message, msg_type: &str, content: Json) -> Message {
+    pub(crate) fn reply(&self, request: &Message, msg_type: &str, content: Json) -> Message {
         Message {
             identities: request.identities.clone(),
             header: self.header(msg_type),
@@ -201,7 +201,12 @@ impl Origin {
 
     /// A message for iopub caused by `parent` (none at start-up), with the
     /// topic `kernel.<session>.<type>`.
-    pub fn publish(&self, parent: Option<&Message>, msg_type: &str, content: Json) -> Message {
+    pub(crate) fn publish(
+        &self,
+        parent: Option<&Message>,
+        msg_type: &str,
+        content: Json,
+    ) -> Message {
         Message {
             identities: vec![Bytes::from(format!("kernel.{}.{}", self.session, msg_type))],
             header: self.header(msg_type),
@@ -215,7 +220,7 @@ impl Origin {
 
 /// One message of the protocol.
 #[derive(Clone, Debug, PartialEq)]
-pub struct Message {
+pub(crate) struct Message {
     /// Routing identities (ROUTER sockets) or the topic (iopub).
     pub identities: Vec<Bytes>,
     /// This message's header.
@@ -232,7 +237,7 @@ pub struct Message {
 
 /// Why frames were not a message.
 #[derive(Clone, Debug, PartialEq, Eq)]
-pub enum WireError {
+pub(crate) enum WireError {
     /// No `<IDS|MSG>` frame, or too few frames after it.
     Framing,
     /// The signature does not match the key.
@@ -253,17 +258,17 @@ impl std::fmt::Display for WireError {
 
 impl Message {
     /// The message type.
-    pub fn msg_type(&self) -> &str {
+    pub(crate) fn msg_type(&self) -> &str {
         &self.header.msg_type
     }
 
     /// The header as JSON (the parent header of answers).
-    pub fn header_json(&self) -> Json {
+    pub(crate) fn header_json(&self) -> Json {
         serde_json::to_value(&self.header).unwrap_or_else(|_| json!({}))
     }
 
     /// The frames of this message, signed.
-    pub fn to_frames(&self, signer: &Signer) -> Vec<Bytes> {
+    pub(crate) fn to_frames(&self, signer: &Signer) -> Vec<Bytes> {
         let jsons: [Vec<u8>; 4] = [
             serde_json::to_vec(&self.header).unwrap_or_else(|_| b"{}".to_vec()),
             serde_json::to_vec(&self.parent_header).unwrap_or_else(|_| b"{}".to_vec()),
@@ -281,14 +286,14 @@ impl Message {
     }
 
     /// The ZeroMQ message of this message, signed.
-    pub fn to_zmq(&self, signer: &Signer) -> ZmqMessage {
+    pub(crate) fn to_zmq(&self, signer: &Signer) -> ZmqMessage {
         // The frames always hold the delimiter, so they are never empty.
         ZmqMessage::try_from(self.to_frames(signer))
             .unwrap_or_else(|_| ZmqMessage::from(Bytes::from_static(DELIMITER)))
     }
 
     /// Reads a message from its frames, checking the signature.
-    pub fn from_frames(frames: Vec<Bytes>, signer: &Signer) -> Result<Message, WireError> {
+    pub(crate) fn from_frames(frames: Vec<Bytes>, signer: &Signer) -> Result<Message, WireError> {
         let split = frames
             .iter()
             .position(|f| f.as_ref() == DELIMITER)
@@ -321,7 +326,7 @@ impl Message {
     }
 
     /// Reads a message received on a ZeroMQ socket.
-    pub fn from_zmq(message: ZmqMessage, signer: &Signer) -> Result<Message, WireError> {
+    pub(crate) fn from_zmq(message: ZmqMessage, signer: &Signer) -> Result<Message, WireError> {
         Message::from_frames(message.into_vec(), signer)
     }
 }

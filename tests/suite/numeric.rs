@@ -151,7 +151,7 @@ fn missing_values_are_named() {
 /// The committed SciPy reference (scripts/fixtures/gen_compare.py):
 /// `(case, eps, order) -> (periods, max_error)`.
 fn scipy_reference() -> Vec<(String, f64, usize, usize, f64)> {
-    let text = include_str!("fixtures/scipy/compare_planar_trig.csv");
+    let text = include_str!("../fixtures/scipy/compare_planar_trig.csv");
     text.lines()
         .filter(|l| !l.starts_with('#') && !l.starts_with("case"))
         .map(|l| {
