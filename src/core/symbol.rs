@@ -16,7 +16,7 @@ use std::collections::HashMap;
 
 /// An interned name.
 #[derive(Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Debug)]
-pub struct Sym(pub u32);
+pub struct Sym(pub(in crate::core) u32);
 
 struct Interner {
     names: Vec<String>,
@@ -46,6 +46,11 @@ impl Sym {
     pub const T: Sym = Sym(0);
     /// The constant pi.
     pub const PI: Sym = Sym(1);
+
+    /// The symbol's number (its order of first use).
+    pub fn index(self) -> u32 {
+        self.0
+    }
 
     /// Interns `name`.
     pub fn new(name: &str) -> Sym {

@@ -695,17 +695,15 @@ impl Expr {
                     return Err(bad());
                 }
             }
-            let mut sm = crate::core::expr::Monomial::one();
+            let mut sm = k.mono.clone();
             let mut rest = k.clone();
-            for (s, e) in &k.mono.0 {
-                if states.contains(s) {
-                    if *e < 0 {
-                        return Err(bad());
-                    }
-                    sm.0.push((*s, *e));
+            for (s, e) in k.mono.powers() {
+                if states.contains(s) && *e < 0 {
+                    return Err(bad());
                 }
             }
-            rest.mono.0.retain(|(s, _)| !states.contains(s));
+            sm.retain(|(s, _)| states.contains(s));
+            rest.mono.retain(|(s, _)| !states.contains(s));
             let coeff = Expr::term(rest, c.clone());
             match out.iter_mut().find(|(m, _)| *m == sm) {
                 Some((_, acc)) => *acc = acc.add(&coeff),

@@ -56,7 +56,7 @@ impl Session {
         let mut out = Expr::zero();
         for (k, c) in arg.terms() {
             let plain = k.exp.is_zero() && k.wave == TrigFactor::One && k.beat == TimeFactor::One;
-            let param = match k.mono.0.as_slice() {
+            let param = match k.mono.powers() {
                 [(a, 1), (b, 1)] if plain && (*a == Sym::T || *b == Sym::T) => {
                     let w = if *a == Sym::T { *b } else { *a };
                     (self.sym_kind(&w.name()) == Some(SymKind::Param)).then_some(w)
@@ -140,10 +140,10 @@ impl Session {
                         if k.exp.is_zero()
                             && k.wave == TrigFactor::One
                             && k.beat == TimeFactor::One
-                            && matches!(k.mono.0.as_slice(), [(u, 1)]
+                            && matches!(k.mono.powers(), [(u, 1)]
                                 if self.sym_kind(&u.name()) == Some(SymKind::Param)) =>
                     {
-                        let u = k.mono.0[0].0;
+                        let u = k.mono.powers()[0].0;
                         let nph = phase_of(u);
                         states.push(nph);
                         Expr::sym(nph).scale(c)
@@ -292,7 +292,7 @@ impl Session {
                 if pw >= 2 {
                     let amp = k
                         .mono
-                        .0
+                        .powers()
                         .iter()
                         .find(|(s, e)| {
                             *e > 0 && *s != w && self.sym_kind(&s.name()) == Some(SymKind::Param)

@@ -86,7 +86,7 @@ impl CompiledExpr {
             let mut coeff = c.to_f64();
             let mut powers = Vec::new();
             let mut tpow = 0;
-            for (s, p) in &k.mono.0 {
+            for (s, p) in k.mono.powers() {
                 if let Some(i) = index.get(s) {
                     powers.push((*i, *p));
                 } else if *s == Sym::T {

@@ -256,7 +256,7 @@ impl Writer<'_> {
         if !a.is_one() {
             factors.push(coeff_lit(&a));
         }
-        for (s, e) in &k.mono.0 {
+        for (s, e) in k.mono.powers() {
             factors.push(self.power(self.sym(*s), *e));
         }
         if !k.exp.is_zero() {

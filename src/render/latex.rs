@@ -237,7 +237,7 @@ fn term(k: &Key, c: &Q, states: &[Sym], lead: Option<Sym>) -> (bool, String) {
     let mut down: Vec<String> = Vec::new();
     let mut vars: Vec<(usize, String)> = Vec::new();
     let mut funcs: Vec<String> = Vec::new();
-    for (s, e) in &k.mono.0 {
+    for (s, e) in k.mono.powers() {
         let n = sym_tex(*s);
         if crate::core::func::atom(*s).is_some() && *e > 0 {
             funcs.push(power(&n, *e as i64));

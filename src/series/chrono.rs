@@ -146,8 +146,8 @@ fn move_power(m: &Monomial, from: Sym, to: Sym) -> CoreResult<Monomial> {
         return Ok(m.clone());
     }
     let mut rest = m.clone();
-    rest.0.retain(|(x, _)| *x != from);
-    rest.mul(&Monomial([(to, e)].into_iter().collect()))
+    rest.retain(|(x, _)| *x != from);
+    rest.mul(&Monomial::from_powers([(to, e)])?)
 }
 
 /// Rewrites every term's key with `fast` (same coefficient), or, where it

@@ -18,8 +18,8 @@
 use std::collections::{BTreeMap, HashMap};
 
 use super::freelie::{standard_factorization, LiePoly, Word};
-use crate::core::sum::{Keep, SumBuilder};
 use crate::core::field::{bracket_sum, bracket_sum_onto_prepared, BracketStart, Prepared};
+use crate::core::sum::{Keep, SumBuilder};
 use crate::core::{limits, CoreError, CoreResult, Expr, Field, Sym, Q};
 
 /// A standard bracketing the plan keeps: a letter or `[P_left, P_right]`.

@@ -68,7 +68,7 @@ pub fn reduce_products(e: &Expr) -> CoreResult<Expr> {
     }
     let is_product = |k: &Key| {
         k.mono
-            .0
+            .powers()
             .iter()
             .filter(|(s, x)| *x > 0 && iints.contains_key(s))
             .map(|(_, x)| *x as i64)
@@ -89,7 +89,7 @@ pub fn reduce_products(e: &Expr) -> CoreResult<Expr> {
         let mut words: BTreeMap<Vec<String>, u64> = BTreeMap::new();
         words.insert(Vec::new(), 1);
         let mut letters = 0usize;
-        for (s, x) in &k.mono.0 {
+        for (s, x) in k.mono.powers() {
             let Some(w) = iints.get(s).filter(|_| *x > 0) else {
                 continue;
             };
@@ -113,7 +113,6 @@ pub fn reduce_products(e: &Expr) -> CoreResult<Expr> {
             }
         }
         rest.mono
-            .0
             .retain(|(s, x)| !(*x > 0 && iints.contains_key(s)));
         let base = Expr::term(rest, c.clone());
         let mut sum = Expr::zero();

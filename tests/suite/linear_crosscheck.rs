@@ -156,7 +156,7 @@ fn eval_f64(e: &Expr, vals: &HashMap<Sym, f64>) -> f64 {
         .iter()
         .map(|(k, c)| {
             let mut v = c.to_f64();
-            for (s, p) in &k.mono.0 {
+            for (s, p) in k.mono.powers() {
                 v *= val(s).powi(*p);
             }
             if !k.exp.is_zero() {

@@ -9,11 +9,11 @@
 //! `tests/checks` (published check values), `tests/fixtures` (reference
 //! results from other programs) and `tests/kernel` (the notebook driver).
 
-
 // Test code may unwrap: a failing unwrap is a failing test (the library
 // denies `clippy::unwrap_used`; clippy.toml lets `#[test]` functions
-// unwrap, and this covers the helpers they call).
-#![allow(clippy::unwrap_used)]
+// unwrap, and this covers the helpers they call). A test binary has no
+// public interface, so `pub` helpers shared between its modules are fine.
+#![allow(clippy::unwrap_used, unreachable_pub)]
 
 mod charts;
 mod cli;

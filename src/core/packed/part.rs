@@ -166,9 +166,7 @@ impl Packed {
             if !k.exp.is_zero() {
                 return None;
             }
-            let Some((n, d)) = c.as_small() else {
-                return None;
-            };
+            let (n, d) = c.as_small()?;
             if denom % d != 0 {
                 return None;
             }

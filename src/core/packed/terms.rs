@@ -11,9 +11,7 @@ use crate::core::term::{Key, LinearForm, TimeFactor, TrigFactor};
 pub fn common_denominator(terms: &[(Key, Q)]) -> Option<i64> {
     let mut denom: i64 = 1;
     for (_, c) in terms {
-        let Some((_, d)) = c.as_small() else {
-            return None;
-        };
+        let (_, d) = c.as_small()?;
         denom = lcm_i64(denom, d)?;
     }
     Some(denom)

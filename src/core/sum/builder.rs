@@ -446,9 +446,7 @@ impl SumBuilder {
                 let list = crate::core::term::integrate_time_monomial(n, &beat).ok()?;
                 let mut out = Vec::with_capacity(list.len() + 1);
                 for (power, b, q) in list {
-                    let Some((num, den)) = q.as_small() else {
-                        return None;
-                    };
+                    let (num, den) = q.as_small()?;
                     let (freq, odd) = match &b {
                         TimeFactor::One => (0, false),
                         TimeFactor::Cos(h) => (h.to_i64()?, false),

@@ -12,12 +12,39 @@ pub const SLOTS: u32 = 16;
 
 /// A monomial: sorted `(symbol, exponent)` pairs with nonzero exponents.
 #[derive(Clone, PartialEq, Eq, Hash, PartialOrd, Ord, Debug, Default)]
-pub struct Monomial(pub SmallVec<[(Sym, i32); 4]>);
+pub struct Monomial(pub(in crate::core) SmallVec<[(Sym, i32); 4]>);
 
 impl Monomial {
     /// The constant monomial 1.
     pub fn one() -> Monomial {
         Monomial(SmallVec::new())
+    }
+
+    /// The sorted `(symbol, exponent)` pairs, exponents nonzero.
+    pub fn powers(&self) -> &[(Sym, i32)] {
+        &self.0
+    }
+
+    /// The monomial of `(symbol, exponent)` pairs in any order (exponents
+    /// of a repeated symbol add; zero exponents are dropped); fails on
+    /// exponent overflow.
+    pub fn from_powers(pairs: impl IntoIterator<Item = (Sym, i32)>) -> CoreResult<Monomial> {
+        let mut v: SmallVec<[(Sym, i32); 4]> = pairs.into_iter().collect();
+        v.sort_by_key(|(s, _)| *s);
+        let mut out: SmallVec<[(Sym, i32); 4]> = SmallVec::with_capacity(v.len());
+        for (s, e) in v {
+            match out.last_mut() {
+                Some((l, x)) if *l == s => *x = x.checked_add(e).ok_or(exp_overflow())?,
+                _ => out.push((s, e)),
+            }
+        }
+        out.retain(|(_, e)| *e != 0);
+        Ok(Monomial(out))
+    }
+
+    /// Keeps the `(symbol, exponent)` factors that satisfy `keep`.
+    pub fn retain(&mut self, mut keep: impl FnMut(&(Sym, i32)) -> bool) {
+        self.0.retain(|p| keep(p));
     }
 
     /// Exponent of `s`.
