@@ -683,8 +683,9 @@ impl Expr {
         let mut out: Vec<(crate::core::expr::Monomial, Expr)> = Vec::new();
         for (k, c) in self.terms() {
             let bad = || Expr::term(k.clone(), c.clone()).to_string();
-            let mentions_state =
-                |l: &crate::core::expr::LinearForm| l.0.iter().any(|(s, _)| states.contains(s));
+            let mentions_state = |l: &crate::core::expr::LinearForm| {
+                l.terms().iter().any(|(s, _)| states.contains(s))
+            };
             if mentions_state(&k.exp) {
                 return Err(bad());
             }

@@ -66,7 +66,8 @@ fn lin(
     l: &crate::core::expr::LinearForm,
     index: &HashMap<Sym, usize>,
 ) -> Result<Vec<(usize, f64)>, Sym> {
-    l.0.iter()
+    l.terms()
+        .iter()
         .map(|(s, q)| index.get(s).map(|i| (*i, q.to_f64())).ok_or(*s))
         .collect()
 }

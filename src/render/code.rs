@@ -241,7 +241,7 @@ impl Writer<'_> {
 
     fn lin(&self, l: &LinearForm, time: Option<&Q>) -> String {
         let mut parts: Vec<(bool, String)> = Vec::new();
-        for (s, c) in l.0.iter() {
+        for (s, c) in l.terms() {
             parts.push(scaled(c, self.sym(*s)));
         }
         if let Some(k) = time {

@@ -197,7 +197,7 @@ fn lin(l: &LinearForm, extra: Option<&Q>) -> String {
         s.push_str(&coeff_prefix(&a));
         s.push_str(&v);
     };
-    for (sym, c) in l.0.iter() {
+    for (sym, c) in l.terms() {
         push(c, name(&sym.name()));
     }
     if let Some(k) = extra {
@@ -225,7 +225,7 @@ fn trig(func: &str, arg: String, simple: bool) -> String {
 }
 
 fn is_simple_lin(l: &LinearForm) -> bool {
-    l.0.len() == 1 && l.0[0].1.is_integer() && !l.0[0].1.is_negative()
+    matches!(l.terms(), [(_, c)] if c.is_integer() && !c.is_negative())
 }
 
 /// One term as (negative, body): the number, then parameters (`lead`

@@ -11,7 +11,6 @@
 //! `j` (the power of eps, or 1 for the plain degree in `V`).
 
 use std::collections::HashMap;
-use std::sync::Arc;
 
 use crate::core::calc::Period;
 use crate::core::expr::{Key, LinearForm, Monomial, TimeFactor, TrigFactor};
@@ -80,7 +79,7 @@ fn time_to_symbol(e: &Expr, to: Sym, states: &[Sym]) -> CoreResult<Expr> {
     map.insert(Sym::T, Expr::sym(to));
     let mut out: Vec<(Key, Q)> = Vec::with_capacity(e.len());
     for (k, c) in e.terms() {
-        if k.exp.0.iter().any(|(x, _)| *x == Sym::T || *x == to) {
+        if k.exp.terms().iter().any(|(x, _)| *x == Sym::T || *x == to) {
             let slow = Expr::term(k.clone(), c.clone()).subst(&map, &ext)?;
             out.extend(slow.terms().iter().cloned());
             continue;
@@ -93,8 +92,8 @@ fn time_to_symbol(e: &Expr, to: Sym, states: &[Sym]) -> CoreResult<Expr> {
                 out.push((key, c.clone()));
                 continue;
             }
-            TimeFactor::Cos(w) => TrigFactor::Cos(LinearForm(Arc::from(vec![(to, w.clone())]))),
-            TimeFactor::Sin(w) => TrigFactor::Sin(LinearForm(Arc::from(vec![(to, w.clone())]))),
+            TimeFactor::Cos(w) => TrigFactor::Cos(LinearForm::single(to, w.clone())),
+            TimeFactor::Sin(w) => TrigFactor::Sin(LinearForm::single(to, w.clone())),
         };
         let factor = Key { wave, ..Key::one() };
         key.mul_into(c, &factor, &Q::ONE, &mut |k, c| out.push((k, c)))?;
@@ -110,12 +109,12 @@ fn symbol_to_time(e: &Expr, from: Sym, states: &[Sym]) -> CoreResult<Expr> {
     rename_terms(
         e,
         |k| {
-            if k.beat != TimeFactor::One || k.exp.0.iter().any(|(x, _)| *x == from) {
+            if k.beat != TimeFactor::One || k.exp.terms().iter().any(|(x, _)| *x == from) {
                 return Ok(None);
             }
             let beat = match &k.wave {
                 TrigFactor::One => TimeFactor::One,
-                TrigFactor::Cos(l) | TrigFactor::Sin(l) => match &l.0[..] {
+                TrigFactor::Cos(l) | TrigFactor::Sin(l) => match l.terms() {
                     [(x, w)] if *x == from => {
                         if matches!(k.wave, TrigFactor::Cos(_)) {
                             TimeFactor::Cos(w.clone())
@@ -123,7 +122,7 @@ fn symbol_to_time(e: &Expr, from: Sym, states: &[Sym]) -> CoreResult<Expr> {
                             TimeFactor::Sin(w.clone())
                         }
                     }
-                    _ if l.0.iter().all(|(x, _)| *x != from) => TimeFactor::One,
+                    _ if l.terms().iter().all(|(x, _)| *x != from) => TimeFactor::One,
                     _ => return Ok(None),
                 },
             };

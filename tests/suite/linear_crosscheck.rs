@@ -150,7 +150,7 @@ fn eval_f64(e: &Expr, vals: &HashMap<Sym, f64>) -> f64 {
             vals.get(s).copied().unwrap_or(f64::NAN)
         }
     };
-    let lin = |l: &LinearForm| -> f64 { l.0.iter().map(|(s, c)| c.to_f64() * val(s)).sum() };
+    let lin = |l: &LinearForm| -> f64 { l.terms().iter().map(|(s, c)| c.to_f64() * val(s)).sum() };
     let tv = val(&Sym::T);
     e.terms()
         .iter()

@@ -13,9 +13,22 @@ use crate::core::symbol::Sym;
 /// more often than their arguments change, and a small key keeps products
 /// and hashing cheap.
 #[derive(Clone, PartialEq, Eq, Hash, PartialOrd, Ord, Debug, Default)]
-pub struct LinearForm(pub Arc<[(Sym, Q)]>);
+pub struct LinearForm(pub(in crate::core) Arc<[(Sym, Q)]>);
 
 impl LinearForm {
+    /// The sorted `(symbol, coefficient)` pairs, coefficients nonzero.
+    pub fn terms(&self) -> &[(Sym, Q)] {
+        &self.0
+    }
+
+    /// The form `q·s` (zero when `q` is zero).
+    pub fn single(s: Sym, q: Q) -> LinearForm {
+        if q.is_zero() {
+            return LinearForm::default();
+        }
+        LinearForm(Arc::from(vec![(s, q)]))
+    }
+
     /// Coefficient of `s`.
     pub fn coeff(&self, s: Sym) -> Q {
         self.0

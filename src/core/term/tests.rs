@@ -146,3 +146,17 @@ fn key_factors_print_in_the_input_syntax() {
     insta::assert_snapshot!(key.factors().join("*"), @"x^2*y*exp(-y)*sin(x - 2*y)*cos(3*t)");
     assert!(Key::one().factors().is_empty());
 }
+
+#[test]
+fn a_single_linear_form_is_canonical() {
+    // The accessors keep the invariant of the type: sorted pairs with
+    // nonzero coefficients (so 0·x is the zero form).
+    let (x, y) = (Sym::new("x"), Sym::new("y"));
+    let two_x = LinearForm::single(x, Q::int(2));
+    assert_eq!(two_x.terms(), &[(x, Q::int(2))][..]);
+    assert_eq!(two_x, lin(&[(x, 2)]));
+    assert_eq!(two_x.coeff(x), Q::int(2));
+    assert_eq!(two_x.coeff(y), Q::ZERO);
+    assert!(LinearForm::single(y, Q::ZERO).is_zero());
+    assert!(LinearForm::single(y, Q::ZERO).terms().is_empty());
+}
