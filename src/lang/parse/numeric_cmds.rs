@@ -11,6 +11,14 @@ use super::Parser;
 use crate::lang::ast::{Assign, CommandKind, Ident, PathArg, PhasePlot, Span, SyntaxExpr};
 
 impl<'a> Parser<'a> {
+    /// The next word of a command's clause loop (`with`, `plot`, `sweep` …):
+    /// what follows it, the word and its span; `None` where no word starts.
+    fn clause_word(&self, rest: &'a str) -> Option<(&'a str, &'a str, Span)> {
+        let at = ws(rest);
+        let (after, word) = ident(at).ok()?;
+        Some((after, word, Span::new(self.off(at), self.off(after))))
+    }
+
     pub(super) fn simulate(&self, input: &'a str) -> GrammarResult<'a, CommandKind> {
         let (rest, field) = self.expect_expr(input, "the field after `simulate`")?;
         let Some(after_from) = self.keyword(rest, "from") else {
@@ -25,11 +33,9 @@ impl<'a> Parser<'a> {
         let mut plot: Option<PathArg> = None;
         let mut phase: Option<PhasePlot> = None;
         loop {
-            let at = ws(rest);
-            let Ok((after, word)) = ident(at) else {
+            let Some((after, word, span)) = self.clause_word(rest) else {
                 break;
             };
-            let span = Span::new(self.off(at), self.off(after));
             match word {
                 "with" => {
                     rest = self.once(&mut with, span, "`with`", || self.assigns(after, "with"))?;
@@ -88,11 +94,9 @@ impl<'a> Parser<'a> {
         let mut paths: Option<PathArg> = None;
         let mut table: Option<PathArg> = None;
         loop {
-            let at = ws(rest);
-            let Ok((after, word)) = ident(at) else {
+            let Some((after, word, span)) = self.clause_word(rest) else {
                 break;
             };
-            let span = Span::new(self.off(at), self.off(after));
             match word {
                 "with" => {
                     rest = self.once(&mut with, span, "`with`", || self.assigns(after, "with"))?;
